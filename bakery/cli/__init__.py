@@ -1,0 +1,57 @@
+"""The ``bakery`` command line: a thin shell over the library.
+
+Each capability lives in its own module under ``bakery/cli/`` and adds its commands to :data:`app` (or to
+:data:`env_app` for environment maps) when imported; :data:`COMMAND_MODULES` lists them. Command modules
+import heavy libraries inside their functions only, so ``bakery --help`` is fast.
+"""
+
+from __future__ import annotations
+
+import importlib
+from typing import Annotated
+
+import typer
+
+from bakery._version import __version__
+from bakery.cli._common import STATE
+
+app = typer.Typer(
+    name="bakery",
+    help="Bake texture maps for real-time renderers: normal maps, environment maps, roughness, batches.",
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_show_locals=False,
+    rich_markup_mode=None,
+)
+env_app = typer.Typer(help="Environment maps: panoramas, cubemaps, prefiltered lighting.", no_args_is_help=True,
+                      rich_markup_mode=None)
+
+#: Command modules, imported in this order (each registers its own commands).
+COMMAND_MODULES = ["bakery.cli.info", "bakery.cli.demo"]
+
+
+def _version(value: bool) -> None:
+    if value:
+        typer.echo(f"bakery {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def _root(
+    version: Annotated[bool, typer.Option("--version", callback=_version, is_eager=True,
+                                          help="Print the version and exit.")] = False,
+    debug: Annotated[bool, typer.Option("--debug", help="Show tracebacks instead of one-line errors.")] = False,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print only warnings and errors.")] = False,
+) -> None:
+    STATE["debug"] = debug
+    STATE["quiet"] = quiet
+
+
+for _mod in COMMAND_MODULES:
+    importlib.import_module(_mod)
+if env_app.registered_commands:
+    app.add_typer(env_app, name="env")
+
+
+def main() -> None:
+    app()

@@ -1,0 +1,44 @@
+"""The lines ``bakery info`` prints for one file (kept apart from the CLI module to keep imports light)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from bakery.classify import guess_kind
+from bakery.io.images import read_image
+
+DEPTH_NAMES = {"u8": "8-bit integer", "u16": "16-bit integer", "f16": "16-bit float (half)",
+               "f32": "32-bit float"}
+
+
+def describe(path: Path, *, max_pixels: int | None = None) -> list[str]:
+    img = read_image(path, max_pixels=max_pixels, allow_nonfinite=True)
+    px = img.pixels
+    h, w, c = px.shape
+    finite = np.isfinite(px)
+    nan = int(np.count_nonzero(np.isnan(px)))
+    inf = int(np.count_nonzero(np.isinf(px)))
+    lines = [
+        f"{path}",
+        f"  format:   {img.format.upper()}",
+        f"  size:     {w} x {h}",
+        f"  channels: {c} ({_channel_names(c)})",
+        f"  depth:    {DEPTH_NAMES[img.depth]}" + (" (stored as RGBE)" if img.format == "hdr" else ""),
+    ]
+    names = _channel_names(c).split(", ")
+    for ch in range(c):
+        plane = px[:, :, ch][finite[:, :, ch]]
+        if plane.size:
+            lines.append(f"  range {names[ch]}:  {float(plane.min()):.6g} .. {float(plane.max()):.6g}"
+                         f"  (mean {float(plane.mean(dtype=np.float64)):.6g})")
+        else:
+            lines.append(f"  range {names[ch]}:  no finite samples")
+    lines.append(f"  NaN: {nan}  Inf: {inf}")
+    lines.append(f"  looks like: {guess_kind(px, is_float=img.is_float)}")
+    return lines
+
+
+def _channel_names(c: int) -> str:
+    return {1: "gray", 2: "R, G", 3: "R, G, B", 4: "R, G, B, A"}[c]

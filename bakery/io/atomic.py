@@ -1,0 +1,56 @@
+"""Atomic file writes and output-path safety.
+
+Every file bakery writes goes through :func:`atomic_output`: the data is written to a temporary file in the
+target folder and renamed into place only when complete, so a crash or an error never leaves a partial file.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import tempfile
+from collections.abc import Iterable, Iterator
+from pathlib import Path
+
+from bakery.errors import BakeryError
+
+
+@contextlib.contextmanager
+def atomic_output(path: str | os.PathLike) -> Iterator[Path]:
+    """Yield a temporary path beside ``path``; on success rename it onto ``path``, on failure delete it.
+
+    The temporary name keeps the final suffix so format-sniffing writers pick the right codec.
+    """
+    path = Path(path)
+    folder = path.parent
+    if not folder.is_dir():
+        raise BakeryError("output folder does not exist", folder)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=f".part{path.suffix}", dir=folder)
+    os.close(fd)
+    tmp_path = Path(tmp)
+    try:
+        yield tmp_path
+        if not tmp_path.exists() or tmp_path.stat().st_size == 0:
+            raise RuntimeError(f"writer produced no data for {path}")
+        os.chmod(tmp_path, 0o644 & ~_umask())
+        os.replace(tmp_path, path)
+    finally:
+        with contextlib.suppress(FileNotFoundError):
+            tmp_path.unlink()
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+def check_distinct(outputs: Iterable[str | os.PathLike], inputs: Iterable[str | os.PathLike]) -> None:
+    """Refuse an output path that is also an input path (same file after resolving links)."""
+    resolved = {}
+    for p in inputs:
+        resolved[Path(p).resolve()] = p
+    for out in outputs:
+        r = Path(out).resolve()
+        if r in resolved:
+            raise BakeryError("output path is also an input; choose another output name", out)

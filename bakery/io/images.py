@@ -1,0 +1,445 @@
+"""Reading and writing images: PNG, TIFF, OpenEXR, Radiance HDR (RGBE), JPEG (read only).
+
+The only door between files and arrays. In memory every image is ``float32`` of shape ``(H, W, C)``, channels
+in RGB(A) order, rows top to bottom. Integer files map to [0, 1] (``v / 255`` or ``v / 65535``) and are written
+back with round-to-nearest, so integer data round-trips bit-exactly at its depth. Float data is never rescaled.
+
+Backends (chosen per format, never by guessing from the extension inside a library):
+
+========  ==========================  ============================================
+format    read                        write
+========  ==========================  ============================================
+PNG       OpenCV (8/16-bit, 1/3/4 ch)  OpenCV (8/16-bit, 1/3/4 ch)
+TIFF      tifffile (+imagecodecs)      tifffile, deflate (8/16-bit, float32)
+OpenEXR   ASWF ``OpenEXR``             ``OpenEXR``, ZIP, half or float
+HDR       OpenCV (float32)             OpenCV (RGBE, Ward 1991)
+JPEG      OpenCV (8-bit)               --
+========  ==========================  ============================================
+
+RGBE follows the variant of Ward's encoding that scales the mantissa by 256 and decodes ``c * 2**(E - 136)``
+(Ward 1991, "Real Pixels", Graphics Gems II): (1, 0.5, 0.25) <-> (128, 64, 32, 129).
+"""
+
+from __future__ import annotations
+
+import os
+import struct
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Literal
+
+import numpy as np
+
+from bakery.errors import BakeryError
+from bakery.io.atomic import atomic_output
+from bakery.io.color import linear_to_srgb, srgb_to_linear
+
+Depth = Literal["u8", "u16", "f16", "f32"]
+Color = Literal["data", "srgb"]
+
+#: Largest image (in pixels) read by default: 16384 x 16384. Override with ``max_pixels=`` or the
+#: ``BAKERY_MAX_PIXELS`` environment variable (read by the CLI).
+DEFAULT_MAX_PIXELS = 16384 * 16384
+
+FORMATS = {
+    ".png": "png",
+    ".tif": "tiff",
+    ".tiff": "tiff",
+    ".exr": "exr",
+    ".hdr": "hdr",
+    ".pic": "hdr",
+    ".jpg": "jpeg",
+    ".jpeg": "jpeg",
+}
+WRITABLE = {"png": ("u8", "u16"), "tiff": ("u8", "u16", "f32"), "exr": ("f16", "f32"), "hdr": ("f32",)}
+DEFAULT_DEPTH: dict[str, Depth] = {"png": "u8", "tiff": "u16", "exr": "f16", "hdr": "f32"}
+INTEGER_MAX = {"u8": 255, "u16": 65535}
+
+
+@dataclass(frozen=True)
+class Image:
+    """An image read from a file.
+
+    Attributes
+    ----------
+    pixels : ndarray, float32, shape (H, W, C)
+        RGB(A) order; integer files scaled to [0, 1]; colour-decoded to linear only when read with
+        ``color="srgb"``.
+    depth : {"u8", "u16", "f16", "f32"}
+        The file's sample type, so outputs can default to it (RGBE files report "f32").
+    format : {"png", "tiff", "exr", "hdr", "jpeg"}
+    path : Path
+    """
+
+    pixels: np.ndarray
+    depth: Depth
+    format: str
+    path: Path
+
+    @property
+    def channels(self) -> int:
+        return self.pixels.shape[2]
+
+    @property
+    def is_float(self) -> bool:
+        return self.depth in ("f16", "f32")
+
+
+def image_format(path: str | os.PathLike, *, writing: bool = False) -> str:
+    """The format name for a path, from its extension; a clear error for unknown ones."""
+    suffix = Path(path).suffix.lower()
+    fmt = FORMATS.get(suffix)
+    if fmt is None or (writing and fmt not in WRITABLE):
+        known = sorted(k for k, v in FORMATS.items() if not writing or v in WRITABLE)
+        verb = "write" if writing else "read"
+        raise BakeryError(f"cannot {verb} '{suffix or 'no extension'}' files; use one of {', '.join(known)}",
+                          path)
+    return fmt
+
+
+# ---------------------------------------------------------------------------------------------- reading
+
+
+def read_image(
+    path: str | os.PathLike,
+    *,
+    color: Color = "data",
+    max_pixels: int | None = None,
+    allow_nonfinite: bool = False,
+) -> Image:
+    """Read an image file into float32 ``(H, W, C)`` RGB(A).
+
+    Parameters
+    ----------
+    path : path-like
+    color : {"data", "srgb"}
+        ``"data"`` (default) leaves values as stored: right for height, normal, roughness and exponent maps and
+        for HDR files. ``"srgb"`` decodes 8/16-bit colour channels from sRGB to linear (IEC 61966-2-1); alpha
+        is never converted and float files are never converted.
+    max_pixels : int, optional
+        Refuse images larger than this many pixels before decoding them (decompression-bomb guard).
+        Default :data:`DEFAULT_MAX_PIXELS`.
+    allow_nonfinite : bool
+        Float files holding NaN or Inf are refused unless this is true (``bakery info`` uses it to count them).
+
+    Raises
+    ------
+    BakeryError
+        Missing, unreadable, truncated or corrupt file, unsupported format, too many pixels, NaN/Inf.
+    """
+    path = Path(path)
+    fmt = image_format(path)
+    if not path.exists():
+        raise BakeryError("file not found", path)
+    if not path.is_file():
+        raise BakeryError("not a regular file", path)
+    if not os.access(path, os.R_OK):
+        raise BakeryError("file is not readable (permission denied)", path)
+    limit = DEFAULT_MAX_PIXELS if max_pixels is None else int(max_pixels)
+    width, height = _peek_size(path, fmt)
+    if width * height > limit:
+        raise BakeryError(
+            f"image is {width}x{height} = {width * height} pixels, over the limit of {limit} "
+            "(raise it with --max-pixels or BAKERY_MAX_PIXELS if the file is trusted)", path)
+    try:
+        raw, depth = _READERS[fmt](path)
+    except BakeryError:
+        raise
+    except Exception as exc:  # decoder libraries raise many types for corrupt data
+        raise BakeryError(f"cannot decode {fmt.upper()} data ({_short(exc)})", path) from exc
+    pixels = _to_float(raw, depth)
+    if pixels.ndim == 2:
+        pixels = pixels[:, :, None]
+    if pixels.ndim != 3 or pixels.shape[2] not in (1, 2, 3, 4) or pixels.size == 0:
+        raise BakeryError(f"unsupported image shape {raw.shape}", path)
+    if depth in ("f16", "f32") and not allow_nonfinite:
+        bad = int(np.count_nonzero(~np.isfinite(pixels)))
+        if bad:
+            raise BakeryError(f"{bad} sample(s) are NaN or Inf; repair the file before baking", path)
+    if color == "srgb" and depth in ("u8", "u16"):
+        nc = 3 if pixels.shape[2] >= 3 else 1
+        pixels[:, :, :nc] = srgb_to_linear(pixels[:, :, :nc])
+    elif color not in ("data", "srgb"):
+        raise ValueError(f"color must be 'data' or 'srgb'; got {color!r}")
+    return Image(np.ascontiguousarray(pixels), depth, fmt, path)
+
+
+def _short(exc: BaseException) -> str:
+    text = " ".join(str(exc).split()) or type(exc).__name__
+    return text if len(text) < 160 else text[:157] + "..."
+
+
+def _to_float(raw: np.ndarray, depth: str) -> np.ndarray:
+    if depth in INTEGER_MAX:
+        return raw.astype(np.float32) * np.float32(1.0 / INTEGER_MAX[depth])
+    return np.array(raw, dtype=np.float32, copy=True)
+
+
+def _bgr_to_rgb(a: np.ndarray) -> np.ndarray:
+    if a.ndim == 3 and a.shape[2] >= 3:
+        a = a[:, :, [2, 1, 0, 3][: a.shape[2]]]
+    return a
+
+
+def _cv2():
+    import cv2
+
+    return cv2
+
+
+def _read_cv2(path: Path) -> tuple[np.ndarray, str]:
+    cv2 = _cv2()
+    data = np.fromfile(path, dtype=np.uint8)
+    a = cv2.imdecode(data, cv2.IMREAD_UNCHANGED)
+    if a is None:
+        raise BakeryError("file is corrupt or truncated (decoder returned no image)", path)
+    depth = {np.dtype(np.uint8): "u8", np.dtype(np.uint16): "u16", np.dtype(np.float32): "f32"}.get(a.dtype)
+    if depth is None:
+        raise BakeryError(f"unsupported sample type {a.dtype}", path)
+    return _bgr_to_rgb(a), depth
+
+
+def _read_png(path: Path) -> tuple[np.ndarray, str]:
+    _check_png_complete(path)
+    return _read_cv2(path)
+
+
+def _check_png_complete(path: Path) -> None:
+    """libpng may hand back a partly decoded image for a truncated file: require the IEND chunk."""
+    with open(path, "rb") as f:
+        f.seek(0, os.SEEK_END)
+        size = f.tell()
+        f.seek(max(0, size - 12))
+        tail = f.read()
+    if b"IEND" not in tail:
+        raise BakeryError("PNG file is truncated (no end chunk)", path)
+
+
+def _read_tiff(path: Path) -> tuple[np.ndarray, str]:
+    import tifffile
+
+    with tifffile.TiffFile(path) as tif:
+        page = tif.pages[0]
+        a = page.asarray()
+        extra = len(page.extrasamples) if hasattr(page, "extrasamples") else 0
+    if a.ndim == 3 and a.shape[0] in (1, 2, 3, 4) and a.shape[2] > 4:  # planar (C, H, W)
+        a = np.moveaxis(a, 0, -1)
+    del extra
+    dtype = a.dtype
+    if dtype == np.uint8:
+        return a, "u8"
+    if dtype == np.uint16:
+        return a, "u16"
+    if dtype == np.float32:
+        return a, "f32"
+    if dtype == np.float16:
+        return a, "f16"
+    if dtype == np.float64:
+        return a.astype(np.float32), "f32"
+    raise BakeryError(f"unsupported TIFF sample type {dtype}; use 8/16-bit integer or float32", path)
+
+
+_EXR_ORDER = ("R", "G", "B", "A")
+
+
+def _read_exr(path: Path) -> tuple[np.ndarray, str]:
+    import OpenEXR
+
+    with OpenEXR.File(str(path), separate_channels=True, num_threads=1) as f:
+        channels = {name: np.array(ch.pixels, copy=True) for name, ch in f.channels().items()}
+    if not channels:
+        raise BakeryError("OpenEXR file has no channels", path)
+    names = _exr_channel_order(list(channels), path)
+    planes = [channels[n] for n in names]
+    kinds = {p.dtype for p in planes}
+    if any(k not in (np.dtype(np.float16), np.dtype(np.float32)) for k in kinds):
+        raise BakeryError(f"unsupported OpenEXR channel type(s) {sorted(map(str, kinds))}", path)
+    depth = "f16" if kinds == {np.dtype(np.float16)} else "f32"
+    return np.stack([p.astype(np.float32) for p in planes], axis=-1), depth
+
+
+def _exr_channel_order(names: list[str], path: Path) -> list[str]:
+    upper = {n.upper(): n for n in names}
+    if "R" in upper and "G" in upper and "B" in upper:
+        order = ["R", "G", "B"] + (["A"] if "A" in upper else [])
+        return [upper[k] for k in order]
+    if "Y" in upper:
+        return [upper["Y"]] + ([upper["A"]] if "A" in upper else [])
+    if len(names) == 1:
+        return names
+    if set(upper) == {"R", "G"} or set(upper) == {"X", "Y"}:
+        return [upper[k] for k in (("R", "G") if "R" in upper else ("X", "Y"))]
+    raise BakeryError(f"cannot map OpenEXR channels {sorted(names)} to R, G, B(, A) or Y", path)
+
+
+def _read_hdr(path: Path) -> tuple[np.ndarray, str]:
+    a, depth = _read_cv2(path)
+    if depth != "f32":
+        raise BakeryError("Radiance HDR file did not decode to float data", path)
+    return a, "f32"
+
+
+_READERS = {"png": _read_png, "tiff": _read_tiff, "exr": _read_exr, "hdr": _read_hdr, "jpeg": _read_cv2}
+
+
+def _peek_size(path: Path, fmt: str) -> tuple[int, int]:
+    """Width and height from the file header, without decoding pixels."""
+    try:
+        if fmt == "png":
+            with open(path, "rb") as f:
+                head = f.read(24)
+            if len(head) < 24 or head[:8] != b"\x89PNG\r\n\x1a\n" or head[12:16] != b"IHDR":
+                raise BakeryError("not a PNG file (bad signature or header)", path)
+            w, h = struct.unpack(">II", head[16:24])
+            return w, h
+        if fmt == "tiff":
+            import tifffile
+
+            with tifffile.TiffFile(path) as tif:
+                page = tif.pages[0]
+                return int(page.imagewidth), int(page.imagelength)
+        if fmt == "exr":
+            with open(path, "rb") as f:
+                magic = f.read(4)
+            if magic != b"\x76\x2f\x31\x01":
+                raise BakeryError("not an OpenEXR file (bad magic number)", path)
+            import OpenEXR
+
+            with OpenEXR.File(str(path), header_only=True) as f:
+                lo, hi = f.header()["dataWindow"]
+            return int(hi[0] - lo[0] + 1), int(hi[1] - lo[1] + 1)
+        if fmt == "hdr":
+            return _hdr_size(path)
+        if fmt == "jpeg":
+            from PIL import Image as PILImage
+
+            PILImage.MAX_IMAGE_PIXELS = None  # we apply our own limit
+            with PILImage.open(path) as im:
+                return im.size
+    except BakeryError:
+        raise
+    except Exception as exc:
+        raise BakeryError(f"cannot read {fmt.upper()} header ({_short(exc)})", path) from exc
+    raise AssertionError(fmt)
+
+
+def _hdr_size(path: Path) -> tuple[int, int]:
+    with open(path, "rb") as f:
+        head = f.read(4096)
+    if not (head.startswith(b"#?RADIANCE") or head.startswith(b"#?RGBE")):
+        raise BakeryError("not a Radiance HDR file (missing #?RADIANCE signature)", path)
+    end = head.find(b"\n\n")
+    if end < 0:
+        raise BakeryError("Radiance HDR header is incomplete", path)
+    line = head[end + 2:].split(b"\n", 1)[0].split()
+    if len(line) != 4 or not line[1].isdigit() or not line[3].isdigit():
+        raise BakeryError("Radiance HDR resolution line is malformed", path)
+    axes = {line[0][1:2]: int(line[1]), line[2][1:2]: int(line[3])}
+    if set(axes) != {b"X", b"Y"}:
+        raise BakeryError("Radiance HDR resolution line is malformed", path)
+    return axes[b"X"], axes[b"Y"]
+
+
+# ---------------------------------------------------------------------------------------------- writing
+
+
+def write_image(
+    path: str | os.PathLike,
+    pixels: np.ndarray,
+    *,
+    depth: Depth | None = None,
+    color: Color = "data",
+) -> Path:
+    """Write float32 ``(H, W)`` or ``(H, W, C)`` RGB(A) pixels atomically.
+
+    Parameters
+    ----------
+    path : path-like
+        ``.png``, ``.tif``/``.tiff``, ``.exr`` or ``.hdr``.
+    pixels : ndarray
+        Float data; integer outputs take values in [0, 1] (clipped) and round to nearest, ties to even
+        (``numpy.rint``).
+    depth : {"u8", "u16", "f16", "f32"}, optional
+        Sample type; default per format: PNG u8, TIFF u16, EXR f16, HDR (RGBE) f32.
+    color : {"data", "srgb"}
+        ``"srgb"`` encodes colour channels with the IEC 61966-2-1 curve before quantising (never alpha).
+
+    Returns
+    -------
+    Path
+        The written path.
+    """
+    path = Path(path)
+    fmt = image_format(path, writing=True)
+    depth = depth or DEFAULT_DEPTH[fmt]
+    if depth not in WRITABLE[fmt]:
+        raise BakeryError(f"{fmt.upper()} files cannot hold {depth} samples; use one of "
+                          f"{', '.join(WRITABLE[fmt])}", path)
+    a = np.asarray(pixels, dtype=np.float32)
+    if a.ndim == 2:
+        a = a[:, :, None]
+    if a.ndim != 3 or a.shape[2] not in (1, 2, 3, 4):
+        raise BakeryError(f"cannot write an array of shape {np.shape(pixels)} as an image", path)
+    if color == "srgb":
+        a = a.copy()
+        nc = 3 if a.shape[2] >= 3 else 1
+        a[:, :, :nc] = linear_to_srgb(np.clip(a[:, :, :nc], 0.0, 1.0))
+    if fmt in ("png", "hdr") and a.shape[2] == 2:
+        raise BakeryError(f"{fmt.upper()} files cannot hold 2 channels; use .exr or .tif", path)
+    if fmt == "hdr" and np.any(a < 0):
+        raise BakeryError("Radiance HDR cannot store negative values; clamp them or write .exr", path)
+    if fmt == "hdr" and a.shape[2] != 3:
+        a = np.repeat(a[:, :, :1], 3, axis=2) if a.shape[2] == 1 else a[:, :, :3]
+    with atomic_output(path) as tmp:
+        _WRITERS[fmt](tmp, a, depth)
+    return path
+
+
+def quantize(a: np.ndarray, depth: Depth) -> np.ndarray:
+    """Float [0, 1] -> unsigned integers of ``depth``, round to nearest, ties to even (``numpy.rint``)."""
+    top = INTEGER_MAX[depth]
+    out = np.empty(a.shape, dtype=np.uint8 if depth == "u8" else np.uint16)
+    scaled = np.clip(a, 0.0, 1.0) * np.float32(top)
+    np.rint(scaled, out=scaled)
+    out[...] = scaled
+    return out
+
+
+def _write_png(tmp: Path, a: np.ndarray, depth: str) -> None:
+    cv2 = _cv2()
+    q = _bgr_to_rgb(quantize(a, depth))  # the same swap turns RGB(A) into BGR(A)
+    if not cv2.imwrite(str(tmp), np.ascontiguousarray(q)):
+        raise BakeryError("OpenCV failed to write the PNG file", tmp)
+
+
+def _write_tiff(tmp: Path, a: np.ndarray, depth: str) -> None:
+    import tifffile
+
+    data = quantize(a, depth) if depth in INTEGER_MAX else a.astype(np.float32)
+    if data.shape[2] == 1:
+        data = data[:, :, 0]
+    photometric = "minisblack" if data.ndim == 2 or data.shape[2] == 2 else "rgb"
+    extrasamples = ["unassalpha"] if data.ndim == 3 and data.shape[2] in (2, 4) else None
+    tifffile.imwrite(tmp, np.ascontiguousarray(data), photometric=photometric, compression="zlib",
+                     extrasamples=extrasamples, metadata=None)
+
+
+def _write_exr(tmp: Path, a: np.ndarray, depth: str) -> None:
+    import OpenEXR
+
+    dtype = np.float16 if depth == "f16" else np.float32
+    names = {1: ("Y",), 2: ("R", "G"), 3: ("R", "G", "B"), 4: ("R", "G", "B", "A")}[a.shape[2]]
+    data = a.astype(dtype)
+    channels = {n: np.ascontiguousarray(data[:, :, i]) for i, n in enumerate(names)}
+    header = {"compression": OpenEXR.ZIP_COMPRESSION, "type": OpenEXR.scanlineimage}
+    with OpenEXR.File(header, channels) as f:
+        f.write(str(tmp))
+
+
+def _write_hdr(tmp: Path, a: np.ndarray, depth: str) -> None:
+    cv2 = _cv2()
+    if not cv2.imwrite(str(tmp), np.ascontiguousarray(_bgr_to_rgb(a))):
+        raise BakeryError("OpenCV failed to write the HDR file", tmp)
+
+
+_WRITERS = {"png": _write_png, "tiff": _write_tiff, "exr": _write_exr, "hdr": _write_hdr}

@@ -1,0 +1,83 @@
+"""Content hashes and the JSON manifest written beside every bake's outputs.
+
+Manifests hold what is needed to reproduce and use an output: inputs with content hashes, parameters, the
+bakery version and conventions. No dates or timings, so the same inputs give byte-identical manifests.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+from pathlib import Path
+from typing import Any
+
+from bakery.io.atomic import atomic_output
+
+
+def file_digest(path: str | os.PathLike, *, chunk: int = 1 << 20) -> str:
+    """``"sha256:<hex>"`` of a file's bytes."""
+    h = hashlib.sha256()
+    with open(path, "rb") as f:
+        while block := f.read(chunk):
+            h.update(block)
+    return "sha256:" + h.hexdigest()
+
+
+def to_json(data: Any) -> str:
+    """Deterministic JSON text: sorted keys, two-space indent, paths as strings, trailing newline."""
+    return json.dumps(data, indent=2, sort_keys=True, default=_default, allow_nan=False) + "\n"
+
+
+def _default(obj: Any) -> Any:
+    if isinstance(obj, Path):
+        return obj.as_posix()
+    if hasattr(obj, "item"):  # numpy scalars
+        return obj.item()
+    if hasattr(obj, "tolist"):
+        return obj.tolist()
+    raise TypeError(f"cannot store {type(obj).__name__} in a manifest")
+
+
+def write_json(path: str | os.PathLike, data: Any) -> Path:
+    """Write deterministic JSON atomically."""
+    path = Path(path)
+    with atomic_output(path) as tmp:
+        tmp.write_text(to_json(data), encoding="utf-8")
+    return path
+
+
+def manifest_path(output: str | os.PathLike) -> Path:
+    """The manifest that belongs to an output file: ``name.ext`` -> ``name.ext.json``."""
+    output = Path(output)
+    return output.with_name(output.name + ".json")
+
+
+def write_manifest(output: str | os.PathLike, *, bake: str, inputs: dict[str, str | os.PathLike],
+                   params: dict[str, Any], outputs: list[str | os.PathLike],
+                   extra: dict[str, Any] | None = None) -> Path:
+    """Write ``<output>.json`` describing one bake.
+
+    Input paths are stored by name only (relative paths would vary with the working folder); their content
+    hashes identify them.
+    """
+    from bakery import __version__
+
+    out_dir = Path(output).parent
+    data = {
+        "bake": bake,
+        "bakery": __version__,
+        "inputs": {role: {"name": Path(p).name, "digest": file_digest(p)} for role, p in inputs.items()},
+        "params": params,
+        "outputs": [_rel(o, out_dir) for o in outputs],
+    }
+    if extra:
+        data.update(extra)
+    return write_json(manifest_path(output), data)
+
+
+def _rel(p: str | os.PathLike, base: Path) -> str:
+    try:
+        return Path(p).resolve().relative_to(base.resolve()).as_posix()
+    except ValueError:
+        return Path(p).name

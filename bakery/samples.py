@@ -1,0 +1,216 @@
+"""Procedural demo data: our own invented scene, worn paving stones under an open sky.
+
+Everything here is generated from a seed, so the demo files in ``samples/`` can be rebuilt exactly
+(``python -m bakery.samples samples/``). The data is for demonstrations only; tests of the methods use
+analytic cases and published values instead.
+
+Scene
+-----
+- :func:`paving_height`: a seamlessly tiling height map of irregular stones (Voronoi cells on a torus) with
+  bevelled, chipped edges, sunken grout joints and worn tops.
+- :func:`paving_exponent`: the matching specular-exponent (shininess) map: polished stone tops, dull joints.
+- :func:`sky_panorama`: an equirectangular HDR sky with a gradient from horizon to zenith, a small sun disk of
+  known radiance and a ground plane with a tile pattern, in bakery's equirectangular orientation
+  (see DEVELOPERS.md: image centre looks along -Z, +Y up, +X a quarter turn to the right).
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+
+
+def tiling_noise(shape: tuple[int, int], *, scale: float, seed: int, octaves: int = 4) -> np.ndarray:
+    """Smooth, seamlessly tiling noise in about [-1, 1]: white noise filtered in the Fourier domain.
+
+    ``scale`` is the feature size in texels of the first octave; each octave halves it with half the amplitude.
+    """
+    rng = np.random.default_rng(seed)
+    h, w = shape
+    fy = np.fft.fftfreq(h)[:, None]
+    fx = np.fft.rfftfreq(w)[None, :]
+    f2 = fx * fx + fy * fy
+    out = np.zeros(shape, dtype=np.float64)
+    amp = 1.0
+    for o in range(octaves):
+        s = scale / (2**o)
+        spectrum = np.fft.rfft2(rng.standard_normal(shape))
+        spectrum *= np.exp(-0.5 * f2 * (2 * math.pi * s / 2.0) ** 2)
+        layer = np.fft.irfft2(spectrum, s=shape)
+        layer /= layer.std() + 1e-12
+        out += amp * layer
+        amp *= 0.5
+    out /= 3.0
+    return out.astype(np.float32)
+
+
+def _voronoi_torus(shape: tuple[int, int], cells: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
+    """Per texel: the index of the nearest jittered site and the distance gap (d2 - d1) to the border,
+    with distances measured on the torus so the pattern tiles."""
+    rng = np.random.default_rng(seed)
+    h, w = shape
+    grid = int(round(math.sqrt(cells)))
+    gy, gx = np.mgrid[0:grid, 0:grid]
+    sites = np.stack([(gx + 0.15 + 0.7 * rng.random(gx.shape)) / grid,
+                      (gy + 0.15 + 0.7 * rng.random(gy.shape)) / grid], axis=-1).reshape(-1, 2)
+    ys = (np.arange(h, dtype=np.float32) + 0.5) / h
+    xs = (np.arange(w, dtype=np.float32) + 0.5) / w
+    d1 = np.full(shape, np.inf, dtype=np.float32)
+    d2 = np.full(shape, np.inf, dtype=np.float32)
+    idx = np.zeros(shape, dtype=np.int32)
+    aspect = w / h
+    for i, (sx, sy) in enumerate(sites):
+        dx = np.abs(xs - sx)
+        dx = np.minimum(dx, 1 - dx) * aspect
+        dy = np.abs(ys - sy)
+        dy = np.minimum(dy, 1 - dy)
+        d = np.sqrt(dy[:, None] ** 2 + dx[None, :] ** 2)
+        closer = d < d1
+        d2 = np.where(closer, d1, np.minimum(d2, d))
+        idx = np.where(closer, i, idx)
+        d1 = np.where(closer, d, d1)
+    return idx, (d2 - d1) * h
+
+
+def paving_height(size: int = 256, *, seed: int = 7, stones: int = 16) -> np.ndarray:
+    """Tiling height map of worn paving stones, float32 ``(size, size)`` in [0, 1].
+
+    Stone tops sit near 0.8 with gentle wear, edges are bevelled over a few percent of the tile, joints
+    (grout) sit near 0.1.
+    """
+    shape = (size, size)
+    idx, gap = _voronoi_torus(shape, stones, seed)
+    rng = np.random.default_rng(seed + 1)
+    stone_level = (0.72 + 0.12 * rng.random(idx.max() + 1)).astype(np.float32)[idx]
+    joint = 0.018 * size
+    bevel = 0.05 * size
+    chip = tiling_noise(shape, scale=size / 24, seed=seed + 2)
+    t = np.clip((gap - joint + 0.35 * bevel * chip) / bevel, 0.0, 1.0)
+    profile = t * t * (3 - 2 * t)  # smoothstep bevel
+    wear = 0.05 * tiling_noise(shape, scale=size / 10, seed=seed + 3, octaves=5)
+    grain = 0.012 * tiling_noise(shape, scale=size / 128, seed=seed + 4, octaves=2)
+    grout = 0.1 + 0.02 * tiling_noise(shape, scale=size / 40, seed=seed + 5)
+    h = grout + profile * (stone_level + wear - grout) + grain * profile
+    return np.clip(h, 0.0, 1.0).astype(np.float32)
+
+
+def paving_exponent(height: np.ndarray, *, seed: int = 7) -> np.ndarray:
+    """Blinn-Phong specular exponents matching :func:`paving_height`: about 8 in the joints, 40-400 on the
+    polished stone tops. float32, same shape as ``height``."""
+    top = np.clip((height - 0.3) / 0.45, 0.0, 1.0)
+    polish = 0.5 + 0.5 * tiling_noise(height.shape, scale=height.shape[0] / 12, seed=seed + 9)
+    log_n = np.log(8.0) + top * (np.log(40.0) + np.clip(polish, 0, 1) * (np.log(400.0) - np.log(40.0))
+                                 - np.log(8.0))
+    return np.exp(log_n).astype(np.float32)
+
+
+def _equirect_directions(width: int, height: int, rows: slice = slice(None),
+                         cols: slice = slice(None), sub: int = 1) -> np.ndarray:
+    """Directions of texel centres (or of ``sub`` x ``sub`` sub-samples) in bakery's equirect orientation:
+    u = (x + 0.5)/W, v = (y + 0.5)/H, longitude phi = 2 pi (u - 0.5), latitude = pi (0.5 - v),
+    d = (sin phi cos lat, sin lat, -cos phi cos lat)."""
+    y0, y1, _ = rows.indices(height)
+    x0, x1, _ = cols.indices(width)
+    ys = y0 + (np.arange((y1 - y0) * sub) + 0.5) / sub
+    xs = x0 + (np.arange((x1 - x0) * sub) + 0.5) / sub
+    phi = 2 * np.pi * (xs / width - 0.5)
+    lat = np.pi * (0.5 - ys / height)
+    cl = np.cos(lat)[:, None]
+    return np.stack([np.sin(phi)[None, :] * cl, np.broadcast_to(np.sin(lat)[:, None], (len(ys), len(xs))),
+                     -np.cos(phi)[None, :] * cl], axis=-1)
+
+
+def sun_direction(elevation_deg: float = 35.0, azimuth_deg: float = 60.0) -> np.ndarray:
+    """Unit vector toward the sun: azimuth measured from -Z (the panorama centre) toward +X."""
+    el, az = math.radians(elevation_deg), math.radians(azimuth_deg)
+    return np.array([math.sin(az) * math.cos(el), math.sin(el), -math.cos(az) * math.cos(el)])
+
+
+def sky_panorama(
+    width: int = 512,
+    *,
+    sun_radiance: float = 2.0e4,
+    sun_radius_deg: float = 0.5,
+    sun_elevation_deg: float = 35.0,
+    sun_azimuth_deg: float = 60.0,
+    sky_low: float = 0.15,
+    sky_high: float = 1.2,
+    ground: bool = True,
+) -> np.ndarray:
+    """Equirectangular HDR sky, float32 ``(width // 2, width, 3)`` linear RGB radiance.
+
+    The sky runs from ``sky_high`` (bright, whitish horizon) to ``sky_low`` in the blue channel's opposite
+    sense at the zenith, so every channel stays within [sky_low, sky_high]; the sun is a disk of
+    ``sun_radius_deg`` with constant radiance ``sun_radiance`` (area-weighted at its rim by 8x8 supersampling).
+    With ``ground``, the lower hemisphere is a grey tiled ground plane seen from 1.7 units above it
+    (radiance 0.05-0.3), which gives the panorama a readable orientation.
+    """
+    height = width // 2
+    d = _equirect_directions(width, height)
+    y = d[..., 1]
+    t = np.clip(y, 0.0, 1.0) ** 0.6  # 0 at the horizon, 1 at the zenith
+    horizon = np.array([1.2, 1.1, 0.95])
+    zenith = np.array([0.15, 0.3, 0.75])
+    span = sky_high - sky_low
+    colors = sky_low + span * (np.array([horizon, zenith]) - 0.15) / (1.2 - 0.15)
+    sky = colors[0] + (colors[1] - colors[0]) * t[..., None]
+    img = sky
+    if ground:
+        below = y < 0
+        with np.errstate(divide="ignore", invalid="ignore"):
+            dist = np.where(below, 1.7 / np.maximum(-y, 1e-6), 0.0)
+        gx = d[..., 0] * dist
+        gz = d[..., 2] * dist
+        checker = ((np.floor(gx / 2.0) + np.floor(gz / 2.0)) % 2).astype(np.float64)
+        fade = np.exp(-dist / 40.0)
+        base = 0.08 + 0.14 * checker
+        g = (base * fade + 0.12 * (1 - fade))[..., None] * np.array([1.0, 0.95, 0.85]) * 1.2
+        img = np.where(below[..., None], g, sky)
+    img = img.astype(np.float32)
+    # the sun: a disk of constant radiance, coverage from 8x8 sub-samples in a box around it
+    s = sun_direction(sun_elevation_deg, sun_azimuth_deg)
+    cos_r = math.cos(math.radians(sun_radius_deg))
+    lat = math.asin(s[1])
+    phi = math.atan2(s[0], -s[2])
+    cy = (0.5 - lat / math.pi) * height
+    cx = (phi / (2 * math.pi) + 0.5) * width
+    ry = math.radians(sun_radius_deg) / math.pi * height + 2
+    rx = ry / max(math.cos(lat), 1e-3) + 2
+    rows = slice(max(0, int(cy - ry)), min(height, int(cy + ry) + 2))
+    cols = slice(max(0, int(cx - rx)), min(width, int(cx + rx) + 2))
+    sub = 8
+    ds = _equirect_directions(width, height, rows, cols, sub)
+    inside = (ds @ s) >= cos_r
+    nr, nc = inside.shape[0] // sub, inside.shape[1] // sub
+    cover = inside.reshape(nr, sub, nc, sub).mean(axis=(1, 3))
+    patch = img[rows, cols]
+    patch[...] = patch * (1 - cover[..., None]) + sun_radiance * cover[..., None]
+    return img
+
+
+def write_samples(folder: str | Path, *, size: int = 256, sky_width: int = 512) -> dict[str, Path]:
+    """Write the demo inputs into ``folder``: 16-bit PNG height, float EXR exponents, 8-bit gloss PNG
+    (exponent = 2^(13 g), an exponential encoding, see docs/), and a Radiance HDR sky."""
+    from bakery.io.images import write_image
+
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    height = paving_height(size)
+    exponent = paving_exponent(height)
+    gloss = np.log2(exponent) / 13.0
+    files = {
+        "height": write_image(folder / "paving_height.png", height, depth="u16"),
+        "exponent": write_image(folder / "paving_exponent.exr", exponent, depth="f16"),
+        "gloss": write_image(folder / "paving_gloss.png", gloss, depth="u8"),
+        "sky": write_image(folder / "sky.hdr", sky_panorama(sky_width)),
+    }
+    return files
+
+
+if __name__ == "__main__":  # python -m bakery.samples samples/
+    import sys
+
+    for name, p in write_samples(sys.argv[1] if len(sys.argv) > 1 else "samples").items():
+        print(f"{name}: {p}")
