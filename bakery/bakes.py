@@ -120,7 +120,7 @@ def params_to_dict(params: Any) -> dict[str, Any]:
             v = v.as_posix()
         elif isinstance(v, tuple):
             v = list(v)
-        elif hasattr(v, "value") and isinstance(getattr(v, "value"), str | int | float):  # Enum
+        elif hasattr(v, "value") and isinstance(v.value, str | int | float):  # Enum
             v = v.value
         out[f.name] = v
     return out

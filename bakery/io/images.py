@@ -24,13 +24,14 @@ from __future__ import annotations
 
 import os
 import struct
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
 import numpy as np
 
-from bakery.errors import BakeryError
+from bakery.errors import BakeryError, BakeryWarning
 from bakery.io.atomic import atomic_output
 from bakery.io.color import linear_to_srgb, srgb_to_linear
 
@@ -390,6 +391,8 @@ def write_image(
         raise BakeryError("Radiance HDR cannot store negative values; clamp them or write .exr", path)
     if fmt == "hdr" and a.shape[2] != 3:
         a = np.repeat(a[:, :, :1], 3, axis=2) if a.shape[2] == 1 else a[:, :, :3]
+    if depth == "f16":
+        a = clamp_to_half(a, path)
     with atomic_output(path) as tmp:
         _WRITERS[fmt](tmp, a, depth)
     return path
@@ -434,6 +437,19 @@ def _write_exr(tmp: Path, a: np.ndarray, depth: str) -> None:
     header = {"compression": OpenEXR.ZIP_COMPRESSION, "type": OpenEXR.scanlineimage}
     with OpenEXR.File(header, channels) as f:
         f.write(str(tmp))
+
+
+HALF_MAX = 65504.0
+
+
+def clamp_to_half(a: np.ndarray, where: str | os.PathLike = "output") -> np.ndarray:
+    """Clamp values beyond the binary16 range (+-65504, IEEE 754-2008) with a warning that counts them."""
+    over = int(np.count_nonzero(np.abs(a) > HALF_MAX))
+    if over:
+        warnings.warn(f"{where}: {over} sample(s) exceed the half-float range and were clamped to "
+                      f"+-{HALF_MAX:g}; write float32 (--depth f32) to keep them", BakeryWarning, stacklevel=3)
+        a = np.clip(a, -HALF_MAX, HALF_MAX)
+    return a
 
 
 def _write_hdr(tmp: Path, a: np.ndarray, depth: str) -> None:

@@ -1,0 +1,39 @@
+"""The bake registry: recipe values are checked against the parameter dataclass."""
+
+from dataclasses import dataclass
+from typing import Literal
+
+import pytest
+
+from bakery.bakes import Bake, params_from_mapping, params_to_dict, register
+from bakery.errors import BakeryError
+
+
+@dataclass(frozen=True)
+class _P:
+    strength: float = 1.0
+    edges: Literal["wrap", "clamp"] = "wrap"
+    levels: int | None = None
+    flip: bool = False
+
+
+_BAKE = register(Bake("test-params", "for tests", ("src",), _P, lambda i, o, p: []))
+
+
+def test_values_are_coerced_and_checked():
+    p = params_from_mapping(_BAKE, {"strength": 2, "edges": "clamp", "levels": 3}, "r.toml: rule 'a'")
+    assert p == _P(2.0, "clamp", 3, False)
+    assert params_to_dict(p) == {"strength": 2.0, "edges": "clamp", "levels": 3, "flip": False}
+
+
+@pytest.mark.parametrize("values,match", [
+    ({"strenght": 1}, "no parameter 'strenght'; it takes: edges, flip, levels, strength"),
+    ({"strength": "x"}, "parameter 'strength': expected a number"),
+    ({"edges": "mirror"}, "expected one of 'wrap', 'clamp'"),
+    ({"levels": 2.5}, "expected a whole number"),
+    ({"flip": 1}, "expected true or false"),
+])
+def test_bad_values_name_the_place(values, match):
+    with pytest.raises(BakeryError, match=match) as info:
+        params_from_mapping(_BAKE, values, "r.toml: rule 'a'")
+    assert str(info.value).startswith("r.toml: rule 'a'")
