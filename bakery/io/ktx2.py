@@ -1,0 +1,617 @@
+"""KTX 2.0 textures: 2D textures and cubemaps with mip levels, uncompressed formats.
+
+Follows the Khronos KTX File Format Specification, version 2.0 [1]_ (identifier, header, index, level index,
+Data Format Descriptor, key/value data, alignment and level order) with the basic Data Format Descriptor block
+of the Khronos Data Format Specification 1.3/1.4 [2]_. Supercompression, array textures and 3D textures are
+not written, and are refused on reading with a clear message.
+
+In memory a texture is a list of levels, level 0 (largest) first. A 2D level is float32 ``(H, W, C)``, a
+cubemap level float32 ``(6, N, N, C)`` with faces in the order +X, -X, +Y, -Y, +Z, -Z (see
+:mod:`bakery.sphere`); rows run top to bottom (KTXorientation "rd"). Values are linear; formats ending in
+``_SRGB`` are encoded with the sRGB curve on writing and decoded on reading.
+
+Formats (``name``: VkFormat number, channels):
+
+=============================  =====  ===  ===============================================
+name                           vk     ch   notes
+=============================  =====  ===  ===============================================
+R8_UNORM                       9      1    [0, 1], round to nearest
+R8G8_UNORM                     16     2
+R8G8B8A8_UNORM                 37     4
+R8G8B8A8_SRGB                  43     4    colour sRGB-encoded, alpha linear
+R16_UNORM                      70     1
+R16G16_UNORM                   77     2
+R16G16B16A16_UNORM             91     4
+R16G16_SFLOAT                  83     2    e.g. a BRDF table
+R16G16B16A16_SFLOAT            97     4    default for HDR; |v| <= 65504
+R32G32B32A32_SFLOAT            109    4    masters
+B10G11R11_UFLOAT_PACK32        122    3    v in [0, 65024] (R, G), [0, 64512] (B)
+E5B9G9R9_UFLOAT_PACK32         123    3    v in [0, 65408]
+=============================  =====  ===  ===============================================
+
+Out-of-range values are clamped with one :class:`~bakery.errors.BakeryWarning` that counts them; NaN/Inf are
+refused (callers check inputs before).
+
+References
+----------
+.. [1] The Khronos Group, "KTX File Format Specification, version 2.0" (2021), sections 3 (file structure),
+   3.1 (identifier), 3.4 (header), 3.9 (level index), 3.10 (DFD), 3.11 (key/value data), 3.12 (level data
+   order and mipPadding), 4.2 (faceCount), 5.2 (KTXorientation), 5.9 (KTXwriter).
+.. [2] The Khronos Group, "Khronos Data Format Specification, version 1.3", section 5 (basic descriptor
+   block), section 5.16 examples for B10G11R11 and E5B9G9R9.
+.. [3] The Khronos Group, "Vulkan 1.3 Specification", sections on the packed 11/10-bit unsigned floats and
+   the shared-exponent format ("Unsigned 11-Bit Floating-Point Numbers", "Shared Exponent" in the
+   Fundamentals and Image Operations chapters, from EXT_texture_shared_exponent).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import struct
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from bakery.errors import BakeryError, BakeryWarning
+
+IDENTIFIER = bytes([0xAB, 0x4B, 0x54, 0x58, 0x20, 0x32, 0x30, 0xBB, 0x0D, 0x0A, 0x1A, 0x0A])
+HEADER_SIZE = 80
+LEVEL_INDEX_ENTRY = 24
+
+# DFD constants (Khronos Data Format Specification, basic descriptor block)
+KHR_DF_MODEL_RGBSDA = 1
+KHR_DF_PRIMARIES_BT709 = 1
+KHR_DF_TRANSFER_LINEAR = 1
+KHR_DF_TRANSFER_SRGB = 2
+KHR_DF_VERSION = 2
+Q_LINEAR, Q_EXPONENT, Q_SIGNED, Q_FLOAT = 0x1, 0x2, 0x4, 0x8  # the top nibble of sample word 0
+CH_R, CH_G, CH_B, CH_A = 0, 1, 2, 15
+F32_ONE, F32_MINUS_ONE = 0x3F800000, 0xBF800000
+
+HALF_MAX = 65504.0
+B10G11R11_MAX = (65024.0, 65024.0, 64512.0)  # (2 - 2^-6) 2^15 and (2 - 2^-5) 2^15
+RGB9E5_MAX = 511 / 512 * 2.0**16  # 65408
+
+
+@dataclass(frozen=True)
+class Format:
+    """One supported VkFormat."""
+
+    name: str
+    vk: int
+    channels: int
+    kind: str  # "unorm", "sfloat", "b10g11r11", "e5b9g9r9"
+    bits: int  # bits per component (unorm/sfloat); 32 for the packed formats
+    srgb: bool = False
+
+    @property
+    def texel_bytes(self) -> int:
+        return 4 if self.kind in ("b10g11r11", "e5b9g9r9") else self.channels * self.bits // 8
+
+    @property
+    def type_size(self) -> int:
+        return 4 if self.kind in ("b10g11r11", "e5b9g9r9") else self.bits // 8
+
+    @property
+    def is_float(self) -> bool:
+        return self.kind != "unorm"
+
+
+FORMATS: dict[str, Format] = {f.name: f for f in (
+    Format("R8_UNORM", 9, 1, "unorm", 8),
+    Format("R8G8_UNORM", 16, 2, "unorm", 8),
+    Format("R8G8B8A8_UNORM", 37, 4, "unorm", 8),
+    Format("R8G8B8A8_SRGB", 43, 4, "unorm", 8, srgb=True),
+    Format("R16_UNORM", 70, 1, "unorm", 16),
+    Format("R16G16_UNORM", 77, 2, "unorm", 16),
+    Format("R16G16B16A16_UNORM", 91, 4, "unorm", 16),
+    Format("R16G16_SFLOAT", 83, 2, "sfloat", 16),
+    Format("R16G16B16A16_SFLOAT", 97, 4, "sfloat", 16),
+    Format("R32G32B32A32_SFLOAT", 109, 4, "sfloat", 32),
+    Format("B10G11R11_UFLOAT_PACK32", 122, 3, "b10g11r11", 32),
+    Format("E5B9G9R9_UFLOAT_PACK32", 123, 3, "e5b9g9r9", 32),
+)}
+FORMATS_BY_VK: dict[int, Format] = {f.vk: f for f in FORMATS.values()}
+
+#: Short names accepted by the CLI.
+FORMAT_ALIASES = {
+    "rgba16f": "R16G16B16A16_SFLOAT", "rgba32f": "R32G32B32A32_SFLOAT", "rg11b10f": "B10G11R11_UFLOAT_PACK32",
+    "rgb9e5": "E5B9G9R9_UFLOAT_PACK32", "rg16f": "R16G16_SFLOAT", "r8": "R8_UNORM", "rg8": "R8G8_UNORM",
+    "rgba8": "R8G8B8A8_UNORM", "rgba8-srgb": "R8G8B8A8_SRGB", "r16": "R16_UNORM", "rg16": "R16G16_UNORM",
+    "rgba16": "R16G16B16A16_UNORM",
+}
+
+
+def get_format(name: str | int) -> Format:
+    """A :class:`Format` from its VkFormat name (``"R16G16B16A16_SFLOAT"``), short alias (``"rgba16f"``) or
+    number."""
+    if isinstance(name, int):
+        if name in FORMATS_BY_VK:
+            return FORMATS_BY_VK[name]
+        raise BakeryError(f"unsupported KTX2 vkFormat {name}")
+    key = FORMAT_ALIASES.get(name.lower(), name.upper().removeprefix("VK_FORMAT_"))
+    if key not in FORMATS:
+        raise BakeryError(f"unknown KTX2 format {name!r}; use one of {', '.join(FORMAT_ALIASES)} or "
+                          + ", ".join(FORMATS))
+    return FORMATS[key]
+
+
+@dataclass
+class Ktx2Texture:
+    """A decoded KTX2 texture.
+
+    Attributes
+    ----------
+    levels : list of ndarray, float32
+        Level 0 first; 2D ``(H, W, C)``, cubemap ``(6, N, N, C)``.
+    format : Format
+    cubemap : bool
+    key_values : dict of str to bytes
+        Key/value data as stored (values include their terminating NUL where the writer put one).
+    """
+
+    levels: list[np.ndarray]
+    format: Format
+    cubemap: bool
+    key_values: dict[str, bytes] = field(default_factory=dict)
+
+    @property
+    def width(self) -> int:
+        return int(self.levels[0].shape[-2])
+
+    @property
+    def height(self) -> int:
+        return int(self.levels[0].shape[-3])
+
+
+@dataclass(frozen=True)
+class Ktx2Header:
+    """Header and index fields of a KTX2 file (read without decoding pixels)."""
+
+    vk_format: int
+    type_size: int
+    width: int
+    height: int
+    depth: int
+    layers: int
+    faces: int
+    levels: int
+    supercompression: int
+    dfd: tuple[int, int]
+    kvd: tuple[int, int]
+    sgd: tuple[int, int]
+    level_index: tuple[tuple[int, int, int], ...]
+
+
+# --------------------------------------------------------------------------------------- packed floats
+
+
+def pack_ufloat(v: np.ndarray, exp_bits: int, man_bits: int) -> np.ndarray:
+    """Unsigned small floats (5-bit exponent, bias 15, no sign; ref. [3]) from non-negative values already
+    clamped to the format's range; round to nearest, ties to even. Returns uint32 bit patterns.
+
+    Examples
+    --------
+    >>> hex(int(pack_ufloat(np.array([1.0]), 5, 6)[0]))   # 1.0: exponent 15, mantissa 0
+    '0x3c0'
+    """
+    bias = (1 << (exp_bits - 1)) - 1
+    v = np.asarray(v, dtype=np.float64)
+    _, e2 = np.frexp(v)  # v = m 2^e2, m in [0.5, 1)
+    e = np.maximum(e2 - 1, 1 - bias)  # unbiased exponent, denormals share the smallest one
+    q = np.ldexp(1.0, e - man_bits)
+    n = np.rint(v / q).astype(np.int64)  # exact division by a power of two; rint ties to even
+    carry = n >= (2 << man_bits)
+    e = np.where(carry, e + 1, e)
+    n = np.where(carry, n >> 1, n)
+    normal = n >= (1 << man_bits)
+    exp_field = np.where(normal, e + bias, 0)
+    man = np.where(normal, n - (1 << man_bits), n)
+    return ((exp_field << man_bits) | man).astype(np.uint32)
+
+
+def unpack_ufloat(bits: np.ndarray, exp_bits: int, man_bits: int) -> np.ndarray:
+    """Inverse of :func:`pack_ufloat` (exponent all ones decodes to Inf or NaN as in ref. [3])."""
+    bias = (1 << (exp_bits - 1)) - 1
+    bits = np.asarray(bits, dtype=np.int64)
+    e = (bits >> man_bits) & ((1 << exp_bits) - 1)
+    m = bits & ((1 << man_bits) - 1)
+    normal = np.ldexp(1.0 + m / (1 << man_bits), e - bias)
+    denorm = np.ldexp(m / (1 << man_bits), 1 - bias)
+    out = np.where(e == 0, denorm, normal)
+    top = (1 << exp_bits) - 1
+    out = np.where(e == top, np.where(m == 0, np.inf, np.nan), out)
+    return out.astype(np.float32)
+
+
+def pack_b10g11r11(rgb: np.ndarray) -> np.ndarray:
+    """B10G11R11_UFLOAT_PACK32 words from (..., 3) values in range: R bits 0-10, G 11-21, B 22-31.
+
+    Examples
+    --------
+    >>> hex(int(pack_b10g11r11(np.array([1.0, 1.0, 1.0]))))
+    '0x781e03c0'
+    """
+    rgb = np.asarray(rgb, dtype=np.float64)
+    r = pack_ufloat(rgb[..., 0], 5, 6)
+    g = pack_ufloat(rgb[..., 1], 5, 6)
+    b = pack_ufloat(rgb[..., 2], 5, 5)
+    return (r | (g << np.uint32(11)) | (b << np.uint32(22))).astype(np.uint32)
+
+
+def unpack_b10g11r11(words: np.ndarray) -> np.ndarray:
+    w = np.asarray(words, dtype=np.uint32)
+    return np.stack([unpack_ufloat(w & 0x7FF, 5, 6), unpack_ufloat((w >> 11) & 0x7FF, 5, 6),
+                     unpack_ufloat((w >> 22) & 0x3FF, 5, 5)], axis=-1)
+
+
+def pack_rgb9e5(rgb: np.ndarray) -> np.ndarray:
+    """E5B9G9R9_UFLOAT_PACK32 words from (..., 3) values clamped to [0, 65408]: R mantissa bits 0-8, G 9-17,
+    B 18-26, shared exponent 27-31 (bias 15). The encoding of ref. [3] (EXT_texture_shared_exponent):
+    ``exp' = max(-B - 1, floor(log2(max))) + 1 + B``; if ``floor(max / 2^(exp' - B - N) + 0.5) = 2^N``
+    the exponent grows by one; each mantissa is ``floor(c / 2^(exp - B - N) + 0.5)`` (ties round up).
+
+    Examples
+    --------
+    >>> hex(int(pack_rgb9e5(np.array([1.0, 0.5, 0.25]))))
+    '0x81010100'
+    """
+    n_bits, bias = 9, 15
+    rgb = np.clip(np.asarray(rgb, dtype=np.float64), 0.0, RGB9E5_MAX)
+    mx = rgb.max(axis=-1)
+    _, e2 = np.frexp(mx)
+    fl = np.where(mx > 0, e2 - 1, -bias - 1).astype(np.int64)
+    exp_p = np.maximum(-bias - 1, fl) + 1 + bias
+    max_s = np.floor(mx / np.ldexp(1.0, exp_p - bias - n_bits) + 0.5)
+    exp_s = np.where(max_s >= (1 << n_bits), exp_p + 1, exp_p)
+    scale = np.ldexp(1.0, exp_s - bias - n_bits)[..., None]
+    m = np.floor(rgb / scale + 0.5).astype(np.int64)
+    m = np.minimum(m, (1 << n_bits) - 1)
+    words = m[..., 0] | (m[..., 1] << 9) | (m[..., 2] << 18) | (exp_s.astype(np.int64) << 27)
+    return words.astype(np.uint32)
+
+
+def unpack_rgb9e5(words: np.ndarray) -> np.ndarray:
+    w = np.asarray(words, dtype=np.int64)
+    e = (w >> 27) & 0x1F
+    scale = np.ldexp(1.0, e - 15 - 9)
+    return np.stack([(w & 0x1FF) * scale, ((w >> 9) & 0x1FF) * scale, ((w >> 18) & 0x1FF) * scale],
+                    axis=-1).astype(np.float32)
+
+
+# ------------------------------------------------------------------------------------------- encoding
+
+
+def fit_channels(a: np.ndarray, channels: int) -> np.ndarray:
+    """Adapt (..., C) data to a format's channel count: gray fills RGB, missing alpha becomes 1, extra
+    channels are dropped (RGB(A) -> RG keeps R and G)."""
+    c = a.shape[-1]
+    if c == channels:
+        return a
+    if c == 1 and channels in (3, 4):
+        a = np.repeat(a, 3, axis=-1)
+        c = 3
+    if c == 2 and channels in (3, 4):
+        a = np.concatenate([a, np.zeros(a.shape[:-1] + (1,), a.dtype)], axis=-1)
+        c = 3
+    if c == 3 and channels == 4:
+        return np.concatenate([a, np.ones(a.shape[:-1] + (1,), a.dtype)], axis=-1)
+    if c > channels:
+        return a[..., :channels]
+    return np.concatenate([a, np.zeros(a.shape[:-1] + (channels - c,), a.dtype)], axis=-1)
+
+
+def encode_texels(a: np.ndarray, fmt: Format, *, counts: dict[str, int] | None = None) -> bytes:
+    """Texel bytes (little-endian) of float32 ``(..., C)`` data in ``fmt``, with clamping counted into
+    ``counts["clamped"]``."""
+    from bakery.io.color import linear_to_srgb
+
+    a = fit_channels(np.asarray(a, dtype=np.float32), fmt.channels)
+    clamped = 0
+    if fmt.kind == "unorm":
+        if fmt.srgb:
+            a = a.copy()
+            a[..., :3] = linear_to_srgb(np.clip(a[..., :3], 0.0, 1.0))
+        clamped = int(np.count_nonzero((a < 0) | (a > 1)))
+        top = (1 << fmt.bits) - 1
+        q = np.rint(np.clip(a, 0.0, 1.0) * np.float32(top))
+        data = q.astype("<u1" if fmt.bits == 8 else "<u2")
+    elif fmt.kind == "sfloat":
+        if fmt.bits == 16:
+            clamped = int(np.count_nonzero(np.abs(a) > HALF_MAX))
+            data = np.clip(a, -HALF_MAX, HALF_MAX).astype("<f2")
+        else:
+            data = a.astype("<f4")
+    elif fmt.kind == "b10g11r11":
+        lim = np.array(B10G11R11_MAX, dtype=np.float32)
+        clamped = int(np.count_nonzero((a < 0) | (a > lim)))
+        data = pack_b10g11r11(np.clip(a, 0.0, lim)).astype("<u4")
+    else:
+        clamped = int(np.count_nonzero((a < 0) | (a > RGB9E5_MAX)))
+        data = pack_rgb9e5(a).astype("<u4")
+    if counts is not None:
+        counts["clamped"] = counts.get("clamped", 0) + clamped
+    return np.ascontiguousarray(data).tobytes()
+
+
+def decode_texels(buf: bytes | memoryview, fmt: Format, shape: tuple[int, ...]) -> np.ndarray:
+    """Float32 ``shape + (C,)`` from texel bytes (inverse of :func:`encode_texels`)."""
+    from bakery.io.color import srgb_to_linear
+
+    n = int(np.prod(shape))
+    if fmt.kind == "unorm":
+        raw = np.frombuffer(buf, dtype="<u1" if fmt.bits == 8 else "<u2", count=n * fmt.channels)
+        out = raw.astype(np.float32) / np.float32((1 << fmt.bits) - 1)
+        out = out.reshape(shape + (fmt.channels,))
+        if fmt.srgb:
+            out[..., :3] = srgb_to_linear(out[..., :3])
+        return out
+    if fmt.kind == "sfloat":
+        raw = np.frombuffer(buf, dtype="<f2" if fmt.bits == 16 else "<f4", count=n * fmt.channels)
+        return raw.astype(np.float32).reshape(shape + (fmt.channels,))
+    words = np.frombuffer(buf, dtype="<u4", count=n)
+    out = unpack_b10g11r11(words) if fmt.kind == "b10g11r11" else unpack_rgb9e5(words)
+    return out.reshape(shape + (3,))
+
+
+def dfd_bytes(fmt: Format) -> bytes:
+    """The Data Format Descriptor: dfdTotalSize then one basic descriptor block (ref. [2])."""
+    samples: list[tuple[int, int, int, int, int, int]] = []  # (offset, bits, channel, qualifiers, lo, hi)
+    if fmt.kind == "unorm":
+        ids = {1: [CH_R], 2: [CH_R, CH_G], 4: [CH_R, CH_G, CH_B, CH_A]}[fmt.channels]
+        top = (1 << fmt.bits) - 1
+        for i, ch in enumerate(ids):
+            q = Q_LINEAR if (fmt.srgb and ch == CH_A) else 0
+            samples.append((i * fmt.bits, fmt.bits, ch, q, 0, top))
+    elif fmt.kind == "sfloat":
+        ids = {2: [CH_R, CH_G], 4: [CH_R, CH_G, CH_B, CH_A]}[fmt.channels]
+        for i, ch in enumerate(ids):
+            samples.append((i * fmt.bits, fmt.bits, ch, Q_FLOAT | Q_SIGNED, F32_MINUS_ONE, F32_ONE))
+    elif fmt.kind == "b10g11r11":
+        for off, bits, ch in ((0, 11, CH_R), (11, 11, CH_G), (22, 10, CH_B)):
+            samples.append((off, bits, ch, Q_FLOAT, 0, F32_ONE))
+    else:  # E5B9G9R9: mantissa then exponent per channel, ref. [2] example
+        for off, ch in ((0, CH_R), (9, CH_G), (18, CH_B)):
+            samples.append((off, 9, ch, 0, 0, 8448))
+            samples.append((27, 5, ch, Q_EXPONENT, 15, 31))
+    block_size = 24 + 16 * len(samples)
+    transfer = KHR_DF_TRANSFER_SRGB if fmt.srgb else KHR_DF_TRANSFER_LINEAR
+    out = bytearray()
+    out += struct.pack("<I", 4 + block_size)
+    out += struct.pack("<I", 0)  # vendorId 0 (Khronos), descriptorType 0 (basic)
+    out += struct.pack("<HH", KHR_DF_VERSION, block_size)
+    out += struct.pack("<BBBB", KHR_DF_MODEL_RGBSDA, KHR_DF_PRIMARIES_BT709, transfer, 0)
+    out += struct.pack("<BBBB", 0, 0, 0, 0)  # texel block 1x1x1x1 (stored minus one)
+    out += struct.pack("<8B", fmt.texel_bytes, 0, 0, 0, 0, 0, 0, 0)
+    for off, bits, ch, q, lo, hi in samples:
+        out += struct.pack("<I", off | ((bits - 1) << 16) | (ch << 24) | (q << 28))
+        out += struct.pack("<I", 0)  # sample position 0,0,0,0
+        out += struct.pack("<II", lo, hi)
+    return bytes(out)
+
+
+def kv_bytes(key_values: dict[str, bytes | str]) -> bytes:
+    """Key/value data: entries sorted by key bytes, each ``length, key NUL value`` padded to 4 bytes."""
+    out = bytearray()
+    for key in sorted(key_values, key=lambda k: k.encode("utf-8")):
+        v = key_values[key]
+        value = (v.encode("utf-8") + b"\0") if isinstance(v, str) else bytes(v)
+        kv = key.encode("utf-8") + b"\0" + value
+        out += struct.pack("<I", len(kv)) + kv
+        out += b"\0" * (-len(kv) % 4)
+    return bytes(out)
+
+
+def _align(n: int, a: int) -> int:
+    return (n + a - 1) // a * a
+
+
+def mip_count(size: int) -> int:
+    """Levels of a full mip chain down to 1 texel: ``floor(log2(size)) + 1``."""
+    return int(size).bit_length()
+
+
+def encode_ktx2(levels: list[np.ndarray], fmt: Format | str, *, cubemap: bool,
+                key_values: dict[str, bytes | str] | None = None, writer_keys: bool = True
+                ) -> tuple[bytes, int]:
+    """The bytes of a KTX2 file holding ``levels``, and the number of clamped samples.
+
+    Parameters
+    ----------
+    levels : list of ndarray
+        Level 0 first, each half the size of the one before (rounded down, at least 1).
+        2D: ``(H, W, C)``; cubemap: ``(6, N, N, C)``. Channels are fitted to the format
+        (:func:`fit_channels`).
+    fmt : Format or str
+    cubemap : bool
+    key_values : dict, optional
+        Extra key/value entries (str values are stored NUL-terminated, bytes as given).
+    writer_keys : bool
+        Add "KTXorientation" = "rd" and "KTXwriter" = "bakery <version>" (default), unless given.
+    """
+    from bakery import __version__
+
+    fmt = get_format(fmt) if isinstance(fmt, str | int) else fmt
+    if not levels:
+        raise ValueError("a KTX2 texture needs at least one level")
+    first = levels[0]
+    if cubemap:
+        if first.ndim != 4 or first.shape[0] != 6 or first.shape[1] != first.shape[2]:
+            raise ValueError(f"cubemap levels must be (6, N, N, C); got {first.shape}")
+        h, w = first.shape[1], first.shape[2]
+    else:
+        if first.ndim != 3:
+            raise ValueError(f"2D levels must be (H, W, C); got {first.shape}")
+        h, w = first.shape[0], first.shape[1]
+    for i, lv in enumerate(levels):
+        want = (max(1, h >> i), max(1, w >> i))
+        got = lv.shape[1:3] if cubemap else lv.shape[:2]
+        if tuple(got) != want or lv.ndim != first.ndim:
+            raise ValueError(f"level {i} is {lv.shape}; expected size {want}")
+    if len(levels) > mip_count(max(h, w)):
+        raise ValueError("more levels than a full mip chain")
+    kv: dict[str, bytes | str] = (
+        {"KTXorientation": "rd", "KTXwriter": f"bakery {__version__}"} if writer_keys else {})
+    kv.update(key_values or {})
+    dfd = dfd_bytes(fmt)
+    kvd = kv_bytes(kv)
+    n = len(levels)
+    dfd_off = HEADER_SIZE + LEVEL_INDEX_ENTRY * n
+    kvd_off = dfd_off + len(dfd)
+    pos = kvd_off + len(kvd)
+    align = math.lcm(fmt.texel_bytes, 4)
+    counts: dict[str, int] = {}
+    payload = [encode_texels(lv, fmt, counts=counts) for lv in levels]
+    offsets = [0] * n
+    body = bytearray()
+    for i in reversed(range(n)):  # smallest level first in the file
+        pad = _align(pos, align) - pos
+        body += b"\0" * pad
+        pos += pad
+        offsets[i] = pos
+        body += payload[i]
+        pos += len(payload[i])
+    head = bytearray(IDENTIFIER)
+    head += struct.pack("<9I", fmt.vk, fmt.type_size, w, h, 0, 0, 6 if cubemap else 1, n, 0)
+    head += struct.pack("<4I2Q", dfd_off, len(dfd), kvd_off if kvd else 0, len(kvd), 0, 0)
+    for i in range(n):
+        head += struct.pack("<3Q", offsets[i], len(payload[i]), len(payload[i]))
+    return bytes(head) + dfd + kvd + bytes(body), counts.get("clamped", 0)
+
+
+def write_ktx2(path: str | os.PathLike, levels: list[np.ndarray], fmt: Format | str = "R16G16B16A16_SFLOAT",
+               *, cubemap: bool, key_values: dict[str, bytes | str] | None = None) -> Path:
+    """Write a KTX2 file atomically (see :func:`encode_ktx2`); warn with a count when values were clamped
+    to the format's range."""
+    from bakery.io.atomic import atomic_output
+
+    path = Path(path)
+    fmt = get_format(fmt) if isinstance(fmt, str | int) else fmt
+    for lv in levels:
+        if not np.all(np.isfinite(lv)):
+            raise BakeryError("cannot store NaN or Inf values in a KTX2 texture", path)
+    data, clamped = encode_ktx2(levels, fmt, cubemap=cubemap, key_values=key_values)
+    if clamped:
+        warnings.warn(f"{path}: {clamped} sample(s) outside the range of {fmt.name} were clamped; "
+                      "use R32G32B32A32_SFLOAT (rgba32f) to keep them", BakeryWarning, stacklevel=2)
+    with atomic_output(path) as tmp:
+        tmp.write_bytes(data)
+    return path
+
+
+# ------------------------------------------------------------------------------------------- decoding
+
+
+def parse_header(data: bytes | memoryview, where: str | os.PathLike | None = None) -> Ktx2Header:
+    """Check the identifier, header, index and level index of KTX2 bytes; every offset is bounds-checked."""
+    size = len(data)
+    if size < 12 or bytes(data[:12]) != IDENTIFIER:
+        raise BakeryError("not a KTX2 file (wrong identifier)", where)
+    if size < HEADER_SIZE:
+        raise BakeryError(f"KTX2 file is truncated ({size} bytes, header needs {HEADER_SIZE})", where)
+    vk, type_size, w, h, d, layers, faces, levels, scheme = struct.unpack_from("<9I", data, 12)
+    dfd_off, dfd_len, kvd_off, kvd_len, sgd_off, sgd_len = struct.unpack_from("<4I2Q", data, 48)
+    n = max(levels, 1)
+    if n > 32:
+        raise BakeryError(f"KTX2 header is inconsistent: levelCount {levels}", where)
+    end_index = HEADER_SIZE + LEVEL_INDEX_ENTRY * n
+    if size < end_index:
+        raise BakeryError("KTX2 file is truncated (level index incomplete)", where)
+    index = tuple(struct.unpack_from("<3Q", data, HEADER_SIZE + LEVEL_INDEX_ENTRY * i) for i in range(n))
+    for name, off, length in (("DFD", dfd_off, dfd_len), ("key/value data", kvd_off, kvd_len),
+                              ("supercompression data", sgd_off, sgd_len)):
+        if length and (off < end_index or off + length > size):
+            raise BakeryError(f"KTX2 file is truncated or corrupt ({name} at {off}+{length} is outside the "
+                              f"{size}-byte file)", where)
+    for i, (off, length, _) in enumerate(index):
+        if off + length > size:
+            raise BakeryError(f"KTX2 file is truncated (level {i} needs bytes up to {off + length}, file has "
+                              f"{size})", where)
+    return Ktx2Header(vk, type_size, w, h, d, layers, faces, levels, scheme, (dfd_off, dfd_len),
+                      (kvd_off, kvd_len), (sgd_off, sgd_len), index)
+
+
+def parse_key_values(data: bytes | memoryview, off: int, length: int,
+                     where: str | os.PathLike | None = None) -> dict[str, bytes]:
+    out: dict[str, bytes] = {}
+    pos, end = off, off + length
+    while pos + 4 <= end:
+        (n,) = struct.unpack_from("<I", data, pos)
+        pos += 4
+        if n == 0 or pos + n > end:
+            raise BakeryError("KTX2 key/value data is corrupt (entry runs past its end)", where)
+        entry = bytes(data[pos:pos + n])
+        nul = entry.find(b"\0")
+        if nul < 0:
+            raise BakeryError("KTX2 key/value data is corrupt (key without terminator)", where)
+        out[entry[:nul].decode("utf-8", "replace")] = entry[nul + 1:]
+        pos += _align(n, 4)
+    return out
+
+
+def decode_ktx2(data: bytes | memoryview, where: str | os.PathLike | None = None) -> Ktx2Texture:
+    """Decode KTX2 bytes written in one of :data:`FORMATS` (2D or cubemap, no supercompression)."""
+    hd = parse_header(data, where)
+    fmt = FORMATS_BY_VK.get(hd.vk_format)
+    if fmt is None:
+        raise BakeryError(f"KTX2 vkFormat {hd.vk_format} is not supported; supported: "
+                          + ", ".join(f"{f.name} ({f.vk})" for f in FORMATS.values()), where)
+    if hd.supercompression:
+        raise BakeryError(f"supercompressed KTX2 files (scheme {hd.supercompression}) are not supported",
+                          where)
+    if hd.depth:
+        raise BakeryError("3D KTX2 textures are not supported", where)
+    if hd.layers:
+        raise BakeryError("KTX2 array textures are not supported", where)
+    if hd.faces not in (1, 6):
+        raise BakeryError(f"KTX2 header is inconsistent: faceCount {hd.faces} (must be 1 or 6)", where)
+    if hd.width == 0 or hd.height == 0:
+        raise BakeryError("KTX2 header is inconsistent: zero width or height (1D textures are not supported)",
+                          where)
+    cube = hd.faces == 6
+    if cube and hd.width != hd.height:
+        raise BakeryError(f"KTX2 header is inconsistent: cubemap faces are {hd.width}x{hd.height}, "
+                          "not square", where)
+    if hd.levels > mip_count(max(hd.width, hd.height)):
+        raise BakeryError(f"KTX2 header is inconsistent: {hd.levels} levels for a {hd.width}x{hd.height} "
+                          "texture", where)
+    if hd.type_size != fmt.type_size:
+        raise BakeryError(f"KTX2 header is inconsistent: typeSize {hd.type_size} for {fmt.name}", where)
+    levels = []
+    for i, (off, length, _) in enumerate(hd.level_index[: max(hd.levels, 1)]):
+        h, w = max(1, hd.height >> i), max(1, hd.width >> i)
+        shape = (6, h, w) if cube else (h, w)
+        want = int(np.prod(shape)) * fmt.texel_bytes
+        if length != want:
+            raise BakeryError(f"KTX2 level {i} holds {length} bytes; a {w}x{h}"
+                              f"{' cubemap' if cube else ''} level of {fmt.name} needs {want}", where)
+        levels.append(decode_texels(memoryview(data)[off:off + length], fmt, shape))
+    kv = parse_key_values(data, *hd.kvd, where) if hd.kvd[1] else {}
+    return Ktx2Texture(levels, fmt, cube, kv)
+
+
+def read_ktx2_header(path: str | os.PathLike) -> Ktx2Header:
+    """Header fields of a KTX2 file (for ``bakery info``)."""
+    path = Path(path)
+    data = _read_bytes(path)
+    return parse_header(data, path)
+
+
+def read_ktx2(path: str | os.PathLike) -> Ktx2Texture:
+    """Read a KTX2 file; malformed files raise :class:`BakeryError` naming the problem."""
+    path = Path(path)
+    return decode_ktx2(_read_bytes(path), path)
+
+
+def _read_bytes(path: Path) -> bytes:
+    if not path.exists():
+        raise BakeryError("file not found", path)
+    if not path.is_file():
+        raise BakeryError("not a regular file", path)
+    try:
+        return path.read_bytes()
+    except OSError as exc:
+        raise BakeryError(f"cannot read file ({exc.strerror})", path) from None
