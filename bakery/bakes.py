@@ -26,7 +26,7 @@ from typing import Any
 from bakery.errors import BakeryError
 
 #: Modules that register bakes when imported.
-BAKE_MODULES: list[str] = []
+BAKE_MODULES: list[str] = ["bakery.normals.bakes"]
 
 
 @dataclass(frozen=True)

@@ -27,7 +27,7 @@ env_app = typer.Typer(help="Environment maps: panoramas, cubemaps, prefiltered l
                       rich_markup_mode=None)
 
 #: Command modules, imported in this order (each registers its own commands).
-COMMAND_MODULES = ["bakery.cli.info", "bakery.cli.inspect", "bakery.cli.demo"]
+COMMAND_MODULES = ["bakery.cli.info", "bakery.cli.inspect", "bakery.cli.demo", "bakery.cli.normals"]
 
 
 def _version(value: bool) -> None:

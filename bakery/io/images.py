@@ -55,6 +55,7 @@ FORMATS = {
 WRITABLE = {"png": ("u8", "u16"), "tiff": ("u8", "u16", "f32"), "exr": ("f16", "f32"), "hdr": ("f32",)}
 DEFAULT_DEPTH: dict[str, Depth] = {"png": "u8", "tiff": "u16", "exr": "f16", "hdr": "f32"}
 INTEGER_MAX = {"u8": 255, "u16": 65535}
+_INTEGER_DTYPES = {np.dtype(np.uint8): "u8", np.dtype(np.uint16): "u16"}
 
 
 @dataclass(frozen=True)
@@ -359,7 +360,8 @@ def write_image(
         ``.png``, ``.tif``/``.tiff``, ``.exr`` or ``.hdr``.
     pixels : ndarray
         Float data; integer outputs take values in [0, 1] (clipped) and round to nearest, ties to even
-        (``numpy.rint``).
+        (``numpy.rint``). ``uint8`` / ``uint16`` arrays are taken as already quantised and written as they are
+        (PNG and TIFF; lets big images be encoded strip by strip without a float copy).
     depth : {"u8", "u16", "f16", "f32"}, optional
         Sample type; default per format: PNG u8, TIFF u16, EXR f16, HDR (RGBE) f32.
     color : {"data", "srgb"}
@@ -372,11 +374,16 @@ def write_image(
     """
     path = Path(path)
     fmt = image_format(path, writing=True)
+    stored = _INTEGER_DTYPES.get(np.asarray(pixels).dtype)
+    if stored is not None:  # already quantised: written exactly as given
+        if depth not in (None, stored) or color != "data":
+            raise ValueError(f"{stored} pixels are written as stored; got depth={depth!r}, color={color!r}")
+        depth = stored
     depth = depth or DEFAULT_DEPTH[fmt]
     if depth not in WRITABLE[fmt]:
         raise BakeryError(f"{fmt.upper()} files cannot hold {depth} samples; use one of "
                           f"{', '.join(WRITABLE[fmt])}", path)
-    a = np.asarray(pixels, dtype=np.float32)
+    a = np.asarray(pixels) if stored else np.asarray(pixels, dtype=np.float32)
     if a.ndim == 2:
         a = a[:, :, None]
     if a.ndim != 3 or a.shape[2] not in (1, 2, 3, 4):
@@ -400,6 +407,8 @@ def write_image(
 
 def quantize(a: np.ndarray, depth: Depth) -> np.ndarray:
     """Float [0, 1] -> unsigned integers of ``depth``, round to nearest, ties to even (``numpy.rint``)."""
+    if _INTEGER_DTYPES.get(a.dtype) == depth:
+        return a
     top = INTEGER_MAX[depth]
     out = np.empty(a.shape, dtype=np.uint8 if depth == "u8" else np.uint16)
     scaled = np.clip(a, 0.0, 1.0) * np.float32(top)

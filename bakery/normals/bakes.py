@@ -1,0 +1,415 @@
+"""The normal-map bakes: ``normal``, ``height``, ``blend``, ``normal-mips`` and ``normal-fix``.
+
+Each bake reads its inputs through :mod:`bakery.io`, calls the pure functions of :mod:`bakery.normals`, writes
+its outputs atomically and a JSON manifest beside them. The CLI (``bakery/cli/normals.py``) and the batch
+runner both reach them through :func:`bakery.bakes.run_bake`.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Literal
+
+from bakery.bakes import Bake, params_to_dict, register
+from bakery.errors import BakeryError, BakeryWarning
+
+KernelName = Literal["scharr", "sobel", "prewitt", "central"]
+Edges = Literal["wrap", "clamp", "mirror"]
+YConv = Literal["up", "down"]
+Bits = Literal["8", "16", "half", "float"]
+Channel = Literal["r", "g", "b", "a", "luminance"]
+
+BITS_TO_DEPTH = {"8": "u8", "16": "u16", "half": "f16", "float": "f32"}
+ENCODING = "rgb = n * 0.5 + 0.5; integers round to nearest, ties to even"
+#: ITU-R BT.709 luma weights, used for ``channel="luminance"`` on the stored (not linearised) values.
+LUMA_709 = (0.2126, 0.7152, 0.0722)
+
+
+# ------------------------------------------------------------------------------------------- shared pieces
+
+
+def _conventions(y: str) -> dict:
+    return {"y": y, "y_meaning": "+Y up (OpenGL-style, glTF 2.0)" if y == "up" else
+            "+Y down (DirectX-style): green stores -n.y", "encoding": ENCODING}
+
+
+def output_depth(output: Path, bits: str | None, input_depth: str) -> str:
+    """Sample type of an output: ``bits`` if given, else the input's when the format can hold it, else the
+    nearest the format holds (16-bit PNG/TIFF for float input, half EXR for integer input)."""
+    from bakery.io.images import WRITABLE, image_format
+
+    fmt = image_format(output, writing=True)
+    if bits is not None:
+        depth = BITS_TO_DEPTH[bits]
+        if depth not in WRITABLE[fmt]:
+            raise BakeryError(f"{fmt.upper()} files cannot hold {bits}-bit samples" if bits in ("8", "16") else
+                              f"{fmt.upper()} files cannot hold {bits} floats", output)
+        return depth
+    if input_depth in WRITABLE[fmt]:
+        return input_depth
+    if fmt in ("png", "tiff"):
+        return "u16"
+    return "f32" if input_depth == "f32" and "f32" in WRITABLE[fmt] else WRITABLE[fmt][0]
+
+
+def resolve_strength(shape: tuple[int, int], strength: float | None, depth: float | None,
+                     size: tuple[float, ...]) -> tuple[float, float]:
+    """``(s_x, s_y)`` from either a plain factor or physical sizes (default: depth = width / 32)."""
+    from bakery.normals.from_height import DEFAULT_DEPTH_RATIO, strength_from_size
+
+    if strength is not None:
+        if depth is not None or size:
+            raise BakeryError("give either a plain strength or a physical depth and size, not both")
+        return float(strength), float(strength)
+    if len(size) not in (0, 1, 2):
+        raise BakeryError(f"size is the texture's physical width, or width and height; got {list(size)}")
+    width = size[0] if size else 1.0
+    tall = size[1] if len(size) == 2 else None
+    if depth is None:
+        depth = DEFAULT_DEPTH_RATIO * width
+    return strength_from_size(shape, depth, width, tall)
+
+
+def read_height(path: Path, channel: str | None = None, stretch: bool = False):
+    """A height map from a file: (H, W) float32 and the file's sample type.
+
+    Gray files, and colour files whose colour channels are equal, are read as gray; other colour files need
+    ``channel``. Warns when the heights are constant (the normal map will be flat).
+    """
+    import numpy as np
+
+    from bakery.io.images import read_image
+    from bakery.cli._common import max_pixels_from_env
+
+    img = read_image(path, max_pixels=max_pixels_from_env())
+    px = img.pixels
+    c = px.shape[2]
+    names = {"r": 0, "g": 1, "b": 2, "a": 3}
+    if channel == "luminance":
+        if c < 3:
+            raise BakeryError("luminance needs an RGB file; this one is gray", path)
+        w = np.asarray(LUMA_709, np.float32)
+        h = px[:, :, 0] * w[0] + px[:, :, 1] * w[1] + px[:, :, 2] * w[2]
+    elif channel is not None:
+        idx = names[channel]
+        if c < 3 and channel != "r" or c == 3 and channel == "a" or c == 2 and channel != "r":
+            raise BakeryError(f"has no {channel.upper()} channel ({c} channel(s))", path)
+        h = px[:, :, idx]
+    elif c <= 2:  # gray, or gray + alpha
+        h = px[:, :, 0]
+    else:
+        if not (np.array_equal(px[:, :, 0], px[:, :, 1]) and np.array_equal(px[:, :, 1], px[:, :, 2])):
+            raise BakeryError("colour channels differ, so it is not a plain height map; pick one with "
+                              "--channel r|g|b|a or use --channel luminance", path)
+        h = px[:, :, 0]
+    h = np.ascontiguousarray(h, dtype=np.float32)
+    lo, hi = float(h.min()), float(h.max())
+    if lo == hi:
+        warnings.warn(f"{path}: the height map is constant ({lo:.6g} everywhere): the normal map is flat",
+                      BakeryWarning, stacklevel=2)
+    elif stretch:
+        h -= np.float32(lo)
+        h *= np.float32(1.0 / (hi - lo))
+    return h, img.depth, (lo, hi)
+
+
+def read_normals(path: Path, y: str):
+    """Unit normals (H, W, 3) (+Y up) from a file, its sample type and channel count; warns (naming the file)
+    and renormalizes when the stored vectors are not unit length."""
+    from bakery.cli._common import max_pixels_from_env
+    from bakery.io.images import read_image
+    from bakery.normals.encode import decode_normals, unit_normals
+
+    img = read_image(path, max_pixels=max_pixels_from_env())
+    if img.channels == 1:
+        raise BakeryError("has one channel: a normal map needs 2 (XY), 3 (RGB) or 4 (RGBA)", path)
+    n = decode_normals(img.pixels, y=y)
+    return unit_normals(n, what=str(path)), img
+
+
+def write_normals(path: Path, n, *, y: str, channels: int, depth: str) -> Path:
+    from bakery.io.images import write_image
+    from bakery.normals.encode import encode_normals
+
+    return write_image(path, encode_normals(n, y=y, channels=channels), depth=depth)
+
+
+# ------------------------------------------------------------------------------------------------- normal
+
+
+@dataclass(frozen=True)
+class NormalParams:
+    """Parameters of the ``normal`` bake (height map -> normal map). See docs/normals.md."""
+
+    strength: float | None = None
+    depth: float | None = None
+    size: tuple[float, ...] = ()
+    kernel: KernelName = "scharr"
+    blur: float = 0.0
+    edges: Edges = "wrap"
+    y: YConv = "up"
+    channels: Literal[2, 3] = 3
+    bits: Bits | None = None
+    channel: Channel | None = None
+    stretch: bool = False
+
+
+def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams) -> list[Path]:
+    import numpy as np
+
+    from bakery.io.images import INTEGER_MAX, image_format, quantize, write_image
+    from bakery.io.manifest import write_manifest
+    from bakery.normals.encode import encode_normals
+    from bakery.normals.from_height import normal_from_height, run_strips
+
+    image_format(output, writing=True)
+    src = inputs["height"]
+    h, in_depth, (lo, hi) = read_height(src, p.channel, p.stretch)
+    rows, cols = h.shape
+    sx, sy = resolve_strength(h.shape, p.strength, p.depth, p.size)
+    depth = output_depth(output, p.bits, in_depth)
+    if p.channels == 2 and output.suffix.lower() == ".png":
+        raise BakeryError("PNG files cannot hold 2 channels; write the XY map as .tif or .exr", output)
+    opts = dict(strength=(sx, sy), kernel=p.kernel, blur=p.blur, edges=p.edges)
+    if depth in INTEGER_MAX:  # encode strip by strip into the integer image: no full float copy
+        q = np.empty((rows, cols, p.channels), np.uint8 if depth == "u8" else np.uint16)
+        scratch = {}
+
+        def finish(r0: int, r1: int, block: np.ndarray) -> None:
+            import threading
+
+            key = threading.get_ident()
+            buf = scratch.get(key)
+            if buf is None or buf.shape[0] < r1 - r0:
+                buf = scratch[key] = np.empty(block.shape[:2] + (p.channels,), np.float32)
+            e = encode_normals(block, y=p.y, channels=p.channels, out=buf[: r1 - r0])
+            q[r0:r1] = quantize(e, depth)
+
+        blocks: dict[int, np.ndarray] = {}
+
+        def target(r0: int, r1: int) -> np.ndarray:
+            import threading
+
+            key = threading.get_ident()
+            b = blocks.get(key)
+            if b is None or b.shape[0] < r1 - r0:
+                b = blocks[key] = np.empty((r1 - r0, cols, 3), np.float32)
+            return b[: r1 - r0]
+
+        run_strips(h, target=target, finish=finish, threads=None, **opts)
+        del h
+        write_image(output, q)
+    else:
+        n = normal_from_height(h, **opts)
+        del h
+        write_image(output, encode_normals(n, y=p.y, channels=p.channels), depth=depth)
+    extra = {"conventions": _conventions(p.y),
+             "strength_used": {"x": sx, "y": sy,
+                               "formula": "n = normalize(-s_x dh/dx, -s_y dh/dy, 1), derivatives per texel"},
+             "height_range": {"nominal": [0.0, 1.0], "data": [lo, hi], "stretched": p.stretch},
+             "sample_type": depth}
+    manifest = write_manifest(output, bake="normal", inputs={"height": src}, params=params_to_dict(p),
+                              outputs=[output], extra=extra)
+    return [output, manifest]
+
+
+# ------------------------------------------------------------------------------------------------- height
+
+
+@dataclass(frozen=True)
+class HeightParams:
+    """Parameters of the ``height`` bake (normal map -> height map)."""
+
+    strength: float | None = None
+    depth: float | None = None
+    size: tuple[float, ...] = ()
+    kernel: KernelName = "scharr"
+    edges: Edges = "wrap"
+    y: YConv = "up"
+    bits: Bits | None = None
+
+
+def run_height(inputs: dict[str, Path], output: Path, p: HeightParams) -> list[Path]:
+    from bakery.io.images import INTEGER_MAX, image_format, write_image
+    from bakery.io.manifest import write_manifest
+    from bakery.normals.integrate import fit_height, height_from_normal
+
+    image_format(output, writing=True)
+    src = inputs["normal"]
+    n, img = read_normals(src, p.y)
+    sx, sy = resolve_strength(n.shape[:2], p.strength, p.depth, p.size)
+    depth = output_depth(output, p.bits, img.depth)
+    z = height_from_normal(n, strength=(sx, sy), kernel=p.kernel, edges=p.edges)
+    h, offset, scale = fit_height(z, unit_range=depth in INTEGER_MAX)
+    if scale != 1.0:
+        warnings.warn(f"{output}: the relief spans {1 / scale:.4g} times the full height range; scaled by "
+                      f"{scale:.4g} to fit (use this strength times {1 / scale:.4g} to get the same normals, "
+                      "or write float .exr/.tif)", BakeryWarning, stacklevel=2)
+    write_image(output, h, depth=depth)
+    extra = {"conventions": _conventions(p.y),
+             "method": "Frankot-Chellappa 1988 (FFT)" if p.edges == "wrap" else
+             "least-squares Poisson, Neumann borders (DCT; Simchony, Chellappa & Shao 1990)",
+             "strength_used": {"x": sx, "y": sy},
+             "fit": {"offset": offset, "scale": scale,
+                     "meaning": "stored = (integrated height + offset) * scale, integrated height has mean 0"},
+             "sample_type": depth}
+    manifest = write_manifest(output, bake="height", inputs={"normal": src}, params=params_to_dict(p),
+                              outputs=[output], extra=extra)
+    return [output, manifest]
+
+
+# -------------------------------------------------------------------------------------------------- blend
+
+
+@dataclass(frozen=True)
+class BlendParams:
+    """Parameters of the ``blend`` bake (detail normal map over a base normal map)."""
+
+    method: Literal["reoriented", "whiteout", "linear"] = "reoriented"
+    detail_strength: float = 1.0
+    y: YConv = "up"
+    channels: Literal[2, 3] | None = None
+    bits: Bits | None = None
+
+
+def run_blend(inputs: dict[str, Path], output: Path, p: BlendParams) -> list[Path]:
+    from bakery.io.images import image_format
+    from bakery.io.manifest import write_manifest
+    from bakery.normals.blend import blend_normals
+
+    image_format(output, writing=True)
+    base, bimg = read_normals(inputs["base"], p.y)
+    detail, _ = read_normals(inputs["detail"], p.y)
+    if base.shape != detail.shape:
+        raise BakeryError(f"detail is {detail.shape[1]}x{detail.shape[0]} but the base is "
+                          f"{base.shape[1]}x{base.shape[0]}; they must match", inputs["detail"])
+    channels = p.channels or (2 if bimg.channels == 2 else 3)
+    depth = output_depth(output, p.bits, bimg.depth)
+    r = blend_normals(base, detail, method=p.method, detail_strength=p.detail_strength)
+    write_normals(output, r, y=p.y, channels=channels, depth=depth)
+    manifest = write_manifest(output, bake="blend", inputs={"base": inputs["base"], "detail": inputs["detail"]},
+                              params=params_to_dict(p), outputs=[output],
+                              extra={"conventions": _conventions(p.y), "sample_type": depth})
+    return [output, manifest]
+
+
+# -------------------------------------------------------------------------------------------- normal-mips
+
+
+@dataclass(frozen=True)
+class MipsParams:
+    """Parameters of the ``normal-mips`` bake (a normal map's mip chain + averaged-normal lengths)."""
+
+    levels: int | None = None
+    y: YConv = "up"
+    bits: Bits | None = None
+    lengths: bool = True
+
+
+def mip_paths(output: Path, levels: int) -> tuple[list[Path], list[Path]]:
+    """Level files ``name.mip1.ext`` .. and length files ``name.length.mip1.ext`` .. beside ``output``
+    (level 0 is ``output`` itself; its length is 1)."""
+    stem, ext = output.stem, output.suffix
+    lv = [output] + [output.with_name(f"{stem}.mip{i}{ext}") for i in range(1, levels)]
+    ln = [output.with_name(f"{stem}.length.mip{i}{ext}") for i in range(1, levels)]
+    return lv, ln
+
+
+def run_mips(inputs: dict[str, Path], output: Path, p: MipsParams) -> list[Path]:
+    from bakery.io.images import image_format, write_image
+    from bakery.io.manifest import write_manifest
+    from bakery.normals.mips import normal_mips
+
+    fmt = image_format(output, writing=True)
+    n, img = read_normals(inputs["normal"], p.y)
+    channels = 2 if img.channels == 2 else 3
+    depth = output_depth(output, p.bits, img.depth)
+    chain = normal_mips(n, levels=p.levels)
+    levels, lengths = mip_paths(output, len(chain))
+    len_depth = {"png": "u16", "tiff": "u16", "exr": "f32"}.get(fmt, "f32")
+    written = []
+    for path, (unit, _) in zip(levels, chain, strict=True):
+        written.append(write_normals(path, unit, y=p.y, channels=channels, depth=depth))
+    if p.lengths:
+        for path, (_, length) in zip(lengths, chain[1:], strict=True):
+            written.append(write_image(path, length, depth=len_depth))
+    extra = {"conventions": _conventions(p.y), "sample_type": depth,
+             "filter": "area-weighted box over each texel's footprint, vectors averaged then renormalized",
+             "levels": [{"level": i, "size": [int(u.shape[1]), int(u.shape[0])],
+                         "normals": levels[i].name,
+                         "length": lengths[i - 1].name if i and p.lengths else None,
+                         "mean_length": float(ln.mean(dtype="float64"))}
+                        for i, (u, ln) in enumerate(chain)],
+             "length_meaning": "|average of the level-0 unit normals under the texel| (Toksvig 2005)"}
+    manifest = write_manifest(output, bake="normal-mips", inputs={"normal": inputs["normal"]},
+                              params=params_to_dict(p), outputs=written, extra=extra)
+    return written + [manifest]
+
+
+# --------------------------------------------------------------------------------------------- normal-fix
+
+
+@dataclass(frozen=True)
+class FixParams:
+    """Parameters of the ``normal-fix`` bake: small repairs of an existing normal map."""
+
+    flip_y: bool = False
+    renormalize: bool = False
+    channels: Literal[2, 3] | None = None
+    bits: Bits | None = None
+
+
+def run_fix(inputs: dict[str, Path], output: Path, p: FixParams) -> list[Path]:
+    import numpy as np
+
+    from bakery.cli._common import max_pixels_from_env
+    from bakery.io.images import image_format, read_image, write_image
+    from bakery.io.manifest import write_manifest
+    from bakery.normals.encode import decode_normals, encode_normals, normalize
+
+    image_format(output, writing=True)
+    src = inputs["normal"]
+    img = read_image(src, max_pixels=max_pixels_from_env())
+    if img.channels == 1:
+        raise BakeryError("has one channel: a normal map needs 2 (XY), 3 (RGB) or 4 (RGBA)", src)
+    c_in = 2 if img.channels == 2 else 3
+    channels = p.channels or c_in
+    depth = output_depth(output, p.bits, img.depth)
+    if not (p.flip_y or p.renormalize or channels != c_in or depth != img.depth):
+        raise BakeryError("nothing to do: ask for --flip-green, --renormalize, --channels or --bits")
+    px = img.pixels
+    alpha = px[:, :, 3:4] if img.channels == 4 else None
+    if alpha is not None and channels == 2:
+        warnings.warn(f"{src}: the alpha channel is dropped in a two-channel map", BakeryWarning, stacklevel=2)
+        alpha = None
+    if p.renormalize or channels == 3 and c_in == 2:
+        n = decode_normals(px)
+        if p.renormalize:
+            n, length = normalize(n, out=n)
+        if p.flip_y:
+            np.negative(n[:, :, 1], out=n[:, :, 1])
+        enc = encode_normals(n, channels=channels)
+    else:  # pure channel edits keep the stored values exactly
+        enc = np.array(px[:, :, :channels], dtype=np.float32)
+        if p.flip_y:
+            np.subtract(np.float32(1.0), enc[:, :, 1], out=enc[:, :, 1])
+    if alpha is not None:
+        enc = np.concatenate([enc, alpha], axis=2)
+    write_image(output, enc, depth=depth)
+    manifest = write_manifest(output, bake="normal-fix", inputs={"normal": src}, params=params_to_dict(p),
+                              outputs=[output], extra={"encoding": ENCODING, "sample_type": depth})
+    return [output, manifest]
+
+
+register(Bake("normal", "height map -> tangent-space normal map (Blinn 1978)", ("height",), NormalParams,
+              run_normal))
+register(Bake("height", "normal map -> height map (Frankot-Chellappa 1988 / Poisson)", ("normal",), HeightParams,
+              run_height))
+register(Bake("blend", "detail normal map over a base (reoriented, whiteout, linear)", ("base", "detail"),
+              BlendParams, run_blend))
+register(Bake("normal-mips", "normal-map mip chain with averaged-normal lengths", ("normal",), MipsParams,
+              run_mips))
+register(Bake("normal-fix", "flip green, renormalize, 2 <-> 3 channels, 8 <-> 16-bit", ("normal",), FixParams,
+              run_fix))

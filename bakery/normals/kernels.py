@@ -1,0 +1,173 @@
+"""Derivative kernels for height maps, and the edge modes that pad them.
+
+Every kernel here is separable: a derivative part ``[-1, 0, 1] / 2`` across the direction of the derivative
+and a smoothing part along the other direction. Normalised so that a unit slope (1 height unit per texel)
+gives a response of exactly 1; all four are exact on quadratics.
+
+========  ====================  ===================================================================
+name      smoothing part        source
+========  ====================  ===================================================================
+central   [1]                   central difference, e.g. Abramowitz & Stegun 1964, eq. 25.3.6
+sobel     [1, 2, 1] / 4         Sobel & Feldman 1968 (Sobel operator; overall 1/8)
+scharr    [3, 10, 3] / 16       Scharr 2000, PhD thesis, Heidelberg (overall 1/32)
+prewitt   [1, 1, 1] / 3         Prewitt 1970, "Object enhancement and extraction" (overall 1/6)
+========  ====================  ===================================================================
+
+Along the derivative's axis every kernel responds to ``sin(w x)`` with ``sin(w)/w`` (w in radians per texel).
+They differ across it: Scharr's smoothing keeps the response nearly the same in every direction (the most
+isotropic of the four), central differences have no smoothing at all and cannot see a one-texel checkerboard.
+
+Edge modes, named after how the texture will be sampled:
+
+- ``wrap``: the texture tiles (``GL_REPEAT``): the texel left of column 0 is column W-1.
+- ``clamp``: the edge texel repeats (``GL_CLAMP_TO_EDGE``).
+- ``mirror``: the texture is mirrored at its edges, edge texel repeated (``GL_MIRRORED_REPEAT``):
+  ... c b a | a b c ... .
+
+References
+----------
+.. [1] M. Abramowitz, I. A. Stegun, "Handbook of Mathematical Functions", 1964, eq. 25.3.6.
+.. [2] I. Sobel, G. Feldman, "A 3x3 isotropic gradient operator for image processing", 1968 (talk at SAIL).
+.. [3] H. Scharr, "Optimale Operatoren in der Digitalen Bildverarbeitung", PhD thesis, Heidelberg, 2000.
+.. [4] J. M. S. Prewitt, "Object enhancement and extraction", in Picture Processing and Psychopictorics, 1970.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from bakery.errors import BakeryError
+
+
+@dataclass(frozen=True)
+class Kernel:
+    """A separable 3x3 derivative kernel: ``derivative (x) smoothing``, derivative part ``[-1, 0, 1]/2``."""
+
+    name: str
+    smooth: tuple[float, float, float]  # weights of rows -1, 0, +1 (sum 1); (0, 1, 0) for none
+    source: str
+
+    @property
+    def matrix_x(self) -> np.ndarray:
+        """The full 3x3 x-derivative kernel as a correlation matrix (rows top to bottom, columns left to
+        right); the y kernel is its transpose."""
+        return np.outer(np.array(self.smooth), np.array([-0.5, 0.0, 0.5]))
+
+
+KERNELS: dict[str, Kernel] = {
+    "central": Kernel("central", (0.0, 1.0, 0.0), "central difference (Abramowitz & Stegun 1964, 25.3.6)"),
+    "sobel": Kernel("sobel", (0.25, 0.5, 0.25), "Sobel & Feldman 1968"),
+    "scharr": Kernel("scharr", (3 / 16, 10 / 16, 3 / 16), "Scharr 2000"),
+    "prewitt": Kernel("prewitt", (1 / 3, 1 / 3, 1 / 3), "Prewitt 1970"),
+}
+
+#: The default kernel: Scharr, the most isotropic of the four (docs/normals.md explains the choice).
+DEFAULT_KERNEL = "scharr"
+
+EDGES = ("wrap", "clamp", "mirror")
+
+
+def get_kernel(name: str) -> Kernel:
+    """The kernel called ``name``; a :class:`BakeryError` naming the choices for an unknown one."""
+    try:
+        return KERNELS[name]
+    except KeyError:
+        raise BakeryError(f"unknown derivative kernel {name!r}; must be one of {', '.join(KERNELS)}") from None
+
+
+def check_edges(edges: str) -> str:
+    if edges not in EDGES:
+        raise BakeryError(f"unknown edge mode {edges!r}; must be one of {', '.join(EDGES)}")
+    return edges
+
+
+def edge_index(start: int, stop: int, n: int, edges: str) -> np.ndarray:
+    """Indices ``start .. stop-1`` (which may run outside ``0 .. n-1``) folded back into the image by the
+    edge mode: ``wrap`` (modulo), ``clamp`` (nearest edge) or ``mirror`` (edge texel repeated)."""
+    i = np.arange(start, stop)
+    if edges == "wrap":
+        return np.mod(i, n)
+    if edges == "clamp":
+        return np.clip(i, 0, n - 1)
+    if edges == "mirror":
+        period = 2 * n
+        i = np.mod(i, period)
+        return np.where(i < n, i, period - 1 - i)
+    raise BakeryError(f"unknown edge mode {edges!r}; must be one of {', '.join(EDGES)}")
+
+
+def pad(a: np.ndarray, halo: int, edges: str) -> np.ndarray:
+    """``a`` (H, W) padded by ``halo`` texels on every side according to the edge mode."""
+    h, w = a.shape
+    rows = edge_index(-halo, h + halo, h, edges)
+    cols = edge_index(-halo, w + halo, w, edges)
+    return a[rows][:, cols]
+
+
+def derivatives(a: np.ndarray, kernel: str | Kernel = DEFAULT_KERNEL, *, edges: str = "wrap"
+                ) -> tuple[np.ndarray, np.ndarray]:
+    """Height slopes per texel: ``(dh/dx, dh/dy)``, float32 (H, W) each.
+
+    x runs right along the columns; y runs **up** the image (toward row 0), like texture v. A height that
+    rises toward the top of the image has a positive ``dh/dy``.
+
+    Parameters
+    ----------
+    a : ndarray, (H, W)
+        Heights in any unit.
+    kernel : {"central", "sobel", "scharr", "prewitt"} or Kernel
+    edges : {"wrap", "clamp", "mirror"}
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> x = np.arange(8, dtype=np.float32)
+    >>> dx, dy = derivatives(np.tile(0.5 * x, (4, 1)), "sobel", edges="clamp")
+    >>> float(dx[1, 3]), float(dy[1, 3])
+    (0.5, 0.0)
+    """
+    k = get_kernel(kernel) if isinstance(kernel, str) else kernel
+    p = pad(np.asarray(a, dtype=np.float32), 1, check_edges(edges))
+    gx = np.empty(a.shape, np.float32)
+    gy = np.empty(a.shape, np.float32)
+    slopes_into(p, k, 1.0, 1.0, gx, gy)
+    return gx, gy
+
+
+def slopes_into(p: np.ndarray, k: Kernel, sx: float, sy: float, gx: np.ndarray, gy: np.ndarray,
+                scratch: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None) -> None:
+    """From a block ``p`` padded by one texel, write ``sx * dh/dx`` into ``gx`` and ``sy * dh/dy`` into ``gy``
+    (both of shape ``p.shape - 2``).
+
+    Element-wise numpy only, so every texel sees exactly the same arithmetic wherever it sits (bit-exact
+    tiling). ``scratch`` = float32 arrays of shapes ``(r+2, c)``, ``(r, c+2)`` and ``(r, c)`` (r, c = the
+    shape of ``gx``) avoids allocations when called per strip.
+    """
+    r, c = gx.shape
+    if scratch is None:
+        scratch = (np.empty((r + 2, c), np.float32), np.empty((r, c + 2), np.float32),
+                   np.empty((r, c), np.float32))
+    dxb, dyb, tmp = scratch
+    a, b, _ = k.smooth
+    hx = 0.5 * sx
+    hy = 0.5 * sy
+    # x: derivative across columns, then smoothing across rows
+    np.subtract(p[:, 2:], p[:, :-2], out=dxb)
+    if a == 0:
+        np.multiply(dxb[1:-1], np.float32(hx), out=gx)
+    else:
+        np.multiply(dxb[1:-1], np.float32(b * hx), out=gx)
+        np.add(dxb[:-2], dxb[2:], out=tmp)
+        tmp *= np.float32(a * hx)
+        gx += tmp
+    # y (up = toward row 0): derivative across rows, then smoothing across columns
+    np.subtract(p[:-2], p[2:], out=dyb)
+    if a == 0:
+        np.multiply(dyb[:, 1:-1], np.float32(hy), out=gy)
+    else:
+        np.multiply(dyb[:, 1:-1], np.float32(b * hy), out=gy)
+        np.add(dyb[:, :-2], dyb[:, 2:], out=tmp)
+        tmp *= np.float32(a * hy)
+        gy += tmp
