@@ -1,0 +1,204 @@
+"""The normal-map commands: exit codes, bad input, warnings, defaults, recipe/CLI identity, --help."""
+
+import json
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from bakery.bakes import run_bake
+from bakery.cli import app
+from bakery.io import read_image, write_image
+from bakery.normals import normal_from_height
+from bakery.normals.bakes import NormalParams
+
+runner = CliRunner()
+COMMANDS = ["normal", "height", "blend", "normal-mips", "normal-fix"]
+
+
+def bake(*args):
+    return runner.invoke(app, [str(a) for a in args])
+
+
+def smooth_height(n=32, m=48):
+    r, c = np.mgrid[0:n, 0:m].astype(np.float64)
+    return (0.5 + 0.3 * np.sin(2 * np.pi * c / m) * np.cos(4 * np.pi * r / n)).astype(np.float32)
+
+
+@pytest.fixture
+def height_png(tmp_path):
+    return write_image(tmp_path / "h.png", smooth_height(), depth="u16")
+
+
+@pytest.mark.parametrize("cmd", COMMANDS)
+def test_help(cmd):
+    result = bake(cmd, "--help")
+    assert result.exit_code == 0
+    assert "Usage" in result.output
+
+
+def test_help_of_installed_entry_point():
+    out = subprocess.run([sys.executable, "-m", "bakery", "normal", "--help"], capture_output=True, text=True)
+    assert out.returncode == 0 and "--kernel" in out.stdout
+
+
+def test_normal_defaults_follow_input_depth(tmp_path, height_png):
+    r = bake("normal", height_png, "-o", tmp_path / "n.png")
+    assert r.exit_code == 0, r.output
+    img = read_image(tmp_path / "n.png")
+    assert img.depth == "u16" and img.channels == 3
+    man = json.loads((tmp_path / "n.png.json").read_text())
+    assert man["bake"] == "normal" and man["conventions"]["y"] == "up"
+    # default strength: depth = width / 32 -> s = 48 / 32 texels per unit
+    assert man["strength_used"]["x"] == pytest.approx(1.5)
+    write_image(tmp_path / "h8.png", smooth_height(), depth="u8")
+    assert bake("normal", tmp_path / "h8.png", "-o", tmp_path / "n8.png").exit_code == 0
+    assert read_image(tmp_path / "n8.png").depth == "u8"
+
+
+def test_cli_matches_core_and_run_bake(tmp_path, height_png):
+    # One job, two doors: the CLI and run_bake (the batch runner's door) give byte-identical files.
+    r = bake("normal", height_png, "-o", tmp_path / "a.png", "--strength", "4", "--kernel", "sobel", "--y", "down")
+    assert r.exit_code == 0, r.output
+    run_bake("normal", {"height": height_png}, tmp_path / "b.png",
+             NormalParams(strength=4.0, kernel="sobel", y="down"))
+    assert (tmp_path / "a.png").read_bytes() == (tmp_path / "b.png").read_bytes()
+    ma, mb = (json.loads((tmp_path / f"{k}.png.json").read_text()) for k in "ab")
+    assert ma.pop("outputs") == ["a.png"] and mb.pop("outputs") == ["b.png"]
+    assert ma == mb
+    # and the file holds the core's normals, Y-down applied before quantisation
+    h = read_image(height_png).pixels[:, :, 0]
+    n = normal_from_height(h, strength=4.0, kernel="sobel")
+    stored = read_image(tmp_path / "a.png").pixels
+    expect = np.rint(np.clip(n * [0.5, -0.5, 0.5] + 0.5, 0, 1) * 65535) / 65535
+    assert np.abs(stored - expect).max() <= 1.01 / 65535  # float64 here vs float32 there: one step at most
+
+
+def test_physical_strength_options(tmp_path, height_png):
+    r = bake("normal", height_png, "-o", tmp_path / "n.exr", "--depth", "0.05", "--size", "2x1")
+    assert r.exit_code == 0, r.output
+    man = json.loads((tmp_path / "n.exr.json").read_text())
+    used = man["strength_used"]
+    assert (used["x"], used["y"]) == pytest.approx((0.05 * 48 / 2, 0.05 * 32 / 1))
+    assert read_image(tmp_path / "n.exr").depth == "f16"
+    r = bake("normal", height_png, "-o", tmp_path / "x.png", "--strength", "2", "--depth", "0.1")
+    assert r.exit_code == 2 and "not both" in r.output
+    assert bake("normal", height_png, "-o", tmp_path / "x.png", "--size", "2xfoo").exit_code == 2
+    assert not (tmp_path / "x.png").exists()
+
+
+def test_colour_photo_needs_a_channel(tmp_path):
+    rng = np.random.default_rng(0)
+    photo = write_image(tmp_path / "photo.png", rng.random((16, 16, 3), dtype=np.float32), depth="u8")
+    r = bake("normal", photo, "-o", tmp_path / "n.png")
+    assert r.exit_code == 2
+    assert "photo.png" in r.output and "colour channels differ" in r.output and "--channel" in r.output
+    assert not (tmp_path / "n.png").exists()
+    assert bake("normal", photo, "-o", tmp_path / "n.png", "--channel", "g").exit_code == 0
+    assert bake("normal", photo, "-o", tmp_path / "l.png", "--channel", "luminance").exit_code == 0
+    # equal colour channels are read as gray
+    gray = np.repeat(smooth_height()[:, :, None], 3, axis=2)
+    write_image(tmp_path / "g3.png", gray, depth="u8")
+    assert bake("normal", tmp_path / "g3.png", "-o", tmp_path / "g.png").exit_code == 0
+
+
+def test_constant_height_warns_flat(tmp_path):
+    write_image(tmp_path / "c.png", np.full((8, 8), 0.5, np.float32), depth="u8")
+    r = bake("normal", tmp_path / "c.png", "-o", tmp_path / "n.png")
+    assert r.exit_code == 0
+    assert "warning:" in r.stderr and "constant" in r.stderr and "flat" in r.stderr
+    q = read_image(tmp_path / "n.png").pixels * 255
+    assert np.all(q[..., 0] == 128) and np.all(q[..., 2] == 255)  # flat: 127.5 -> 128, ties to even
+
+
+def test_non_unit_normals_warn_in_height_and_blend(tmp_path):
+    v = np.zeros((16, 16, 3), np.float32)
+    v[..., 2] = 0.6  # length 0.6
+    write_image(tmp_path / "short.png", v * 0.5 + 0.5, depth="u8")
+    r = bake("height", tmp_path / "short.png", "-o", tmp_path / "h.png")
+    assert r.exit_code == 0
+    assert "short.png is not unit length" in r.stderr and "renormalized" in r.stderr
+    r = bake("blend", tmp_path / "short.png", tmp_path / "short.png", "-o", tmp_path / "b.png")
+    assert r.exit_code == 0 and r.stderr.count("not unit length") == 2
+
+
+def test_bad_files_exit_2_and_leave_nothing(tmp_path, height_png):
+    (tmp_path / "bad.png").write_bytes(b"\x89PNG\r\n\x1a\n garbage")
+    cases = [
+        ["normal", tmp_path / "missing.png", "-o", tmp_path / "o.png"],
+        ["normal", tmp_path / "bad.png", "-o", tmp_path / "o.png"],
+        ["normal", height_png, "-o", height_png],
+        ["normal", height_png, "-o", tmp_path / "o.jpg"],
+        ["normal", height_png, "-o", tmp_path / "o.png", "--xy"],
+        ["normal", height_png, "-o", tmp_path / "nofolder" / "o.png"],
+        ["height", height_png, "-o", tmp_path / "o.png"],
+        ["normal-fix", height_png, "-o", tmp_path / "o.png", "--flip-green"],
+    ]
+    before = height_png.read_bytes()
+    for args in cases:
+        r = bake(*args)
+        assert r.exit_code == 2, (args, r.output)
+        assert r.output.startswith("error: ") and len(r.output.strip().splitlines()) == 1, r.output
+    assert not (tmp_path / "o.png").exists()
+    assert height_png.read_bytes() == before
+
+
+def test_height_round_trip_and_manifest(tmp_path, height_png):
+    assert bake("normal", height_png, "-o", tmp_path / "n.png", "--strength", "8").exit_code == 0
+    r = bake("height", tmp_path / "n.png", "-o", tmp_path / "h.png", "--strength", "8")
+    assert r.exit_code == 0, r.output
+    back = read_image(tmp_path / "h.png").pixels[..., 0]
+    h = read_image(height_png).pixels[..., 0]
+    assert np.corrcoef(back.ravel(), h.ravel())[0, 1] >= 0.999
+    fit = json.loads((tmp_path / "h.png.json").read_text())["fit"]
+    assert fit["scale"] == 1.0
+    assert np.abs((back - fit["offset"]) - (h - h.mean())).max() < 2e-3  # stored = z + offset
+
+
+def test_xy_output_and_fix_command(tmp_path, height_png):
+    assert bake("normal", height_png, "-o", tmp_path / "xy.tif", "--xy").exit_code == 0
+    assert read_image(tmp_path / "xy.tif").channels == 2
+    assert bake("normal", height_png, "-o", tmp_path / "n8.png", "--bits", "8").exit_code == 0
+    # flip green exactly (g' = 255 - g), 8 -> 16-bit exactly (v * 257), 3 -> 2 -> 3 channels
+    assert bake("normal-fix", tmp_path / "n8.png", "-o", tmp_path / "f.png", "--flip-green").exit_code == 0
+    a = np.rint(read_image(tmp_path / "n8.png").pixels * 255)
+    b = np.rint(read_image(tmp_path / "f.png").pixels * 255)
+    assert np.array_equal(b[..., 1], 255 - a[..., 1]) and np.array_equal(b[..., ::2], a[..., ::2])
+    assert bake("normal-fix", tmp_path / "n8.png", "-o", tmp_path / "w.png", "--bits", "16").exit_code == 0
+    w = read_image(tmp_path / "w.png")
+    assert w.depth == "u16" and np.array_equal(np.rint(w.pixels * 65535), a * 257)
+    assert bake("normal-fix", tmp_path / "n8.png", "-o", tmp_path / "two.exr", "--channels", "2").exit_code == 0
+    assert bake("normal-fix", tmp_path / "two.exr", "-o", tmp_path / "three.exr", "--channels", "3").exit_code == 0
+    three = read_image(tmp_path / "three.exr").pixels * 2 - 1
+    assert np.abs(np.linalg.norm(three, axis=-1) - 1).max() < 2e-3
+    assert bake("normal-fix", tmp_path / "n8.png", "-o", tmp_path / "r.png", "--renormalize").exit_code == 0
+
+
+def test_mips_command(tmp_path, height_png):
+    assert bake("normal", height_png, "-o", tmp_path / "n.png").exit_code == 0
+    r = bake("normal-mips", tmp_path / "n.png", "-o", tmp_path / "m.png")
+    assert r.exit_code == 0, r.output
+    sizes = [read_image(tmp_path / (f"m.mip{i}.png" if i else "m.png")).pixels.shape[:2] for i in range(6)]
+    assert sizes == [(32, 48), (16, 24), (8, 12), (4, 6), (2, 3), (1, 1)]
+    length = read_image(tmp_path / "m.length.mip3.png")
+    assert length.channels == 1 and length.depth == "u16" and length.pixels.max() <= 1.0
+    man = json.loads((tmp_path / "m.png.json").read_text())
+    assert [lv["size"] for lv in man["levels"]][:2] == [[48, 32], [24, 16]]
+    assert man["levels"][0]["mean_length"] == 1.0
+
+
+def test_blend_command(tmp_path, height_png):
+    assert bake("normal", height_png, "-o", tmp_path / "n.png").exit_code == 0
+    flat = np.zeros((32, 48, 3), np.float32)
+    flat[..., 2] = 1
+    write_image(tmp_path / "flat.png", flat * 0.5 + 0.5, depth="u16")
+    r = bake("blend", tmp_path / "flat.png", tmp_path / "n.png", "-o", tmp_path / "b.png")
+    assert r.exit_code == 0, r.output
+    a = read_image(tmp_path / "n.png").pixels
+    b = read_image(tmp_path / "b.png").pixels
+    assert np.abs(a - b).max() <= 1.5 / 65535  # reoriented over a flat base returns the detail
+    write_image(tmp_path / "small.png", flat[:8, :8] * 0.5 + 0.5, depth="u16")
+    r = bake("blend", tmp_path / "n.png", tmp_path / "small.png", "-o", tmp_path / "c.png")
+    assert r.exit_code == 2 and "must match" in r.output
