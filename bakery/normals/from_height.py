@@ -11,8 +11,8 @@ file) stands for, and W_phys x H_phys the physical size of the texture, all in o
 x runs right (u) and y runs up (v, toward the top image row): the OpenGL / glTF 2.0 convention.
 
 The work runs in horizontal strips with a halo, so memory beyond the output stays small and two cores can share
-it; every texel gets the same element-wise arithmetic wherever it lies, so a tiled height gives a tiled normal
-map bit for bit.
+it; every texel gets the same arithmetic wherever it lies (checked by the tests), so a tiled height gives a tiled
+normal map bit for bit.
 
 References
 ----------
@@ -31,7 +31,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 
 from bakery.errors import BakeryError
-from bakery.normals.kernels import DEFAULT_KERNEL, Kernel, check_edges, edge_index, get_kernel, slopes_into
+from bakery.normals.kernels import DEFAULT_KERNEL, Kernel, check_edges, edge_index, get_kernel, slopes
 
 #: Default relief when no strength is given: the full height range is 1/32 of the texture's width deep.
 #: A choice of ours (docs/normals.md), independent of resolution.
@@ -153,9 +153,9 @@ def _as_height(height: np.ndarray) -> np.ndarray:
 
 
 def strip_rows(cols: int, halo: int) -> int:
-    """Rows per strip: blocks of about 64 KiB per plane stay in the CPU caches (measured in
-    tests/perf/bench_normals.py), and at least four times the halo."""
-    return int(max(4 * halo, 4, min(256, (1 << 14) // max(cols, 1))))
+    """Rows per strip: about 128 K texels per strip (32 rows of a 4096-wide map) was fastest in
+    tests/perf/bench_normals.py: its planes stay in the caches and per-call overheads stay small."""
+    return int(max(4 * halo, 8, min(256, (1 << 17) // max(cols, 1))))
 
 
 def run_strips(
@@ -193,9 +193,8 @@ def run_strips(
         if b is None:
             e = np.empty
             b = local.buf = {"blk": e((step + 2 * halo, W + 2 * halo), np.float32),
-                             "gx": e((step, W), np.float32), "gy": e((step, W), np.float32),
-                             "inv": e((step, W), np.float32), "tmp": e((step, W), np.float32),
-                             "dx": e((step + 2, W), np.float32), "dy": e((step, W + 2), np.float32)}
+                             "bx": e((step + 2, W + 2), np.float32), "by": e((step + 2, W + 2), np.float32),
+                             "inv": e((step, W), np.float32), "tmp": e((step, W), np.float32)}
         return b
 
     def work(r0: int) -> None:
@@ -203,7 +202,7 @@ def run_strips(
         n = r1 - r0
         b = buffers()
         blk = b["blk"][: n + 2 * halo]
-        gx, gy, inv, tmp = b["gx"][:n], b["gy"][:n], b["inv"][:n], b["tmp"][:n]
+        inv, tmp = b["inv"][:n], b["tmp"][:n]
         lo, hi = r0 - halo, r1 + halo
         if lo >= 0 and hi <= H:
             blk[:, halo:halo + W] = h[lo:hi]
@@ -218,7 +217,7 @@ def run_strips(
             p = gaussian_filter1d(blk, blur, axis=0, mode="nearest", truncate=4.0)
             p = gaussian_filter1d(p, blur, axis=1, mode="nearest", truncate=4.0)
             p = p[radius:-radius, radius:-radius]
-        slopes_into(p, k, -sx, -sy, gx, gy, (b["dx"][: n + 2], b["dy"][:n], tmp))  # gx = -s_x dh/dx ...
+        gx, gy = slopes(p, k, -sx, -sy, b["bx"][: n + 2], b["by"][: n + 2])  # -s_x dh/dx, -s_y dh/dy
         np.multiply(gx, gx, out=inv)
         np.multiply(gy, gy, out=tmp)
         inv += tmp

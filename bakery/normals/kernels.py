@@ -136,38 +136,31 @@ def derivatives(a: np.ndarray, kernel: str | Kernel = DEFAULT_KERNEL, *, edges: 
     return gx, gy
 
 
-def slopes_into(p: np.ndarray, k: Kernel, sx: float, sy: float, gx: np.ndarray, gy: np.ndarray,
-                scratch: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None) -> None:
+def slopes_into(p: np.ndarray, k: Kernel, sx: float, sy: float, gx: np.ndarray, gy: np.ndarray) -> None:
     """From a block ``p`` padded by one texel, write ``sx * dh/dx`` into ``gx`` and ``sy * dh/dy`` into ``gy``
-    (both of shape ``p.shape - 2``).
+    (both of shape ``p.shape - 2``; y up, toward row 0)."""
+    bx, by = slopes(p, k, sx, sy)
+    gx[...] = bx
+    gy[...] = by
 
-    Element-wise numpy only, so every texel sees exactly the same arithmetic wherever it sits (bit-exact
-    tiling). ``scratch`` = float32 arrays of shapes ``(r+2, c)``, ``(r, c+2)`` and ``(r, c)`` (r, c = the
-    shape of ``gx``) avoids allocations when called per strip.
+
+def slopes(p: np.ndarray, k: Kernel, sx: float, sy: float, bufx: np.ndarray | None = None,
+           bufy: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """``(sx * dh/dx, sy * dh/dy)`` of the interior of a block ``p`` padded by one texel: views into ``bufx``,
+    ``bufy`` (float32 arrays of ``p``'s shape, allocated when not given).
+
+    One separable correlation per derivative (OpenCV ``sepFilter2D``, float32). The result for a texel depends
+    only on its 3x3 neighbourhood, not on where it lies in the block: checked bit for bit by the tiling tests.
     """
-    r, c = gx.shape
-    if scratch is None:
-        scratch = (np.empty((r + 2, c), np.float32), np.empty((r, c + 2), np.float32),
-                   np.empty((r, c), np.float32))
-    dxb, dyb, tmp = scratch
-    a, b, _ = k.smooth
-    hx = 0.5 * sx
-    hy = 0.5 * sy
-    # x: derivative across columns, then smoothing across rows
-    np.subtract(p[:, 2:], p[:, :-2], out=dxb)
-    if a == 0:
-        np.multiply(dxb[1:-1], np.float32(hx), out=gx)
-    else:
-        np.multiply(dxb[1:-1], np.float32(b * hx), out=gx)
-        np.add(dxb[:-2], dxb[2:], out=tmp)
-        tmp *= np.float32(a * hx)
-        gx += tmp
-    # y (up = toward row 0): derivative across rows, then smoothing across columns
-    np.subtract(p[:-2], p[2:], out=dyb)
-    if a == 0:
-        np.multiply(dyb[:, 1:-1], np.float32(hy), out=gy)
-    else:
-        np.multiply(dyb[:, 1:-1], np.float32(b * hy), out=gy)
-        np.add(dyb[:, :-2], dyb[:, 2:], out=tmp)
-        tmp *= np.float32(a * hy)
-        gy += tmp
+    import cv2
+
+    p = np.ascontiguousarray(p, dtype=np.float32)
+    bufx = np.empty(p.shape, np.float32) if bufx is None else bufx
+    bufy = np.empty(p.shape, np.float32) if bufy is None else bufy
+    smooth = np.asarray(k.smooth, np.float32)
+    # correlation: out[c] = sum_i kernel[i] * p[c + i - 1]
+    dx = np.array([-0.5 * sx, 0.0, 0.5 * sx], np.float32)  # d/dx, x right
+    dy = np.array([0.5 * sy, 0.0, -0.5 * sy], np.float32)  # d/dy, y up = toward smaller rows
+    cv2.sepFilter2D(p, cv2.CV_32F, dx, smooth, dst=bufx, borderType=cv2.BORDER_REPLICATE)
+    cv2.sepFilter2D(p, cv2.CV_32F, smooth, dy, dst=bufy, borderType=cv2.BORDER_REPLICATE)
+    return bufx[1:-1, 1:-1], bufy[1:-1, 1:-1]
