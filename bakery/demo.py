@@ -28,8 +28,43 @@ def _step_info(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
     return [("what each input holds (bakery info)", report)]
 
 
+def _step_normals(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
+    """Normal map from the demo height, its Y-down twin, its mip chain, the height integrated back, and a
+    detail normal map blended over it."""
+    from bakery.bakes import run_bake
+    from bakery.io.images import write_image
+    from bakery.normals.bakes import BlendParams, FixParams, HeightParams, MipsParams, NormalParams
+    from bakery.samples import stone_grain_height
+
+    folder = out / "normals"
+    (folder / "mips").mkdir(parents=True, exist_ok=True)
+    height = inputs["height"]
+    normal = folder / "paving_normal.png"
+    run_bake("normal", {"height": height}, normal, NormalParams())
+    down = folder / "paving_normal_ydown.png"
+    run_bake("normal-fix", {"normal": normal}, down, FixParams(flip_y=True))
+    mips = folder / "mips" / "paving_normal.png"
+    written = run_bake("normal-mips", {"normal": normal}, mips, MipsParams())
+    back = folder / "paving_height_from_normal.png"
+    run_bake("height", {"normal": normal}, back, HeightParams())
+    from bakery.io.images import read_image
+
+    size = read_image(height).pixels.shape[0]
+    grain = write_image(folder / "grain_height.png", stone_grain_height(size), depth="u16")
+    grain_n = folder / "grain_normal.png"
+    run_bake("normal", {"height": grain}, grain_n, NormalParams(strength=2.0, blur=0.5))
+    blended = folder / "paving_normal_with_grain.png"
+    run_bake("blend", {"base": normal, "detail": grain_n}, blended, BlendParams(method="reoriented"))
+    return [("normal map (Y up, OpenGL/glTF)", normal), ("normal map (Y down, DirectX-style)", down),
+            (f"normal-map mip chain ({sum(1 for p in written if '.length.' not in p.name) - 1} levels) "
+             "and averaged-normal lengths", mips),
+            ("height integrated back from the normal map (Frankot-Chellappa)", back),
+            ("detail normal map from a stone-grain height", grain_n),
+            ("detail blended over the paving normals (reoriented normal mapping)", blended)]
+
+
 #: Demo steps in order: (name, function).
-STEPS: list[tuple[str, Step]] = [("info", _step_info)]
+STEPS: list[tuple[str, Step]] = [("info", _step_info), ("normals", _step_normals)]
 
 
 def run_demo(out: str | Path, *, size: int = 256, log: Callable[[str], None] = print) -> Path:

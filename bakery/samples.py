@@ -190,6 +190,16 @@ def sky_panorama(
     return img
 
 
+def stone_grain_height(size: int = 256, *, seed: int = 11) -> np.ndarray:
+    """Fine tiling grain for a detail normal map (pitted stone surface), float32 ``(size, size)`` in [0, 1].
+
+    Used by the normal-map demo step to show blending a detail map over the paving's normal map.
+    """
+    grain = tiling_noise((size, size), scale=max(1.0, size / 96), seed=seed, octaves=3)
+    pits = np.clip(tiling_noise((size, size), scale=size / 40, seed=seed + 1) - 0.9, 0.0, None)
+    return np.clip(0.5 + 0.35 * grain - 1.5 * pits, 0.0, 1.0).astype(np.float32)
+
+
 def write_samples(folder: str | Path, *, size: int = 256, sky_width: int = 512) -> dict[str, Path]:
     """Write the demo inputs into ``folder``: 16-bit PNG height, float EXR exponents, 8-bit gloss PNG
     (exponent = 2^(13 g), an exponential encoding, see docs/), and a Radiance HDR sky."""
