@@ -191,11 +191,12 @@ def normal_mips(
     lengths: Annotated[bool, typer.Option("--lengths/--no-lengths", help="Also write each level's "
                                           "averaged-normal length (for specular anti-aliasing).")] = True,
 ) -> None:
-    """Write a normal map's mip chain: OUT is level 0, then OUT.mip1, OUT.mip2 ... (and OUT.length.mipN)."""
+    """Write a normal map's mip chain: OUT is level 0, then OUT.mip1, OUT.mip2 ... (and OUT.length.mipN);
+    or one KTX2 texture with all levels when OUT ends in .ktx2 (lengths in OUT.length.ktx2)."""
     from bakery.bakes import run_bake
     from bakery.normals.bakes import MipsParams
 
-    output_path(out, suffixes=SUFFIXES)
+    output_path(out, suffixes=SUFFIXES + (".ktx2",))
     params = MipsParams(levels=levels, y=y.value, bits=bits.value if bits else None, lengths=lengths)
     _report(run_bake("normal-mips", {"normal": normal}, out, params))
 

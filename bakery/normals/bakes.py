@@ -317,30 +317,59 @@ def mip_paths(output: Path, levels: int) -> tuple[list[Path], list[Path]]:
     return lv, ln
 
 
+#: KTX2 formats for normal-map mip chains: (bits, channels) -> VkFormat name. KTX2 has no 3-channel formats
+#: here, so XYZ maps are stored as RGBA with alpha 1.
+KTX2_NORMAL_FORMATS = {("8", 3): "R8G8B8A8_UNORM", ("8", 2): "R8G8_UNORM", ("16", 3): "R16G16B16A16_UNORM",
+                       ("16", 2): "R16G16_UNORM", ("half", 3): "R16G16B16A16_SFLOAT",
+                       ("half", 2): "R16G16_SFLOAT", ("float", 3): "R32G32B32A32_SFLOAT",
+                       ("float", 2): "R32G32B32A32_SFLOAT"}
+DEPTH_TO_BITS = {v: k for k, v in BITS_TO_DEPTH.items()}
+
+
 def run_mips(inputs: dict[str, Path], output: Path, p: MipsParams) -> list[Path]:
-    from bakery.io.images import image_format, write_image
     from bakery.io.manifest import write_manifest
+    from bakery.normals.encode import encode_normals
     from bakery.normals.mips import normal_mips
 
-    fmt = image_format(output, writing=True)
+    ktx2 = output.suffix.lower() == ".ktx2"
     n, img = read_normals(inputs["normal"], p.y)
     channels = 2 if img.channels == 2 else 3
-    depth = output_depth(output, p.bits, img.depth)
     chain = normal_mips(n, levels=p.levels)
-    levels, lengths = mip_paths(output, len(chain))
-    len_depth = {"png": "u16", "tiff": "u16", "exr": "f32"}.get(fmt, "f32")
-    written = []
-    for path, (unit, _) in zip(levels, chain, strict=True):
-        written.append(write_normals(path, unit, y=p.y, channels=channels, depth=depth))
-    if p.lengths:
-        for path, (_, length) in zip(lengths, chain[1:], strict=True):
-            written.append(write_image(path, length, depth=len_depth))
+    written: list[Path] = []
+    if ktx2:
+        from bakery.io.ktx2 import write_ktx2
+
+        bits = p.bits or ("16" if img.depth == "u16" else "8" if img.depth == "u8" else "half")
+        fmt = KTX2_NORMAL_FORMATS[(bits, channels)]
+        note = {"bakeryNormalMap": f"{ENCODING}; +Y {p.y}; level data = renormalized averages"}
+        written.append(write_ktx2(output, [encode_normals(u, y=p.y, channels=channels) for u, _ in chain],
+                                  fmt, cubemap=False, key_values=note))
+        names = [output.name] * len(chain)
+        length_names = [None] * len(chain)
+        if p.lengths:
+            lpath = output.with_name(f"{output.stem}.length.ktx2")
+            written.append(write_ktx2(lpath, [ln[:, :, None] for _, ln in chain], "R16_UNORM", cubemap=False,
+                                      key_values={"bakeryNormalMap": "length of the averaged unit normal"}))
+            length_names = [lpath.name] * len(chain)
+        depth = fmt
+    else:
+        from bakery.io.images import image_format, write_image
+
+        fmt_name = image_format(output, writing=True)
+        depth = output_depth(output, p.bits, img.depth)
+        levels, lengths = mip_paths(output, len(chain))
+        len_depth = {"png": "u16", "tiff": "u16", "exr": "f32"}.get(fmt_name, "f32")
+        for path, (unit, _) in zip(levels, chain, strict=True):
+            written.append(write_normals(path, unit, y=p.y, channels=channels, depth=depth))
+        if p.lengths:
+            for path, (_, length) in zip(lengths, chain[1:], strict=True):
+                written.append(write_image(path, length, depth=len_depth))
+        names = [lv.name for lv in levels]
+        length_names = [None] + ([ln.name for ln in lengths] if p.lengths else [None] * len(lengths))
     extra = {"conventions": _conventions(p.y), "sample_type": depth,
              "filter": "area-weighted box over each texel's footprint, vectors averaged then renormalized",
-             "levels": [{"level": i, "size": [int(u.shape[1]), int(u.shape[0])],
-                         "normals": levels[i].name,
-                         "length": lengths[i - 1].name if i and p.lengths else None,
-                         "mean_length": float(ln.mean(dtype="float64"))}
+             "levels": [{"level": i, "size": [int(u.shape[1]), int(u.shape[0])], "normals": names[i],
+                         "length": length_names[i], "mean_length": float(ln.mean(dtype="float64"))}
                         for i, (u, ln) in enumerate(chain)],
              "length_meaning": "|average of the level-0 unit normals under the texel| (Toksvig 2005)"}
     manifest = write_manifest(output, bake="normal-mips", inputs={"normal": inputs["normal"]},

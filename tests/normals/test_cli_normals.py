@@ -202,3 +202,22 @@ def test_blend_command(tmp_path, height_png):
     write_image(tmp_path / "small.png", flat[:8, :8] * 0.5 + 0.5, depth="u16")
     r = bake("blend", tmp_path / "n.png", tmp_path / "small.png", "-o", tmp_path / "c.png")
     assert r.exit_code == 2 and "must match" in r.output
+
+
+def test_mips_as_ktx2(tmp_path, height_png):
+    # KTX 2.0 2D texture with mips (Khronos KTX 2.0 spec): the same levels as the loose files, alpha 1.
+    from bakery.io.ktx2 import read_ktx2
+
+    assert bake("normal", height_png, "-o", tmp_path / "n.png").exit_code == 0
+    assert bake("normal-mips", tmp_path / "n.png", "-o", tmp_path / "m.png").exit_code == 0
+    r = bake("normal-mips", tmp_path / "n.png", "-o", tmp_path / "m.ktx2")
+    assert r.exit_code == 0, r.output
+    tex = read_ktx2(tmp_path / "m.ktx2")
+    assert tex.format.name == "R16G16B16A16_UNORM" and len(tex.levels) == 6 and not tex.cubemap
+    for i, lv in enumerate(tex.levels):
+        loose = read_image(tmp_path / (f"m.mip{i}.png" if i else "m.png")).pixels
+        assert np.array_equal(np.rint(lv[:, :, :3] * 65535), np.rint(loose * 65535)) and np.all(lv[:, :, 3] == 1)
+    lengths = read_ktx2(tmp_path / "m.length.ktx2")
+    assert lengths.format.name == "R16_UNORM"
+    assert np.array_equal(np.rint(lengths.levels[2] * 65535),
+                          np.rint(read_image(tmp_path / "m.length.mip2.png").pixels * 65535))
