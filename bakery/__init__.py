@@ -6,5 +6,16 @@ The public functions are plain array-in, array-out functions; file formats live 
 from bakery._version import __version__
 from bakery.errors import BakeryError, BakeryWarning
 from bakery.io import read_image, write_image
+from bakery.normals import (
+    blend_normals,
+    decode_normals,
+    encode_normals,
+    height_from_normal,
+    normal_from_height,
+    normal_mips,
+    strength_from_size,
+)
 
-__all__ = ["BakeryError", "BakeryWarning", "__version__", "read_image", "write_image"]
+__all__ = ["BakeryError", "BakeryWarning", "__version__", "blend_normals", "decode_normals", "encode_normals",
+           "height_from_normal", "normal_from_height", "normal_mips", "read_image", "strength_from_size",
+           "write_image"]

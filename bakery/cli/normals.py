@@ -5,7 +5,7 @@ Thin wrappers: parse options into the bake's parameters and call :func:`bakery.b
 
 from __future__ import annotations
 
-from enum import Enum
+from enum import StrEnum
 from pathlib import Path
 from typing import Annotated
 
@@ -18,32 +18,32 @@ from bakery.errors import BakeryError
 SUFFIXES = (".png", ".tif", ".tiff", ".exr")
 
 
-class KernelOpt(str, Enum):
+class KernelOpt(StrEnum):
     scharr = "scharr"
     sobel = "sobel"
     prewitt = "prewitt"
     central = "central"
 
 
-class EdgesOpt(str, Enum):
+class EdgesOpt(StrEnum):
     wrap = "wrap"
     clamp = "clamp"
     mirror = "mirror"
 
 
-class YOpt(str, Enum):
+class YOpt(StrEnum):
     up = "up"
     down = "down"
 
 
-class BitsOpt(str, Enum):
+class BitsOpt(StrEnum):
     b8 = "8"
     b16 = "16"
     half = "half"
     float = "float"
 
 
-class ChannelOpt(str, Enum):
+class ChannelOpt(StrEnum):
     r = "r"
     g = "g"
     b = "b"
@@ -51,7 +51,7 @@ class ChannelOpt(str, Enum):
     luminance = "luminance"
 
 
-class BlendOpt(str, Enum):
+class BlendOpt(StrEnum):
     reoriented = "reoriented"
     whiteout = "whiteout"
     linear = "linear"

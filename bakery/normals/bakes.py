@@ -80,8 +80,8 @@ def read_height(path: Path, channel: str | None = None, stretch: bool = False):
     """
     import numpy as np
 
-    from bakery.io.images import read_image
     from bakery.cli._common import max_pixels_from_env
+    from bakery.io.images import read_image
 
     img = read_image(path, max_pixels=max_pixels_from_env())
     px = img.pixels
