@@ -178,8 +178,11 @@ def _to_float(raw: np.ndarray, depth: str) -> np.ndarray:
 
 
 def _bgr_to_rgb(a: np.ndarray) -> np.ndarray:
+    """Swap the first and third channels (BGR(A) <-> RGB(A)) into a new C-contiguous array in one pass
+    (numpy fancy indexing on the last axis gives a non-contiguous result that writers copy again)."""
     if a.ndim == 3 and a.shape[2] >= 3:
-        a = a[:, :, [2, 1, 0, 3][: a.shape[2]]]
+        cv2 = _cv2()
+        a = cv2.cvtColor(np.ascontiguousarray(a), cv2.COLOR_BGR2RGB if a.shape[2] == 3 else cv2.COLOR_BGRA2RGBA)
     return a
 
 
