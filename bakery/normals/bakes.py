@@ -54,6 +54,16 @@ def output_depth(output: Path, bits: str | None, input_depth: str) -> str:
     return "f32" if input_depth == "f32" and "f32" in WRITABLE[fmt] else WRITABLE[fmt][0]
 
 
+def check_output(output: Path) -> str:
+    """The output's format; normal and height maps go to PNG, TIFF or OpenEXR."""
+    from bakery.io.images import image_format
+
+    fmt = image_format(output, writing=True)
+    if fmt not in ("png", "tiff", "exr"):
+        raise BakeryError(f"write normal and height maps as .png, .tif or .exr, not {fmt.upper()}", output)
+    return fmt
+
+
 def resolve_strength(shape: tuple[int, int], strength: float | None, depth: float | None,
                      size: tuple[float, ...]) -> tuple[float, float]:
     """``(s_x, s_y)`` from either a plain factor or physical sizes (default: depth = width / 32)."""
@@ -86,15 +96,18 @@ def read_height(path: Path, channel: str | None = None, stretch: bool = False):
     img = read_image(path, max_pixels=max_pixels_from_env())
     px = img.pixels
     c = px.shape[2]
-    names = {"r": 0, "g": 1, "b": 2, "a": 3}
+    names = {"r": 0, "g": 1, "b": 2, "a": 3}  # RGB(A) order
     if channel == "luminance":
         if c < 3:
             raise BakeryError("luminance needs an RGB file; this one is gray", path)
         w = np.asarray(LUMA_709, np.float32)
         h = px[:, :, 0] * w[0] + px[:, :, 1] * w[1] + px[:, :, 2] * w[2]
     elif channel is not None:
-        idx = names[channel]
-        if c < 3 and channel != "r" or c == 3 and channel == "a" or c == 2 and channel != "r":
+        if c <= 2:  # gray (+ alpha): r, g and b all name the gray channel
+            idx = (1 if channel == "a" else 0) if c == 2 else (None if channel == "a" else 0)
+        else:
+            idx = names[channel] if names[channel] < c else None
+        if idx is None:
             raise BakeryError(f"has no {channel.upper()} channel ({c} channel(s))", path)
         h = px[:, :, idx]
     elif c <= 2:  # gray, or gray + alpha
@@ -159,12 +172,12 @@ class NormalParams:
 def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams) -> list[Path]:
     import numpy as np
 
-    from bakery.io.images import INTEGER_MAX, image_format, quantize, write_image
+    from bakery.io.images import INTEGER_MAX, quantize, write_image
     from bakery.io.manifest import write_manifest
     from bakery.normals.encode import encode_normals
     from bakery.normals.from_height import normal_from_height, run_strips
 
-    image_format(output, writing=True)
+    check_output(output)
     src = inputs["height"]
     h, in_depth, (lo, hi) = read_height(src, p.channel, p.stretch)
     rows, cols = h.shape
@@ -232,11 +245,11 @@ class HeightParams:
 
 
 def run_height(inputs: dict[str, Path], output: Path, p: HeightParams) -> list[Path]:
-    from bakery.io.images import INTEGER_MAX, image_format, write_image
+    from bakery.io.images import INTEGER_MAX, write_image
     from bakery.io.manifest import write_manifest
     from bakery.normals.integrate import fit_height, height_from_normal
 
-    image_format(output, writing=True)
+    check_output(output)
     src = inputs["normal"]
     n, img = read_normals(src, p.y)
     sx, sy = resolve_strength(n.shape[:2], p.strength, p.depth, p.size)
@@ -275,11 +288,10 @@ class BlendParams:
 
 
 def run_blend(inputs: dict[str, Path], output: Path, p: BlendParams) -> list[Path]:
-    from bakery.io.images import image_format
     from bakery.io.manifest import write_manifest
     from bakery.normals.blend import blend_normals
 
-    image_format(output, writing=True)
+    check_output(output)
     base, bimg = read_normals(inputs["base"], p.y)
     detail, _ = read_normals(inputs["detail"], p.y)
     if base.shape != detail.shape:
@@ -353,9 +365,9 @@ def run_mips(inputs: dict[str, Path], output: Path, p: MipsParams) -> list[Path]
             length_names = [lpath.name] * len(chain)
         depth = fmt
     else:
-        from bakery.io.images import image_format, write_image
+        from bakery.io.images import write_image
 
-        fmt_name = image_format(output, writing=True)
+        fmt_name = check_output(output)
         depth = output_depth(output, p.bits, img.depth)
         levels, lengths = mip_paths(output, len(chain))
         len_depth = {"png": "u16", "tiff": "u16", "exr": "f32"}.get(fmt_name, "f32")
@@ -394,11 +406,11 @@ def run_fix(inputs: dict[str, Path], output: Path, p: FixParams) -> list[Path]:
     import numpy as np
 
     from bakery.cli._common import max_pixels_from_env
-    from bakery.io.images import image_format, read_image, write_image
+    from bakery.io.images import read_image, write_image
     from bakery.io.manifest import write_manifest
     from bakery.normals.encode import decode_normals, encode_normals, normalize
 
-    image_format(output, writing=True)
+    check_output(output)
     src = inputs["normal"]
     img = read_image(src, max_pixels=max_pixels_from_env())
     if img.channels == 1:

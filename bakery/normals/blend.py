@@ -71,6 +71,7 @@ def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reorie
     if method == "reoriented":
         t = n1.copy()
         t[:, :, 2] += np.float32(1.0)
+        np.maximum(t[:, :, 2], np.float32(1e-6), out=t[:, :, 2])  # a base pointing straight down has no frame
         u = n2 * np.array([-1.0, -1.0, 1.0], np.float32)
         d = np.einsum("...i,...i->...", t, u, dtype=np.float32)
         r = t * (d / t[:, :, 2])[:, :, None] - u

@@ -221,3 +221,19 @@ def test_mips_as_ktx2(tmp_path, height_png):
     assert lengths.format.name == "R16_UNORM"
     assert np.array_equal(np.rint(lengths.levels[2] * 65535),
                           np.rint(read_image(tmp_path / "m.length.mip2.png").pixels * 65535))
+
+
+def test_named_channels_of_gray_alpha_and_rgba(tmp_path):
+    h = smooth_height()
+    la = np.stack([h, 1 - h], axis=-1)
+    write_image(tmp_path / "la.tif", la, depth="u16")
+    assert bake("normal", tmp_path / "la.tif", "-o", tmp_path / "a.png", "--channel", "a").exit_code == 0
+    assert bake("normal", tmp_path / "la.tif", "-o", tmp_path / "g.png").exit_code == 0  # gray + alpha: gray
+    a = read_image(tmp_path / "a.png").pixels
+    g = read_image(tmp_path / "g.png").pixels
+    assert np.abs(a[..., :2] - (1 - g[..., :2])).max() <= 1.01 / 65535  # inverted relief: x, y negated
+    write_image(tmp_path / "rgb.png", np.stack([h, h * 0.5, h * 0.25], -1), depth="u16")
+    r = bake("normal", tmp_path / "rgb.png", "-o", tmp_path / "x.png", "--channel", "a")
+    assert r.exit_code == 2 and "no A channel" in r.output
+    r = bake("normal", tmp_path / "rgb.png", "-o", tmp_path / "x.hdr")
+    assert r.exit_code == 2
