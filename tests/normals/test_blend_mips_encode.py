@@ -46,6 +46,7 @@ def test_reoriented_crossed():
 
 
 def test_detail_strength():
+    # Definition (Barre-Brisebois & Hill 2012 blend a scaled detail): strength 0 leaves a flat detail -> base.
     base = random_normals((8, 8), 2)
     detail = random_normals((8, 8), 3)
     assert np.abs(blend_normals(base, detail, detail_strength=0.0) - base).max() < 1e-6
@@ -86,7 +87,8 @@ def test_toksvig_example():
 
 @pytest.mark.parametrize("shape", [(7, 7), (9, 4), (3, 11)])
 def test_odd_sizes_keep_the_mean(shape):
-    # The area-weighted box gives every texel of the level above the same total weight: the mean survives.
+    # The area-weighted box gives every texel of the level above the same total weight, so the mean survives
+    # (a property of box filtering over exact footprints; common practice, no single published source).
     v = np.random.default_rng(6).random(shape + (3,)).astype(np.float32)
     d = downsample(v)
     assert d.mean(axis=(0, 1)) == pytest.approx(v.mean(axis=(0, 1)), abs=1e-6)

@@ -87,6 +87,7 @@ def test_non_unit_input_warns_and_renormalizes():
 
 
 def test_fit_height_records_offset_and_scale():
+    # bakery's own placement rule (docs/normals.md): lowest point at 0, squeeze only beyond the full range.
     z = np.array([[-0.3, 0.1], [0.2, 0.0]], np.float32)
     h, offset, scale = fit_height(z)
     assert (offset, scale) == pytest.approx((0.3, 1.0))
