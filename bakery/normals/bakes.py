@@ -18,7 +18,7 @@ from bakery.errors import BakeryError, BakeryWarning
 KernelName = Literal["scharr", "sobel", "prewitt", "central"]
 Edges = Literal["wrap", "clamp", "mirror"]
 YConv = Literal["up", "down"]
-Bits = Literal["8", "16", "half", "float"]
+Bits = Literal["8", "16", "half", "float"] | Literal[8, 16]  # recipes may write bits = 16
 Channel = Literal["r", "g", "b", "a", "luminance"]
 
 BITS_TO_DEPTH = {"8": "u8", "16": "u16", "half": "f16", "float": "f32"}
@@ -28,6 +28,17 @@ LUMA_709 = (0.2126, 0.7152, 0.0722)
 
 
 # ------------------------------------------------------------------------------------------- shared pieces
+
+
+def _tidy(params) -> None:
+    """Normalise recipe spellings so a recipe and a command line give the same manifest: ``bits = 16`` ->
+    ``"16"``, ``size = 2`` -> ``(2.0,)``."""
+    bits = getattr(params, "bits", None)
+    if bits is not None:
+        object.__setattr__(params, "bits", str(bits))
+    size = getattr(params, "size", ())
+    if not isinstance(size, tuple):
+        object.__setattr__(params, "size", tuple(size) if isinstance(size, list) else (float(size),))
 
 
 def _conventions(y: str) -> dict:
@@ -158,7 +169,7 @@ class NormalParams:
 
     strength: float | None = None
     depth: float | None = None
-    size: tuple[float, ...] = ()
+    size: tuple[float, ...] | float = ()
     kernel: KernelName = "scharr"
     blur: float = 0.0
     edges: Edges = "wrap"
@@ -167,6 +178,9 @@ class NormalParams:
     bits: Bits | None = None
     channel: Channel | None = None
     stretch: bool = False
+
+    def __post_init__(self) -> None:
+        _tidy(self)
 
 
 def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams) -> list[Path]:
@@ -237,11 +251,14 @@ class HeightParams:
 
     strength: float | None = None
     depth: float | None = None
-    size: tuple[float, ...] = ()
+    size: tuple[float, ...] | float = ()
     kernel: KernelName = "scharr"
     edges: Edges = "wrap"
     y: YConv = "up"
     bits: Bits | None = None
+
+    def __post_init__(self) -> None:
+        _tidy(self)
 
 
 def run_height(inputs: dict[str, Path], output: Path, p: HeightParams) -> list[Path]:
@@ -286,6 +303,9 @@ class BlendParams:
     channels: Literal[2, 3] | None = None
     bits: Bits | None = None
 
+    def __post_init__(self) -> None:
+        _tidy(self)
+
 
 def run_blend(inputs: dict[str, Path], output: Path, p: BlendParams) -> list[Path]:
     from bakery.io.manifest import write_manifest
@@ -318,6 +338,9 @@ class MipsParams:
     y: YConv = "up"
     bits: Bits | None = None
     lengths: bool = True
+
+    def __post_init__(self) -> None:
+        _tidy(self)
 
 
 def mip_paths(output: Path, levels: int) -> tuple[list[Path], list[Path]]:
@@ -400,6 +423,9 @@ class FixParams:
     renormalize: bool = False
     channels: Literal[2, 3] | None = None
     bits: Bits | None = None
+
+    def __post_init__(self) -> None:
+        _tidy(self)
 
 
 def run_fix(inputs: dict[str, Path], output: Path, p: FixParams) -> list[Path]:

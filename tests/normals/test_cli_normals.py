@@ -237,3 +237,16 @@ def test_named_channels_of_gray_alpha_and_rgba(tmp_path):
     assert r.exit_code == 2 and "no A channel" in r.output
     r = bake("normal", tmp_path / "rgb.png", "-o", tmp_path / "x.hdr")
     assert r.exit_code == 2
+
+
+def test_recipe_values_match_the_command_line(tmp_path, height_png):
+    # A recipe's `bits = 16`, `size = 2` and the CLI's `--bits 16 --size 2` are the same job: same bytes.
+    from bakery.bakes import get_bake, params_from_mapping
+
+    params = params_from_mapping(get_bake("normal"), {"bits": 16, "size": 2, "depth": 0.1}, "recipe.toml")
+    run_bake("normal", {"height": height_png}, tmp_path / "r.png", params)
+    assert bake("normal", height_png, "-o", tmp_path / "c.png", "--bits", "16", "--size", "2",
+                "--depth", "0.1").exit_code == 0
+    assert (tmp_path / "r.png").read_bytes() == (tmp_path / "c.png").read_bytes()
+    mr, mc = (json.loads((tmp_path / f"{k}.png.json").read_text()) for k in "rc")
+    assert mr["params"] == mc["params"]
