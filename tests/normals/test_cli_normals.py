@@ -152,6 +152,11 @@ def test_height_round_trip_and_manifest(tmp_path, height_png):
     back = read_image(tmp_path / "h.png").pixels[..., 0]
     h = read_image(height_png).pixels[..., 0]
     assert np.corrcoef(back.ravel(), h.ravel())[0, 1] >= 0.999
+    # a Y-down map integrates to the same height when told so
+    assert bake("normal", height_png, "-o", tmp_path / "d.png", "--strength", "8", "--y", "down").exit_code == 0
+    assert bake("height", tmp_path / "d.png", "-o", tmp_path / "hd.png", "--strength", "8", "--y",
+                "down").exit_code == 0
+    assert np.abs(read_image(tmp_path / "hd.png").pixels[..., 0] - back).max() <= 2 / 65535
     fit = json.loads((tmp_path / "h.png.json").read_text())["fit"]
     assert fit["scale"] == 1.0
     assert np.abs((back - fit["offset"]) - (h - h.mean())).max() < 2e-3  # stored = z + offset
