@@ -75,7 +75,12 @@ def _report(paths: list[Path]) -> None:
         echo(f"wrote {p}")
 
 
-InputFile = Annotated[Path, typer.Argument(dir_okay=False, show_default=False)]
+def _arg(text: str):
+    return Annotated[Path, typer.Argument(dir_okay=False, show_default=False, help=text)]
+
+
+HeightIn = _arg("Height map (.png, .tif, .exr; 8/16-bit or float; gray, or pick a channel).")
+NormalIn = _arg("Normal map (.png, .tif, .exr; RGB, RGBA or two-channel XY).")
 Out = Annotated[Path, typer.Option("-o", "--out", help="Output file: .png, .tif or .exr.", show_default=False,
                                    dir_okay=False)]
 Strength = Annotated[float | None, typer.Option(
@@ -100,7 +105,7 @@ Bits = Annotated[BitsOpt | None, typer.Option("--bits", help="Output samples: 8,
 @app.command("normal")
 @command
 def normal(
-    height: InputFile,
+    height: HeightIn,
     out: Out,
     strength: Strength = None,
     depth: Depth = None,
@@ -134,7 +139,7 @@ def normal(
 @app.command("height")
 @command
 def height(
-    normal: InputFile,
+    normal: NormalIn,
     out: Out,
     strength: Strength = None,
     depth: Depth = None,
@@ -159,8 +164,8 @@ def height(
 @app.command("blend")
 @command
 def blend(
-    base: InputFile,
-    detail: InputFile,
+    base: _arg("Base normal map."),
+    detail: _arg("Detail normal map, the same size as the base."),
     out: Out,
     method: Annotated[BlendOpt, typer.Option("--method", help="reoriented (Barre-Brisebois & Hill 2012), "
                                              "whiteout, or linear.")] = BlendOpt.reoriented,
@@ -182,7 +187,7 @@ def blend(
 @app.command("normal-mips")
 @command
 def normal_mips(
-    normal: InputFile,
+    normal: NormalIn,
     out: Out,
     levels: Annotated[int | None, typer.Option("--levels", min=1, help="Levels including level 0. Default: "
                                                "down to 1x1.", show_default=False)] = None,
@@ -204,7 +209,7 @@ def normal_mips(
 @app.command("normal-fix")
 @command
 def normal_fix(
-    normal: InputFile,
+    normal: NormalIn,
     out: Out,
     flip_green: Annotated[bool, typer.Option("--flip-green", help="Switch between Y-up and Y-down "
                                              "(g' = 1 - g).")] = False,
