@@ -54,6 +54,7 @@ class ChannelOpt(StrEnum):
 class BlendOpt(StrEnum):
     reoriented = "reoriented"
     whiteout = "whiteout"
+    derivative = "derivative"
     linear = "linear"
 
 
@@ -168,7 +169,7 @@ def blend(
     detail: _arg("Detail normal map, the same size as the base."),
     out: Out,
     method: Annotated[BlendOpt, typer.Option("--method", help="reoriented (Barre-Brisebois & Hill 2012), "
-                                             "whiteout, or linear.")] = BlendOpt.reoriented,
+                                             "whiteout, derivative (slopes add) or linear.")] = BlendOpt.reoriented,
     detail_strength: Annotated[float, typer.Option("--detail-strength", min=0.0, help="Scales the detail's "
                                                    "x and y before blending.")] = 1.0,
     y: Annotated[YOpt, typer.Option("--y", help="Green convention of both inputs and the output.")] = YOpt.up,

@@ -297,7 +297,7 @@ def run_height(inputs: dict[str, Path], output: Path, p: HeightParams) -> list[P
 class BlendParams:
     """Parameters of the ``blend`` bake (detail normal map over a base normal map)."""
 
-    method: Literal["reoriented", "whiteout", "linear"] = "reoriented"
+    method: Literal["reoriented", "whiteout", "derivative", "linear"] = "reoriented"
     detail_strength: float = 1.0
     y: YConv = "up"
     channels: Literal[2, 3] | None = None
@@ -474,7 +474,7 @@ register(Bake("normal", "height map -> tangent-space normal map (Blinn 1978)", (
               run_normal))
 register(Bake("height", "normal map -> height map (Frankot-Chellappa 1988 / Poisson)", ("normal",), HeightParams,
               run_height))
-register(Bake("blend", "detail normal map over a base (reoriented, whiteout, linear)", ("base", "detail"),
+register(Bake("blend", "detail normal map over a base (reoriented, whiteout, derivative, linear)", ("base", "detail"),
               BlendParams, run_blend))
 register(Bake("normal-mips", "normal-map mip chain with averaged-normal lengths", ("normal",), MipsParams,
               run_mips))

@@ -6,6 +6,8 @@ Methods (Barre-Brisebois & Hill 2012, "Blending in Detail"):
   normal, ``t = n1 + (0, 0, 1)``, ``u = n2 * (-1, -1, 1)``, ``r = t * dot(t, u) / t.z - u``. Slopes add as
   angles; a flat base returns the detail, a flat detail returns the base.
 - ``"whiteout"``: ``normalize(n1.xy + n2.xy, n1.z * n2.z)``.
+- ``"derivative"``: partial-derivative blending, ``normalize(n1.xy / n1.z + n2.xy / n2.z, 1)``: the slopes of
+  the two height fields add, as if the heights were summed.
 - ``"linear"``: ``normalize(n1 + n2)``, the plain average (flattens both).
 
 Detail strength scales the detail's x and y, renormalizes, then blends.
@@ -25,7 +27,7 @@ import numpy as np
 from bakery.errors import BakeryError
 from bakery.normals.encode import normalize, unit_normals
 
-BLEND_METHODS = ("reoriented", "whiteout", "linear")
+BLEND_METHODS = ("reoriented", "whiteout", "derivative", "linear")
 
 
 def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reoriented",
@@ -36,7 +38,7 @@ def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reorie
     ----------
     base, detail : ndarray, float32, (H, W, 3)
         Unit normals in [-1, 1] with z > 0; inputs that are not unit length are renormalized with a warning.
-    method : {"reoriented", "whiteout", "linear"}
+    method : {"reoriented", "whiteout", "derivative", "linear"}
     detail_strength : float
         Multiplies the detail's x and y before blending (0 = no detail, 1 = as stored, 2 = twice as steep).
 
@@ -79,6 +81,12 @@ def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reorie
         r = np.empty_like(n1)
         np.add(n1[:, :, :2], n2[:, :, :2], out=r[:, :, :2])
         np.multiply(n1[:, :, 2], n2[:, :, 2], out=r[:, :, 2])
+    elif method == "derivative":
+        r = np.empty_like(n1)
+        z1 = np.maximum(n1[:, :, 2:3], np.float32(1e-6))
+        z2 = np.maximum(n2[:, :, 2:3], np.float32(1e-6))
+        np.add(n1[:, :, :2] / z1, n2[:, :, :2] / z2, out=r[:, :, :2])
+        r[:, :, 2] = 1.0
     else:
         r = n1 + n2
     out, _ = normalize(r, out=r)

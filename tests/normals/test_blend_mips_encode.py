@@ -30,10 +30,12 @@ def test_reoriented_flat_inputs_return_the_other():
 
 @pytest.mark.parametrize(("method", "expected"), [("reoriented", (0.96, 0.0, 0.28)),
                                                   ("whiteout", (0.882353, 0.0, 0.470588)),
+                                                  ("derivative", (0.832050, 0.0, 0.554700)),
                                                   ("linear", (0.6, 0.0, 0.8))])
 def test_blend_values(method, expected):
     # Barre-Brisebois & Hill 2012 formulas; values computed in the reference sheet, section 3:
-    # n1 = n2 = (0.6, 0, 0.8): RNM (0.96, 0, 0.28) (angles add: 73.74 degrees), whiteout, linear.
+    # n1 = n2 = (0.6, 0, 0.8): RNM (0.96, 0, 0.28) (angles add: 73.74 degrees), whiteout, partial
+    # derivative (PD), linear.
     n = np.array([[[0.6, 0.0, 0.8]]], np.float32)
     assert blend_normals(n, n, method=method)[0, 0] == pytest.approx(expected, abs=1e-6)
 

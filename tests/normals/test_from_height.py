@@ -212,3 +212,24 @@ def test_output_is_unit_float32():
     n = normal_from_height(rng.random((9, 7)).astype(np.float64), strength=10.0)
     assert n.dtype == np.float32 and n.shape == (9, 7, 3)
     assert np.abs(np.linalg.norm(n, axis=-1) - 1).max() < 1e-6
+
+
+def test_properties_on_random_heights():
+    # Invariants of Blinn 1978's construction for any heights and strength: unit length, z > 0, z = 1 exactly
+    # where both slopes vanish; the Y-down file differs only in the green channel.
+    from hypothesis import given, settings
+    from hypothesis import strategies as st
+
+    @settings(max_examples=25, deadline=None)
+    @given(seed=st.integers(0, 2**31 - 1), rows=st.integers(1, 12), cols=st.integers(1, 12),
+           strength=st.floats(-200, 200, allow_nan=False), kernel=st.sampled_from(KERNEL_NAMES),
+           edges=st.sampled_from(["wrap", "clamp", "mirror"]))
+    def check(seed, rows, cols, strength, kernel, edges):
+        h = np.random.default_rng(seed).random((rows, cols), dtype=np.float32)
+        n = normal_from_height(h, strength=strength, kernel=kernel, edges=edges)
+        assert np.all(np.isfinite(n)) and np.all(n[..., 2] > 0)
+        assert np.abs(np.linalg.norm(n.astype(np.float64), axis=-1) - 1).max() < 1e-6
+        up, down = encode_normals(n), encode_normals(n, y="down")
+        assert np.array_equal(up[..., ::2], down[..., ::2])
+
+    check()
