@@ -15,7 +15,8 @@ from bakery.normals import (
     normal_mips,
     strength_from_size,
 )
+from bakery.roughness import convert_specular, exponent_from_roughness, roughness_from_exponent, roughness_mips
 
-__all__ = ["BakeryError", "BakeryWarning", "__version__", "blend_normals", "decode_normals", "encode_normals",
-           "height_from_normal", "normal_from_height", "normal_mips", "read_image", "strength_from_size",
-           "write_image"]
+__all__ = ["BakeryError", "BakeryWarning", "__version__", "blend_normals", "convert_specular", "decode_normals",
+           "encode_normals", "exponent_from_roughness", "height_from_normal", "normal_from_height", "normal_mips",
+           "read_image", "roughness_from_exponent", "roughness_mips", "strength_from_size", "write_image"]

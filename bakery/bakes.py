@@ -26,7 +26,7 @@ from typing import Any
 from bakery.errors import BakeryError
 
 #: Modules that register bakes when imported.
-BAKE_MODULES: list[str] = ["bakery.normals.bakes"]
+BAKE_MODULES: list[str] = ["bakery.normals.bakes", "bakery.roughness.bakes"]
 
 
 @dataclass(frozen=True)

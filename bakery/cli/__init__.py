@@ -27,7 +27,8 @@ env_app = typer.Typer(help="Environment maps: panoramas, cubemaps, prefiltered l
                       rich_markup_mode=None)
 
 #: Command modules, imported in this order (each registers its own commands).
-COMMAND_MODULES = ["bakery.cli.info", "bakery.cli.inspect", "bakery.cli.demo", "bakery.cli.normals"]
+COMMAND_MODULES = ["bakery.cli.info", "bakery.cli.inspect", "bakery.cli.demo", "bakery.cli.normals",
+                   "bakery.cli.roughness"]
 
 
 def _version(value: bool) -> None:

@@ -191,3 +191,131 @@ register(Bake(
     params=RoughnessParams,
     run=run_roughness,
 ))
+
+
+# ------------------------------------------------------------------------------------------------ antialias
+
+
+@dataclass(frozen=True)
+class AntialiasParams:
+    """Parameters of the ``antialias`` bake (see :func:`bakery.roughness.antialias.roughness_mips`).
+
+    ``roughness`` is a constant perceptual roughness used when no roughness map is given. ``ktx2`` also writes
+    ``NAME.ktx2`` when the output names loose image files. ``channel`` picks the roughness map's channel.
+    """
+
+    roughness: float | None = None
+    method: Literal["vmf", "toksvig"] = "vmf"
+    lobe: Literal["ggx", "beckmann"] = "ggx"
+    levels: int | None = None
+    ktx2: bool = False
+    channel: Channel | None = None
+    depth: Depth | None = None
+
+
+KTX2_FORMATS = {"u8": "R8_UNORM", "u16": "R16_UNORM"}
+
+
+def decode_normal_pixels(pixels: np.ndarray, path: Path) -> np.ndarray:
+    """Stored [0, 1] values -> vectors n = 2 v - 1 (two-channel maps rebuild z = sqrt(1 - x^2 - y^2)).
+
+    The Y convention does not matter here: only lengths of averaged normals are used.
+    """
+    c = pixels.shape[2]
+    if c == 1:
+        raise BakeryError("a normal map needs 2 (XY), 3 (RGB) or 4 (RGBA) channels; this file has 1", path)
+    n = np.empty(pixels.shape[:2] + (3,), np.float32)
+    k = 2 if c == 2 else 3
+    np.multiply(pixels[:, :, :k], np.float32(2.0), out=n[:, :, :k])
+    n[:, :, :k] -= np.float32(1.0)
+    if k == 2:
+        z = np.float32(1.0) - n[:, :, 0] ** 2 - n[:, :, 1] ** 2
+        np.sqrt(np.maximum(z, 0.0), out=n[:, :, 2])
+    return n
+
+
+def level_paths(output: Path, count: int) -> list[Path]:
+    """``NAME.png`` -> ``NAME.mip00.png``, ``NAME.mip01.png``, ...; ``NAME.ktx2`` -> itself."""
+    if output.suffix.lower() == ".ktx2":
+        return [output]
+    return [output.with_name(f"{output.stem}.mip{k:02d}{output.suffix}") for k in range(count)]
+
+
+def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams) -> list[Path]:
+    import contextlib
+
+    from bakery.io import atomic_output, check_distinct, read_image, write_image, write_manifest
+    from bakery.roughness.antialias import roughness_mips
+
+    normal_path = inputs["normal"]
+    rough_path = inputs.get("roughness")
+    if rough_path is None and params.roughness is None:
+        raise BakeryError("give a roughness map (second argument) or a constant roughness (--roughness R)",
+                          normal_path)
+    if rough_path is not None and params.roughness is not None:
+        raise BakeryError("give either a roughness map or --roughness, not both", rough_path)
+    normal_img = read_image(normal_path)
+    normals = decode_normal_pixels(normal_img.pixels, normal_path)
+    source_depth = "u16"
+    if rough_path is not None:
+        rough_img = read_image(rough_path)
+        if rough_img.pixels.shape[:2] != normals.shape[:2]:
+            (rh, rw), (nh, nw) = rough_img.pixels.shape[:2], normals.shape[:2]
+            raise BakeryError(f"roughness map is {rw}x{rh} but the normal map {normal_path.name} is {nw}x{nh}; "
+                              "they must be the same size", rough_path)
+        base = pick_channel(rough_img.pixels, params.channel, rough_path, "the roughness map")
+        outside = int(np.count_nonzero(~((base >= 0) & (base <= 1))))
+        if outside:
+            raise BakeryError(f"{outside} roughness value(s) outside [0, 1]; perceptual roughness maps hold "
+                              "[0, 1]", rough_path)
+        source_depth = rough_img.depth
+    else:
+        base = float(params.roughness)
+        if not 0.0 <= base <= 1.0:
+            raise BakeryError(f"--roughness must lie in [0, 1]; got {base:g}")
+    ktx2_only = output.suffix.lower() == ".ktx2"
+    if ktx2_only:
+        depth = params.depth or ("u8" if source_depth == "u8" else "u16")
+        if depth not in KTX2_FORMATS:
+            raise BakeryError("KTX2 roughness chains are stored as R8_UNORM or R16_UNORM; use --depth u8 or u16",
+                              output)
+    else:
+        depth = output_depth(output, params.depth, source_depth, bounded=True)
+    try:
+        chain = roughness_mips(normals, base, levels=params.levels, method=params.method, lobe=params.lobe)
+    except BakeryError as exc:
+        raise _reraise(exc, normal_path) from None
+    paths = level_paths(output, len(chain))
+    ktx2_path = output if ktx2_only else (output.with_suffix(".ktx2") if params.ktx2 else None)
+    if ktx2_path is not None and ktx2_path not in paths:
+        paths.append(ktx2_path)
+    check_distinct(paths, [p for p in (normal_path, rough_path) if p is not None])
+    describe = (f"perceptual roughness r (GGX alpha = r^2, Burley 2012); level k adds the normal spread under its "
+                f"footprint: alpha^2 = mean(alpha_0^2) + c * v(|Na|), method {params.method}, lobe {params.lobe}")
+    with contextlib.ExitStack() as stack:  # every file renamed into place only after all were written
+        if not ktx2_only:
+            for level, path in zip(chain, paths, strict=False):
+                tmp = stack.enter_context(atomic_output(path))
+                write_image(tmp, level, depth=depth)
+        if ktx2_path is not None:
+            from bakery.io.ktx2 import write_ktx2
+
+            tmp = stack.enter_context(atomic_output(ktx2_path))
+            fmt = KTX2_FORMATS[depth if depth in KTX2_FORMATS else "u16"]
+            write_ktx2(tmp, [lv[:, :, None] for lv in chain], fmt, cubemap=False,
+                       key_values={"bakery.roughness": describe})
+    conventions = {"roughness": describe, "transfer": "linear",
+                   "levels": [{"level": k, "size": [int(lv.shape[1]), int(lv.shape[0])]}
+                              for k, lv in enumerate(chain)]}
+    manifest = write_manifest(output, bake="antialias", inputs={k: v for k, v in inputs.items() if v},
+                              params=params_to_dict(params), outputs=paths, extra={"conventions": conventions})
+    return paths + [manifest]
+
+
+register(Bake(
+    name="antialias",
+    summary="normal map (+ roughness) -> roughness mip chain widened by the normal spread of each level",
+    inputs=("normal", "roughness?"),
+    params=AntialiasParams,
+    run=run_antialias,
+))

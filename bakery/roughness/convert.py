@@ -68,6 +68,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from bakery.errors import BakeryError, BakeryWarning
+from bakery.microfacet import alpha_from_perceptual, perceptual_from_alpha
 
 __all__ = [
     "MODELS",
@@ -237,7 +238,7 @@ class _Plan:
             r = one(1.0) - x
             return "ggx", np.multiply(r, r, out=r)
         elif name == "roughness":
-            return "ggx", x * x
+            return "ggx", alpha_from_perceptual(x)
         else:
             return self.source.lobe, x.copy()
         if self.model == "phong":
@@ -268,7 +269,7 @@ class _Plan:
             v = self._alpha(n, target.lobe)
         if target.name in ("alpha", "beckmann"):
             return v
-        r = np.sqrt(v, out=v)
+        r = perceptual_from_alpha(v)
         if target.name == "smoothness":
             np.subtract(one(1.0), r, out=r)
         return r
