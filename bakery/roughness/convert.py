@@ -60,7 +60,6 @@ References
 from __future__ import annotations
 
 import math
-import os
 import warnings
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -115,8 +114,7 @@ QUANTITIES: dict[str, Quantity] = {q.name: q for q in (
 #: Integer files can hold these quantities (the others are unbounded and need float files).
 BOUNDED = tuple(name for name, q in QUANTITIES.items() if math.isfinite(q.high))
 
-_BLOCK = 1 << 14  # elements per block: a few blocks of temporaries stay in the CPU's L2 cache
-_THREADS = min(2, os.cpu_count() or 1)
+_BLOCK = 1 << 15  # elements per block: a few blocks of temporaries stay in the CPU's L2 cache
 
 
 def _choice(what: str, value: str, choices) -> str:
@@ -284,6 +282,20 @@ class _Plan:
         kind, v = self.decode(x)
         return self.encode(kind, v)
 
+    def run_into(self, x: np.ndarray, out: np.ndarray) -> None:
+        """:meth:`run` writing into ``out``; the common case (exponent -> alpha or roughness by the peak rule)
+        runs in place in ``out`` with no temporaries."""
+        if (self.source.name == "exponent" and self.rule == "peak" and self.target.name in ("alpha", "roughness")):
+            one = out.dtype.type
+            phong = self.model == "phong"  # alpha^2 = 2/(4 n_P + 2) = 0.5/(n_P + 0.5)
+            np.add(x, one(0.5 if phong else 2.0), out=out)
+            np.divide(one(0.5 if phong else 2.0), out, out=out)
+            np.sqrt(out, out=out)
+            if self.target.name == "roughness":
+                np.sqrt(out, out=out)
+            return
+        out[...] = self.run(x)
+
 
 def _plan(source: str, target: str, model: str, rule: str, exponent_range, gloss_base, gloss_scale) -> _Plan:
     _choice("source quantity", source, QUANTITIES)
@@ -345,34 +357,20 @@ def _float_array(values, what: str) -> np.ndarray:
     return a
 
 
-def _blockwise(fn: Callable[[np.ndarray], np.ndarray], x: np.ndarray,
+def _blockwise(fn: Callable[[np.ndarray, np.ndarray], None], x: np.ndarray,
                ok: Callable[[np.ndarray], bool]) -> np.ndarray | None:
-    """Apply an elementwise ``fn`` in cache-sized blocks (the temporaries of each block stay in L2), on up to
-    two threads (numpy releases the GIL inside its loops). Returns None, having stopped early, as soon as a
-    block fails ``ok``."""
+    """Apply an elementwise ``fn(block, out_block)`` in cache-sized blocks, so each block's temporaries stay in
+    the CPU's L2 cache and memory sees one read and one write. Returns None, having stopped early, as soon as a
+    block fails ``ok``. (A second thread measured no faster here on a loaded 2-core machine.)"""
     out = np.empty(x.shape, x.dtype)
     flat_in = x.reshape(-1)
     flat_out = out.reshape(-1)
-    starts = range(0, flat_in.size, _BLOCK)
-
-    def work(chunk: range) -> bool:
-        for start in chunk:
-            block = flat_in[start:start + _BLOCK]
-            if not ok(block):
-                return False
-            flat_out[start:start + _BLOCK] = fn(block)
-        return True
-
-    workers = min(_THREADS, len(starts))
-    if workers <= 1:
-        return out if work(starts) else None
-    from concurrent.futures import ThreadPoolExecutor
-
-    step = -(-len(starts) // workers)
-    chunks = [starts[i:i + step] for i in range(0, len(starts), step)]
-    with ThreadPoolExecutor(workers) as pool:
-        results = list(pool.map(work, chunks))
-    return out if all(results) else None
+    for start in range(0, flat_in.size, _BLOCK):
+        block = flat_in[start:start + _BLOCK]
+        if not ok(block):
+            return None
+        fn(block, flat_out[start:start + _BLOCK])
+    return out
 
 
 # ------------------------------------------------------------------------------------------------ public
@@ -435,11 +433,11 @@ def convert_specular(
     if x.size == 0:
         return np.empty(shape, x.dtype)
     with np.errstate(divide="ignore", over="ignore"):
-        out = _blockwise(plan.run, x, in_range)
+        out = _blockwise(plan.run_into, x, in_range)
         if out is not None:
             return out.reshape(shape)[()]
         x = _check_values(x, plan.source, clamp)
-        out = _blockwise(plan.run, x, lambda block: True)
+        out = _blockwise(plan.run_into, x, lambda block: True)
     return out.reshape(shape)[()]
 
 
