@@ -63,8 +63,27 @@ def _step_normals(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
             ("detail blended over the paving normals (reoriented normal mapping)", blended)]
 
 
+def _step_roughness(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
+    """The exponent map and its 8-bit gloss copy (exponent = 2^(13 g)) -> perceptual roughness, both rules."""
+    from bakery.bakes import run_bake
+    from bakery.roughness.bakes import RoughnessParams
+
+    folder = out / "roughness"
+    folder.mkdir(exist_ok=True)
+    peak = run_bake("roughness", {"map": inputs["exponent"]}, folder / "paving_roughness.png",
+                    RoughnessParams(depth="u16"))[0]
+    width = run_bake("roughness", {"map": inputs["exponent"]}, folder / "paving_roughness_width.png",
+                     RoughnessParams(depth="u16", rule="width"))[0]
+    gloss = run_bake("roughness", {"map": inputs["gloss"]}, folder / "paving_roughness_from_gloss.png",
+                     RoughnessParams(source="gloss-exp", gloss_base=2.0, gloss_scale=13.0))[0]
+    return [("roughness from the exponent map, peak rule (bakery roughness)", peak),
+            ("roughness from the exponent map, width rule (bakery roughness --rule width)", width),
+            ("roughness from the 8-bit gloss map, exponent = 2^(13 g) (bakery roughness --from gloss-exp)", gloss)]
+
+
 #: Demo steps in order: (name, function).
-STEPS: list[tuple[str, Step]] = [("info", _step_info), ("normals", _step_normals)]
+STEPS: list[tuple[str, Step]] = [("info", _step_info), ("normals", _step_normals),
+                                  ("roughness", _step_roughness)]
 
 
 def run_demo(out: str | Path, *, size: int = 256, log: Callable[[str], None] = print) -> Path:
