@@ -192,3 +192,13 @@ def test_bad_input():
         roughness_mips(np.zeros((8, 8, 3), np.float32), 0.5)
     with pytest.raises(BakeryError, match="must be one of"):
         roughness_mips(flat, 0.5, method="average")
+
+
+def test_nan_normals_are_refused():
+    n = np.zeros((8, 8, 3), np.float32)
+    n[..., 2] = 1
+    n[3, 4, 0] = np.nan
+    with pytest.raises(BakeryError, match="NaN or Inf"):
+        roughness_mips(n, 0.5)
+    with pytest.raises(BakeryError, match="NaN or Inf"):
+        roughness_mips(n[:7, :5], 0.5)  # odd sizes take the other path

@@ -222,3 +222,23 @@ def test_quantities_table_is_consistent():
     for name, q in QUANTITIES.items():
         assert q.name == name and q.side in ("exponent", "microfacet")
         assert q.low <= q.roughest <= q.high
+
+
+def test_beckmann_width_inverse_edges():
+    # m = 0 is a mirror (n = inf); the Newton solve of s/m^2 = ln2 + 2 ln(1 + s) reproduces the forward map.
+    m = np.array([0.0, 0.01, 0.3, 0.9, 2.0])
+    n = exponent_from_roughness(m, kind="beckmann", rule="width")
+    assert n[0] == np.inf
+    np.testing.assert_allclose(roughness_from_exponent(n[1:], target="beckmann", rule="width"), m[1:], rtol=1e-9)
+
+
+def test_smoothness_to_beckmann_goes_through_the_exponent():
+    # smoothness -> GGX alpha = (1 - s)^2 (Burley 2012) -> Blinn-Phong n (rule) -> Beckmann m (rule)
+    s = np.array([0.2, 0.6])
+    a = (1 - s) ** 2
+    n = 2 / a**2 - 2  # Walter et al. 2007, peak rule
+    np.testing.assert_allclose(convert_specular(s, source="smoothness", target="beckmann"), a, rtol=1e-12)
+    got = convert_specular(s, source="smoothness", target="beckmann", rule="width")
+    np.testing.assert_allclose(got, roughness_from_exponent(
+        exponent_from_roughness(a, kind="alpha", rule="width"), target="beckmann", rule="width"), rtol=1e-12)
+    assert np.all(np.isfinite(n))

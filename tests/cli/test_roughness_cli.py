@@ -182,3 +182,10 @@ def test_antialias_bad_input(tmp_path):
     assert r.exit_code == 2 and "R16_UNORM" in r.output
     r = invoke("antialias", tmp_path / "missing.png", "--roughness", 0.5, "-o", tmp_path / "aa.png")
     assert r.exit_code == 2 and "missing.png" in r.output
+
+
+def test_recipe_values_for_the_antialias_and_gloss_parameters():
+    p = params_from_mapping(get_bake("roughness"), {"source": "gloss-linear", "exponent-range": [1, 2048]}, "t")
+    assert p.exponent_range == (1.0, 2048.0)
+    a = params_from_mapping(get_bake("antialias"), {"roughness": 0.4, "method": "toksvig", "ktx2": True}, "t")
+    assert (a.roughness, a.method, a.ktx2) == (0.4, "toksvig", True)
