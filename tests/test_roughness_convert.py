@@ -242,3 +242,13 @@ def test_smoothness_to_beckmann_goes_through_the_exponent():
     np.testing.assert_allclose(got, roughness_from_exponent(
         exponent_from_roughness(a, kind="alpha", rule="width"), target="beckmann", rule="width"), rtol=1e-12)
     assert np.all(np.isfinite(n))
+
+
+@pytest.mark.parametrize("source", list(QUANTITIES))
+@pytest.mark.parametrize("target", list(QUANTITIES))
+def test_inputs_are_never_modified(source, target):
+    x = np.array([0.0, 0.25, 0.5, 1.0], np.float32)
+    keep = x.copy()
+    convert_specular(x, source=source, target=target, rule="width", model="phong", exponent_range=(1, 100),
+                     gloss_base=2, gloss_scale=13)
+    np.testing.assert_array_equal(x, keep)

@@ -111,9 +111,6 @@ QUANTITIES: dict[str, Quantity] = {q.name: q for q in (
     Quantity("beckmann", "microfacet", "beckmann", 0.0, math.inf, 1.0, "Beckmann m, [0, inf)"),
 )}
 
-#: Integer files can hold these quantities (the others are unbounded and need float files).
-BOUNDED = tuple(name for name, q in QUANTITIES.items() if math.isfinite(q.high))
-
 _BLOCK = 1 << 15  # elements per block: a few blocks of temporaries stay in the CPU's L2 cache
 
 
@@ -224,8 +221,7 @@ class _Plan:
         one = x.dtype.type
         name = self.source.name
         if name == "exponent":
-            n = x * one(4.0) if self.model == "phong" else x
-            return "exponent", n
+            return "exponent", x * one(4.0) if self.model == "phong" else x.copy()
         elif name == "gloss-linear":
             lo, hi = self.exponent_range
             n = x * one(hi - lo)
