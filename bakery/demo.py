@@ -64,21 +64,31 @@ def _step_normals(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
 
 
 def _step_roughness(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
-    """The exponent map and its 8-bit gloss copy (exponent = 2^(13 g)) -> perceptual roughness, both rules."""
+    """The exponent map and its 8-bit gloss copy (exponent = 2^(13 g)) -> perceptual roughness by both rules;
+    then the paving normal map and that roughness -> an anti-aliased roughness mip chain."""
     from bakery.bakes import run_bake
-    from bakery.roughness.bakes import RoughnessParams
+    from bakery.normals.bakes import NormalParams
+    from bakery.roughness.bakes import AntialiasParams, RoughnessParams
 
     folder = out / "roughness"
-    folder.mkdir(exist_ok=True)
+    (folder / "antialias").mkdir(parents=True, exist_ok=True)
     peak = run_bake("roughness", {"map": inputs["exponent"]}, folder / "paving_roughness.png",
                     RoughnessParams(depth="u16"))[0]
     width = run_bake("roughness", {"map": inputs["exponent"]}, folder / "paving_roughness_width.png",
                      RoughnessParams(depth="u16", rule="width"))[0]
     gloss = run_bake("roughness", {"map": inputs["gloss"]}, folder / "paving_roughness_from_gloss.png",
                      RoughnessParams(source="gloss-exp", gloss_base=2.0, gloss_scale=13.0))[0]
+    normal = run_bake("normal", {"height": inputs["height"]}, folder / "antialias" / "paving_normal.png",
+                      NormalParams())[0]
+    written = run_bake("antialias", {"normal": normal, "roughness": peak},
+                       folder / "antialias" / "paving_roughness.png", AntialiasParams(ktx2=True))
+    levels = [p for p in written if p.suffix == ".png"]
+    ktx2 = next(p for p in written if p.suffix == ".ktx2")
     return [("roughness from the exponent map, peak rule (bakery roughness)", peak),
             ("roughness from the exponent map, width rule (bakery roughness --rule width)", width),
-            ("roughness from the 8-bit gloss map, exponent = 2^(13 g) (bakery roughness --from gloss-exp)", gloss)]
+            ("roughness from the 8-bit gloss map, exponent = 2^(13 g) (bakery roughness --from gloss-exp)", gloss),
+            (f"anti-aliased roughness mip chain, {len(levels)} levels (bakery antialias)", levels[0]),
+            ("the same chain in one KTX 2.0 file", ktx2)]
 
 
 #: Demo steps in order: (name, function).

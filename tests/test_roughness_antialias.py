@@ -202,3 +202,17 @@ def test_nan_normals_are_refused():
         roughness_mips(n, 0.5)
     with pytest.raises(BakeryError, match="NaN or Inf"):
         roughness_mips(n[:7, :5], 0.5)  # odd sizes take the other path
+
+
+def test_lengths_agree_with_the_normal_map_mip_chain():
+    # The fast even-size path and bakery.normals.mips.normal_mips average the same footprints.
+    from bakery.normals.mips import normal_mips
+    from bakery.roughness.antialias import _normal_lengths
+
+    n = vmf_normals(30.0, 32, seed=9).astype(np.float32)
+    ours = _normal_lengths(n, 6)
+    theirs = [length for _, length in normal_mips(n)]
+    for a, b in zip(ours[1:], theirs[1:], strict=True):
+        np.testing.assert_allclose(a, b, atol=2e-6)
+    for k in range(1, 6):  # and both are the footprint means of the unit normals (float64 reference)
+        np.testing.assert_allclose(ours[k], np.linalg.norm(box_mean(n.astype(np.float64), k), axis=-1), atol=2e-6)

@@ -216,24 +216,6 @@ class AntialiasParams:
 KTX2_FORMATS = {"u8": "R8_UNORM", "u16": "R16_UNORM"}
 
 
-def decode_normal_pixels(pixels: np.ndarray, path: Path) -> np.ndarray:
-    """Stored [0, 1] values -> vectors n = 2 v - 1 (two-channel maps rebuild z = sqrt(1 - x^2 - y^2)).
-
-    The Y convention does not matter here: only lengths of averaged normals are used.
-    """
-    c = pixels.shape[2]
-    if c == 1:
-        raise BakeryError("a normal map needs 2 (XY), 3 (RGB) or 4 (RGBA) channels; this file has 1", path)
-    n = np.empty(pixels.shape[:2] + (3,), np.float32)
-    k = 2 if c == 2 else 3
-    np.multiply(pixels[:, :, :k], np.float32(2.0), out=n[:, :, :k])
-    n[:, :, :k] -= np.float32(1.0)
-    if k == 2:
-        z = np.float32(1.0) - n[:, :, 0] ** 2 - n[:, :, 1] ** 2
-        np.sqrt(np.maximum(z, 0.0), out=n[:, :, 2])
-    return n
-
-
 def level_paths(output: Path, count: int) -> list[Path]:
     """``NAME.png`` -> ``NAME.mip00.png``, ``NAME.mip01.png``, ...; ``NAME.ktx2`` -> itself."""
     if output.suffix.lower() == ".ktx2":
@@ -245,6 +227,7 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
     import contextlib
 
     from bakery.io import atomic_output, check_distinct, read_image, write_image, write_manifest
+    from bakery.normals.bakes import read_normals
     from bakery.roughness.antialias import roughness_mips
 
     normal_path = inputs["normal"]
@@ -254,8 +237,7 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
                           normal_path)
     if rough_path is not None and params.roughness is not None:
         raise BakeryError("give either a roughness map or --roughness, not both", rough_path)
-    normal_img = read_image(normal_path)
-    normals = decode_normal_pixels(normal_img.pixels, normal_path)
+    normals, _ = read_normals(normal_path, "up")  # the Y convention does not change lengths of averages
     source_depth = "u16"
     if rough_path is not None:
         rough_img = read_image(rough_path)
