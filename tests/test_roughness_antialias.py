@@ -19,7 +19,7 @@ def d_ggx(c, a):  # Walter et al. 2007, eq. 33 (Trowbridge & Reitz 1975)
     return np.where(c > 0, a * a / (math.pi * (c * c * (a * a - 1) + 1) ** 2), 0.0)
 
 
-def d_beckmann(c, a):  # Walter et al. 2007, eq. 25
+def d_beckmann(c, a):  # Walter et al. 2007, eq. 25 (equation numbers from memory)
     c = np.clip(c, 1e-9, 1.0)
     t2 = (1 - c * c) / (c * c)
     return np.where(c > 1e-8, np.exp(-t2 / (a * a)) / (math.pi * a * a * c**4), 0.0)

@@ -25,7 +25,7 @@ def d_ggx(c, a):  # Walter et al. 2007, eq. 33 (Trowbridge & Reitz 1975)
     return a * a / (math.pi * (c * c * (a * a - 1) + 1) ** 2)
 
 
-def d_beckmann(c, a):  # Walter et al. 2007, eq. 25
+def d_beckmann(c, a):  # Walter et al. 2007, eq. 25 (equation numbers from memory)
     t2 = (1 - c * c) / (c * c)
     return math.exp(-t2 / (a * a)) / (math.pi * a * a * c**4)
 

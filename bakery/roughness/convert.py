@@ -32,7 +32,7 @@ so a Phong exponent is multiplied by 4 before any rule is applied (and divided b
 
 Rules
 -----
-``peak`` (default; Walter et al. 2007, eq. 25 and the text after it): alpha = sqrt(2 / (n + 2)) for both GGX and
+``peak`` (default; Walter et al. 2007, their Phong-Beckmann correspondence): alpha = sqrt(2 / (n + 2)) for both GGX and
 Beckmann. The peak heights agree exactly: D_BP(1) = (n + 2)/(2 pi) = 1/(pi alpha^2) = D_GGX(1) = D_Beckmann(1).
 
 ``width``: the half-maximum angles agree. With t^2 = tan^2 of the Blinn-Phong half-maximum angle,
@@ -50,7 +50,7 @@ References
 ----------
 .. [1] Walter, B., Marschner, S. R., Li, H., Torrance, K. E. (2007). Microfacet models for refraction through
    rough surfaces. Eurographics Symposium on Rendering (Beckmann-Phong correspondence alpha_p = 2/alpha_b^2 - 2,
-   eq. 25 and text, equation number from memory; normalized Blinn-Phong D, eq. 30).
+   in the section on the Phong distribution; normalized Blinn-Phong D, eq. 30; equation numbers from memory).
 .. [2] Burley, B. (2012). Physically-based shading at Disney. SIGGRAPH course "Practical Physically Based
    Shading in Film and Game Production" (alpha = r^2).
 .. [3] Blinn, J. F. (1977). Models of light reflection for computer synthesized pictures. SIGGRAPH '77.
