@@ -162,11 +162,17 @@ def cube_directions(n: int, *, dtype=np.float32) -> np.ndarray:
 
     ``[f, i, j]`` is face f, row i (t), column j (s).
     """
-    c = face_texel_coords(n, np.float64)
-    s = np.broadcast_to(c[None, None, :], (6, n, n))
-    t = np.broadcast_to(c[None, :, None], (6, n, n))
-    f = np.broadcast_to(np.arange(6)[:, None, None], (6, n, n))
-    return face_to_dir(f, s, t).astype(dtype)
+    c = 2 * face_texel_coords(n, np.float64) - 1  # s_c along columns, t_c along rows
+    sc = np.broadcast_to(c[None, :], (n, n))
+    tc = np.broadcast_to(c[:, None], (n, n))
+    inv = 1.0 / np.sqrt(sc * sc + tc * tc + 1.0)
+    out = np.empty((6, n, n, 3), dtype=dtype)
+    flip = CUBE_FROM_WORLD.astype(np.float64)
+    for f, (major, sign, (sa, ss), (ta, ts)) in enumerate(_FACE_TABLE):
+        out[f, :, :, major] = sign * inv * flip[major]
+        out[f, :, :, sa] = ss * sc * inv * flip[sa]
+        out[f, :, :, ta] = ts * tc * inv * flip[ta]
+    return out
 
 
 def face_centers() -> np.ndarray:

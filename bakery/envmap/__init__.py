@@ -1,0 +1,1 @@
+"""Environment maps: layouts, seamless resampling, diffuse irradiance (pure array functions)."""

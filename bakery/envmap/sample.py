@@ -1,0 +1,649 @@
+"""Seamless sampling and resampling of environment maps (pure array functions).
+
+Representations
+---------------
+- **cubemap**: float32 ``(6, N, N, C)``, faces +X, -X, +Y, -Y, +Z, -Z oriented as in :mod:`bakery.sphere`.
+- **equirect**: float32 ``(H, W, C)`` panorama in bakery's orientation (centre -Z, top +Y), normally W = 2H.
+
+Values are radiance; every filter here is an average weighted by solid angle, so the total energy
+``sum(L * solid_angle)`` is kept.
+
+Method
+------
+Lookups are bilinear and seamless: cube faces are padded with one texel taken from their neighbours across
+each edge (so a lookup near an edge blends the two faces), panoramas wrap around horizontally and across the
+poles (the texel beyond the top row is the top row half a turn away).
+
+Resampling from a source to a destination of given size (:func:`resample`):
+
+1. While the destination texels are at least twice as large (in angle) as the source's, the source is
+   reduced exactly: 2 x 2 texels -> 1, weighted by their solid angles (an area-weighted box filter, so no
+   energy is lost or gained).
+2. Shrinking (destination texels more than 1.25 x the source's): the conservative area-weighted filter of
+   :func:`area_resample` -- energy kept to rounding, a single bright texel included.
+3. Otherwise (enlarging or about equal density): one bilinear lookup per destination texel; for a panorama
+   source, rows whose texels are narrower than the destination's (toward the poles) are first averaged
+   along the row by a circular box of matching width (each row keeps its sum).
+
+The area-weighted reduction follows the usual solid-angle weighting of cube-map texels (texel solid angle
+in closed form, :func:`bakery.sphere.cube_texel_solid_angles`).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from bakery import sphere
+
+_MAX_MAP = 32000  # cv2.remap needs every dimension of source and maps below 32767
+
+
+def _cv2():
+    import cv2
+
+    return cv2
+
+
+def _check_cube(cube: np.ndarray) -> None:
+    if cube.ndim != 4 or cube.shape[0] != 6 or cube.shape[1] != cube.shape[2]:
+        raise ValueError(f"a cubemap must be (6, N, N, C); got {cube.shape}")
+
+
+def _remap(src: np.ndarray, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Bilinear lookups of float32 ``(h, w, C)`` at pixel coordinates (x, y) (texel centres at integers),
+    clamped at the source border. ``x``, ``y`` may have any shape; returns ``x.shape + (C,)``."""
+    cv2 = _cv2()
+    shape = x.shape
+    n = x.size
+    c = src.shape[2]
+    src = np.ascontiguousarray(src, dtype=np.float32)
+    x = np.ascontiguousarray(x, dtype=np.float32).reshape(-1)
+    y = np.ascontiguousarray(y, dtype=np.float32).reshape(-1)
+    cols = min(n, 4096) or 1
+    rows = -(-n // cols)
+    pad = rows * cols - n
+    if pad:
+        x = np.concatenate([x, np.zeros(pad, np.float32)])
+        y = np.concatenate([y, np.zeros(pad, np.float32)])
+    x = x.reshape(rows, cols)
+    y = y.reshape(rows, cols)
+    if c <= 4 and rows <= _MAX_MAP:  # one call, no copies
+        out = cv2.remap(src, x, y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        return out.reshape(rows * cols, c)[:n].reshape(shape + (c,))
+    out = np.empty((rows, cols, c), dtype=np.float32)
+    for r0 in range(0, rows, _MAX_MAP):
+        r1 = min(rows, r0 + _MAX_MAP)
+        for c0 in range(0, c, 4):  # OpenCV handles up to 4 channels per call
+            part = cv2.remap(np.ascontiguousarray(src[:, :, c0:c0 + 4]), x[r0:r1], y[r0:r1],
+                             cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+            out[r0:r1, :, c0:c0 + 4] = part.reshape(r1 - r0, cols, -1)
+    return out.reshape(rows * cols, c)[:n].reshape(shape + (c,))
+
+
+# ------------------------------------------------------------------------------------------- lookups
+
+
+def pad_equirect(img: np.ndarray) -> np.ndarray:
+    """A panorama with one texel of border on each side, continued across the wrap and over the poles
+    (the texel above row 0 at column x is row 0 at column x + W/2)."""
+    h, w, _ = img.shape
+    half = w // 2
+    top = np.roll(img[0], -half, axis=0)
+    bottom = np.roll(img[-1], -half, axis=0)
+    mid = np.concatenate([top[None], img, bottom[None]], axis=0)
+    return np.concatenate([mid[:, -1:], mid, mid[:, :1]], axis=1)
+
+
+def sample_equirect(img: np.ndarray, dirs: np.ndarray) -> np.ndarray:
+    """Bilinear radiance of a panorama ``(H, W, C)`` in directions ``(..., 3)``; returns ``(..., C)``.
+
+    Seamless across the left/right wrap and over the poles.
+    """
+    h, w, _ = img.shape
+    u, v = sphere.dir_to_equirect(np.asarray(dirs, dtype=np.float32))
+    return sample_equirect_uv(img, u, v)
+
+
+def sample_equirect_uv(img: np.ndarray, u: np.ndarray, v: np.ndarray, *, wrapped: bool = False) -> np.ndarray:
+    """Bilinear lookups at panorama coordinates (u, v) in [0, 1] (u wraps; pass ``wrapped=True`` when u is
+    already in [0, 1))."""
+    h, w, _ = img.shape
+    x = np.asarray(u, dtype=np.float32)
+    x = x * np.float32(w) if wrapped else np.mod(x, np.float32(1)) * np.float32(w)
+    x += np.float32(0.5)  # +1 for the border, -0.5 for texel centres
+    y = np.asarray(v, dtype=np.float32) * np.float32(h)
+    y += np.float32(0.5)
+    return _remap(pad_equirect(np.asarray(img, dtype=np.float32)), x, y)
+
+
+_ATLAS = ((0, 0), (0, 1), (0, 2), (1, 0), (1, 1), (1, 2))  # (row, col) of each face in a 2 x 3 atlas
+
+
+def _atlas(faces: np.ndarray, border: int) -> np.ndarray:
+    _, n, _, c = faces.shape
+    m = n + 2 * border
+    out = np.zeros((2 * m, 3 * m, c), dtype=np.float32)
+    for f, (r, q) in enumerate(_ATLAS):
+        out[r * m + border: r * m + border + n, q * m + border: q * m + border + n] = faces[f]
+    return out
+
+
+def pad_cube(cube: np.ndarray) -> np.ndarray:
+    """Faces with one texel of border, ``(6, N+2, N+2, C)``, the border taken from the neighbouring faces
+    (bilinear lookups at the directions of the border texel centres)."""
+    _check_cube(cube)
+    n = cube.shape[1]
+    idx = np.arange(-1, n + 1)
+    # border texels of the padded (n+2)^2 grid, in padded coordinates
+    ring = [(i, j) for i in (0, n + 1) for j in range(n + 2)] + [(i, j) for i in range(1, n + 1)
+                                                                  for j in (0, n + 1)]
+    ri = np.array([p[0] for p in ring])
+    rj = np.array([p[1] for p in ring])
+    s = (idx[rj] + 0.5) / n
+    t = (idx[ri] + 0.5) / n
+    f = np.repeat(np.arange(6), len(ring))
+    d = sphere.face_to_dir(f, np.tile(s, 6).astype(np.float64), np.tile(t, 6).astype(np.float64))
+    face, ss, tt = sphere.dir_to_face(d)
+    atlas = _atlas(cube.astype(np.float32, copy=False), 0)
+    rows = np.array([_ATLAS[k][0] for k in range(6)])[face]
+    cols = np.array([_ATLAS[k][1] for k in range(6)])[face]
+    x = np.clip(ss * n - 0.5, 0, n - 1) + cols * n
+    y = np.clip(tt * n - 0.5, 0, n - 1) + rows * n
+    vals = _remap(atlas, x.astype(np.float32), y.astype(np.float32))
+    out = np.zeros((6, n + 2, n + 2, cube.shape[3]), dtype=np.float32)
+    out[:, 1:-1, 1:-1] = cube
+    out[f, np.tile(ri, 6), np.tile(rj, 6)] = vals
+    return out
+
+
+def sample_cube(cube: np.ndarray, dirs: np.ndarray, *, padded_atlas: np.ndarray | None = None) -> np.ndarray:
+    """Bilinear radiance of a cubemap ``(6, N, N, C)`` in directions ``(..., 3)``; returns ``(..., C)``.
+
+    Seamless across face edges and corners. ``padded_atlas`` (from :func:`cube_atlas`) saves rebuilding the
+    padded faces when sampling the same cubemap many times.
+    """
+    _check_cube(cube)
+    n = cube.shape[1]
+    atlas = cube_atlas(cube) if padded_atlas is None else padded_atlas
+    face, s, t = sphere.dir_to_face(np.asarray(dirs, dtype=np.float32))
+    return _sample_atlas(atlas, n, face, s, t)
+
+
+def cube_atlas(cube: np.ndarray) -> np.ndarray:
+    """The padded faces of a cubemap arranged in a 2 x 3 atlas (for repeated :func:`sample_cube` calls)."""
+    padded = pad_cube(cube)
+    n2 = padded.shape[1]
+    out = np.empty((2 * n2, 3 * n2, cube.shape[3]), dtype=np.float32)
+    for f, (r, q) in enumerate(_ATLAS):
+        out[r * n2:(r + 1) * n2, q * n2:(q + 1) * n2] = padded[f]
+    return out
+
+
+def _sample_atlas(atlas: np.ndarray, n: int, face: np.ndarray, s: np.ndarray, t: np.ndarray) -> np.ndarray:
+    m = n + 2
+    rows = np.array([r for r, _ in _ATLAS], dtype=np.float32)[face]
+    cols = np.array([q for _, q in _ATLAS], dtype=np.float32)[face]
+    x = s * np.float32(n) + np.float32(0.5) + cols * np.float32(m)
+    y = t * np.float32(n) + np.float32(0.5) + rows * np.float32(m)
+    return _remap(atlas, x, y)
+
+
+# ----------------------------------------------------------------------------------- exact reduction
+
+
+def reduce_cube(cube: np.ndarray, factor: int = 2) -> np.ndarray:
+    """Shrink every face by an integer ``factor`` (N divisible by it): each output texel is the average
+    of its ``factor x factor`` texels weighted by their solid angles, so energy is kept exactly."""
+    _check_cube(cube)
+    n = cube.shape[1]
+    if n % factor:
+        raise ValueError(f"face size {n} is not divisible by {factor}")
+    m = n // factor
+    w = sphere.cube_texel_solid_angles(n, dtype=np.float64)
+    wsum = w.reshape(m, factor, m, factor).sum(axis=(1, 3))
+    acc = (cube.astype(np.float64) * w[None, :, :, None]).reshape(6, m, factor, m, factor, -1)
+    acc = acc.sum(axis=(2, 4))
+    return (acc / wsum[None, :, :, None]).astype(np.float32)
+
+
+def reduce_equirect(img: np.ndarray, fy: int = 2, fx: int | None = None) -> np.ndarray:
+    """Shrink a panorama by integer factors (rows by ``fy``, columns by ``fx``, default the same): each
+    output texel is the solid-angle weighted average of its block, so energy is kept exactly."""
+    fx = fy if fx is None else fx
+    h, w, c = img.shape
+    if h % fy or w % fx:
+        raise ValueError(f"panorama {w}x{h} is not divisible by {fx}x{fy}")
+    rw = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)
+    a = img.astype(np.float64) * rw[:, None, None]
+    acc = a.reshape(h // fy, fy, w // fx, fx, c).sum(axis=(1, 3))
+    den = rw.reshape(h // fy, fy).sum(axis=1) * fx
+    return (acc / den[:, None, None]).astype(np.float32)
+
+
+def _row_box_filter(img: np.ndarray, target: float) -> np.ndarray:
+    """Average each panorama row along its length with a circular box as wide as ``target`` radians,
+    where the row's texels are narrower than that (toward the poles). Each row keeps its sum."""
+    h, w, c = img.shape
+    lat = np.pi * (0.5 - (np.arange(h) + 0.5) / h)
+    width = (2 * np.pi / w) * np.cos(lat)
+    m = np.minimum(np.floor(target / np.maximum(width, 1e-12)).astype(np.int64), w)
+    rows = np.nonzero(m >= 2)[0]
+    if rows.size == 0:
+        return img
+    out = img.copy()
+    whole = rows[m[rows] >= w - 1]
+    if whole.size:
+        out[whole] = img[whole].astype(np.float64).mean(axis=1, keepdims=True).astype(np.float32)
+    for r in rows[m[rows] < w - 1]:  # a shifted difference of the row's running sum
+        mm = int(m[r])
+        half = mm // 2  # odd m: taps x-half..x+half; even m: the same with halves at both ends
+        row = img[r].astype(np.float64)
+        ext = np.concatenate([row[w - half - 1:], row, row[:half + 1]], axis=0)
+        cs = np.concatenate([np.zeros((1, c)), np.cumsum(ext, axis=0)], axis=0)
+        total = cs[2 * half + 2: 2 * half + 2 + w] - cs[1: 1 + w]
+        if mm % 2 == 0:
+            total -= 0.5 * (ext[1: 1 + w] + ext[2 * half + 1: 2 * half + 1 + w])
+        out[r] = (total / mm).astype(np.float32)
+    return out
+
+
+def cube_equirect_uv(n: int, rotation_deg: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+    """Panorama coordinates (u, v) of the texel centres of a cubemap of face ``n``, ``(6, n, n)`` each,
+    float32; the same as :func:`bakery.sphere.dir_to_equirect` of :func:`bakery.sphere.cube_directions`
+    but computed from two faces: the four side faces are quarter turns of one another (u shifts by 1/4)
+    and the bottom face mirrors the top one. ``rotation_deg`` shifts u by ``-rotation_deg / 360`` (where
+    an output texel finds its source after :func:`bakery.sphere.rotation_y`)."""
+    c = (2 * sphere.face_texel_coords(n, np.float64) - 1).astype(np.float32)
+    sc = c[None, :]
+    tc = c[:, None]
+    shift = np.float32(-rotation_deg / 360.0)
+    u = np.empty((6, n, n), dtype=np.float32)
+    v = np.empty((6, n, n), dtype=np.float32)
+    # face +Z (layer 4) looks along bakery -Z: direction (s_c, -t_c, -1)
+    u_front = np.arctan(sc) * np.float32(0.5 / np.pi) + np.float32(0.5)
+    v_side = np.float32(0.5) - np.arctan2(-tc, np.sqrt(sc * sc + 1)) * np.float32(1 / np.pi)
+    for f, centre in ((0, 0.75), (1, 0.25), (4, 0.5), (5, 1.0)):
+        u[f] = u_front + np.float32(centre - 0.5)
+        v[f] = v_side
+    # +Y (layer 2): (s_c, 1, -t_c); -Y (layer 3): (s_c, -1, t_c)
+    rho = np.sqrt(sc * sc + tc * tc)
+    lat = np.arctan2(np.float32(1), rho)
+    u[2] = np.arctan2(sc, tc) * np.float32(0.5 / np.pi) + np.float32(0.5)
+    v[2] = np.float32(0.5) - lat * np.float32(1 / np.pi)
+    u[3] = np.arctan2(sc, -tc) * np.float32(0.5 / np.pi) + np.float32(0.5)
+    v[3] = np.float32(0.5) + lat * np.float32(1 / np.pi)
+    if shift:
+        u += shift
+        np.mod(u, np.float32(1), out=u)
+    else:
+        u[5][u[5] >= 1] -= np.float32(1)
+    np.minimum(u, np.float32(np.nextafter(np.float32(1), np.float32(0))), out=u)
+    return u, v
+
+
+# ------------------------------------------------------------------------------------------ resampling
+
+
+def texel_angle_cube(n: int) -> float:
+    """Typical angular size (radians) of a cube texel: sqrt(4 pi / (6 n^2))."""
+    return math.sqrt(4 * math.pi / (6 * n * n))
+
+
+def texel_angle_equirect(w: int, h: int) -> float:
+    """Typical angular size (radians) of a panorama texel: sqrt(4 pi / (w h))."""
+    return math.sqrt(4 * math.pi / (w * h))
+
+
+FILTERS = ("auto", "area", "bilinear")
+#: Above this ratio of destination to source texel size, "auto" uses the area filter.
+AREA_THRESHOLD = 1.25
+
+
+def _lookup(src: np.ndarray, kind: str, dirs: np.ndarray) -> np.ndarray:
+    if kind == "cube":
+        return sample_cube(src, dirs)
+    return sample_equirect(src, dirs)
+
+
+def _rotate(dirs: np.ndarray, rotation_deg: float, *, inverse: bool = True) -> np.ndarray:
+    if not rotation_deg:
+        return dirs
+    r = sphere.rotation_y(rotation_deg).astype(np.float32)
+    # an output direction d shows the source at R^-1 d = d @ R; a source direction goes to R d = d @ R^T
+    return dirs @ r if inverse else dirs @ r.T
+
+
+def _texel_angle(src: np.ndarray, kind: str) -> float:
+    if kind == "cube":
+        return texel_angle_cube(src.shape[1])
+    return texel_angle_equirect(src.shape[1], src.shape[0])
+
+
+def _source_ratio(src: np.ndarray, kind: str, dst_angle: float) -> float:
+    if kind == "cube":
+        return dst_angle / texel_angle_cube(src.shape[1])
+    return dst_angle / texel_angle_equirect(src.shape[1], src.shape[0])
+
+
+def _source_points(src_shape: tuple[int, ...], kind: str) -> tuple[np.ndarray, np.ndarray]:
+    """Directions ``(n, 3)`` and solid angles ``(n,)`` of every source texel, in storage order."""
+    if kind == "cube":
+        n = src_shape[1]
+        d = sphere.cube_directions(n).reshape(-1, 3)
+        w = np.broadcast_to(sphere.cube_texel_solid_angles(n, dtype=np.float64)[None], (6, n, n)).reshape(-1)
+    else:
+        h, w_ = src_shape[:2]
+        d = sphere.equirect_directions(w_, h).reshape(-1, 3)
+        w = np.repeat(sphere.equirect_row_solid_angles(w_, h, dtype=np.float64), w_)
+    return d, w
+
+
+def _dst_splat(d: np.ndarray, kind: str, size: int, cells: np.ndarray | None = None
+               ) -> tuple[np.ndarray, np.ndarray]:
+    """For each direction, the 3 x 3 destination texels around it and their quadratic B-spline weights
+    (which sum to 1): ``(n, 9)`` indices and weights. Clamped at cube face edges, wrapped around a panorama.
+
+    The quadratic B-spline's weights for an offset d in [-0.5, 0.5] from the nearest texel centre are
+    ``(0.5 - d)^2 / 2, 0.75 - d^2, (0.5 + d)^2 / 2`` (de Boor, "A Practical Guide to Splines", 1978)."""
+    if kind == "cube":
+        f, s, t = sphere.dir_to_face(d)
+        x = s.astype(np.float64) * size - 0.5
+        y = t.astype(np.float64) * size - 0.5
+        base = f.astype(np.int64) * size * size
+        w, h = size, size
+    else:
+        w, h = size, size // 2
+        u, v = sphere.dir_to_equirect(d)
+        y = v.astype(np.float64) * h - 0.5
+        row = np.clip(np.rint(y).astype(np.int64), 0, h - 1)
+        m = cells[row]  # texels per cell in this row (see _equirect_cells)
+        x = u.astype(np.float64) * (w // m) - 0.5
+        w = w // m  # cells per row, now per sample
+        base = np.zeros(x.shape, np.int64)
+    x0 = np.rint(x)
+    y0 = np.rint(y)
+    dx = x - x0
+    dy = y - y0
+    wx = (0.5 * (0.5 - dx) ** 2, 0.75 - dx * dx, 0.5 * (0.5 + dx) ** 2)
+    wy = (0.5 * (0.5 - dy) ** 2, 0.75 - dy * dy, 0.5 * (0.5 + dy) ** 2)
+    x0 = x0.astype(np.int64)
+    y0 = y0.astype(np.int64)
+    wt = np.stack([wy[a] * wx[b] for a in range(3) for b in range(3)], axis=-1)
+    if kind == "cube":
+        cols = []
+        for a in (-1, 0, 1):
+            for b in (-1, 0, 1):
+                xi, yi = x0 + b, y0 + a
+                ix = base + np.clip(yi, 0, h - 1) * w + np.clip(xi, 0, w - 1)
+                out = (xi < 0) | (xi >= w) | (yi < 0) | (yi >= h)
+                if np.any(out):  # a texel beyond the face edge: the neighbouring face's nearest texel
+                    fo = (base[out] // (w * h))
+                    dd = sphere.face_to_dir(fo, (xi[out] + 0.5) / w, (yi[out] + 0.5) / h)
+                    f2, s2, t2 = sphere.dir_to_face(dd)
+                    j2 = np.clip((s2 * w).astype(np.int64), 0, w - 1)
+                    i2 = np.clip((t2 * h).astype(np.int64), 0, h - 1)
+                    ix[out] = f2.astype(np.int64) * w * h + i2 * w + j2
+                cols.append(ix)
+        return np.stack(cols, axis=-1), wt
+    # panorama cells: row r holds size // cells[r] cells; cell index = row * size + cell (sparse ids)
+    xs = [x0 + k for k in (-1, 0, 1)]
+    cols = []
+    for a in (-1, 0, 1):
+        yi = y0 + a
+        over = (yi < 0) | (yi >= h)  # beyond a pole: the same row half a turn away
+        yi = np.where(yi < 0, -1 - yi, np.where(yi >= h, 2 * h - 1 - yi, yi))
+        ncell = size // cells[yi]
+        for b in range(3):
+            # the row of a neighbouring sample may have other cells: map by longitude
+            turn = (xs[b] + 0.5) / w + np.where(over, 0.5, 0.0)
+            xc = np.mod(np.floor(turn * ncell).astype(np.int64), ncell)
+            cols.append(yi * size + xc)
+    return np.stack(cols, axis=-1), wt
+
+
+def _equirect_cells(size: int, src_angle: float) -> np.ndarray:
+    """Texels per area-filter cell in each row of a ``size``-wide panorama: toward the poles, where a
+    row's texels are narrower than the source's, whole runs of texels share one cell (a power of two that
+    divides the width), so the destination is nowhere finer than the source along a row."""
+    h = size // 2
+    lat = np.pi * (0.5 - (np.arange(h) + 0.5) / h)
+    width = (2 * np.pi / size) * np.cos(lat)
+    want = np.maximum(1.0, src_angle / width)
+    m = np.ones(h, dtype=np.int64)
+    while True:
+        grow = (m * 2 <= want) & (size % (m * 2) == 0)
+        if not grow.any():
+            return m
+        m = np.where(grow, m * 2, m)
+
+
+def _cells_to_texels(vals: np.ndarray, cells: np.ndarray, size: int) -> np.ndarray:
+    """Cell values ``(h * size, C)`` (cell ids row * size + cell) to texels ``(h, size, C)``: each cell's
+    value spread over its texels, then smoothed along the row by a circular box as wide as the cell (both
+    steps keep each row's sum)."""
+    h = size // 2
+    c = vals.shape[-1]
+    grid = vals.reshape(h, size, c)
+    out = np.empty((h, size, c), dtype=np.float64)
+    for m in np.unique(cells):
+        rows = np.nonzero(cells == m)[0]
+        ncell = size // m
+        rep = np.repeat(grid[rows, :ncell], m, axis=1)
+        if m > 1:  # box of width m, centred (halves at both ends for even m)
+            half = m // 2
+            ext = np.concatenate([rep[:, -half - 1:], rep, rep[:, :half + 1]], axis=1)
+            cs = np.concatenate([np.zeros((len(rows), 1, c)), np.cumsum(ext, axis=1)], axis=1)
+            lo = np.arange(size) + 1
+            hi = lo + 2 * half + 1
+            full = cs[:, hi] - cs[:, lo] - 0.5 * (ext[:, lo] + ext[:, hi - 1])
+            rep = full / m
+        out[rows] = rep
+    return out
+
+
+def _dst_solid_angles(kind: str, size: int) -> np.ndarray:
+    if kind == "cube":
+        return np.broadcast_to(sphere.cube_texel_solid_angles(size, dtype=np.float64)[None],
+                               (6, size, size)).reshape(-1)
+    return np.repeat(sphere.equirect_row_solid_angles(size, size // 2, dtype=np.float64), size)
+
+
+def area_resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_deg: float = 0.0,
+                  iterations: int = 40, tol: float = 1e-3) -> np.ndarray:
+    """Conservative (area-weighted) resampling: each destination texel is an average of the source texels
+    around it, weighted by solid angle, and no energy is created or lost.
+
+    Each source texel hands its solid angle to the 3 x 3 destination texels around its centre with
+    quadratic B-spline weights (a smooth estimate of the overlap areas, as in first-order conservative
+    remapping [2]_). The weights are then balanced by alternate row and column scaling (Sinkhorn [1]_) so
+    that every source texel hands out exactly its own solid angle and every destination texel receives its
+    own to ``tol``. Hence the total energy ``sum(L * solid angle)`` is kept to rounding, a single bright
+    texel included, and a constant environment stays constant to ``tol``. Toward a panorama's poles, runs
+    of destination texels share one cell so that no cell is finer than the source.
+
+    Cost: a sparse matrix with 9 entries per source texel; meant for shrinking (the source is first
+    reduced exactly by 2 x 2 while it is more than twice as fine, see :func:`resample`).
+
+    Parameters
+    ----------
+    src : ndarray, float32
+        Cubemap ``(6, N, N, C)`` or panorama ``(H, W, C)``.
+    kind, dst_kind : {"cube", "equirect"}
+    size : int
+        Destination face size (cube) or width (panorama, height = width // 2).
+
+    Returns
+    -------
+    ndarray, float32: ``(6, size, size, C)`` or ``(size // 2, size, C)``.
+
+    References
+    ----------
+    .. [1] R. Sinkhorn, "A Relationship Between Arbitrary Positive Matrices and Doubly Stochastic
+       Matrices", Ann. Math. Statist. 35(2), 1964.
+    .. [2] P. W. Jones, "First- and Second-Order Conservative Remapping Schemes for Grids in Spherical
+       Coordinates", Monthly Weather Review 127(9), 1999 (first-order conservative remapping: weights =
+       overlap areas).
+    """
+    import scipy.sparse as sp
+
+    c = src.shape[-1]
+    n_src = src.size // c
+    d, w = _source_points(src.shape, kind)
+    cells = None
+    omega_dst = _dst_solid_angles(dst_kind, size)
+    if dst_kind == "equirect":
+        cells = _equirect_cells(size, _texel_angle(src, kind))
+        # cell solid angles at ids row * size + cell; unused ids get 0
+        ncell = size // cells
+        omega_dst = omega_dst.reshape(size // 2, size) * cells[:, None]
+        omega_dst = np.where(np.arange(size)[None, :] < ncell[:, None], omega_dst, 0.0).reshape(-1)
+    n_dst = omega_dst.size
+    # the sparse overlap matrix: 9 entries per source texel, built in chunks to bound temporaries
+    indices = np.empty((n_src, 9), dtype=np.int32)
+    data = np.empty((n_src, 9), dtype=np.float32)
+    step = 1 << 19
+    for i0 in range(0, n_src, step):
+        i1 = min(n_src, i0 + step)
+        idx, wt = _dst_splat(_rotate(d[i0:i1], rotation_deg, inverse=False), dst_kind, size, cells)
+        indices[i0:i1] = idx
+        data[i0:i1] = wt * w[i0:i1, None]
+    del d
+    mat = sp.csr_matrix((data.reshape(-1), indices.reshape(-1), np.arange(0, 9 * n_src + 1, 9)),
+                        shape=(n_src, n_dst))
+    mt = mat.T  # CSC view: products with it need no conversion
+    omega_src = w.astype(np.float32)
+    col = mt @ np.ones(n_src, dtype=np.float32)
+    covered = (col > 0) & (omega_dst > 0)
+    target = np.where(covered, omega_dst, 0.0)
+    # balance so that row sums = source solid angles and column sums = destination solid angles
+    target = (target * (omega_src.sum(dtype=np.float64) / target.sum())).astype(np.float32)
+    a = np.ones(n_src, dtype=np.float32)
+    b = np.ones(n_dst, dtype=np.float32)
+    for it in range(iterations):
+        if it:
+            col = mt @ a
+            if np.abs(b * col - target).max() < tol * target.max():
+                break  # the last step fixed the rows: energy is exact
+        b = np.divide(target, col, out=np.zeros_like(col), where=col > 0)
+        row = mat @ b
+        a = np.divide(omega_src, row, out=np.ones_like(row), where=row > 0)
+    flat = src.reshape(n_src, c).astype(np.float32)
+    out = ((mt @ (flat * a[:, None])) * b[:, None]).astype(np.float64)
+    out = np.divide(out, omega_dst[:, None], out=np.zeros_like(out), where=covered[:, None])
+    if dst_kind == "cube":
+        res = out.reshape(6, size, size, c).astype(np.float32)
+        holes = ~covered
+    else:
+        ncell = size // cells
+        used = (np.arange(size)[None, :] < ncell[:, None]).reshape(-1)
+        holes_cells = used & ~covered
+        res = _cells_to_texels(out, cells, size).astype(np.float32)
+        # a texel is a hole when its cell is
+        cell_of = (np.arange(size)[None, :] // cells[:, None])
+        holes = np.take_along_axis(holes_cells.reshape(size // 2, size), cell_of, axis=1).reshape(-1)
+    if holes.any():  # destination texels no source sample reached: bilinear (negligible energy)
+        if dst_kind == "cube":
+            dirs = sphere.cube_directions(size).reshape(-1, 3)[holes]
+        else:
+            dirs = sphere.equirect_directions(size, size // 2).reshape(-1, 3)[holes]
+        vals = _lookup(src, kind, _rotate(dirs, rotation_deg))
+        res.reshape(-1, c)[holes] = vals
+    return res
+
+
+def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_deg: float = 0.0,
+             filter: str = "auto") -> np.ndarray:
+    """Resample a cubemap or panorama to a cubemap of face ``size`` or a panorama of width ``size``.
+
+    Parameters
+    ----------
+    src : ndarray, float32
+        ``(6, N, N, C)`` cubemap (``kind="cube"``) or ``(H, W, C)`` panorama (``kind="equirect"``),
+        radiance in any range.
+    kind, dst_kind : {"cube", "equirect"}
+    size : int
+        Face edge (cube) or width (panorama; height is width // 2, width even).
+    rotation_deg : float
+        Turn the environment about the vertical axis; positive moves content to the right in a panorama
+        (:func:`bakery.sphere.rotation_y`).
+    filter : {"auto", "area", "bilinear"}
+        "bilinear": one seamless bilinear lookup per output texel (after exact 2x2 reductions while the
+        output is at least twice as coarse, and row boxes toward a panorama's poles). "area": conservative
+        area-weighted resampling (:func:`area_resample`) after the same exact reductions. "auto" (default):
+        "area" when output texels are more than :data:`AREA_THRESHOLD` times larger than the input's
+        (shrinking), else "bilinear".
+
+    Returns
+    -------
+    ndarray, float32: ``(6, size, size, C)`` or ``(size // 2, size, C)``.
+    """
+    if filter not in FILTERS:
+        raise ValueError(f"filter must be one of {FILTERS}; got {filter!r}")
+    src = np.asarray(src, dtype=np.float32)
+    if kind == "cube":
+        _check_cube(src)
+    if dst_kind == "equirect" and (size < 2 or size % 2):
+        raise ValueError(f"panorama width must be even and >= 2; got {size}")
+    same = (kind == dst_kind == "cube" and src.shape[1] == size) or (
+        kind == dst_kind == "equirect" and src.shape[:2] == (size // 2, size))
+    if same and not rotation_deg:
+        return src.copy()
+    dst_angle = texel_angle_cube(size) if dst_kind == "cube" else texel_angle_equirect(size, size // 2)
+    ratio0 = _source_ratio(src, kind, dst_angle)
+    use_area = filter == "area" or (filter == "auto" and ratio0 > AREA_THRESHOLD)
+    # exact 2x2 reductions while the output is at least twice as coarse
+    while True:
+        ratio = _source_ratio(src, kind, dst_angle)
+        if ratio < 2:
+            break
+        if kind == "cube" and src.shape[1] % 2 == 0:
+            src = reduce_cube(src)
+        elif kind == "equirect" and src.shape[0] % 2 == 0 and src.shape[1] % 2 == 0:
+            src = reduce_equirect(src)
+        else:
+            break
+    if use_area:
+        return area_resample(src, kind, dst_kind, size, rotation_deg=rotation_deg)
+    if kind == "equirect":
+        src = _row_box_filter(src, dst_angle)
+    if kind == dst_kind == "equirect":
+        # same layout: sample by coordinates (no trigonometry); a turn is a shift of u
+        h = size // 2
+        u = (np.arange(size, dtype=np.float64) + 0.5) / size - rotation_deg / 360.0
+        v = (np.arange(h, dtype=np.float64) + 0.5) / h
+        uu, vv = np.broadcast_arrays(u[None, :].astype(np.float32), v[:, None].astype(np.float32))
+        return sample_equirect_uv(src, uu, vv)
+    if dst_kind == "cube" and kind == "equirect":
+        u, v = cube_equirect_uv(size, rotation_deg)
+        return sample_equirect_uv(src, u, v, wrapped=True)
+    if dst_kind == "cube":
+        dirs = sphere.cube_directions(size)
+    else:
+        dirs = sphere.equirect_directions(size, size // 2)
+    return _lookup(src, kind, _rotate(dirs, rotation_deg))
+
+
+def energy(env: np.ndarray, kind: str) -> np.ndarray:
+    """Total energy per channel, ``sum(L * solid angle)`` (float64), of a cubemap or panorama."""
+    env = np.asarray(env)
+    if kind == "cube":
+        w = sphere.cube_texel_solid_angles(env.shape[1], dtype=np.float64)
+        return np.einsum("fijc,ij->c", env.astype(np.float64), w)
+    w = sphere.equirect_row_solid_angles(env.shape[1], env.shape[0], dtype=np.float64)
+    return np.einsum("ijc,i->c", env.astype(np.float64), w)
+
+
+def cube_mip_chain(cube: np.ndarray, levels: int | None = None) -> list[np.ndarray]:
+    """Level 0 and its smaller levels down to 1 x 1 (or ``levels`` in all): each level the solid-angle
+    weighted 2 x 2 average of the one before (:func:`reduce_cube`), or the area-weighted resampling
+    (:func:`area_resample`) where a face size is odd."""
+    _check_cube(cube)
+    out = [np.asarray(cube, dtype=np.float32)]
+    total = levels or int(cube.shape[1]).bit_length()
+    while len(out) < total and out[-1].shape[1] > 1:
+        cur = out[-1]
+        n = cur.shape[1]
+        out.append(reduce_cube(cur) if n % 2 == 0 else area_resample(cur, "cube", "cube", n // 2))
+    return out
