@@ -389,6 +389,15 @@ def _dst_splat(d: np.ndarray, kind: str, size: int, cells: np.ndarray | None = N
         return np.stack(cols, axis=-1), wt
     # panorama cells: row r holds size // cells[r] cells; cell index = row * size + cell (sparse ids)
     xs = [x0 + k for k in (-1, 0, 1)]
+    # rows toward a pole hold less solid angle: share each sample among rows in proportion to their area
+    # too, so a uniform source covers every row evenly from the start (balancing then converges quickly)
+    row_om = sphere.equirect_row_solid_angles(size, h, dtype=np.float64)
+    ry = [np.where(y0 + a < 0, -1 - (y0 + a), np.where(y0 + a >= h, 2 * h - 1 - (y0 + a), y0 + a))
+          for a in (-1, 0, 1)]
+    wy2 = [wy[k] * row_om[ry[k]] for k in range(3)]
+    tot = wy2[0] + wy2[1] + wy2[2]
+    wy2 = [q / tot for q in wy2]
+    wt = np.stack([wy2[a] * wx[b] for a in range(3) for b in range(3)], axis=-1)
     cols = []
     for a in (-1, 0, 1):
         yi = y0 + a
@@ -405,18 +414,14 @@ def _dst_splat(d: np.ndarray, kind: str, size: int, cells: np.ndarray | None = N
 
 def _equirect_cells(size: int, src_angle: float) -> np.ndarray:
     """Texels per area-filter cell in each row of a ``size``-wide panorama: toward the poles, where a
-    row's texels are narrower than the source's, whole runs of texels share one cell (a power of two that
-    divides the width), so the destination is nowhere finer than the source along a row."""
+    row's texels are narrower than the source's, whole runs of texels share one cell (a divisor of the
+    width), so the destination is nowhere finer than the source along a row."""
     h = size // 2
     lat = np.pi * (0.5 - (np.arange(h) + 0.5) / h)
     width = (2 * np.pi / size) * np.cos(lat)
     want = np.maximum(1.0, src_angle / width)
-    m = np.ones(h, dtype=np.int64)
-    while True:
-        grow = (m * 2 <= want) & (size % (m * 2) == 0)
-        if not grow.any():
-            return m
-        m = np.where(grow, m * 2, m)
+    divisors = np.array([k for k in range(1, size + 1) if size % k == 0])
+    return divisors[np.searchsorted(divisors, want, side="right") - 1].astype(np.int64)
 
 
 def _cells_to_texels(vals: np.ndarray, cells: np.ndarray, size: int) -> np.ndarray:
@@ -437,7 +442,9 @@ def _cells_to_texels(vals: np.ndarray, cells: np.ndarray, size: int) -> np.ndarr
             cs = np.concatenate([np.zeros((len(rows), 1, c)), np.cumsum(ext, axis=1)], axis=1)
             lo = np.arange(size) + 1
             hi = lo + 2 * half + 1
-            full = cs[:, hi] - cs[:, lo] - 0.5 * (ext[:, lo] + ext[:, hi - 1])
+            full = cs[:, hi] - cs[:, lo]
+            if m % 2 == 0:
+                full = full - 0.5 * (ext[:, lo] + ext[:, hi - 1])
             rep = full / m
         out[rows] = rep
     return out
@@ -451,7 +458,7 @@ def _dst_solid_angles(kind: str, size: int) -> np.ndarray:
 
 
 def area_resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_deg: float = 0.0,
-                  iterations: int = 40, tol: float = 1e-3) -> np.ndarray:
+                  iterations: int = 100, tol: float = 1e-3) -> np.ndarray:
     """Conservative (area-weighted) resampling: each destination texel is an average of the source texels
     around it, weighted by solid angle, and no energy is created or lost.
 
@@ -524,7 +531,7 @@ def area_resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotat
     for it in range(iterations):
         if it:
             col = mt @ a
-            if np.abs(b * col - target).max() < tol * target.max():
+            if np.all(np.abs(b * col - target) <= tol * target):
                 break  # the last step fixed the rows: energy is exact
         b = np.divide(target, col, out=np.zeros_like(col), where=col > 0)
         row = mat @ b
@@ -571,7 +578,8 @@ def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_d
     filter : {"auto", "area", "bilinear"}
         "bilinear": one seamless bilinear lookup per output texel (after exact 2x2 reductions while the
         output is at least twice as coarse, and row boxes toward a panorama's poles). "area": conservative
-        area-weighted resampling (:func:`area_resample`) after the same exact reductions. "auto" (default):
+        area-weighted resampling (:func:`area_resample`) after the same exact reductions, whenever the
+        output is coarser than the input (enlarging stays bilinear). "auto" (default):
         "area" when output texels are more than :data:`AREA_THRESHOLD` times larger than the input's
         (shrinking), else "bilinear".
 
@@ -592,7 +600,8 @@ def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_d
         return src.copy()
     dst_angle = texel_angle_cube(size) if dst_kind == "cube" else texel_angle_equirect(size, size // 2)
     ratio0 = _source_ratio(src, kind, dst_angle)
-    use_area = filter == "area" or (filter == "auto" and ratio0 > AREA_THRESHOLD)
+    # the area filter needs an output coarser than the input; enlarging is always bilinear
+    use_area = ratio0 > 1 and (filter == "area" or (filter == "auto" and ratio0 > AREA_THRESHOLD))
     # exact 2x2 reductions while the output is at least twice as coarse
     while True:
         ratio = _source_ratio(src, kind, dst_angle)
