@@ -91,9 +91,40 @@ def _step_roughness(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]
             ("the same chain in one KTX 2.0 file", ktx2)]
 
 
+def _step_envmaps(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
+    """Environment maps: the sky panorama as a KTX2 cubemap with mips, a cross, a preview, and its diffuse
+    irradiance (SH9 JSON + a small cubemap)."""
+    import warnings
+
+    from bakery.bakes import run_bake
+    from bakery.envmap.envbakes import ConvertParams, DiffuseParams
+    from bakery.errors import BakeryWarning
+    from bakery.io.images import read_image
+
+    sky = inputs["sky"]
+    folder = out / "envmaps"
+    folder.mkdir(exist_ok=True)
+    face = max(8, read_image(sky).pixels.shape[1] // 4)
+    made = []
+    run_bake("env-convert", {"source": sky}, folder / "sky.ktx2", ConvertParams(size=face))
+    made.append(("sky as a KTX2 cubemap, RGBA16F with mips (bakery env convert)", folder / "sky.ktx2"))
+    run_bake("env-convert", {"source": sky}, folder / "sky_cross.exr", ConvertParams(layout="hcross",
+                                                                                     size=face))
+    made.append(("sky as a horizontal cross, half-float EXR", folder / "sky_cross.exr"))
+    with warnings.catch_warnings():  # the sun is far brighter than an 8-bit preview holds: expected
+        warnings.simplefilter("ignore", BakeryWarning)
+        run_bake("env-convert", {"source": sky}, folder / "sky_cross_preview.png",
+                 ConvertParams(layout="hcross", size=face, exposure=-1.0))
+    made.append(("sky cross preview, 8-bit sRGB, -1 EV (the sun clips)", folder / "sky_cross_preview.png"))
+    run_bake("env-diffuse", {"source": sky}, folder / "sky_diffuse.json", DiffuseParams())
+    made.append(("diffuse irradiance: SH9 coefficients (bakery env diffuse)", folder / "sky_diffuse.json"))
+    made.append(("diffuse irradiance cubemap (E/pi), 32 x 32 per face", folder / "sky_diffuse.ktx2"))
+    return made
+
+
 #: Demo steps in order: (name, function).
 STEPS: list[tuple[str, Step]] = [("info", _step_info), ("normals", _step_normals),
-                                  ("roughness", _step_roughness)]
+                                  ("roughness", _step_roughness), ("envmaps", _step_envmaps)]
 
 
 def run_demo(out: str | Path, *, size: int = 256, log: Callable[[str], None] = print) -> Path:

@@ -14,6 +14,8 @@ DEPTH_NAMES = {"u8": "8-bit integer", "u16": "16-bit integer", "f16": "16-bit fl
 
 
 def describe(path: Path, *, max_pixels: int | None = None) -> list[str]:
+    if Path(path).suffix.lower() == ".ktx2":
+        return describe_ktx2(Path(path))
     img = read_image(path, max_pixels=max_pixels, allow_nonfinite=True)
     px = img.pixels
     h, w, c = px.shape
@@ -42,3 +44,40 @@ def describe(path: Path, *, max_pixels: int | None = None) -> list[str]:
 
 def _channel_names(c: int) -> str:
     return {1: "gray", 2: "R, G", 3: "R, G, B", 4: "R, G, B, A"}[c]
+
+
+def describe_ktx2(path: Path) -> list[str]:
+    """Lines for a KTX2 file: type, format, faces, levels with sizes, key/value data, value range."""
+    from bakery.io.ktx2 import read_ktx2
+
+    tex = read_ktx2(path)
+    lv0 = tex.levels[0]
+    c = lv0.shape[-1]
+    sizes = ", ".join(f"{lv.shape[-2]}x{lv.shape[-3]}" for lv in tex.levels)
+    lines = [
+        f"{path}",
+        "  format:   KTX2",
+        f"  type:     {'cubemap' if tex.cubemap else '2D texture'}",
+        f"  vkFormat: {tex.format.name} ({tex.format.vk})",
+        f"  size:     {tex.width} x {tex.height}" + (" per face" if tex.cubemap else ""),
+        f"  faces:    {6 if tex.cubemap else 1}",
+        f"  levels:   {len(tex.levels)} ({sizes})",
+        f"  channels: {c} ({_channel_names(c)})",
+    ]
+    for key in sorted(tex.key_values):
+        value = tex.key_values[key]
+        if value.endswith(b"\0"):
+            text = value.rstrip(b"\0").decode("utf-8", "replace")
+        else:
+            text = f"{len(value)} bytes"
+        lines.append(f"  {key}: {text}")
+    finite = np.isfinite(lv0)
+    names = _channel_names(c).split(", ")
+    for ch in range(c):
+        plane = lv0[..., ch][finite[..., ch]]
+        if plane.size:
+            lines.append(f"  range {names[ch]}:  {float(plane.min()):.6g} .. {float(plane.max()):.6g}"
+                         f"  (mean {float(plane.mean(dtype=np.float64)):.6g}, level 0)")
+    nan, inf = int(np.count_nonzero(np.isnan(lv0))), int(np.count_nonzero(np.isinf(lv0)))
+    lines.append(f"  NaN: {nan}  Inf: {inf}")
+    return lines

@@ -27,6 +27,12 @@ CONVENTIONS = {
 }
 
 
+#: Key/value entries bakery adds to KTX2 environment maps (besides KTXorientation and KTXwriter).
+KTX_KEYS = {"bakery.cubemap": "faces +X,-X,+Y,-Y,+Z,-Z by the Vulkan face selection table; right-handed "
+                              "+Y-up directions map to it with z negated, so face +Z looks toward -Z (the "
+                              "panorama centre)"}
+
+
 @dataclass(frozen=True)
 class ConvertParams:
     """Parameters of ``env-convert``.
@@ -122,15 +128,16 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams) ->
     width = params.width or w_in
     target = size if kind == "cube" else width
     pixels = resample(env.pixels, env.kind, kind, target, rotation_deg=params.rotate, filter=params.filter)
-    if params.exposure:
-        pixels = pixels * np.float32(2.0 ** params.exposure)
+    if params.exposure:  # colour channels only, never alpha
+        pixels = pixels.copy()
+        nc = 3 if pixels.shape[-1] >= 3 else 1
+        pixels[..., :nc] *= np.float32(2.0 ** params.exposure)
     mips = None
     if kind == "cube" and lay is None and output.suffix.lower() == ".ktx2" and params.mips:
         mips = cube_mip_chain(pixels)[1:]
     written = write_environment(output, pixels, kind, layout=lay, depth=params.depth,
                                 source_depth=env.depth, ktx_format=params.ktx_format, mips=mips,
-                                key_values={"bakery.conventions": "bakery cube faces and directions, see "
-                                            "manifest"} if output.suffix.lower() == ".ktx2" else None)
+                                key_values=KTX_KEYS if output.suffix.lower() == ".ktx2" else None)
     man = write_manifest(manifest_target(output), bake="env-convert",
                          inputs=_input_files(env.paths, "source"),
                          params=params_to_dict(params), outputs=written,
@@ -235,7 +242,7 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams) ->
     json_path = write_json(output, data)
     written = [json_path]
     written += write_environment(ktx_path, cube, "cube", ktx_format=params.ktx_format,
-                                 key_values={"bakery.units": data["cubemap"]["units"]})
+                                 key_values={**KTX_KEYS, "bakery.units": data["cubemap"]["units"]})
     written += write_environment(faces_pattern, cube, "cube", depth="f16")
     man = write_manifest(output, bake="env-diffuse", inputs=_input_files(env.paths, "source"),
                          params=params_to_dict(params), outputs=written, extra={"conventions": CONVENTIONS})

@@ -152,6 +152,8 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
         px = tex.levels[0]
         depth = "f32" if tex.format.name.startswith("R32") else ("f16" if tex.format.is_float else
                                                                ("u16" if tex.format.bits == 16 else "u8"))
+        if px.shape[-1] == 4 and np.all(px[..., 3] == 1):  # RGB stored as RGBA: the alpha carries nothing
+            px = px[..., :3]
         if tex.cubemap:
             return Environment("cube", _check_values(px, p, repair), "ktx2", depth, [p])
         img = px
