@@ -222,13 +222,17 @@ def reduce_equirect(img: np.ndarray, fy: int = 2, fx: int | None = None) -> np.n
     return (acc / den[:, None, None]).astype(np.float32)
 
 
-def _row_box_filter(img: np.ndarray, target: float) -> np.ndarray:
+def _row_box_filter(img: np.ndarray, target: float, *, dst_width: int | None = None) -> np.ndarray:
     """Average each panorama row along its length with a circular box as wide as ``target`` radians,
-    where the row's texels are narrower than that (toward the poles). Each row keeps its sum."""
+    where the row's texels are narrower than that (toward the poles). Each row keeps its sum. For a
+    panorama destination of ``dst_width``, the box is as wide as a destination texel of the same row."""
     h, w, c = img.shape
-    lat = np.pi * (0.5 - (np.arange(h) + 0.5) / h)
-    width = (2 * np.pi / w) * np.cos(lat)
-    m = np.minimum(np.floor(target / np.maximum(width, 1e-12)).astype(np.int64), w)
+    if dst_width is not None:
+        m = np.full(h, max(1, w // dst_width), dtype=np.int64)
+    else:
+        lat = np.pi * (0.5 - (np.arange(h) + 0.5) / h)
+        width = (2 * np.pi / w) * np.cos(lat)
+        m = np.minimum(np.floor(target / np.maximum(width, 1e-12)).astype(np.int64), w)
     rows = np.nonzero(m >= 2)[0]
     if rows.size == 0:
         return img
@@ -616,7 +620,7 @@ def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_d
     if use_area:
         return area_resample(src, kind, dst_kind, size, rotation_deg=rotation_deg)
     if kind == "equirect":
-        src = _row_box_filter(src, dst_angle)
+        src = _row_box_filter(src, dst_angle, dst_width=size if dst_kind == "equirect" else None)
     if kind == dst_kind == "equirect":
         # same layout: sample by coordinates (no trigonometry); a turn is a shift of u
         h = size // 2

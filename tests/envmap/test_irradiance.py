@@ -113,7 +113,8 @@ def test_sh_against_brute_force_on_random_smooth_environment():
     rng = np.random.default_rng(7)
     x, y, z = D[..., 0], D[..., 1], D[..., 2]
     terms = [np.ones_like(x), x, y, z, x * y, y * z, x * z, x * x - y * y, 3 * z * z - 1,
-             x * x * x - 3 * x * y * y, z * (5 * z * z - 3), x * y * (x * x - y * y), (35 * z ** 4 - 30 * z * z + 3)]
+             x * x * x - 3 * x * y * y, z * (5 * z * z - 3), x * y * (x * x - y * y),
+             35 * z ** 4 - 30 * z * z + 3]
     field = sum(rng.normal(scale=0.3) * t for t in terms[1:]) + 2.0
     field = np.maximum(field, 0.05)
     env = np.stack([field, 0.8 * field, 1.2 * field], -1).astype(np.float32)

@@ -1,0 +1,159 @@
+"""``bakery env convert`` / ``bakery env diffuse`` / ``bakery info`` on KTX2: behaviour, bad input, atomicity.
+
+Numbers are checked in test_sample.py and test_irradiance.py; here: files, layouts, messages, exit codes.
+"""
+
+import json
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from bakery import sphere as S
+from bakery.cli import app
+from bakery.io.images import read_image, write_image
+from bakery.io.ktx2 import read_ktx2
+
+runner = CliRunner()
+
+
+def run(*args):
+    return runner.invoke(app, [str(a) for a in args])
+
+
+@pytest.fixture
+def pano(tmp_path):
+    d = S.equirect_directions(128, 64, dtype=np.float64)
+    img = np.stack([2 + d[..., 0], 2 + d[..., 1], 2 + d[..., 2]], -1).astype(np.float32)
+    img[20, 70] = 1.0e5  # a small sun, above the half-float range
+    return write_image(tmp_path / "pano.exr", img, depth="f32")
+
+
+@pytest.mark.parametrize("args", [["env", "--help"], ["env", "convert", "--help"],
+                                  ["env", "diffuse", "--help"]])
+def test_help(args):
+    r = run(*args)
+    assert r.exit_code == 0 and "Usage" in r.output
+
+
+def test_convert_through_every_layout(tmp_path, pano):
+    steps = [
+        (pano, tmp_path / "a_{face}.exr", []),
+        (tmp_path / "a_{face}.exr", tmp_path / "b.exr", ["--layout", "hcross"]),
+        (tmp_path / "b.exr", tmp_path / "c.exr", ["--layout", "vcross", "--depth", "f32"]),
+        (tmp_path / "c.exr", tmp_path / "d.tif", ["--layout", "strip"]),
+        (tmp_path / "d.tif", tmp_path / "e.exr", ["--layout", "column", "--depth", "f32"]),
+        (tmp_path / "e.exr", tmp_path / "f.ktx2", ["--ktx-format", "rgba32f"]),
+        (tmp_path / "f.ktx2", tmp_path / "g.exr", ["--layout", "equirect", "--width", "128", "--depth",
+                                                   "f32"]),
+    ]
+    for src, dst, extra in steps:
+        r = run("env", "convert", src, "-o", dst, *extra)
+        assert r.exit_code == 0, r.output
+    tex = read_ktx2(tmp_path / "f.ktx2")
+    assert tex.cubemap and tex.width == 32 and len(tex.levels) == 6  # 128 / 4, full mip chain
+    back = read_image(tmp_path / "g.exr").pixels
+    orig = read_image(pano).pixels
+    lat = np.abs(np.degrees(np.arcsin(S.equirect_directions(128, 64)[..., 1])))
+    smooth = lat < 60
+    smooth[14:28, 62:78] = False  # around the sun, which spreads over its neighbours
+    rel = np.abs(back - orig) / orig
+    assert rel[smooth].max() < 0.03  # half-float faces and two resamplings on a 32-texel cube
+    man = json.loads((tmp_path / "f.ktx2.json").read_text())
+    assert man["bake"] == "env-convert" and man["output"]["levels"] == 6
+    assert json.loads((tmp_path / "a_cube.exr.json").read_text())["outputs"][0] == "a_px.exr"
+
+
+def test_convert_is_deterministic(tmp_path, pano):
+    for name in ("x.ktx2", "y.ktx2"):
+        assert run("env", "convert", pano, "-o", tmp_path / name, "--size", "16").exit_code == 0
+    assert (tmp_path / "x.ktx2").read_bytes() == (tmp_path / "y.ktx2").read_bytes()
+
+
+def test_half_float_range_is_clamped_with_a_count(tmp_path, pano):
+    r = run("env", "convert", pano, "-o", tmp_path / "h.exr", "--width", "128")
+    assert r.exit_code == 0
+    assert "warning: " in r.output and "3 sample(s) above 65504" in r.output  # R, G, B of the sun
+    r = run("env", "convert", pano, "-o", tmp_path / "f.exr", "--width", "128", "--depth", "f32")
+    assert "65504" not in r.output
+    assert read_image(tmp_path / "f.exr").pixels.max() == pytest.approx(1.0e5)
+
+
+def test_rotate_and_exposure(tmp_path, pano):
+    r = run("env", "convert", pano, "-o", tmp_path / "r.exr", "--rotate", "90", "--exposure", "1", "--depth",
+            "f32")
+    assert r.exit_code == 0
+    out = read_image(tmp_path / "r.exr").pixels
+    np.testing.assert_allclose(out, 2 * np.roll(read_image(pano).pixels, 32, axis=1), rtol=1e-3)
+
+
+def test_diffuse_outputs(tmp_path, pano):
+    r = run("env", "diffuse", pano, "-o", tmp_path / "irr.json", "--size", "8")
+    assert r.exit_code == 0, r.output
+    data = json.loads((tmp_path / "irr.json").read_text())
+    assert len(data["irradiance_sh"]) == 9 and len(data["irradiance_sh"][0]) == 3
+    np.testing.assert_allclose(np.array(data["reflected_sh"]) * np.pi, data["irradiance_sh"])
+    tex = read_ktx2(tmp_path / "irr.ktx2")
+    assert tex.cubemap and tex.width == 8
+    assert (tmp_path / "irr_pz.exr").exists() and (tmp_path / "irr.json.json").exists()
+    r = run("env", "diffuse", pano, "-o", tmp_path / "ex.json", "--size", "8", "--method", "exact",
+            "--units", "irradiance")
+    assert r.exit_code == 0, r.output
+    assert read_ktx2(tmp_path / "ex.ktx2").levels[0].min() >= 0
+
+
+def test_info_on_ktx2(tmp_path, pano):
+    run("env", "convert", pano, "-o", tmp_path / "c.ktx2", "--size", "8")
+    r = run("info", tmp_path / "c.ktx2")
+    assert r.exit_code == 0
+    for text in ("KTX2", "cubemap", "R16G16B16A16_SFLOAT (97)", "8 x 8 per face", "levels:   4"):
+        assert text in r.output
+
+
+def _fails(r, text):
+    assert r.exit_code == 2, r.output
+    assert text in r.output
+
+
+def test_bad_aspect(tmp_path):
+    p = write_image(tmp_path / "odd.exr", np.ones((200, 300, 3), np.float32))
+    _fails(run("env", "convert", p, "-o", tmp_path / "o.ktx2"), "odd.exr: image is 300x200")
+    assert not (tmp_path / "o.ktx2").exists()
+
+
+def test_faces_of_different_sizes(tmp_path):
+    for i, tok in enumerate(("px", "nx", "py", "ny", "pz", "nz")):
+        n = 8 if i != 3 else 16
+        write_image(tmp_path / f"f_{tok}.exr", np.ones((n, n, 3), np.float32))
+    _fails(run("env", "convert", tmp_path / "f_{face}.exr", "-o", tmp_path / "o.exr"),
+           "f_ny.exr: faces differ")
+    _fails(run("env", "convert", tmp_path / "g_{face}.exr", "-o", tmp_path / "o.exr"), "file not found")
+
+
+def test_nan_and_negative_radiance(tmp_path):
+    img = np.ones((32, 64, 3), np.float32)
+    img[3, 4, 1] = np.nan
+    img[5, 6, 0] = -2
+    p = write_image(tmp_path / "bad.exr", img, depth="f32")
+    _fails(run("env", "convert", p, "-o", tmp_path / "o.exr"), "1 NaN/Inf sample(s) and 1 negative")
+    assert not (tmp_path / "o.exr").exists()
+    r = run("env", "convert", p, "-o", tmp_path / "o.exr", "--repair")
+    assert r.exit_code == 0 and "repaired 1 NaN/Inf and 1 negative" in r.output
+
+
+def test_truncated_ktx2(tmp_path, pano):
+    run("env", "convert", pano, "-o", tmp_path / "c.ktx2", "--size", "8")
+    data = (tmp_path / "c.ktx2").read_bytes()
+    (tmp_path / "t.ktx2").write_bytes(data[: len(data) // 2])
+    _fails(run("env", "convert", tmp_path / "t.ktx2", "-o", tmp_path / "o.exr"),
+           "t.ktx2: KTX2 file is truncated")
+    _fails(run("info", tmp_path / "t.ktx2"), "truncated")
+
+
+def test_output_problems(tmp_path, pano):
+    _fails(run("env", "convert", pano, "-o", tmp_path / "nope" / "o.exr"), "output folder does not exist")
+    _fails(run("env", "convert", pano, "-o", pano), "output path is also an input")
+    _fails(run("env", "convert", pano, "-o", tmp_path / "o.exr", "--ktx-format", "bc7"),
+           "unknown KTX2 format")
+    _fails(run("env", "diffuse", pano, "-o", tmp_path / "o.exr"), "must be a .json file")
+    _fails(run("env", "convert", pano, "-o", tmp_path / "o.exr", "--width", "33"), "width must be even")
