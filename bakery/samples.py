@@ -108,18 +108,15 @@ def paving_exponent(height: np.ndarray, *, seed: int = 7) -> np.ndarray:
 
 def _equirect_directions(width: int, height: int, rows: slice = slice(None),
                          cols: slice = slice(None), sub: int = 1) -> np.ndarray:
-    """Directions of texel centres (or of ``sub`` x ``sub`` sub-samples) in bakery's equirect orientation:
-    u = (x + 0.5)/W, v = (y + 0.5)/H, longitude phi = 2 pi (u - 0.5), latitude = pi (0.5 - v),
-    d = (sin phi cos lat, sin lat, -cos phi cos lat)."""
+    """Directions of texel centres (or of ``sub`` x ``sub`` sub-samples) in bakery's equirect orientation
+    (:func:`bakery.sphere.equirect_to_dir`), float64 ``(rows, cols, 3)``."""
+    from bakery.sphere import equirect_to_dir
+
     y0, y1, _ = rows.indices(height)
     x0, x1, _ = cols.indices(width)
     ys = y0 + (np.arange((y1 - y0) * sub) + 0.5) / sub
     xs = x0 + (np.arange((x1 - x0) * sub) + 0.5) / sub
-    phi = 2 * np.pi * (xs / width - 0.5)
-    lat = np.pi * (0.5 - ys / height)
-    cl = np.cos(lat)[:, None]
-    return np.stack([np.sin(phi)[None, :] * cl, np.broadcast_to(np.sin(lat)[:, None], (len(ys), len(xs))),
-                     -np.cos(phi)[None, :] * cl], axis=-1)
+    return equirect_to_dir((xs / width)[None, :], (ys / height)[:, None])
 
 
 def sun_direction(elevation_deg: float = 35.0, azimuth_deg: float = 60.0) -> np.ndarray:

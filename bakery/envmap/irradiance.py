@@ -91,8 +91,8 @@ def project_sh(env: np.ndarray, kind: str) -> np.ndarray:
     rowf = (np.stack([np.ones_like(st), st, ct, st * ct, ct * ct]) * om).astype(np.float32)
     flat = np.asarray(env, dtype=np.float32).reshape(h, w_ * c)
     t = np.zeros((5, w_ * c), dtype=np.float64)
-    for h0 in range(0, h, 32):
-        t += rowf[:, h0:h0 + 32] @ flat[h0:h0 + 32]
+    for h0 in range(0, h, 8):
+        t += rowf[:, h0:h0 + 8] @ flat[h0:h0 + 8]
     t = t.reshape(5, w_, c)
     phi = 2 * np.pi * ((np.arange(w_) + 0.5) / w_ - 0.5)
     sp, cp = np.sin(phi), np.cos(phi)

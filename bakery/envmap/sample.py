@@ -88,12 +88,22 @@ def _remap(src: np.ndarray, x: np.ndarray, y: np.ndarray) -> np.ndarray:
 def pad_equirect(img: np.ndarray) -> np.ndarray:
     """A panorama with one texel of border on each side, continued across the wrap and over the poles
     (the texel above row 0 at column x is row 0 at column x + W/2)."""
-    h, w, _ = img.shape
+    cv2 = _cv2()
+    h, w, c = img.shape
+    src = np.ascontiguousarray(img, dtype=np.float32)
+    if c <= 4:
+        out = cv2.copyMakeBorder(src, 1, 1, 1, 1, cv2.BORDER_WRAP)
+        out = out.reshape(h + 2, w + 2, c)
+    else:
+        out = np.concatenate([src[:, -1:], src, src[:, :1]], axis=1)
+        out = np.concatenate([out[:1], out, out[-1:]], axis=0)
     half = w // 2
-    top = np.roll(img[0], -half, axis=0)
-    bottom = np.roll(img[-1], -half, axis=0)
-    mid = np.concatenate([top[None], img, bottom[None]], axis=0)
-    return np.concatenate([mid[:, -1:], mid, mid[:, :1]], axis=1)
+    for row, src_row in ((0, 0), (h + 1, h - 1)):
+        line = np.roll(src[src_row], -half, axis=0)
+        out[row, 1:-1] = line
+        out[row, 0] = line[-1]
+        out[row, -1] = line[0]
+    return out
 
 
 def sample_equirect(img: np.ndarray, dirs: np.ndarray) -> np.ndarray:
@@ -240,50 +250,70 @@ def _row_box_filter(img: np.ndarray, target: float, *, dst_width: int | None = N
     whole = rows[m[rows] >= w - 1]
     if whole.size:
         out[whole] = img[whole].astype(np.float64).mean(axis=1, keepdims=True).astype(np.float32)
-    for r in rows[m[rows] < w - 1]:  # a shifted difference of the row's running sum
-        mm = int(m[r])
-        half = mm // 2  # odd m: taps x-half..x+half; even m: the same with halves at both ends
-        row = img[r].astype(np.float64)
-        ext = np.concatenate([row[w - half - 1:], row, row[:half + 1]], axis=0)
-        cs = np.concatenate([np.zeros((1, c)), np.cumsum(ext, axis=0)], axis=0)
-        total = cs[2 * half + 2: 2 * half + 2 + w] - cs[1: 1 + w]
-        if mm % 2 == 0:
-            total -= 0.5 * (ext[1: 1 + w] + ext[2 * half + 1: 2 * half + 1 + w])
-        out[r] = (total / mm).astype(np.float32)
+    rows = rows[m[rows] < w - 1]
+    if rows.size == 0:
+        return out
+    cv2 = _cv2()
+    # bands of rows sharing one width (the width grows toward the poles); an odd box of that width, made
+    # circular by wrapping the band (cv2.blur keeps each row's sum then)
+    widths = m[rows] - (m[rows] % 2 == 0)  # odd: centred on the texel
+    start = 0
+    while start < rows.size:
+        stop = start
+        while stop + 1 < rows.size and widths[stop + 1] == widths[start] and rows[stop + 1] == rows[stop] + 1:
+            stop += 1
+        k = int(widths[start])
+        band = rows[start:stop + 1]
+        if k > 1:
+            half = k // 2
+            block = np.ascontiguousarray(img[band[0]:band[-1] + 1])
+            ext = np.concatenate([block[:, w - half:], block, block[:, :half]], axis=1)
+            if c <= 4:
+                sm = cv2.blur(ext, (k, 1), borderType=cv2.BORDER_REPLICATE).reshape(ext.shape)
+            else:
+                cs = np.cumsum(ext.astype(np.float64), axis=1)
+                cs = np.concatenate([np.zeros((ext.shape[0], 1, c)), cs], axis=1)
+                sm = np.zeros_like(ext)
+                sm[:, half:half + w] = (cs[:, k:k + w] - cs[:, :w]) / k
+            out[band[0]:band[-1] + 1] = sm[:, half:half + w]
+        start = stop + 1
     return out
 
 
-def cube_equirect_uv(n: int, rotation_deg: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+def cube_equirect_uv(n: int, rotation_deg: float = 0.0, *, scale: tuple[int, int] = (1, 1),
+                     offset: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
     """Panorama coordinates (u, v) of the texel centres of a cubemap of face ``n``, ``(6, n, n)`` each,
     float32; the same as :func:`bakery.sphere.dir_to_equirect` of :func:`bakery.sphere.cube_directions`
     but computed from two faces: the four side faces are quarter turns of one another (u shifts by 1/4)
     and the bottom face mirrors the top one. ``rotation_deg`` shifts u by ``-rotation_deg / 360`` (where
-    an output texel finds its source after :func:`bakery.sphere.rotation_y`)."""
-    c = (2 * sphere.face_texel_coords(n, np.float64) - 1).astype(np.float32)
-    sc = c[None, :]
-    tc = c[:, None]
-    shift = np.float32(-rotation_deg / 360.0)
+    an output texel finds its source after :func:`bakery.sphere.rotation_y`). With ``scale = (W, H)`` and
+    ``offset`` the results are ``u W + offset`` and ``v H + offset`` (remap coordinates)."""
+    c = 2 * sphere.face_texel_coords(n, np.float64) - 1
+    sx, sy = float(scale[0]), float(scale[1])
+    shift = -rotation_deg / 360.0
     u = np.empty((6, n, n), dtype=np.float32)
     v = np.empty((6, n, n), dtype=np.float32)
-    # face +Z (layer 4) looks along bakery -Z: direction (s_c, -t_c, -1)
-    u_front = np.arctan(sc) * np.float32(0.5 / np.pi) + np.float32(0.5)
-    v_side = np.float32(0.5) - np.arctan2(-tc, np.sqrt(sc * sc + 1)) * np.float32(1 / np.pi)
+    # face +Z (layer 4) looks along bakery -Z: direction (s_c, -t_c, -1); u depends on the column only
+    u_front = np.arctan(c) / (2 * np.pi) + 0.5
+    v_side = (0.5 - np.arctan2(-c[:, None], np.sqrt(c[None, :] ** 2 + 1)) / np.pi).astype(np.float32)
+    v_side = v_side * np.float32(sy) + np.float32(offset)
     for f, centre in ((0, 0.75), (1, 0.25), (4, 0.5), (5, 1.0)):
-        u[f] = u_front + np.float32(centre - 0.5)
+        uu = np.mod(u_front + (centre - 0.5) + shift, 1.0)
+        uu = np.minimum(uu, np.nextafter(1.0, 0.0))
+        u[f] = (uu * sx + offset).astype(np.float32)[None, :]
         v[f] = v_side
     # +Y (layer 2): (s_c, 1, -t_c); -Y (layer 3): (s_c, -1, t_c)
-    rho = np.sqrt(sc * sc + tc * tc)
-    lat = np.arctan2(np.float32(1), rho)
-    u[2] = np.arctan2(sc, tc) * np.float32(0.5 / np.pi) + np.float32(0.5)
-    v[2] = np.float32(0.5) - lat * np.float32(1 / np.pi)
-    u[3] = np.arctan2(sc, -tc) * np.float32(0.5 / np.pi) + np.float32(0.5)
-    v[3] = np.float32(0.5) + lat * np.float32(1 / np.pi)
-    if shift:
-        u += shift
-        np.mod(u, np.float32(1), out=u)
-    else:
-        u[5][u[5] >= 1] -= np.float32(1)
-    np.minimum(u, np.float32(np.nextafter(np.float32(1), np.float32(0))), out=u)
+    c32 = c.astype(np.float32)
+    sc = c32[None, :]
+    tc = c32[:, None]
+    lat = np.arctan2(np.float32(1), np.sqrt(sc * sc + tc * tc)) * np.float32(1 / np.pi)
+    v[2] = (np.float32(0.5) - lat) * np.float32(sy) + np.float32(offset)
+    v[3] = (np.float32(0.5) + lat) * np.float32(sy) + np.float32(offset)
+    for f, sign in ((2, 1.0), (3, -1.0)):
+        uu = np.arctan2(sc, np.float32(sign) * tc) * np.float32(0.5 / np.pi) + np.float32(0.5 + shift)
+        uu -= np.floor(uu)
+        np.minimum(uu, np.float32(np.nextafter(np.float32(1), np.float32(0))), out=uu)
+        u[f] = uu * np.float32(sx) + np.float32(offset)
     return u, v
 
 
@@ -629,8 +659,9 @@ def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_d
         uu, vv = np.broadcast_arrays(u[None, :].astype(np.float32), v[:, None].astype(np.float32))
         return sample_equirect_uv(src, uu, vv)
     if dst_kind == "cube" and kind == "equirect":
-        u, v = cube_equirect_uv(size, rotation_deg)
-        return sample_equirect_uv(src, u, v, wrapped=True)
+        h, w = src.shape[:2]
+        x, y = cube_equirect_uv(size, rotation_deg, scale=(w, h), offset=0.5)
+        return _remap(pad_equirect(src), x, y)
     if dst_kind == "cube":
         dirs = sphere.cube_directions(size)
     else:
