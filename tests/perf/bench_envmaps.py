@@ -54,7 +54,8 @@ def main() -> None:
     w = rng.random(flat.shape[1], dtype=np.float32)
     floor2 = best(lambda: flat @ w, args.repeat)
     sh = best(lambda: irradiance.project_sh(pano, "equirect"), args.repeat)
-    print(f"SH9 projection of 4096x2048: {sh * 1e3:.1f} ms; floor (one multiply-add pass) {floor2 * 1e3:.1f} ms;"
+    print(f"SH9 projection of 4096x2048: {sh * 1e3:.1f} ms; floor (one multiply-add pass) "
+          f"{floor2 * 1e3:.1f} ms;"
           f" ratio {sh / floor2:.2f} (target <= 2)")
 
     # 3. information only: shrinking with the conservative area filter, and a KTX2 encode with mips
