@@ -111,7 +111,7 @@ def output_kind(output: Path, layout: str | None, input_layout: str) -> tuple[st
 def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams) -> list[Path]:
     import numpy as np
 
-    from bakery.envmap.sample import cube_mip_chain, resample
+    from bakery.envmap.sample import cube_mip_chain, equirect_mip_chain, resample
     from bakery.io.envfiles import read_environment, write_environment
     from bakery.io.manifest import write_manifest
 
@@ -133,8 +133,8 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams) ->
         nc = 3 if pixels.shape[-1] >= 3 else 1
         pixels[..., :nc] *= np.float32(2.0 ** params.exposure)
     mips = None
-    if kind == "cube" and lay is None and output.suffix.lower() == ".ktx2" and params.mips:
-        mips = cube_mip_chain(pixels)[1:]
+    if output.suffix.lower() == ".ktx2" and params.mips:
+        mips = (cube_mip_chain(pixels) if kind == "cube" else equirect_mip_chain(pixels))[1:]
     written = write_environment(output, pixels, kind, layout=lay, depth=params.depth,
                                 source_depth=env.depth, ktx_format=params.ktx_format, mips=mips,
                                 key_values=KTX_KEYS if output.suffix.lower() == ".ktx2" else None)

@@ -389,9 +389,10 @@ def _source_points(src_shape: tuple[int, ...], kind: str) -> tuple[np.ndarray, n
 
 
 def _dst_splat(d: np.ndarray, kind: str, size: int, cells: np.ndarray | None = None
-               ) -> tuple[np.ndarray, np.ndarray]:
+               ) -> tuple[list[np.ndarray], list[np.ndarray]]:
     """For each direction, the 3 x 3 destination texels around it and their quadratic B-spline weights
-    (which sum to 1): ``(n, 9)`` indices and weights. Clamped at cube face edges, wrapped around a panorama.
+    (which sum to 1): 9 index arrays and 9 weight arrays, each ``(n,)``. A neighbour beyond a cube face edge
+    is the nearest texel of the next face; a panorama wraps around and continues over the poles.
 
     The quadratic B-spline's weights for an offset d in [-0.5, 0.5] from the nearest texel centre are
     ``(0.5 - d)^2 / 2, 0.75 - d^2, (0.5 + d)^2 / 2`` (de Boor, "A Practical Guide to Splines", 1978)."""
@@ -418,8 +419,8 @@ def _dst_splat(d: np.ndarray, kind: str, size: int, cells: np.ndarray | None = N
     wy = (0.5 * (0.5 - dy) ** 2, 0.75 - dy * dy, 0.5 * (0.5 + dy) ** 2)
     x0 = x0.astype(np.int64)
     y0 = y0.astype(np.int64)
-    wt = np.stack([wy[a] * wx[b] for a in range(3) for b in range(3)], axis=-1)
     if kind == "cube":
+        wt = [wy[a] * wx[b] for a in range(3) for b in range(3)]
         cols = []
         for a in (-1, 0, 1):
             for b in (-1, 0, 1):
@@ -434,7 +435,7 @@ def _dst_splat(d: np.ndarray, kind: str, size: int, cells: np.ndarray | None = N
                     i2 = np.clip((t2 * h).astype(np.int64), 0, h - 1)
                     ix[out] = f2.astype(np.int64) * w * h + i2 * w + j2
                 cols.append(ix)
-        return np.stack(cols, axis=-1), wt
+        return cols, wt
     # panorama cells: row r holds size // cells[r] cells; cell index = row * size + cell (sparse ids)
     xs = [x0 + k for k in (-1, 0, 1)]
     # rows toward a pole hold less solid angle: share each sample among rows in proportion to their area
@@ -445,7 +446,7 @@ def _dst_splat(d: np.ndarray, kind: str, size: int, cells: np.ndarray | None = N
     wy2 = [wy[k] * row_om[ry[k]] for k in range(3)]
     tot = wy2[0] + wy2[1] + wy2[2]
     wy2 = [q / tot for q in wy2]
-    wt = np.stack([wy2[a] * wx[b] for a in range(3) for b in range(3)], axis=-1)
+    wt = [wy2[a] * wx[b] for a in range(3) for b in range(3)]
     cols = []
     for a in (-1, 0, 1):
         yi = y0 + a
@@ -457,7 +458,7 @@ def _dst_splat(d: np.ndarray, kind: str, size: int, cells: np.ndarray | None = N
             turn = (xs[b] + 0.5) / w + np.where(over, 0.5, 0.0)
             xc = np.mod(np.floor(turn * ncell).astype(np.int64), ncell)
             cols.append(yi * size + xc)
-    return np.stack(cols, axis=-1), wt
+    return cols, wt
 
 
 def _equirect_cells(size: int, src_angle: float) -> np.ndarray:
@@ -562,8 +563,9 @@ def area_resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotat
     for i0 in range(0, n_src, step):
         i1 = min(n_src, i0 + step)
         idx, wt = _dst_splat(_rotate(d[i0:i1], rotation_deg, inverse=False), dst_kind, size, cells)
-        indices[i0:i1] = idx
-        data[i0:i1] = wt * w[i0:i1, None]
+        for k in range(9):
+            indices[i0:i1, k] = idx[k]
+            data[i0:i1, k] = wt[k] * w[i0:i1]
     del d
     mat = sp.csr_matrix((data.reshape(-1), indices.reshape(-1), np.arange(0, 9 * n_src + 1, 9)),
                         shape=(n_src, n_dst))
@@ -708,4 +710,27 @@ def cube_mip_chain(cube: np.ndarray, levels: int | None = None) -> list[np.ndarr
         cur = out[-1]
         n = cur.shape[1]
         out.append(reduce_cube(cur) if n % 2 == 0 else area_resample(cur, "cube", "cube", n // 2))
+    return out
+
+
+def equirect_mip_chain(img: np.ndarray) -> list[np.ndarray]:
+    """Level 0 and its smaller levels down to 1 x 1 (sizes ``max(1, W >> i) x max(1, H >> i)`` as KTX2
+    expects), each the solid-angle weighted average of the one before (:func:`reduce_equirect`) or, where a
+    size is odd, the area-weighted resampling; energy is kept at every level."""
+    out = [np.asarray(img, dtype=np.float32)]
+    h0, w0 = out[0].shape[:2]
+    level = 1
+    while max(w0 >> (level - 1), h0 >> (level - 1)) > 1:
+        cur = out[-1]
+        h, w = cur.shape[:2]
+        nh, nw = max(1, h0 >> level), max(1, w0 >> level)
+        if h % nh == 0 and w % nw == 0:
+            nxt = reduce_equirect(cur, h // nh, w // nw)
+        elif nw == 2 * nh and nw % 2 == 0:
+            nxt = area_resample(cur, "equirect", "equirect", nw)
+        else:  # a last, tiny level: the solid-angle mean over all texels
+            mean = energy(cur, "equirect") / (4 * math.pi)
+            nxt = np.broadcast_to(mean.astype(np.float32), (nh, nw, cur.shape[2])).copy()
+        out.append(nxt)
+        level += 1
     return out

@@ -157,3 +157,11 @@ def test_output_problems(tmp_path, pano):
            "unknown KTX2 format")
     _fails(run("env", "diffuse", pano, "-o", tmp_path / "o.exr"), "must be a .json file")
     _fails(run("env", "convert", pano, "-o", tmp_path / "o.exr", "--width", "33"), "width must be even")
+
+
+def test_panorama_as_2d_ktx2_with_mips(tmp_path, pano):
+    r = run("env", "convert", pano, "-o", tmp_path / "p.ktx2", "--layout", "equirect", "--ktx-format", "rgba32f")
+    assert r.exit_code == 0, r.output
+    tex = read_ktx2(tmp_path / "p.ktx2")
+    assert not tex.cubemap and [lv.shape[:2] for lv in tex.levels][:3] == [(64, 128), (32, 64), (16, 32)]
+    assert len(tex.levels) == 8

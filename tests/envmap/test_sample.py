@@ -171,3 +171,14 @@ def test_float32_outputs_and_bad_shapes():
         E.resample(np.zeros((5, 4, 4, 3), np.float32), "cube", "cube", 4)
     with pytest.raises(ValueError):
         E.resample(EQ, "equirect", "equirect", 33)
+
+
+def test_equirect_mip_chain_keeps_energy_and_ktx2_sizes():
+    chain = E.equirect_mip_chain(EQ[::2, ::2].copy())  # 256 x 128
+    assert [c.shape[:2] for c in chain] == [(128 >> i or 1, 256 >> i) for i in range(9)]
+    e0 = E.energy(chain[0], "equirect")
+    for c in chain[1:]:
+        np.testing.assert_allclose(E.energy(c, "equirect"), e0, rtol=1e-5)
+    odd = E.equirect_mip_chain(np.ones((48, 96, 1), np.float32))
+    assert [c.shape[:2] for c in odd] == [(48, 96), (24, 48), (12, 24), (6, 12), (3, 6), (1, 3), (1, 1)]
+    np.testing.assert_allclose(odd[-1], 1.0, rtol=1e-6)
