@@ -343,6 +343,9 @@ def texel_angle_equirect(w: int, h: int) -> float:
 
 
 FILTERS = ("auto", "area", "bilinear")
+#: Largest source (after the exact 2 x 2 reductions) the area filter takes: 9 matrix entries per texel,
+#: about 0.8 GB at this size. Larger inputs fall back to bilinear lookups with a warning.
+AREA_MAX_TEXELS = 12_000_000
 #: Over-relaxation of the balancing's column steps (1 = plain Sinkhorn).
 OMEGA = 1.8
 #: Above this ratio of destination to source texel size, "auto" uses the area filter.
@@ -667,6 +670,15 @@ def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_d
             src = reduce_equirect(src)
         else:
             break
+    if use_area and src.size // src.shape[-1] > AREA_MAX_TEXELS:
+        import warnings
+
+        from bakery.errors import BakeryWarning
+
+        warnings.warn(f"the area filter would need a {src.size // src.shape[-1]}-texel sparse system (limit "
+                      f"{AREA_MAX_TEXELS}); using bilinear lookups, which keep the total energy but may move a "
+                      "few percent of a single bright texel's", BakeryWarning, stacklevel=2)
+        use_area = False
     if use_area:
         return area_resample(src, kind, dst_kind, size, rotation_deg=rotation_deg)
     if kind == "equirect":

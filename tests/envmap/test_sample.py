@@ -182,3 +182,12 @@ def test_equirect_mip_chain_keeps_energy_and_ktx2_sizes():
     odd = E.equirect_mip_chain(np.ones((48, 96, 1), np.float32))
     assert [c.shape[:2] for c in odd] == [(48, 96), (24, 48), (12, 24), (6, 12), (3, 6), (1, 3), (1, 1)]
     np.testing.assert_allclose(odd[-1], 1.0, rtol=1e-6)
+
+
+def test_area_filter_falls_back_with_a_warning_beyond_its_size_limit(monkeypatch):
+    from bakery.errors import BakeryWarning
+
+    monkeypatch.setattr(E, "AREA_MAX_TEXELS", 1000)
+    with pytest.warns(BakeryWarning, match="bilinear"):
+        out = E.resample(EQ, "equirect", "cube", 40)
+    np.testing.assert_allclose(E.energy(out, "cube"), E.energy(EQ, "equirect"), rtol=1e-2)
