@@ -298,34 +298,27 @@ def cube_equirect_uv(n: int, rotation_deg: float = 0.0, *, scale: tuple[int, int
     shift = -rotation_deg / 360.0
     u = np.empty((6, n, n), dtype=np.float32)
     v = np.empty((6, n, n), dtype=np.float32)
-    # the texel grid is symmetric (c[n-1-i] = -c[i]): trigonometry on one quadrant (|s_c|, |t_c|), the
-    # rest by mirroring with signs
-    m = n - n // 2
-    a = c[n - m:]  # >= 0
-    ar = np.arange(n)
-    idx = np.maximum(ar, n - 1 - ar) - (n - m)
-    pos = c >= 0
-    # side faces: face +Z (layer 4) looks along bakery -Z: direction (s_c, -t_c, -1); u from the column only
+    # face +Z (layer 4) looks along bakery -Z: direction (s_c, -t_c, -1); u depends on the column only
     u_front = np.arctan(c) / (2 * np.pi) + 0.5
-    vq = np.arctan2(a[:, None], np.sqrt(a[None, :] ** 2 + 1))  # latitude for t_c >= 0 (below the horizon)
-    lat_side = np.where(pos[:, None], -1.0, 1.0) * vq[idx][:, idx]
-    v_side = ((0.5 - lat_side / np.pi) * sy + offset).astype(np.float32)
+    v_side = (0.5 - np.arctan2(-c[:, None], np.sqrt(c[None, :] ** 2 + 1)) / np.pi).astype(np.float32)
+    v_side = v_side * np.float32(sy) + np.float32(offset)
     for f, centre in ((0, 0.75), (1, 0.25), (4, 0.5), (5, 1.0)):
         uu = np.mod(u_front + (centre - 0.5) + shift, 1.0)
         uu = np.minimum(uu, np.nextafter(1.0, 0.0))
         u[f] = (uu * sx + offset).astype(np.float32)[None, :]
         v[f] = v_side
-    # +Y (layer 2): (s_c, 1, -t_c), longitude atan2(s_c, t_c); -Y (layer 3): (s_c, -1, t_c), the rows flipped
-    rho = np.sqrt(a[:, None] ** 2 + a[None, :] ** 2)
-    lat = (np.arctan2(1.0, rho) / np.pi)[idx][:, idx]
-    v[2] = ((0.5 - lat) * sy + offset).astype(np.float32)
-    v[3] = ((0.5 + lat) * sy + offset).astype(np.float32)
-    phq = np.arctan2(a[None, :], a[:, None])[idx][:, idx]  # atan2(|s_c|, |t_c|), rows t, columns s
-    phi = np.where(pos[:, None], phq, np.pi - phq) * np.where(pos[None, :], 1.0, -1.0)
-    uu = np.mod(phi / (2 * np.pi) + 0.5 + shift, 1.0)
-    uu = np.minimum(uu, np.nextafter(1.0, 0.0))
-    u[2] = (uu * sx + offset).astype(np.float32)
-    u[3] = u[2][::-1]
+    # +Y (layer 2): (s_c, 1, -t_c); -Y (layer 3): (s_c, -1, t_c)
+    c32 = c.astype(np.float32)
+    sc = c32[None, :]
+    tc = c32[:, None]
+    lat = np.arctan2(np.float32(1), np.sqrt(sc * sc + tc * tc)) * np.float32(1 / np.pi)
+    v[2] = (np.float32(0.5) - lat) * np.float32(sy) + np.float32(offset)
+    v[3] = (np.float32(0.5) + lat) * np.float32(sy) + np.float32(offset)
+    for f, sign in ((2, 1.0), (3, -1.0)):
+        uu = np.arctan2(sc, np.float32(sign) * tc) * np.float32(0.5 / np.pi) + np.float32(0.5 + shift)
+        uu -= np.floor(uu)
+        np.minimum(uu, np.float32(np.nextafter(np.float32(1), np.float32(0))), out=uu)
+        u[f] = uu * np.float32(sx) + np.float32(offset)
     return u, v
 
 
