@@ -118,6 +118,10 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams) ->
     src = inputs["source"]
     env = read_environment(src, layout=params.layout_in, repair=params.repair)
     kind, lay = output_kind(output, params.layout, env.layout)
+    if kind == "cube" and params.width is not None:
+        raise BakeryError("--width sets a panorama's width; this output is a cubemap: use --size", output)
+    if kind == "equirect" and params.size is not None:
+        raise BakeryError("--size sets a cube face; this output is a panorama: use --width", output)
     if env.kind == "cube":
         n_in = env.pixels.shape[1]
         w_in = 4 * n_in

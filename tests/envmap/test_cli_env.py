@@ -157,6 +157,8 @@ def test_output_problems(tmp_path, pano):
            "unknown KTX2 format")
     _fails(run("env", "diffuse", pano, "-o", tmp_path / "o.exr"), "must be a .json file")
     _fails(run("env", "convert", pano, "-o", tmp_path / "o.exr", "--width", "33"), "width must be even")
+    _fails(run("env", "convert", pano, "-o", tmp_path / "o.ktx2", "--width", "64"), "use --size")
+    _fails(run("env", "convert", pano, "-o", tmp_path / "o.exr", "--size", "64"), "use --width")
 
 
 def test_panorama_as_2d_ktx2_with_mips(tmp_path, pano):
