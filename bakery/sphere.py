@@ -221,9 +221,8 @@ def dir_to_equirect(d: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     d = np.asarray(d)
     dtype = np.float64 if d.dtype == np.float64 else np.float32
     x, y, z = d[..., 0], d[..., 1], d[..., 2]
-    r = np.sqrt(x * x + y * y + z * z)
     phi = np.arctan2(x, -z)
-    lat = np.arcsin(np.clip(y / np.where(r > 0, r, 1), -1, 1))
+    lat = np.arctan2(y, np.hypot(x, z))  # well conditioned at the poles, unlike arcsin(y / |d|)
     u = phi / (2 * np.pi) + 0.5
     v = 0.5 - lat / np.pi
     return u.astype(dtype, copy=False), v.astype(dtype, copy=False)

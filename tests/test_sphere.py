@@ -103,6 +103,13 @@ def test_direction_round_trips(x, y, z):
     np.testing.assert_allclose(S.equirect_to_dir(u, w), v, atol=1e-9)
 
 
+def test_equirect_round_trip_next_to_the_pole():
+    # a direction 1.4e-8 rad from +Y: arcsin(y) would lose half the digits there (d asin/dy -> inf)
+    v = np.array([0.0, 1.0, 1.4e-8])
+    v = v / np.linalg.norm(v)
+    np.testing.assert_allclose(S.equirect_to_dir(*S.dir_to_equirect(v)), v, atol=1e-12)
+
+
 @pytest.mark.parametrize("n", [1, 2, 4, 7, 64, 512])
 def test_cube_solid_angles_sum_to_4pi(n):
     # closed form A(x, y) = atan2(xy, sqrt(x^2+y^2+1)) (references sheet section 11): 6 faces sum to 4 pi
