@@ -42,3 +42,17 @@ def test_sky_sun_energy_and_sky_range():
     assert abs(extra / expected - 1) < 0.03
     sky = img[~sun_mask]
     assert sky.min() >= 0.15 - 1e-6 and sky.max() <= 1.2 + 1e-6
+
+
+def test_committed_demo_inputs_match_the_generator(tmp_path):
+    """samples/ holds what `python -m bakery.samples samples/` writes (compared as decoded pixels)."""
+    from pathlib import Path
+
+    from bakery.io import read_image
+
+    fresh = samples.write_samples(tmp_path)
+    committed = Path(__file__).resolve().parents[1] / "samples"
+    for path in fresh.values():
+        a = read_image(path).pixels
+        b = read_image(committed / path.name).pixels
+        np.testing.assert_array_equal(a, b, err_msg=path.name)
