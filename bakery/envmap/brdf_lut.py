@@ -1,7 +1,9 @@
-"""The split-sum BRDF table: scale A and bias B of F0 over (n·v, roughness). With the split-sum approximation
-(Karis 2013) the specular image-based lighting of a GGX surface is ``prefiltered_radiance(r, roughness) *
-(F0 * A + B)`` where, for the specular BRDF with height-correlated Smith masking-shadowing (Heitz 2014) and
-Schlick's Fresnel F = F0 + (1 − F0) Fc, Fc = (1 − v·h)⁵ (Schlick 1994):
+"""The split-sum BRDF table: scale A and bias B of F0 over (n·v, roughness).
+
+With the split-sum approximation (Karis 2013) the specular image-based lighting of a GGX surface is
+``prefiltered_radiance(r, roughness) * (F0 * A + B)`` where, for the specular BRDF with height-correlated
+Smith masking-shadowing (Heitz 2014) and Schlick's Fresnel F = F0 + (1 − F0) Fc, Fc = (1 − v·h)⁵ (Schlick
+1994):
 
     A(n·v, r) = ∫ f(v, l)/F · (1 − Fc) (n·l) dl,    B(n·v, r) = ∫ f(v, l)/F · Fc (n·l) dl.
 
