@@ -26,7 +26,8 @@ from typing import Any
 from bakery.errors import BakeryError
 
 #: Modules that register bakes when imported.
-BAKE_MODULES: list[str] = ["bakery.normals.bakes", "bakery.roughness.bakes", "bakery.envmap.envbakes"]
+BAKE_MODULES: list[str] = ["bakery.normals.bakes", "bakery.roughness.bakes", "bakery.envmap.envbakes",
+                          "bakery.envmap.glossy_bakes"]
 
 
 @dataclass(frozen=True)

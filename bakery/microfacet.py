@@ -57,6 +57,7 @@ __all__ = [
     "ndf",
     "perceptual_from_alpha",
     "prefilter_weight",
+    "prefilter_weight_inplace",
     "radical_inverse",
     "sample_ggx_half",
     "vis_smith_correlated",
@@ -242,8 +243,40 @@ def prefilter_weight(cos_nl, param, *, lobe: str = "ggx"):
     """
     dt = _dtype(cos_nl, param)
     mu = np.clip(_as(cos_nl, dt), -1, 1)
+    p = _as(param, dt)
+    if lobe == "ggx":
+        # D_GGX with (n·h)² = (1 + μ)/2, 1 − (n·h)² = (1 − μ)/2, multiplied out (no square root, and no
+        # cancellation at the peak): w = 4 α² μ / (π ((1 − μ) + α² (1 + μ))²)
+        a2 = p * p
+        den = (1 - mu) + a2 * (1 + mu)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            w = (4 / dt.type(math.pi)) * a2 * mu / (den * den)
+        return _out(np.where(mu > 0, w, dt.type(0)))
     noh = np.sqrt((1 + mu) * dt.type(0.5))
-    return _out(np.maximum(mu, 0) * ndf(lobe, noh, _as(param, dt)))
+    return _out(np.maximum(mu, 0) * ndf(lobe, noh, p))
+
+
+def prefilter_weight_inplace(cos_nl: np.ndarray, param: float, *, lobe: str = "ggx") -> np.ndarray:
+    """:func:`prefilter_weight` for large float arrays, computed in place: ``cos_nl`` is overwritten with the
+    weights and returned (fewer temporary arrays; used by the brute-force prefilter sums)."""
+    mu = cos_nl
+    if not isinstance(mu, np.ndarray) or mu.dtype not in (np.float32, np.float64):
+        raise TypeError("prefilter_weight_inplace needs a float32 or float64 array")
+    t = mu.dtype.type
+    if lobe == "ggx":
+        a2 = float(param) ** 2
+        den = np.multiply(mu, t(a2 - 1))
+        den += t(1 + a2)  # (1 − μ) + α² (1 + μ)
+        np.square(den, out=den)
+        np.maximum(mu, 0, out=mu)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            mu /= den
+        mu *= t(4 * a2 / math.pi)
+        return mu
+    np.clip(mu, -1, 1, out=mu)
+    w = prefilter_weight(mu, param, lobe=lobe)
+    mu[...] = w
+    return mu
 
 
 # ------------------------------------------------------------------------------------- masking
