@@ -14,9 +14,10 @@ from bakery.cli._common import command, echo, output_path
 @env_app.command("specular")
 @command
 def specular(
-    panorama: Annotated[Path, typer.Argument(help="Equirectangular HDR panorama (.hdr, .exr, ...).",
-                                             show_default=False)],
-    output: Annotated[Path, typer.Option("-o", "--output", help="Output KTX2 cubemap with mips.",
+    source: Annotated[Path, typer.Argument(
+        help="HDR environment: a panorama, a cross/strip/column image, a KTX2 cubemap, or six face files "
+             "given as a pattern holding {face}.", show_default=False)],
+    output: Annotated[Path, typer.Option("-o", "--out", help="Output KTX2 cubemap with mips.",
                                          show_default=False)],
     size: Annotated[int, typer.Option(help="Face size of level 0 (a power of two).")] = 256,
     levels: Annotated[int, typer.Option(help="Mip levels; 0 = all, down to 1 x 1.")] = 0,
@@ -32,16 +33,19 @@ def specular(
                    ] = "rgba16f",
     loose: Annotated[bool, typer.Option("--loose", help="Also write every level's faces as OpenEXR files.")
                      ] = False,
+    layout: Annotated[str, typer.Option(
+        "--layout-in", help="Layout of a single input image (default: from its aspect ratio): equirect, "
+                            "hcross, vcross, strip, column.")] = "",
 ) -> None:
-    """Prefilter a panorama into a specular cubemap mip chain for the split-sum approximation."""
+    """Prefilter an environment into a specular cubemap mip chain for the split-sum approximation."""
     from bakery.bakes import run_bake
     from bakery.envmap.glossy_bakes import SpecularParams, check_specular_params
 
     output_path(output, suffixes=(".ktx2",))
     params = SpecularParams(size=size, levels=levels, lobe=lobe, roughness=roughness, quality=quality,
-                            format=fmt, loose=loose)
+                            format=fmt, loose=loose, layout=layout)
     check_specular_params(params)
-    written = run_bake("env-specular", {"env": panorama}, output, params)
+    written = run_bake("env-specular", {"env": source}, output, params)
     for p in written:
         echo(f"wrote {p}")
 
@@ -49,7 +53,7 @@ def specular(
 @env_app.command("lut")
 @command
 def lut(
-    output: Annotated[Path, typer.Option("-o", "--output", help="Output table: .png (16-bit RGB, B = 0), "
+    output: Annotated[Path, typer.Option("-o", "--out", help="Output table: .png (16-bit RGB, B = 0), "
                                          ".exr (R, G float) or .ktx2 (R16G16_SFLOAT).", show_default=False)],
     size: Annotated[int, typer.Option(help="Texels along each axis.", min=2, max=4096)] = 128,
     roughness_grows: Annotated[str, typer.Option(

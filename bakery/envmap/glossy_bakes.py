@@ -41,6 +41,8 @@ class SpecularParams:
         KTX2 texel format: "rgba16f", "rgba32f", "rg11b10f" or "rgb9e5".
     loose : bool
         Also write each level's faces as OpenEXR files beside the KTX2 file.
+    layout : str
+        Layout of the input (see ``bakery env convert``); empty = detect from the file.
     """
 
     size: int = 256
@@ -50,6 +52,7 @@ class SpecularParams:
     quality: str = "final"
     format: str = "rgba16f"
     loose: bool = False
+    layout: str = ""
 
 
 @dataclass(frozen=True)
@@ -107,30 +110,22 @@ def check_specular_params(p: SpecularParams) -> None:
         raise BakeryError(f"--roughness: {exc}") from None
 
 
-def read_panorama(path: Path):
-    """Read an equirectangular HDR panorama as float32 (H, 2H, 3); refuse other shapes clearly."""
+def read_source(path: Path, layout: str | None):
+    """Read the environment in any layout (:func:`bakery.io.envfiles.read_environment`) as float32 RGB."""
     import numpy as np
 
-    from bakery.io.images import read_image
+    from bakery.io.envfiles import read_environment
 
-    if path.suffix.lower() == ".ktx2":
-        raise BakeryError("the specular prefilter reads equirectangular panoramas; convert the cubemap to a "
-                          "panorama first (bakery env convert)", path)
-    img = read_image(path, color="srgb").pixels
-    h, w, c = img.shape
-    if w != 2 * h:
-        raise BakeryError(f"expected an equirectangular panorama with width = 2 x height; got {w} x {h}",
-                          path)
-    if h % 2:
-        raise BakeryError(f"the panorama height must be even; got {h}", path)
-    if c == 2 or c == 4:
-        img = img[:, :, :3] if c == 4 else img[:, :, :1]
-    if c == 1 or img.shape[2] == 1:
-        img = np.repeat(img[:, :, :1], 3, axis=2)
-    if np.any(img < 0):
-        n = int(np.count_nonzero(img < 0))
-        raise BakeryError(f"{n} sample(s) are negative; radiance must be >= 0", path)
-    return np.ascontiguousarray(img, dtype=np.float32)
+    env = read_environment(path, layout=layout or None)
+    px = env.pixels
+    c = px.shape[-1]
+    if c == 4:
+        px = px[..., :3]
+    elif c in (1, 2):
+        px = np.repeat(px[..., :1], 3, axis=-1)
+    if env.kind == "equirect" and px.shape[0] % 2:
+        raise BakeryError(f"the panorama height must be even; got {px.shape[0]}", path)
+    return np.ascontiguousarray(px, dtype=np.float32)
 
 
 def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams) -> list[Path]:
@@ -145,7 +140,7 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams)
         raise BakeryError("output must end in .ktx2 (add --loose for OpenEXR files per level and face)",
                           output)
     check_specular_params(params)
-    env = read_panorama(inputs["env"])
+    env = read_source(inputs["env"], params.layout)
     rough = parse_roughness(params.roughness)
     levels = params.levels or params.size.bit_length()
     r = level_roughness(levels, rough)

@@ -55,6 +55,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from bakery import sphere
+from bakery.envmap.sample import reduce_equirect, resample
 from bakery.envmap.zonal import funk_hecke_coefficients, zonal_convolve_equirect
 from bakery.microfacet import prefilter_weight, prefilter_weight_inplace
 
@@ -95,12 +96,16 @@ class Quality:
     oversampling : float
         The panorama is halved (2 x 2 area means) before the transform while it keeps at least
         ``oversampling`` rings per degree of the band limit (and twice the first level's face size).
+    mirror_filter : str
+        Filter of the mirror level (:func:`bakery.envmap.sample.resample`): "bilinear" (exact 2 x 2
+        reductions, then one bilinear lookup) or "area" (conservative, keeps the energy exactly; slower).
     """
 
     tolerance: float
     bright_factor: float
     max_bright: int
     oversampling: float = 1e9
+    mirror_filter: str = "bilinear"
 
 
 #: The quality knob. Worst errors measured on the demo sky (2048 x 1024, sun 2·10⁴) for a 256² GGX chain,
@@ -108,7 +113,7 @@ class Quality:
 QUALITY: dict[str, Quality] = {
     "draft": Quality(tolerance=1e-2, bright_factor=64.0, max_bright=256, oversampling=1.0),
     "final": Quality(tolerance=1e-4, bright_factor=16.0, max_bright=2048, oversampling=1.2),
-    "high": Quality(tolerance=1e-5, bright_factor=8.0, max_bright=4096),
+    "high": Quality(tolerance=1e-5, bright_factor=8.0, max_bright=4096, mirror_filter="area"),
 }
 
 
@@ -295,13 +300,18 @@ def _exact_sum(dirs: np.ndarray, src_dirs: np.ndarray, src_vals: np.ndarray, lob
     return out
 
 
-def _check_env(env: np.ndarray) -> np.ndarray:
+def _check_env(env: np.ndarray) -> tuple[np.ndarray, str]:
     env = np.asarray(env)
-    if env.ndim != 3 or env.shape[1] != 2 * env.shape[0] or env.shape[0] < 2 or env.shape[0] % 2:
-        raise ValueError(f"expected an equirectangular panorama (H, 2H, C) with H even; got {env.shape}")
+    if env.ndim == 4 and env.shape[0] == 6 and env.shape[1] == env.shape[2] and env.shape[1] >= 1:
+        kind = "cube"
+    elif env.ndim == 3 and env.shape[1] == 2 * env.shape[0] and env.shape[0] >= 2 and env.shape[0] % 2 == 0:
+        kind = "equirect"
+    else:
+        raise ValueError("expected an equirectangular panorama (H, 2H, C) with H even or a cubemap "
+                         f"(6, N, N, C); got {env.shape}")
     if not np.all(np.isfinite(env)):
         raise ValueError("the environment holds NaN or Inf values")
-    return env
+    return env.astype(np.float32, copy=False), kind
 
 
 def prefilter_specular(
@@ -318,8 +328,9 @@ def prefilter_specular(
 
     Parameters
     ----------
-    env : ndarray, float32, (H, 2H, C)
-        Radiance panorama in bakery's orientation (see :mod:`bakery.sphere`), H even, finite values.
+    env : ndarray, float32, (H, 2H, C) or (6, N, N, C)
+        Radiance panorama in bakery's orientation (see :mod:`bakery.sphere`), H even, or a cubemap (first
+        resampled to a panorama of width 4N); finite values.
     size : int
         Face size of level 0, a power of two.
     levels : int, optional
@@ -335,7 +346,7 @@ def prefilter_specular(
     -------
     PrefilterResult
     """
-    env = _check_env(env)
+    src, kind = _check_env(env)
     if size < 1 or size & (size - 1):
         raise ValueError(f"the face size must be a power of two; got {size}")
     full = size.bit_length()
@@ -351,16 +362,20 @@ def prefilter_specular(
     params = lobe_parameter(rough, lobe)
     say = progress or (lambda _msg: None)
 
-    h, w, c = env.shape
-    img = env.astype(np.float32, copy=False)
+    if kind == "cube":  # the transform works on rings: resample to a panorama of matching resolution
+        n = src.shape[1]
+        img = resample(src, "cube", "equirect", max(8, 4 * n))
+    else:
+        img = src
+    h, w, c = img.shape
     out: list[np.ndarray] = [None] * levels  # type: ignore[list-item]
     say("level 0: resampling the mirror image")
-    out[0] = mirror_level(img, size)
+    out[0] = resample(src, kind, "cube", size, filter=q.mirror_filter)
     band = [0] * levels
     todo = [k for k in range(1, levels) if rough[k] > 0]
     for k in range(1, levels):
         if rough[k] == 0:
-            out[k] = mirror_level(img, size >> k)
+            out[k] = resample(src, kind, "cube", size >> k, filter=q.mirror_filter)
     if not todo:
         return PrefilterResult(out, rough, lobe, params, band, 0)
 
@@ -386,7 +401,7 @@ def prefilter_specular(
         lmax = max(len(g) - 1 for g in kernels)
         while (rest.shape[0] % 4 == 0 and rest.shape[0] // 2 >= q.oversampling * lmax
                and rest.shape[0] // 2 >= 2 * (size >> sh_levels[0])):
-            rest = reduce_equirect2(rest)  # exact 2 x 2 area means: fewer rings, same band limit
+            rest = reduce_equirect(rest)  # exact 2 x 2 area means: fewer rings, same band limit
         grids, norms = zonal_convolve_equirect(rest, kernels, return_norms=True)
         colat = (np.arange(rest.shape[0]) + 0.5) * math.pi / rest.shape[0]
         for k, grid, norm in zip(sh_levels, grids, norms, strict=True):
@@ -406,46 +421,6 @@ def prefilter_specular(
         dirs = sphere.cube_directions(s, dtype=np.float64)
         out[k] = brute_force_prefilter(img, dirs, float(params[k]), lobe=lobe).astype(np.float32)
     return PrefilterResult(out, rough, lobe, params, band, int(len(bright)))
-
-
-def reduce_equirect2(img: np.ndarray) -> np.ndarray:
-    """Halve a panorama in both directions: each output texel is the solid-angle-weighted mean of its 2 x 2
-    source texels (energy Σ L Ω is kept exactly)."""
-    h, w, c = img.shape
-    om = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)
-    pair = img.reshape(h // 2, 2, w // 2, 2, c).astype(np.float64).sum(axis=3)  # (h/2, 2, w/2, c)
-    o = om.reshape(h // 2, 2)
-    out = pair[:, 0] * o[:, 0, None, None] + pair[:, 1] * o[:, 1, None, None]
-    out /= (2 * o.sum(1))[:, None, None]
-    return out.astype(np.float32)
-
-
-def mirror_level(env: np.ndarray, size: int) -> np.ndarray:
-    """The mirror level (roughness 0): the panorama resampled to a cubemap of face ``size``.
-
-    The panorama is first halved (2 x 2 solid-angle-weighted means, :func:`reduce_equirect2`) while its
-    texels stay at most half the angle of the output's at a face centre; then each output texel averages
-    k x k bilinear lookups spread over its area (k from the remaining ratio of texel sizes), weighted by
-    their solid angles: shrinking filters by area, enlarging is bilinear.
-    """
-    dst_angle = (math.pi / 2) / size
-    while env.shape[0] % 2 == 0 and env.shape[0] >= 4 and 2 * (math.pi / env.shape[0]) <= dst_angle:
-        env = reduce_equirect2(env)
-    h, w, c = env.shape
-    k = max(1, min(8, math.ceil(dst_angle / (math.pi / h) - 0.25)))
-    sub = (np.arange(k) + 0.5) / k
-    t = ((np.arange(size)[:, None] + sub[None, :]) / size).ravel()
-    f = np.arange(6)[:, None, None]
-    ss, tt = np.meshgrid(t, t)
-    dirs = sphere.face_to_dir(np.broadcast_to(f, (6,) + ss.shape), ss[None], tt[None])
-    if k == 1:
-        return _read_rings(env, dirs, cubic=False).astype(np.float32)
-    # solid angle of each sub-sample (the cube texel formula at the sub-sample grid)
-    om = sphere.cube_texel_solid_angles(size * k, dtype=np.float64)
-    vals = _read_rings(env, dirs, cubic=False).astype(np.float64) * om[None, :, :, None]
-    vals = vals.reshape(6, size, k, size, k, c).sum(axis=(2, 4))
-    om = om.reshape(size, k, size, k).sum(axis=(1, 3))
-    return (vals / om[None, :, :, None]).astype(np.float32)
 
 
 def _normaliser(lobe: str, param: float, r: float) -> float:
