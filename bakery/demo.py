@@ -122,9 +122,59 @@ def _step_envmaps(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
     return made
 
 
+def specular_levels_sheet(levels: list, *, exposure: float = 1.0):
+    """A contact sheet of a prefiltered chain for viewing: each level as a horizontal cross, enlarged to the
+    size of level 0 (nearest texel), side by side in two rows; tone-mapped x/(1 + x) after ``exposure`` and
+    sRGB-encoded by the writer. Returns float32 (H, W, 3) in [0, 1]."""
+    import numpy as np
+
+    from bakery.envmap.layouts import assemble
+
+    n0 = levels[0].shape[1]
+    tiles = []
+    for lv in levels:
+        f = np.asarray(lv, dtype=np.float32)[..., :3] * exposure
+        rep = n0 // f.shape[1]
+        f = np.repeat(np.repeat(f, rep, axis=1), rep, axis=2)
+        cross = assemble(f, "hcross")
+        tiles.append(cross / (1 + cross))
+    h, w, _ = tiles[0].shape
+    pad = max(2, n0 // 16)
+    cols = (len(tiles) + 1) // 2
+    sheet = np.ones((2 * h + 3 * pad, cols * w + (cols + 1) * pad, 3), np.float32)
+    for i, t in enumerate(tiles):
+        r, c = divmod(i, cols)
+        y, x = pad + r * (h + pad), pad + c * (w + pad)
+        sheet[y:y + h, x:x + w] = t
+    return sheet
+
+
+def _step_specular(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
+    """Prefiltered specular chain of the demo sky (bakery env specular), a picture of its levels, and the
+    split-sum BRDF table (bakery env lut)."""
+    from bakery.bakes import run_bake
+    from bakery.envmap.glossy_bakes import LutParams, SpecularParams
+    from bakery.io.images import write_image
+    from bakery.io.ktx2 import read_ktx2
+
+    folder = out / "envlight"
+    folder.mkdir(parents=True, exist_ok=True)
+    size = 64
+    spec = folder / "sky_specular.ktx2"
+    run_bake("env-specular", {"env": inputs["sky"]}, spec, SpecularParams(size=size))
+    sheet = folder / "sky_specular_levels.png"
+    write_image(sheet, specular_levels_sheet(read_ktx2(spec).levels), color="srgb")
+    lut = folder / "brdf_lut.png"
+    run_bake("env-lut", {}, lut, LutParams(size=128))
+    return [("specular prefiltered chain, GGX, roughness linear in mip (bakery env specular)", spec),
+            ("picture of the specular levels (tone-mapped crosses)", sheet),
+            ("split-sum BRDF table, 16-bit PNG: R = scale, G = bias of F0 (bakery env lut)", lut)]
+
+
 #: Demo steps in order: (name, function).
 STEPS: list[tuple[str, Step]] = [("info", _step_info), ("normals", _step_normals),
-                                  ("roughness", _step_roughness), ("envmaps", _step_envmaps)]
+                                  ("roughness", _step_roughness), ("envmaps", _step_envmaps),
+                                  ("specular", _step_specular)]
 
 
 def run_demo(out: str | Path, *, size: int = 256, log: Callable[[str], None] = print) -> Path:
