@@ -91,7 +91,7 @@ def split_sum_terms(nov, roughness, *, order: tuple[int, int] = DEFAULT_ORDER) -
     a2 = a * a
     sv = np.sqrt(np.maximum(0.0, 1 - nv * nv))
     out = np.empty((nv.shape[0], 2))
-    step = max(1, 2_000_000 // (nu * nphi))
+    step = max(1, 65_536 // (nu * nphi))
     for s in range(0, nv.shape[0], step):
         sl = slice(s, s + step)
         c_v, s_v, al, al2 = nv[sl], sv[sl], a[sl], a2[sl]
