@@ -138,11 +138,19 @@ def test_single_bright_texel_matches_the_lobe(path):
 
 
 def test_seams():
+    # no seam beyond what the exact function has: the seam metric of each level (99th percentile of the change
+    # per radian across face edges) stays within 5 % of the same metric of the brute-force level, and the
+    # change across edges is about the change inside the faces (on faces of 16 texels or more)
     env = _smooth_env(64, seed=11)
     res = sp.prefilter_specular(env, 32, levels=4)
     for k in range(1, 4):
         across, inside = sp.seam_metric(res.levels[k])
-        assert across <= 1.1 * inside, (k, across, inside)
+        d, _ = _level_dirs(res.levels[k])
+        ref = sp.brute_force_prefilter(env, d, float(res.params[k])).reshape(res.levels[k].shape)
+        ref_across, ref_inside = sp.seam_metric(ref)
+        assert across <= 1.05 * ref_across + 1e-3, (k, across, ref_across)
+        if res.levels[k].shape[1] >= 16:  # on tiny faces the two sets of pairs sample different places
+            assert across <= 1.25 * inside, (k, across, inside)
 
 
 def test_edge_pairs_are_neighbours():

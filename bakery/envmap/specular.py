@@ -550,21 +550,25 @@ def edge_pairs(size: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 
 def seam_metric(level: np.ndarray) -> tuple[float, float]:
-    """The 99th percentile of the relative jump between neighbouring texels across face edges, and the same
-    between each edge texel and its inward neighbour on the same face: (across, inside).
+    """Seams of a cubemap level: the 99th percentile of the relative change per radian between neighbouring
+    texels across face edges, and the same between each edge texel and its inward neighbour on the same face:
+    (across, inside).
 
-    A seam-free level has ``across <= inside`` (about equal): the jump across an edge is no larger than the
-    texel-to-texel change inside the faces. Relative jump = |a − b| / ((a + b)/2), averaged over channels.
+    Relative change = |a − b| / ((a + b)/2), averaged over channels, divided by the angle between the two
+    texel centres (so the two sets of pairs compare fairly at any face size). A seam-free level has
+    ``across <= inside`` (about equal): the change across an edge is no larger than inside the faces.
     """
     lv = np.asarray(level, dtype=np.float64)
     n = lv.shape[1]
     if n < 2:
         return 0.0, 0.0
     flat = lv.reshape(-1, lv.shape[-1])
+    dirs = sphere.cube_directions(n, dtype=np.float64).reshape(-1, 3)
     b, a, i = edge_pairs(n)
 
-    def jump(x, y):
+    def rate(x, y):
         den = np.maximum((np.abs(flat[x]) + np.abs(flat[y])) / 2, 1e-30)
-        return np.mean(np.abs(flat[x] - flat[y]) / den, axis=1)
+        ang = np.arccos(np.clip(np.sum(dirs[x] * dirs[y], axis=1), -1, 1))
+        return np.mean(np.abs(flat[x] - flat[y]) / den, axis=1) / ang
 
-    return float(np.percentile(jump(b, a), 99)), float(np.percentile(jump(b, i), 99))
+    return float(np.percentile(rate(b, a), 99)), float(np.percentile(rate(b, i), 99))
