@@ -97,8 +97,10 @@ class Quality:
         The panorama is halved (2 x 2 area means) before the transform while it keeps at least
         ``oversampling`` rings per degree of the band limit (and twice the first level's face size).
     mirror_filter : str
-        Filter of the mirror level (:func:`bakery.envmap.sample.resample`): "bilinear" (exact 2 x 2
-        reductions, then one bilinear lookup) or "area" (conservative, keeps the energy exactly; slower).
+        Filter of the mirror level and of the conversion of cubemap inputs to a panorama
+        (:func:`bakery.envmap.sample.resample`): "bilinear" (exact 2 x 2 reductions, then one bilinear
+        lookup; a sun keeps its energy to about 0.2 %) or "area" (conservative, keeps the energy exactly;
+        slower).
     """
 
     tolerance: float
@@ -365,7 +367,7 @@ def prefilter_specular(
 
     if kind == "cube":  # the transform works on rings: resample to a panorama of matching resolution
         n = src.shape[1]
-        img = resample(src, "cube", "equirect", max(8, 4 * n))
+        img = resample(src, "cube", "equirect", max(8, 4 * n), filter=q.mirror_filter)
     else:
         img = src
     h, w, c = img.shape
