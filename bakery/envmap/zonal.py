@@ -156,11 +156,12 @@ def _legendre_block(lmax: int, ms: np.ndarray, x: np.ndarray, pmms: np.ndarray) 
 
 
 def _transform(even, odd, gtab, limits, x, s, h, lmax, cc, progress):
-    """Analysis and synthesis, order by order: returns the synthesised (nk, H, lmax + 1, 2cc) ring spectra."""
+    """Analysis and synthesis, order by order: returns per kernel the synthesised ring spectra
+    (H, L_k + 1, 2cc)."""
     half = h // 2
     even = np.ascontiguousarray(even.transpose(1, 0, 2))  # (M, J, 2cc)
     odd = np.ascontiguousarray(odd.transpose(1, 0, 2))
-    out = np.zeros((len(limits), h, lmax + 1, 2 * cc))
+    out = [np.zeros((h, int(lk) + 1, 2 * cc)) for lk in limits]  # each kernel up to its own band limit
     pmm = np.full(half, 1 / math.sqrt(4 * math.pi))
     block = 16
     for m0 in range(0, lmax + 1, block):
@@ -188,8 +189,10 @@ def _transform(even, odd, gtab, limits, x, s, h, lmax, cc, progress):
             co = (g[m + 1::2, :, None] * ao[:, None, :]).reshape(len(ao), nk * 2 * cc)
             be = (pe.T @ ce).reshape(-1, nk, 2 * cc).transpose(1, 0, 2)
             bo = (po.T @ co).reshape(-1, nk, 2 * cc).transpose(1, 0, 2)
-            out[act, lo:half, m, :] = be + bo
-            out[act, h - 1 - lo:half - 1:-1, m, :] = be - bo
+            north, south = be + bo, be - bo
+            for j, k in enumerate(act):
+                out[k][lo:half, m, :] = north[j]
+                out[k][h - 1 - lo:half - 1:-1, m, :] = south[j]
         if progress is not None:
             progress(int(ms[-1]) + 1, lmax + 1)
     return out
@@ -270,7 +273,8 @@ def zonal_convolve_equirect(image: np.ndarray, kernels: Sequence[np.ndarray], *,
     for k in range(nk):
         lk = len(kernels[k]) - 1
         wk = widths[k]
-        b = out[k, :, : lk + 1, :cc] + 1j * out[k, :, : lk + 1, cc:]
+        b = out[k][:, :, :cc] + 1j * out[k][:, :, cc:]
+        out[k] = None
         mm = np.arange(lk + 1)
         b = b * np.exp(1j * math.pi * mm * (1 / wk - 1 / w))[None, :, None] * wk
         ring = np.fft.irfft(np.ascontiguousarray(b.transpose(2, 0, 1)), n=wk, axis=2).transpose(1, 2, 0)
