@@ -1,1 +1,2 @@
-"""Environment maps: layouts, seamless resampling, diffuse irradiance (pure array functions)."""
+"""Environment maps: layouts, seamless resampling, diffuse irradiance, specular prefiltering and the split-sum
+BRDF table (pure array functions)."""
