@@ -179,3 +179,15 @@ def test_unknown_lobe():
         mf.ndf("phong", 0.5, 1.0)
     with pytest.raises(ValueError, match="Smith masking"):
         mf.g1_smith(0.5, 0.5, lobe="blinn-phong")
+
+
+def test_prefilter_weight_inplace_matches():
+    # the in-place evaluation is the same weight (common practice: algebraically identical forms)
+    mu = np.linspace(-1, 1, 2001)
+    for lobe, p in (("ggx", 0.02), ("ggx", 0.7), ("blinn-phong", 300.0), ("beckmann", 0.3)):
+        want = mf.prefilter_weight(mu, p, lobe=lobe)
+        assert np.allclose(mf.prefilter_weight_inplace(mu.copy(), p, lobe=lobe), want, rtol=1e-12, atol=0)
+        got32 = mf.prefilter_weight_inplace(mu.astype(np.float32), p, lobe=lobe)
+        assert got32.dtype == np.float32 and np.allclose(got32, want, rtol=2e-4, atol=1e-6 * want.max())
+    with pytest.raises(TypeError):
+        mf.prefilter_weight_inplace([0.5], 0.3)
