@@ -4,6 +4,8 @@ The public functions are plain array-in, array-out functions; file formats live 
 """
 
 from bakery._version import __version__
+from bakery.envmap.brdf_lut import brdf_lut
+from bakery.envmap.specular import prefilter_specular
 from bakery.errors import BakeryError, BakeryWarning
 from bakery.io import read_image, write_image
 from bakery.normals import (
@@ -17,6 +19,7 @@ from bakery.normals import (
 )
 from bakery.roughness import convert_specular, exponent_from_roughness, roughness_from_exponent, roughness_mips
 
-__all__ = ["BakeryError", "BakeryWarning", "__version__", "blend_normals", "convert_specular", "decode_normals",
-           "encode_normals", "exponent_from_roughness", "height_from_normal", "normal_from_height", "normal_mips",
-           "read_image", "roughness_from_exponent", "roughness_mips", "strength_from_size", "write_image"]
+__all__ = ["BakeryError", "BakeryWarning", "__version__", "blend_normals", "brdf_lut", "convert_specular",
+           "decode_normals", "encode_normals", "exponent_from_roughness", "height_from_normal", "normal_from_height",
+           "normal_mips", "prefilter_specular", "read_image", "roughness_from_exponent", "roughness_mips",
+           "strength_from_size", "write_image"]
