@@ -156,7 +156,7 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams)
         "level_from_roughness": _level_formula(mapping, levels),
     }
     fmt = get_format(params.format)
-    kv = {KTX_ROUGHNESS_KEY: json.dumps(table, sort_keys=True, separators=(",", ":"))}
+    kv = {KTX_ROUGHNESS_KEY: json.dumps(table, sort_keys=True, separators=(",", ":"), ensure_ascii=False)}
     written = [write_ktx2(output, res.levels, fmt, cubemap=True, key_values=kv)]
     if params.loose:
         for k, lv in enumerate(res.levels):
@@ -233,7 +233,7 @@ def _lut_layout(params: LutParams) -> str:
         "rows": rows,
         "model": "GGX, height-correlated Smith G2 (Heitz 2014), Schlick Fresnel; alpha = r^2",
         "use": "specular = prefiltered * (F0 * A + B)",
-    }, sort_keys=True, separators=(",", ":"))
+    }, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
 
 
 register(Bake("env-specular", "Specular prefiltered cubemap mip chain (split sum) from an HDR panorama",
