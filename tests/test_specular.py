@@ -238,3 +238,19 @@ def test_cubemap_input():
         ref = sp.brute_force_prefilter(env, d, float(a.params[k]))
         m = sp.error_metrics(a.levels[k].reshape(-1, 3), ref, om)
         assert m["rel_rms"].max() < 5e-3, (k, m)
+
+
+def test_mirror_level_is_the_source():
+    # level 0 (roughness 0) is the panorama resampled: on a smooth environment it matches the source's own
+    # conservative area average over each texel, and keeps the total energy Σ L Ω
+    from bakery.envmap.sample import resample
+
+    env = _smooth_env(128, seed=21, sun=False)
+    lv0 = sp.prefilter_specular(env, 32, levels=2).levels[0]
+    ref = resample(env, "equirect", "cube", 32, filter="area")
+    om = sphere.cube_texel_solid_angles(32, dtype=np.float64)
+    m = sp.error_metrics(lv0.reshape(-1, 3), ref.reshape(-1, 3), np.tile(om.ravel(), 6))
+    assert m["rel_rms"].max() < 2e-3 and m["max"].max() < 1e-2, m
+    e_src = (env * sphere.equirect_solid_angles(256, 128, dtype=np.float64)[..., None]).sum((0, 1))
+    e_out = (lv0 * om[None, :, :, None]).sum((0, 1, 2))
+    assert np.allclose(e_out / e_src, 1, atol=1e-3)

@@ -104,6 +104,21 @@ def main() -> None:
     results["baseline"] = (time.perf_counter() - t, base)
     print(f"baseline (Karis 2013, 1024 Hammersley samples): {results['baseline'][0]:.2f} s", flush=True)
 
+    # level 0 (the mirror image) judged against the source itself: the conservative area-weighted average of
+    # the panorama over each cube texel (bakery.envmap.sample.resample, filter "area"), and the total energy
+    from bakery.envmap.sample import resample
+
+    src0 = resample(env, "equirect", "cube", size, filter="area").reshape(-1, 3)
+    om0 = np.tile(sphere.cube_texel_solid_angles(size, dtype=np.float64).ravel(), 6)
+    e_src = (env * sphere.equirect_solid_angles(env.shape[1], env.shape[0], dtype=np.float64)[..., None]).sum((0, 1))
+    print("\nlevel 0 against the area average of the source: rel RMS % | p99 % | energy ratio (R, G, B)")
+    for name, (_, lv) in results.items():
+        v0 = np.asarray(lv[0], dtype=np.float64).reshape(-1, 3)
+        m = sp.error_metrics(v0, src0, om0)
+        ratio = (v0 * om0[:, None]).sum(0) / e_src
+        print(f"  {name:8s} {m['rel_rms'].max() * 100:7.3f} | {m['p99'].max() * 100:7.3f} | "
+              + " ".join(f"{r:.5f}" for r in ratio))
+
     rng = np.random.default_rng(2013)
     worst = {name: [0.0, 0.0] for name in results}
     t_ref = 0.0
