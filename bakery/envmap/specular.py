@@ -99,9 +99,8 @@ class Quality:
     mirror_filter : str
         Filter of the mirror level and of the conversion of cubemap inputs to a panorama
         (:func:`bakery.envmap.sample.resample`): "bilinear" (exact 2 x 2 reductions, then one bilinear
-        lookup; a sun keeps its energy to about 0.2 % but its texels are off by up to several times), "area"
-        (conservative area average: the source itself at the output size, energy kept exactly; slower) or
-        "auto" (area when shrinking, as ``bakery env convert`` does).
+        lookup; a sun keeps its energy to about 0.2 %) or "area" (conservative, keeps the energy exactly;
+        slower).
     """
 
     tolerance: float
@@ -115,7 +114,7 @@ class Quality:
 #: levels 1-8, against the brute-force sum (tests/perf/bench_specular.py; docs/envlight.md has the table).
 QUALITY: dict[str, Quality] = {
     "draft": Quality(tolerance=1e-2, bright_factor=64.0, max_bright=256, oversampling=1.0),
-    "final": Quality(tolerance=1e-4, bright_factor=16.0, max_bright=2048, oversampling=1.2, mirror_filter="auto"),
+    "final": Quality(tolerance=1e-4, bright_factor=16.0, max_bright=2048, oversampling=1.2),
     "high": Quality(tolerance=1e-5, bright_factor=8.0, max_bright=4096, mirror_filter="area"),
 }
 
