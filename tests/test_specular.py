@@ -254,3 +254,20 @@ def test_mirror_level_is_the_source():
     e_src = (env * sphere.equirect_solid_angles(256, 128, dtype=np.float64)[..., None]).sum((0, 1))
     e_out = (lv0 * om[None, :, :, None]).sum((0, 1, 2))
     assert np.allclose(e_out / e_src, 1, atol=1e-3)
+
+
+def test_mirror_level_keeps_a_sun():
+    # a texel of 1e4 on a constant sky: level 0 keeps the total energy exactly (the bright texel's excess is
+    # deposited, not interpolated) and puts it in the cube texel that contains the texel's centre (Vulkan
+    # face selection table, bakery.sphere)
+    h, w = 128, 256
+    env = np.ones((h, w, 3), np.float32)
+    env[40, 170] = 1e4
+    lv0 = sp.prefilter_specular(env, 16, levels=2).levels[0]
+    om = sphere.cube_texel_solid_angles(16, dtype=np.float64)
+    e_src = (env * sphere.equirect_solid_angles(w, h, dtype=np.float64)[..., None]).sum((0, 1))
+    e_out = (lv0 * om[None, :, :, None]).sum((0, 1, 2))
+    assert np.allclose(e_out / e_src, 1, atol=1e-5)
+    f, s, t = sphere.dir_to_face(sphere.equirect_directions(w, h, dtype=np.float64)[40, 170][None])
+    peak = np.unravel_index(np.argmax(lv0[..., 0]), lv0.shape[:3])
+    assert peak == (int(f[0]), int(t[0] * 16), int(s[0] * 16))

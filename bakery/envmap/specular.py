@@ -371,19 +371,20 @@ def prefilter_specular(
     else:
         img = src
     h, w, c = img.shape
-    out: list[np.ndarray] = [None] * levels  # type: ignore[list-item]
-    say("level 0: resampling the mirror image")
-    out[0] = resample(src, kind, "cube", size, filter=q.mirror_filter)
-    band = [0] * levels
-    todo = [k for k in range(1, levels) if rough[k] > 0]
-    for k in range(1, levels):
-        if rough[k] == 0:
-            out[k] = resample(src, kind, "cube", size >> k, filter=q.mirror_filter)
-    if not todo:
-        return PrefilterResult(out, rough, lobe, params, band, 0)
-
     omega_row = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)
     bright, rest = _bright_split(img, omega_row, q)
+    out: list[np.ndarray] = [None] * levels  # type: ignore[list-item]
+    say("level 0: resampling the mirror image")
+    band = [0] * levels
+    todo = [k for k in range(1, levels) if rough[k] > 0]
+    for k in range(levels):
+        if rough[k] == 0:
+            if kind == "equirect" and q.mirror_filter == "bilinear" and len(bright):
+                out[k] = _mirror_level(img, size >> k, bright, omega_row)
+            else:
+                out[k] = resample(src, kind, "cube", size >> k, filter=q.mirror_filter)
+    if not todo:
+        return PrefilterResult(out, rough, lobe, params, band, int(len(bright)))
     b_dirs = sphere.equirect_to_dir((bright % w + 0.5) / w, (bright // w + 0.5) / h).astype(np.float64)
     b_vals = img.reshape(-1, c)[bright].astype(np.float64) * omega_row[bright // w][:, None]
     cap = w // 2 - 1
@@ -424,6 +425,53 @@ def prefilter_specular(
         dirs = sphere.cube_directions(s, dtype=np.float64)
         out[k] = brute_force_prefilter(img, dirs, float(params[k]), lobe=lobe).astype(np.float32)
     return PrefilterResult(out, rough, lobe, params, band, int(len(bright)))
+
+
+def _mirror_level(img: np.ndarray, size: int, bright: np.ndarray, omega_row: np.ndarray,
+                  sub: int = 8) -> np.ndarray:
+    """The mirror level of a panorama with a few very bright texels (a sun smaller than an output texel).
+
+    The panorama is split exactly into a smooth part — the bright texels replaced by the mean of their
+    non-bright neighbours in a 9 x 9 box — resampled bilinearly (:func:`bakery.envmap.sample.resample`), and
+    the bright texels' excess radiance over that fill, whose energy ``(L − fill) Ω`` is deposited into the
+    output texels under ``sub x sub`` points of each bright texel. So the sun keeps its energy exactly and
+    lands in the texels it covers (close to the source's area average over each texel), while a constant
+    environment (no bright texels) stays exactly constant.
+    """
+    import cv2
+
+    h, w, c = img.shape
+    mask = np.zeros(h * w, bool)
+    mask[bright] = True
+    mask = mask.reshape(h, w)
+    keep = (~mask).astype(np.float32)
+    rest = img * keep[..., None]
+    pad = 4
+
+    def box(a):
+        a = np.concatenate([a[:, -pad:], a, a[:, :pad]], axis=1)  # wrap around in longitude
+        return cv2.boxFilter(a, -1, (2 * pad + 1, 2 * pad + 1), normalize=False,
+                             borderType=cv2.BORDER_REFLECT)[:, pad:-pad]
+
+    box_r = box(np.ascontiguousarray(rest)).reshape(h, w, c)
+    box_k = box(keep)
+    fill = np.where(box_k[..., None] > 0, box_r / np.maximum(box_k, 1e-30)[..., None], 0.0)
+    filled = rest.copy()
+    filled[mask] = fill[mask]
+    base = resample(filled.astype(np.float32), "equirect", "cube", size, filter="bilinear").reshape(-1, c)
+    rows, cols = np.nonzero(mask)
+    excess = (img[mask].astype(np.float64) - filled[mask]) * omega_row[rows][:, None] / (sub * sub)
+    off = (np.arange(sub) + 0.5) / sub
+    u = (cols[:, None, None] + off[None, None, :]) / w
+    v = (rows[:, None, None] + off[None, :, None]) / h
+    f, s_, t_ = sphere.dir_to_face(sphere.equirect_to_dir(*np.broadcast_arrays(u, v)).astype(np.float64))
+    ix = np.clip((s_ * size).astype(int), 0, size - 1)
+    iy = np.clip((t_ * size).astype(int), 0, size - 1)
+    idx = ((f.astype(int) * size + iy) * size + ix).reshape(len(rows), -1)
+    acc = np.zeros((6 * size * size, c))
+    np.add.at(acc, idx.ravel(), np.repeat(excess, sub * sub, axis=0))
+    om = np.tile(sphere.cube_texel_solid_angles(size, dtype=np.float64).ravel(), 6)
+    return (base + acc / om[:, None]).reshape(6, size, size, c).astype(np.float32)
 
 
 def _normaliser(lobe: str, param: float, r: float) -> float:
