@@ -97,10 +97,9 @@ class Quality:
         The panorama is halved (2 x 2 area means) before the transform while it keeps at least
         ``oversampling`` rings per degree of the band limit (and twice the first level's face size).
     mirror_filter : str
-        Filter of the mirror level and of the conversion of cubemap inputs to a panorama
-        (:func:`bakery.envmap.sample.resample`): "bilinear" (exact 2 x 2 reductions, then one bilinear
-        lookup; a sun keeps its energy to about 0.2 %) or "area" (conservative, keeps the energy exactly;
-        slower).
+        Filter (:func:`bakery.envmap.sample.resample`) for converting cubemap inputs to a panorama and for
+        the mirror level where nothing is bright enough to be summed exactly: "bilinear" (exact 2 x 2
+        reductions, then one bilinear lookup) or "area" (conservative; slower).
     """
 
     tolerance: float
@@ -379,7 +378,7 @@ def prefilter_specular(
     todo = [k for k in range(1, levels) if rough[k] > 0]
     for k in range(levels):
         if rough[k] == 0:
-            if kind == "equirect" and q.mirror_filter == "bilinear" and len(bright):
+            if kind == "equirect" and len(bright):
                 out[k] = _mirror_level(img, size >> k, bright, omega_row)
             else:
                 out[k] = resample(src, kind, "cube", size >> k, filter=q.mirror_filter)
