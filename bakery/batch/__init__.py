@@ -1,0 +1,223 @@
+"""Batch runs over a texture library: a recipe, an incremental plan, parallel or cluster execution, a report.
+
+>>> from bakery.batch import run                      # doctest: +SKIP
+>>> report = run("library.toml", jobs=4)              # doctest: +SKIP
+>>> report.ran, report.skipped, report.failed         # doctest: +SKIP
+(48, 0, 0)
+
+The recipe format is described in ``docs/batch.md``. Modules: :mod:`~bakery.batch.recipe` (reading and
+checking recipes), :mod:`~bakery.batch.plan` (jobs and why they run), :mod:`~bakery.batch.cache`
+(incremental cache and run lock), :mod:`~bakery.batch.execute` (local processes, Dask),
+:mod:`~bakery.batch.report` (progress, summary, JSON report). Heavy libraries are imported only by the
+workers, so a run with nothing to do starts and ends fast.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import time
+from pathlib import Path
+from typing import Any
+
+from bakery.batch.recipe import Recipe, load_recipe
+from bakery.batch.report import FAILED, PLANNED, RAN, SKIPPED, BatchReport, JobResult, now_utc
+from bakery.errors import BakeryError
+
+__all__ = ["BatchReport", "JobResult", "Recipe", "load_recipe", "run"]
+
+#: Names of the temporary files :func:`bakery.io.atomic_output` writes (``.<stem>.<random>.part<suffix>``).
+_TEMP_NAME = re.compile(r"^\..+\.part(\.[^./]+)?$")
+
+
+def default_jobs() -> int:
+    """The number of cores this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def run(recipe: str | os.PathLike | Recipe, *, jobs: int | None = None, force: bool = False,
+        only: tuple[str, ...] | list[str] = (), dry_run: bool = False, cluster: str | None = None,
+        report: str | os.PathLike | None = None, progress: Any = None) -> BatchReport:
+    """Run a batch recipe and return its report.
+
+    Parameters
+    ----------
+    recipe : path-like or Recipe
+        The recipe file (or one loaded with :func:`load_recipe`).
+    jobs : int, optional
+        Local worker processes; default: every core this process may use. Ignored with ``cluster``.
+    force : bool
+        Run every job, even the up-to-date ones.
+    only : sequence of str
+        Keep only jobs whose rule name, input or output path matches one of these (a rule name, a file name,
+        or a pattern with ``*``/``**``).
+    dry_run : bool
+        Plan only: nothing is written (not even the cache); the report lists what would run and why.
+    cluster : str, optional
+        The address of a Dask distributed scheduler (``tcp://host:8786``) to run the jobs on.
+    report : path-like, optional
+        Where to write the JSON report; default ``<output root>/.bakery/report.json`` (a dry run writes one
+        only when this is given).
+    progress : object, optional
+        A progress display with ``start(total, skipped, executor, workers)``, ``update(job_result)`` and
+        ``stop()`` (:class:`bakery.batch.report.PlainProgress`, :class:`~bakery.batch.report.BarProgress`);
+        default: silent.
+
+    Returns
+    -------
+    BatchReport
+        Every job with its status; ``exit_code`` is 1 when some failed, else 0.
+
+    Raises
+    ------
+    BakeryError
+        The recipe, a folder file or an argument is wrong, an output would leave the output root, another run
+        holds the output root, or the cluster cannot be reached. Nothing has run then.
+    """
+    from bakery import __version__
+    from bakery.batch.plan import make_plan
+
+    t0 = time.perf_counter()
+    started = now_utc()
+    if jobs is not None and (isinstance(jobs, bool) or not isinstance(jobs, int) or jobs < 1):
+        raise BakeryError(f"jobs must be a whole number of at least 1; got {jobs!r}")
+    recipe = recipe if isinstance(recipe, Recipe) else load_recipe(recipe)
+    only = tuple(only)
+    if dry_run:
+        plan = make_plan(recipe, force=force, only=only)
+        rep = _report(recipe, plan, __version__, "dry run", 0, True, started)
+        rep.seconds = time.perf_counter() - t0
+        if report is not None:
+            rep.write(report)
+        return rep
+
+    client = None
+    if cluster:
+        from bakery.batch.execute import connect
+
+        client = connect(cluster)
+    try:
+        return _run(recipe, plan_args={"force": force, "only": only}, jobs=jobs or default_jobs(), client=client,
+                    cluster=cluster, report=report, progress=progress, t0=t0, started=started, version=__version__)
+    finally:
+        if client is not None:
+            client.close()
+
+
+def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: str | None, report: Any,
+         progress: Any, t0: float, started: str, version: str) -> BatchReport:
+    from bakery.batch.cache import Cache, run_lock
+    from bakery.batch.plan import FAIL, cache_entry, make_plan
+
+    recipe.output.mkdir(parents=True, exist_ok=True)
+    with run_lock(recipe.output):
+        cache = Cache.load(recipe.output)
+        notes = []
+        if cache.interrupted:
+            removed = _remove_temp_files(recipe.output)
+            notes.append(f"the previous run was cut off; finished jobs are kept"
+                         f"{f', {removed} temporary file(s) removed' if removed else ''}")
+        try:
+            plan = make_plan(recipe, cache=cache, **plan_args)
+            to_run = plan.to_run
+            if client is not None:
+                executor, workers = f"dask {cluster}", max(1, sum(client.nthreads().values()))
+            else:
+                executor, workers = "local", max(1, min(jobs, len(to_run)))
+            rep = _report(recipe, plan, version, executor, workers, False, started)
+            rep.notes = notes + rep.notes
+            results = {id(j): r for j, r in zip(plan.jobs, rep.jobs, strict=True)}
+            cache.begin()
+            for job in plan.jobs:
+                if job.action == FAIL:
+                    cache.record(job.output, None, [])
+            if progress is not None:
+                progress.start(len(to_run), len(plan.jobs) - len(to_run), executor, workers)
+            specs = [_spec(recipe, job) for job in to_run]
+
+            def on_result(i: int, res: dict) -> None:
+                job = to_run[i]
+                jr = results[id(job)]
+                jr.status = RAN if res["status"] == "ran" else FAILED
+                jr.error, jr.traceback = res["error"], res["traceback"]
+                jr.warnings, jr.seconds = res["warnings"], res["seconds"]
+                jr.outputs = sorted(res["written"])
+                sources = [str(recipe.source / rel) for rel in job.inputs.values()]
+                if jr.status == RAN:
+                    cache.record(job.output, cache_entry(job, res["written"], version), sources)
+                else:
+                    cache.record(job.output, None, sources)
+                if progress is not None:
+                    progress.update(jr)
+
+            try:
+                if not specs:
+                    pass
+                elif client is not None:
+                    from bakery.batch.execute import run_dask
+
+                    run_dask(specs, client, on_result)
+                else:
+                    from bakery.batch.execute import run_local
+
+                    run_local(specs, workers, on_result)
+            finally:
+                if progress is not None:
+                    progress.stop()
+            stale = sorted(set(cache.jobs) - plan.all_outputs)
+            if stale:
+                rep.notes.append(f"{len(stale)} output(s) from earlier runs are made by no rule now and were left "
+                                 f"in place, e.g. {stale[0]}")
+            cache.save(keep_outputs=plan.all_outputs)
+        finally:
+            cache.close()
+    rep.seconds = time.perf_counter() - t0
+    rep.write(report if report is not None else recipe.output / ".bakery" / "report.json")
+    return rep
+
+
+def _spec(recipe: Recipe, job: Any) -> dict[str, Any]:
+    rule = next(r for r in recipe.rules if r.name == job.rule)
+    first = next(iter(job.inputs.values()))
+    return {"bake": job.bake, "module": job.module, "output": job.output, "out_root": str(recipe.output),
+            "inputs": {role: str(recipe.source / rel) for role, rel in job.inputs.items()},
+            "values": job.values, "where": f"{rule.where}: params for {first}"}
+
+
+def _report(recipe: Recipe, plan: Any, version: str, executor: str, workers: int, dry_run: bool,
+            started: str) -> BatchReport:
+    from bakery.batch.plan import FAIL, RUN
+
+    rep = BatchReport(str(recipe.path), str(recipe.source), str(recipe.output), version, executor, workers,
+                      dry_run, started, unselected=plan.unselected)
+    for job in plan.jobs:
+        if job.action == RUN:
+            status = PLANNED
+        elif job.action == FAIL:
+            status = FAILED
+        else:
+            status = SKIPPED
+        rep.jobs.append(JobResult(
+            job.rule, job.bake,
+            {role: {"path": rel, "digest": job.digests.get(role, "")} for role, rel in job.inputs.items()},
+            job.output, job.params, status, job.reason, job.origins,
+            error=job.reason if job.action == FAIL else None))
+    return rep
+
+
+def _remove_temp_files(root: Path) -> int:
+    """Delete temporary files left by writers that were killed (only while holding the run lock)."""
+    removed = 0
+    for dirpath, dirnames, filenames in os.walk(root):
+        dirnames[:] = [d for d in dirnames if d != ".bakery"]
+        for name in filenames:
+            if _TEMP_NAME.match(name):
+                try:
+                    os.unlink(os.path.join(dirpath, name))
+                    removed += 1
+                except OSError:
+                    pass
+    return removed

@@ -1,0 +1,207 @@
+"""What a batch tells its user: the plan, progress while it runs, a summary and a JSON report.
+
+The JSON report holds every job: inputs with their content digests, outputs, parameters, status and why,
+timings, warnings and error messages. Timings live here only, never in the per-output manifests, so outputs
+stay byte-identical from run to run.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
+from typing import Any, TextIO
+
+RAN, SKIPPED, FAILED, PLANNED = "ran", "skipped", "failed", "planned"
+
+
+@dataclass
+class JobResult:
+    """One job in the report.
+
+    ``status`` is ``"ran"``, ``"skipped"``, ``"failed"``, or ``"planned"`` (a dry run's job that would run).
+    ``reason`` says why it ran or was skipped; ``error`` is the one-line message of a failed job.
+    """
+
+    rule: str
+    bake: str
+    inputs: dict[str, dict[str, str]]
+    output: str
+    params: dict[str, Any]
+    status: str
+    reason: str
+    origins: dict[str, str] = field(default_factory=dict)
+    outputs: list[str] = field(default_factory=list)
+    seconds: float | None = None
+    warnings: list[str] = field(default_factory=list)
+    error: str | None = None
+    traceback: str | None = None
+
+
+@dataclass
+class BatchReport:
+    """The outcome of :func:`bakery.batch.run`.
+
+    ``exit_code`` is 0 when every job ran or was skipped and 1 when some failed (a wrong recipe or command
+    line raises :class:`~bakery.errors.BakeryError` instead: exit code 2).
+    """
+
+    recipe: str
+    source: str
+    output: str
+    bakery: str
+    executor: str
+    workers: int
+    dry_run: bool
+    started: str
+    seconds: float = 0.0
+    jobs: list[JobResult] = field(default_factory=list)
+    unselected: int = 0
+    notes: list[str] = field(default_factory=list)
+    path: Path | None = field(default=None, compare=False)
+
+    def count(self, status: str) -> int:
+        return sum(1 for j in self.jobs if j.status == status)
+
+    @property
+    def ran(self) -> int:
+        return self.count(RAN)
+
+    @property
+    def skipped(self) -> int:
+        return self.count(SKIPPED)
+
+    @property
+    def failed(self) -> int:
+        return self.count(FAILED)
+
+    @property
+    def planned(self) -> int:
+        return self.count(PLANNED)
+
+    @property
+    def exit_code(self) -> int:
+        return 1 if self.failed else 0
+
+    def summary(self) -> str:
+        """One line: counts and time."""
+        if self.dry_run:
+            text = (f"plan: {self.planned} to run, {self.skipped} skipped, {self.failed} failing "
+                    f"({len(self.jobs)} jobs)")
+        else:
+            text = (f"batch: {self.ran} ran, {self.skipped} skipped, {self.failed} failed in "
+                    f"{self.seconds:.1f} s ({self.executor}, {self.workers} worker{'s' * (self.workers != 1)})")
+        if self.unselected:
+            text += f"; {self.unselected} not selected by --only"
+        return text
+
+    def to_dict(self) -> dict[str, Any]:
+        d = asdict(self)
+        d.pop("path")
+        d["counts"] = {"ran": self.ran, "skipped": self.skipped, "failed": self.failed, "planned": self.planned}
+        return d
+
+    def write(self, path: str | Path) -> Path:
+        """Write the JSON report atomically."""
+        from bakery.io.manifest import write_json
+
+        self.path = write_json(path, self.to_dict())
+        return self.path
+
+
+def job_line(job: JobResult) -> str:
+    """``rule: a.png -> b.png`` (roles named when a job has several inputs)."""
+    if len(job.inputs) == 1:
+        src = next(iter(job.inputs.values()))["path"]
+    else:
+        src = " + ".join(f"{role}={v['path']}" for role, v in job.inputs.items())
+    return f"{job.rule}: {src} -> {job.output}"
+
+
+def format_plan(report: BatchReport) -> list[str]:
+    """The dry-run listing: per job what it reads and writes, its explicit parameters and why it runs."""
+    word = {PLANNED: "run ", SKIPPED: "skip", FAILED: "FAIL"}
+    lines = []
+    for job in report.jobs:
+        lines.append(f"{word[job.status]}  {job_line(job)}  ({job.error or job.reason})")
+        if job.origins:
+            shown = ", ".join(f"{k.replace('_', '-')}={job.params.get(k)!r} ({o})" for k, o in job.origins.items())
+        else:
+            shown = "bake defaults"
+        lines.append(f"      params: {shown}")
+    lines.extend(report.notes)
+    lines.append(report.summary())
+    return lines
+
+
+class PlainProgress:
+    """Progress as plain lines (for logs and pipes): one line per finished job."""
+
+    def __init__(self, stream: TextIO | None = None, *, quiet: bool = False):
+        self.stream = stream or sys.stderr
+        self.quiet = quiet
+        self.total = 0
+        self.done = 0
+
+    def start(self, total: int, skipped: int, executor: str, workers: int) -> None:
+        self.total = total
+        if not self.quiet:
+            self._print(start_line(total, skipped, executor, workers))
+
+    def update(self, job: JobResult) -> None:
+        self.done += 1
+        if job.status == FAILED:
+            self._print(f"[{self.done}/{self.total}] FAILED {job_line(job)}: {job.error}")
+        elif not self.quiet:
+            t = f" ({job.seconds:.1f} s)" if job.seconds is not None else ""
+            self._print(f"[{self.done}/{self.total}] {job.status} {job_line(job)}{t}")
+        for w in job.warnings:
+            self._print(f"warning: {job.output}: {w}")
+
+    def stop(self) -> None:
+        pass
+
+    def _print(self, text: str) -> None:
+        print(text, file=self.stream, flush=True)
+
+
+class BarProgress(PlainProgress):
+    """A progress bar on a terminal (rich); failures and warnings are printed above it."""
+
+    def start(self, total: int, skipped: int, executor: str, workers: int) -> None:
+        from rich.console import Console
+        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+
+        self.total = total
+        self.failures = 0
+        self.console = Console(file=self.stream)
+        self.bar = Progress(TextColumn("batch"), BarColumn(), MofNCompleteColumn(), TextColumn("{task.fields[info]}"),
+                            TimeRemainingColumn(), console=self.console, transient=True)
+        self.task = self.bar.add_task("batch", total=total, info="")
+        self.console.print(start_line(total, skipped, executor, workers), markup=False, highlight=False)
+        self.bar.start()
+
+    def update(self, job: JobResult) -> None:
+        self.done += 1
+        if job.status == FAILED:
+            self.failures += 1
+            self.console.print(f"FAILED {job_line(job)}: {job.error}", markup=False, highlight=False)
+        for w in job.warnings:
+            self.console.print(f"warning: {job.output}: {w}", markup=False, highlight=False)
+        info = f"{self.failures} failed" if self.failures else ""
+        self.bar.update(self.task, advance=1, info=info)
+
+    def stop(self) -> None:
+        self.bar.stop()
+
+
+def start_line(total: int, skipped: int, executor: str, workers: int) -> str:
+    if not total:
+        return f"batch: nothing to run, {skipped} job(s) up to date"
+    return (f"batch: {total} job(s) to run, {skipped} up to date ({executor}, {workers} "
+            f"worker{'s' * (workers != 1)})")
+
+
+def now_utc() -> str:
+    return time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())

@@ -1,0 +1,65 @@
+"""``bakery batch RECIPE``: run a recipe over a texture library (see docs/batch.md)."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from bakery.cli import app
+from bakery.cli._common import STATE, command, echo
+
+
+@app.command("batch")
+@command
+def batch(
+    recipe: Annotated[Path, typer.Argument(help="The recipe (TOML): source root, output root, rules.",
+                                           show_default=False)],
+    dry_run: Annotated[bool, typer.Option("--dry-run", "-n",
+                                          help="Print the plan (inputs -> outputs, parameters, why each job "
+                                               "runs or is skipped) and write nothing.")] = False,
+    jobs: Annotated[int | None, typer.Option("--jobs", "-j", min=1,
+                                             help="Local worker processes [default: all cores].",
+                                             show_default=False)] = None,
+    force: Annotated[bool, typer.Option("--force", help="Run every job, even the up-to-date ones.")] = False,
+    only: Annotated[list[str] | None, typer.Option(
+        "--only", help="Keep only jobs whose rule name, input or output matches (a name or a pattern with "
+                       "* and **); repeat for several.", show_default=False)] = None,
+    cluster: Annotated[str | None, typer.Option(
+        "--cluster", help="Run the jobs on the Dask scheduler at this address (tcp://host:8786); needs "
+                          "bakery[cluster].", show_default=False)] = None,
+    report: Annotated[Path | None, typer.Option(
+        "--report", help="Write the JSON report here [default: OUTPUT/.bakery/report.json; a dry run writes "
+                         "one only when this is given].", show_default=False, dir_okay=False)] = None,
+) -> None:
+    """Run a batch recipe: only changed jobs, in parallel, with a JSON report.
+
+    Exit codes: 0 every job ran or was skipped, 1 some jobs failed (the others finished), 2 the recipe or
+    the command line is wrong (nothing ran).
+    """
+    from bakery.batch import run
+    from bakery.batch.report import BarProgress, PlainProgress, format_plan
+
+    if cluster is not None and jobs is not None:
+        from bakery.errors import BakeryError
+
+        raise BakeryError("--jobs and --cluster exclude each other: the cluster decides how many jobs run at once")
+    progress = None
+    if not dry_run:
+        cls = BarProgress if sys.stderr.isatty() and not STATE["quiet"] else PlainProgress
+        progress = cls(sys.stderr, quiet=STATE["quiet"])
+    rep = run(recipe, jobs=jobs, force=force, only=tuple(only or ()), dry_run=dry_run, cluster=cluster,
+              report=report, progress=progress)
+    if dry_run:
+        for line in format_plan(rep):
+            echo(line)
+        return
+    for note in rep.notes:
+        echo(note)
+    echo(rep.summary())
+    if rep.path is not None:
+        echo(f"report: {rep.path}")
+    if rep.exit_code:
+        raise typer.Exit(rep.exit_code)

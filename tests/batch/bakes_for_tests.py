@@ -1,0 +1,56 @@
+"""Small bakes registered for the batch tests only (the batch code never names a bake).
+
+They read and write through :mod:`bakery.io` like real bakes: outputs atomically, plus a manifest.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+from bakery.bakes import Bake, params_to_dict, register
+
+
+@dataclass(frozen=True)
+class InvertParams:
+    """``out = gain * (1 - in)``; ``delay`` seconds of sleep make jobs slow enough to interrupt."""
+
+    gain: float = 1.0
+    delay: float = 0.0
+
+
+def _invert(inputs: dict[str, Path], output: Path, params: InvertParams) -> list[Path]:
+    from bakery.io import read_image, write_image, write_manifest
+
+    img = read_image(inputs["source"])
+    if params.delay:
+        time.sleep(params.delay)
+    write_image(output, params.gain * (1.0 - img.pixels), depth=img.depth if img.depth != "f32" else None)
+    m = write_manifest(output, bake="test-invert", inputs=inputs, params=params_to_dict(params), outputs=[output])
+    return [output, m]
+
+
+@dataclass(frozen=True)
+class MixParams:
+    """``out = (1 - w) * base + w * detail``, times ``mask`` when given."""
+
+    weight: float = 0.5
+
+
+def _mix(inputs: dict[str, Path], output: Path, params: MixParams) -> list[Path]:
+    from bakery.io import read_image, write_image, write_manifest
+
+    base = read_image(inputs["base"])
+    detail = read_image(inputs["detail"]).pixels
+    out = (1 - params.weight) * base.pixels + params.weight * detail
+    if "mask" in inputs:
+        out = out * read_image(inputs["mask"]).pixels
+    write_image(output, out, depth=base.depth)
+    m = write_manifest(output, bake="test-mix", inputs=inputs, params=params_to_dict(params), outputs=[output])
+    return [output, m]
+
+
+INVERT = register(Bake("test-invert", "1 - x (batch tests)", ("source",), InvertParams, _invert))
+MIX = register(Bake("test-mix", "weighted mix of two maps (batch tests)", ("base", "detail", "mask?"), MixParams,
+                    _mix))
