@@ -60,6 +60,23 @@ def limit_threads() -> None:
     _limited = True
 
 
+def worker_init() -> None:
+    """Start a local worker: single-threaded, and gone as soon as the process that started it dies (a killed
+    batch must not leave workers behind)."""
+    import multiprocessing
+    import threading
+    from multiprocessing.connection import wait
+
+    limit_threads()
+    parent = multiprocessing.parent_process()
+    if parent is not None:
+        def watch() -> None:
+            wait([parent.sentinel])
+            os._exit(1)
+
+        threading.Thread(target=watch, name="bakery-parent-watch", daemon=True).start()
+
+
 def run_job(spec: Spec) -> Result:
     """Run one job in a worker (see the module notes). Never raises for a failing job."""
     import importlib
@@ -137,7 +154,7 @@ def run_local(specs: list[Spec], workers: int, on_result: OnResult) -> None:
     todo = list(enumerate(specs))[::-1]
     with thread_env():
         while todo:
-            pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx)
+            pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=worker_init)
             in_flight: dict[Any, int] = {}
             broken = False
             try:
@@ -166,14 +183,14 @@ def run_local(specs: list[Spec], workers: int, on_result: OnResult) -> None:
                 pool.shutdown(wait=True, cancel_futures=True)
 
 
-def connect(address: str) -> Any:
+def connect(address: str, *, timeout: float = 10.0) -> Any:
     """A Dask client for ``address``; a clear error when Dask is missing or the scheduler cannot be reached."""
     try:
         from distributed import Client
     except ImportError:
         raise BakeryError("--cluster needs Dask: pip install 'bakery[cluster]'") from None
     try:
-        return Client(address, timeout="10s", set_as_default=False)
+        return Client(address, timeout=f"{timeout}s", set_as_default=False)
     except (OSError, TimeoutError, ValueError) as exc:
         raise BakeryError(f"cannot reach the Dask scheduler at {address!r} ({exc})") from None
 
@@ -196,7 +213,7 @@ def run_dask(specs: list[Spec], client: Any, on_result: OnResult) -> None:
         return fut
 
     first = [submit(*todo.pop()) for _ in range(min(window, len(todo)))]
-    queue = as_completed(first)
+    queue = as_completed(first, loop=client.loop)
     for fut in queue:
         i = index.pop(fut.key)
         try:
