@@ -216,8 +216,108 @@ def write_samples(folder: str | Path, *, size: int = 256, sky_width: int = 512) 
     return files
 
 
-if __name__ == "__main__":  # python -m bakery.samples samples/
+# ---------------------------------------------------------------------------------------------- a library
+
+#: The invented materials of :func:`library`: (folder, name, surface kind, seed, exponent range).
+MATERIALS = (
+    ("stone", "cobble", "stones", 11, (6.0, 120.0)),
+    ("stone", "slate", "stones", 12, (10.0, 300.0)),
+    ("stone", "granite", "stones", 13, (20.0, 500.0)),
+    ("stone", "sandstone", "stones", 14, (4.0, 40.0)),
+    ("wood", "oak", "planks", 21, (8.0, 60.0)),
+    ("wood", "pine", "planks", 22, (6.0, 40.0)),
+    ("wood", "walnut", "planks", 23, (12.0, 160.0)),
+    ("metal", "brushed", "brushed", 31, (60.0, 900.0)),
+    ("metal", "hammered", "dimples", 32, (40.0, 700.0)),
+    ("ceramic", "tile", "tiles", 41, (30.0, 800.0)),
+    ("ceramic", "terracotta", "tiles", 42, (5.0, 30.0)),
+    ("ceramic", "mosaic", "tiles", 43, (50.0, 1000.0)),
+)
+
+
+def _box_blur_x(a: np.ndarray, radius: int) -> np.ndarray:
+    """Mean over 2 radius + 1 texels along x, wrapping (keeps the map tiling)."""
+    c = np.cumsum(np.concatenate([a[:, -radius - 1:], a, a[:, :radius]], axis=1), axis=1, dtype=np.float64)
+    return ((c[:, 2 * radius + 1:] - c[:, :-2 * radius - 1]) / (2 * radius + 1)).astype(np.float32)
+
+
+def material_height(kind: str, size: int = 256, *, seed: int = 1) -> np.ndarray:
+    """A seamlessly tiling height map in [0, 1], float32 ``(size, size)``, for one invented surface kind.
+
+    ``kind``: ``"stones"`` (irregular paving, :func:`paving_height`), ``"planks"`` (wood boards with grain
+    and seams), ``"brushed"`` (fine streaks along x), ``"dimples"`` (hammered metal: round dents),
+    ``"tiles"`` (square tiles with bevels and grout).
+    """
+    rng = np.random.default_rng(seed)
+    shape = (size, size)
+    y, x = np.mgrid[0:size, 0:size].astype(np.float32) / np.float32(size)
+    if kind == "stones":
+        h = paving_height(size, seed=seed, stones=int(rng.integers(9, 26)))
+    elif kind == "planks":
+        boards = 4
+        warp = tiling_noise(shape, scale=size / 6, seed=seed)
+        grain = 0.5 + 0.5 * np.sin(2 * np.pi * (int(rng.integers(10, 20)) * y + 0.6 * warp))
+        seam = np.minimum(np.mod(y * boards, 1.0), 1 - np.mod(y * boards, 1.0)) * size / boards
+        profile = np.clip(seam / 2.5, 0, 1)
+        h = (0.15 + 0.75 * profile * (0.85 + 0.15 * grain)).astype(np.float32)
+    elif kind == "brushed":
+        n = tiling_noise(shape, scale=2.0, seed=seed, octaves=2)
+        h = 0.5 + 0.4 * _box_blur_x(n, max(2, size // 16)) + 0.05 * tiling_noise(shape, scale=size / 4, seed=seed + 1)
+    elif kind == "dimples":
+        _, gap = _voronoi_torus(shape, int(rng.integers(20, 40)), seed)
+        r = size / 12
+        h = 0.35 + 0.55 * np.sqrt(np.clip(gap / r, 0, 1)) + 0.03 * tiling_noise(shape, scale=size / 32, seed=seed)
+    elif kind == "tiles":
+        count = int(rng.choice([2, 4, 8]))
+        fx, fy = np.mod(x * count, 1.0), np.mod(y * count, 1.0)
+        edge = np.minimum(np.minimum(fx, 1 - fx), np.minimum(fy, 1 - fy)) * size / count
+        t = np.clip((edge - 1.5) / max(2.0, 0.06 * size / count), 0, 1)
+        level = (0.7 + 0.2 * rng.random((count, count))).astype(np.float32)
+        cell = level[np.minimum((y * count).astype(int), count - 1), np.minimum((x * count).astype(int), count - 1)]
+        h = 0.1 + t * t * (3 - 2 * t) * (cell - 0.1) + 0.01 * tiling_noise(shape, scale=size / 20, seed=seed)
+    else:
+        raise ValueError(f"unknown surface kind {kind!r}")
+    return np.clip(h, 0.0, 1.0).astype(np.float32)
+
+
+def material_exponent(height: np.ndarray, lo: float, hi: float, *, seed: int = 1) -> np.ndarray:
+    """Blinn-Phong specular exponents in [lo, hi] following the height (raised parts are more polished),
+    log-spaced, float32, same shape as ``height``."""
+    polish = 0.5 + 0.5 * tiling_noise(height.shape, scale=height.shape[0] / 10, seed=seed + 9)
+    t = np.clip(0.6 * height + 0.4 * polish, 0.0, 1.0)
+    return np.exp(np.log(lo) + t * (np.log(hi) - np.log(lo))).astype(np.float32)
+
+
+def library(folder: str | Path, *, size: int = 256, sky_width: int = 512,
+            materials: tuple = MATERIALS) -> dict[str, Path]:
+    """Write an invented texture library into ``folder``: per material ``<group>/<name>_height.png`` (16-bit)
+    and ``<group>/<name>_exponent.exr`` (half float Blinn-Phong exponents), and ``skies/clear_sky.hdr``.
+
+    Returns the written files by ``"<name>_height"``, ``"<name>_exponent"`` and ``"sky"``. Every file
+    is rebuilt exactly from the seeds in :data:`MATERIALS`.
+    """
+    from bakery.io.images import write_image
+
+    folder = Path(folder)
+    files: dict[str, Path] = {}
+    for group, name, kind, seed, (lo, hi) in materials:
+        (folder / group).mkdir(parents=True, exist_ok=True)
+        h = material_height(kind, size, seed=seed)
+        files[f"{name}_height"] = write_image(folder / group / f"{name}_height.png", h, depth="u16")
+        files[f"{name}_exponent"] = write_image(folder / group / f"{name}_exponent.exr",
+                                                material_exponent(h, lo, hi, seed=seed), depth="f16")
+    (folder / "skies").mkdir(parents=True, exist_ok=True)
+    files["sky"] = write_image(folder / "skies" / "clear_sky.hdr",
+                               sky_panorama(sky_width, sun_elevation_deg=50.0, sun_azimuth_deg=-30.0))
+    return files
+
+
+if __name__ == "__main__":  # python -m bakery.samples samples/ | python -m bakery.samples --library samples/library
     import sys
 
-    for name, p in write_samples(sys.argv[1] if len(sys.argv) > 1 else "samples").items():
+    if len(sys.argv) > 1 and sys.argv[1] == "--library":
+        made = library(sys.argv[2] if len(sys.argv) > 2 else "samples/library")
+    else:
+        made = write_samples(sys.argv[1] if len(sys.argv) > 1 else "samples")
+    for name, p in made.items():
         print(f"{name}: {p}")

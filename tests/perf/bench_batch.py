@@ -1,0 +1,89 @@
+"""Benchmark: a batch of 48 normal-map jobs of 1024² on this machine, and a no-change re-run.
+
+    python tests/perf/bench_batch.py [--bake normal] [--size 1024] [--count 48]
+
+Prints, each from runs of the ``bakery batch`` command in this same session:
+- the speed-up of ``--jobs 2`` over ``--jobs 1`` (target: at least 1.7 on 2 cores),
+- the time of a no-change re-run as a fraction of the full run (target: under 5 %), beside its floor: the
+  start-up of ``python -c "import bakery.cli"`` measured here.
+The bake must take one input (its first role is the matched file) and write PNG; ``--bake`` picks another
+registered bake (e.g. ``--bake test-invert --module tests.batch.bakes_for_tests`` to check the harness).
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT))
+
+
+def make_library(folder: Path, size: int, count: int) -> None:
+    from bakery.io import write_image
+    from bakery.samples import MATERIALS, material_height
+
+    kinds = [(name, kind, seed) for _, name, kind, seed, _ in MATERIALS]
+    base = {name: material_height(kind, size, seed=seed) for name, kind, seed in kinds}
+    for i in range(count):
+        name, _, _ = kinds[i % len(kinds)]
+        h = np.roll(base[name], shift=(37 * (i // len(kinds)), 53 * (i // len(kinds))), axis=(0, 1))
+        sub = folder / f"set{i // 12}"
+        sub.mkdir(parents=True, exist_ok=True)
+        write_image(sub / f"{name}{i}_height.png", h, depth="u16")
+
+
+def bakery_cmd(args: list[str], module: str | None) -> float:
+    pre = f"import {module}; " if module else ""
+    code = f"{pre}from bakery.cli import app; app({args!r})"
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    t0 = time.perf_counter()
+    r = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True)
+    dt = time.perf_counter() - t0
+    if r.returncode != 0:
+        sys.exit(f"bakery {' '.join(args)} failed ({r.returncode}):\n{r.stdout}\n{r.stderr}")
+    return dt
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--bake", default="normal")
+    ap.add_argument("--module", default=None, help="a module to import first (registers a test bake)")
+    ap.add_argument("--size", type=int, default=1024)
+    ap.add_argument("--count", type=int, default=48)
+    args = ap.parse_args()
+    tmp = Path(tempfile.mkdtemp(prefix="bench-batch-"))
+    try:
+        print(f"making {args.count} height maps of {args.size}² in {tmp} ...", flush=True)
+        make_library(tmp / "lib", args.size, args.count)
+        recipe = tmp / "bench.toml"
+        recipe.write_text(f'source = "lib"\noutput = "out"\n\n[[rule]]\nname = "maps"\nbake = "{args.bake}"\n'
+                          'match = "**/*_height.png"\noutput = "{dir}/{stem}_out.png"\n', encoding="utf-8")
+        times = {}
+        for jobs in (1, 2):
+            shutil.rmtree(tmp / "out", ignore_errors=True)
+            times[jobs] = bakery_cmd(["batch", str(recipe), "--jobs", str(jobs)], args.module)
+            print(f"full run, --jobs {jobs}: {times[jobs]:.2f} s", flush=True)
+        nochange = min(bakery_cmd(["batch", str(recipe), "--jobs", "2"], args.module) for _ in range(3))
+        t0 = time.perf_counter()
+        subprocess.run([sys.executable, "-c", "import bakery.cli"], env={**os.environ, "PYTHONPATH": str(ROOT)},
+                       check=True)
+        floor = time.perf_counter() - t0
+        print(f"no-change re-run: {nochange:.3f} s (start-up floor: python -c 'import bakery.cli' {floor:.3f} s)")
+        print(f"speed-up --jobs 2 / --jobs 1: {times[1] / times[2]:.2f}x  (target >= 1.7)")
+        print(f"no-change re-run / full run (--jobs 2): {100 * nochange / times[2]:.1f} %  (target < 5 %)")
+        print(f"no-change re-run / start-up floor: {nochange / floor:.2f}x")
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+
+
+if __name__ == "__main__":
+    main()
