@@ -5,6 +5,7 @@ They read and write through :mod:`bakery.io` like real bakes: outputs atomically
 
 from __future__ import annotations
 
+import os
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -14,10 +15,12 @@ from bakery.bakes import Bake, params_to_dict, register
 
 @dataclass(frozen=True)
 class InvertParams:
-    """``out = gain * (1 - in)``; ``delay`` seconds of sleep make jobs slow enough to interrupt."""
+    """``out = gain * (1 - in)``; ``delay`` seconds of sleep make jobs slow enough to interrupt; a non-zero
+    ``crash`` ends the worker process abruptly with that exit status (as a segfault or the OOM killer would)."""
 
     gain: float = 1.0
     delay: float = 0.0
+    crash: int = 0
 
 
 def _invert(inputs: dict[str, Path], output: Path, params: InvertParams) -> list[Path]:
@@ -26,6 +29,8 @@ def _invert(inputs: dict[str, Path], output: Path, params: InvertParams) -> list
     img = read_image(inputs["source"])
     if params.delay:
         time.sleep(params.delay)
+    if params.crash:
+        os._exit(params.crash)
     write_image(output, params.gain * (1.0 - img.pixels), depth=img.depth if img.depth != "f32" else None)
     m = write_manifest(output, bake="test-invert", inputs=inputs, params=params_to_dict(params), outputs=[output])
     return [output, m]

@@ -160,3 +160,35 @@ def test_no_change_run_imports_nothing_heavy(library):
 def test_bad_jobs_value(library):
     with pytest.raises(BakeryError, match="jobs must be a whole number of at least 1; got 0"):
         run(library, jobs=0)
+
+
+def test_a_dying_worker_fails_its_job_and_the_rest_finishes(library, tmp_path):
+    (tmp_path / "lib" / "stone" / "bakery-folder.toml").write_text("[rule.inv]\ncrash = 3\n")
+    rep = run(library, jobs=1)
+    failed = [j for j in rep.jobs if j.status == "failed"]
+    assert [j.output for j in failed] == ["stone/stone_inv.png"]
+    assert "a worker process died" in failed[0].error
+    assert (rep.ran, rep.exit_code) == (6, 1)
+
+
+def test_progress_displays(library):
+    import io
+
+    from bakery.batch.report import BarProgress, PlainProgress
+
+    rep = run(library, dry_run=True)
+    job = rep.jobs[0]
+    job.status, job.seconds, job.warnings = "ran", 0.5, ["values clipped"]
+    bad = rep.jobs[1]
+    bad.status, bad.error = "failed", "x.png: file not found"
+    for cls in (PlainProgress, BarProgress):
+        stream = io.StringIO()
+        p = cls(stream)
+        p.start(2, 6, "local", 2)
+        p.update(job)
+        p.update(bad)
+        p.stop()
+        text = stream.getvalue()
+        assert "batch: 2 job(s) to run, 6 up to date (local, 2 workers)" in text
+        assert "FAILED inv: stone/stone_height.png -> stone/stone_inv.png: x.png: file not found" in text
+        assert "warning: metal/metal_inv.png: values clipped" in text
