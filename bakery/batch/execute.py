@@ -33,6 +33,7 @@ THREAD_ENV = {
     "NUMEXPR_NUM_THREADS": "1",
     "NUMBA_NUM_THREADS": "1",
     "OPENCV_FOR_THREADS_NUM": "1",
+    "BAKERY_THREADS": "1",  # for bakes that start their own thread pools (see DEVELOPERS.md)
 }
 
 Spec = dict[str, Any]
