@@ -118,8 +118,8 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
         notes = []
         if cache.interrupted:
             removed = _remove_temp_files(recipe.output)
-            notes.append(f"the previous run was cut off; finished jobs are kept"
-                         f"{f', {removed} temporary file(s) removed' if removed else ''}")
+            notes.append("the previous run was cut off; finished jobs are kept"
+                         + (f", {removed} temporary file(s) removed" if removed else ""))
         try:
             plan = make_plan(recipe, cache=cache, **plan_args)
             to_run = plan.to_run
@@ -128,7 +128,7 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
             else:
                 executor, workers = "local", max(1, min(jobs, len(to_run)))
             rep = _report(recipe, plan, version, executor, workers, False, started)
-            rep.notes = notes + rep.notes
+            rep.notes = notes
             results = {id(j): r for j, r in zip(plan.jobs, rep.jobs, strict=True)}
             cache.begin()
             for job in plan.jobs:

@@ -77,7 +77,6 @@ class Plan:
     jobs: list[Job]
     cache: Cache
     unselected: int = 0
-    folder_files: list[str] = field(default_factory=list)
     all_outputs: set[str] = field(default_factory=set)  # outputs of every job, selected by --only or not
 
     @property
@@ -170,7 +169,7 @@ def make_plan(recipe: Recipe, *, force: bool = False, only: tuple[str, ...] = ()
         named = {role: (Path(rel).name, job.digests[role]) for role, rel in job.inputs.items()}
         job.key = job_key(job.bake, named, job.params, __version__)
         job.action, job.reason = _decide(job, cache, recipe.output, force, __version__)
-    return Plan(recipe, jobs, cache, unselected, [_shown(recipe, d) for d in folders], all_outputs)
+    return Plan(recipe, jobs, cache, unselected, all_outputs)
 
 
 def _shown(recipe: Recipe, folder: str) -> str:

@@ -24,7 +24,7 @@ from __future__ import annotations
 
 import re
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -121,7 +121,6 @@ class Recipe:
     output: Path
     defaults: dict[str, dict[str, Any]]
     rules: tuple[Rule, ...]
-    text_digest: str = field(default="", compare=False)
 
 
 # ---------------------------------------------------------------------------------------------- parsing
@@ -230,8 +229,6 @@ def load_recipe(path: str | Path) -> Recipe:
     Parameters are checked against each bake's parameter dataclass here, so a wrong value stops the run
     before any job starts.
     """
-    import hashlib
-
     from bakery.bakes import get_bake, params_from_mapping
 
     path = Path(path)
@@ -246,6 +243,8 @@ def load_recipe(path: str | Path) -> Recipe:
     output = _root(data, "output", base, where)
     if not source.is_dir():
         raise BakeryError(f"{where}: key 'source': folder {source} does not exist")
+    if output.exists() and not output.is_dir():
+        raise BakeryError(f"{where}: key 'output': {output} is a file; the output root must be a folder")
     if output == source or _inside(output, source) or _inside(source, output):
         raise BakeryError(f"{where}: key 'output': the output root {output} and the source root {source} must "
                           "not contain each other (outputs would mix with sources)")
@@ -274,8 +273,7 @@ def load_recipe(path: str | Path) -> Recipe:
             raise BakeryError(f"{rule.where}: another rule has the name {rule.name!r}; names must be unique")
         names.add(rule.name)
         rules.append(rule)
-    digest = hashlib.sha256(path.read_bytes()).hexdigest()
-    return Recipe(path.resolve(), source, output, defaults, tuple(rules), digest)
+    return Recipe(path.resolve(), source, output, defaults, tuple(rules))
 
 
 def _root(data: dict, key: str, base: Path, where: str) -> Path:

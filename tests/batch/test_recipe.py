@@ -97,6 +97,13 @@ def test_validation_names_file_key_and_expectation(tmp_path, change, message):
     assert str(info.value).startswith(str(p))
 
 
+def test_output_root_that_is_a_file(tmp_path):
+    p = _recipe(tmp_path, RECIPE)
+    (tmp_path / "out").write_text("x")
+    with pytest.raises(BakeryError, match=r"key 'output': .*out is a file; the output root must be a folder"):
+        load_recipe(p)
+
+
 def test_no_rules(tmp_path):
     with pytest.raises(BakeryError, match=r"no rules; add at least one \[\[rule\]\]"):
         load_recipe(_recipe(tmp_path, 'source = "lib"\noutput = "out"\n'))
