@@ -181,10 +181,10 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
 
 def _spec(recipe: Recipe, job: Any) -> dict[str, Any]:
     rule = next(r for r in recipe.rules if r.name == job.rule)
-    first = next(iter(job.inputs.values()))
+    first = next(iter(job.inputs.values()), None)
     return {"bake": job.bake, "module": job.module, "output": job.output, "out_root": str(recipe.output),
             "inputs": {role: str(recipe.source / rel) for role, rel in job.inputs.items()},
-            "values": job.values, "where": f"{rule.where}: params for {first}"}
+            "values": job.values, "where": f"{rule.where}: params" + (f" for {first}" if first else "")}
 
 
 def _report(recipe: Recipe, plan: Any, version: str, executor: str, workers: int, dry_run: bool,

@@ -122,14 +122,16 @@ def make_plan(recipe: Recipe, *, force: bool = False, only: tuple[str, ...] = ()
     unselected = 0
     for rule in recipe.rules:
         bake = get_bake(rule.bake)
-        first = bake.inputs[0].rstrip("?")
         rule_jobs = []
-        for rel in files:
-            fields = rule.match.match(rel)
-            if fields is None or any(e.match(rel) is not None for e in rule.exclude):
-                continue
-            values = _path_fields(rel, rule) | fields
-            job_inputs: dict[str, str] = {first: rel}
+        for rel in files if rule.match is not None else [None]:
+            if rel is None:  # a bake without inputs: one job
+                values, job_inputs = {"rule": rule.name}, {}
+            else:
+                fields = rule.match.match(rel)
+                if fields is None or any(e.match(rel) is not None for e in rule.exclude):
+                    continue
+                values = _path_fields(rel, rule) | fields
+                job_inputs = {bake.inputs[0].rstrip("?"): rel}
             missing: list[str] = []
             for role, tmpl in rule.inputs.items():
                 try:
@@ -148,7 +150,7 @@ def make_plan(recipe: Recipe, *, force: bool = False, only: tuple[str, ...] = ()
                 raise BakeryError(f"{rule.where}: key 'output': {exc}") from None
             check_output(out_root, output, rule)
             merged, origins = _resolve_values(rule, recipe, settings, rel)
-            params_obj = params_from_mapping(bake, merged, f"{rule.where}: params for {rel}")
+            params_obj = params_from_mapping(bake, merged, f"{rule.where}: params" + (f" for {rel}" if rel else ""))
             job = Job(rule.name, bake.name, bake.run.__module__, dict(sorted(job_inputs.items())), output,
                       merged, params_to_dict(params_obj), origins)
             if missing:
@@ -184,7 +186,7 @@ def _path_fields(rel: str, rule: Rule) -> dict[str, str]:
 
 
 def _resolve_values(rule: Rule, recipe: Recipe, settings: dict[str, FolderSettings],
-                    rel: str) -> tuple[dict[str, Any], dict[str, str]]:
+                    rel: str | None) -> tuple[dict[str, Any], dict[str, str]]:
     """Merge parameter values: recipe defaults < rule < folder files from the root down (bake, then rule)."""
     merged: dict[str, Any] = {}
     origins: dict[str, str] = {}
@@ -197,7 +199,9 @@ def _resolve_values(rule: Rule, recipe: Recipe, settings: dict[str, FolderSettin
 
     put(recipe.defaults.get(rule.bake, {}), f"recipe [defaults.{rule.bake}]")
     put(rule.params, f"rule {rule.name!r}")
-    parts = Path(rel).parent.parts
+    parts = Path(rel).parent.parts if rel is not None else None
+    if parts is None:  # no input file, no folder
+        return dict(sorted(merged.items())), dict(sorted(origins.items()))
     for depth in range(len(parts) + 1):
         folder = "/".join(parts[:depth])
         s = settings.get(folder)
@@ -224,8 +228,8 @@ def _check_unique(jobs: list[Job]) -> None:
     for job in jobs:
         other = seen.get(job.output)
         if other is not None:
-            a = next(iter(other.inputs.values()))
-            b = next(iter(job.inputs.values()))
+            a = next(iter(other.inputs.values()), "no input")
+            b = next(iter(job.inputs.values()), "no input")
             raise BakeryError(f"two jobs write {job.output}: rule {other.rule!r} from {a} and rule {job.rule!r} "
                               f"from {b}; make the output templates differ")
         seen[job.output] = job

@@ -83,8 +83,9 @@ class Rule:
         Unique within the recipe; names the rule in plans, reports, folder files and ``--only``.
     bake : str
         A registered bake (:func:`bakery.bakes.get_bake`).
-    match : Pattern
-        Selects the files that fill the bake's first input role (one job per matched file).
+    match : Pattern or None
+        Selects the files that fill the bake's first input role (one job per matched file). None for a bake
+        without inputs: the rule makes exactly one job.
     exclude : tuple of Pattern
         Files matched by any of these are left out.
     output : Template
@@ -103,7 +104,7 @@ class Rule:
 
     name: str
     bake: str
-    match: Pattern
+    match: Pattern | None
     exclude: tuple[Pattern, ...]
     output: Template
     inputs: dict[str, Template]
@@ -288,7 +289,7 @@ def _inside(path: Path, root: Path) -> bool:
 
 
 def _rule(raw: Any, index: int, where: str, defaults: dict) -> Rule:
-    from bakery.bakes import get_bake, params_from_mapping
+    from bakery.bakes import get_bake
 
     w = f"{where}: rule {index}"
     if not isinstance(raw, dict):
@@ -301,7 +302,7 @@ def _rule(raw: Any, index: int, where: str, defaults: dict) -> Rule:
     unknown = sorted(set(raw) - _RULE_KEYS)
     if unknown:
         raise BakeryError(f"{w}: unknown key {unknown[0]!r}; a rule has: {', '.join(sorted(_RULE_KEYS))}")
-    for key in ("bake", "match", "output"):
+    for key in ("bake", "output"):
         if key not in raw:
             raise BakeryError(f"{w}: missing key {key!r}")
     if not isinstance(raw["bake"], str):
@@ -312,6 +313,17 @@ def _rule(raw: Any, index: int, where: str, defaults: dict) -> Rule:
         raise BakeryError(f"{w}: key 'bake': {exc}") from None
     if name is None:
         name = f"{bake.name}-{index}"
+    if not bake.inputs:  # a bake without inputs (a table, a lookup texture): one job per rule
+        extra = sorted({"match", "exclude", "inputs"} & set(raw))
+        if extra:
+            raise BakeryError(f"{w}: key {extra[0]!r}: bake {bake.name!r} reads no input files, so its rule makes "
+                              "one job and takes no 'match', 'exclude' or 'inputs'")
+        output = compile_template(raw["output"], ("rule",), f"{w}: key 'output'")
+        return Rule(name, bake.name, None, (), output, {}, _params(raw, bake, defaults, w),
+                    _unpaired(raw, w), w)
+    if "match" not in raw:
+        raise BakeryError(f"{w}: missing key 'match' (the pattern of the files for input "
+                          f"{bake.inputs[0].rstrip('?')!r})")
     match = compile_pattern(raw["match"], f"{w}: key 'match'")
     excl_raw = raw.get("exclude", [])
     if isinstance(excl_raw, str):
@@ -331,18 +343,29 @@ def _rule(raw: Any, index: int, where: str, defaults: dict) -> Rule:
             raise BakeryError(f"{w}: key 'inputs.{role}': bake {bake.name!r} has no input {role!r}; its inputs "
                               f"are: {', '.join(bake.inputs)}")
         inputs[role] = compile_template(text, available, f"{w}: key 'inputs.{role}'")
-    missing = [r for r in bake.required_inputs[1:] if r not in inputs]
+    missing = [r for r in bake.required_inputs if r != roles[0] and r not in inputs]
     if missing:
         raise BakeryError(f"{w}: bake {bake.name!r} needs input {missing[0]!r} too; name it with "
                           f"inputs.{missing[0]} = \"<template>\", e.g. \"{{dir}}/{{stem}}_{missing[0]}.png\"")
+    return Rule(name, bake.name, match, exclude, output, inputs, _params(raw, bake, defaults, w),
+                _unpaired(raw, w), w)
+
+
+def _params(raw: dict, bake: Any, defaults: dict, w: str) -> dict[str, Any]:
+    from bakery.bakes import params_from_mapping
+
     params = raw.get("params", {})
     if not isinstance(params, dict):
         raise BakeryError(f"{w}: key 'params': expected a table of parameter = value")
     params_from_mapping(bake, {**defaults.get(bake.name, {}), **params}, f"{w}: params")
+    return dict(params)
+
+
+def _unpaired(raw: dict, w: str) -> str:
     unpaired = raw.get("unpaired", "skip")
     if unpaired not in ("skip", "fail"):
         raise BakeryError(f"{w}: key 'unpaired': expected \"skip\" or \"fail\"; got {unpaired!r}")
-    return Rule(name, bake.name, match, exclude, output, inputs, dict(params), unpaired, w)
+    return unpaired
 
 
 # ---------------------------------------------------------------------------------------------- folder files

@@ -112,7 +112,9 @@ class BatchReport:
 
 def job_line(job: JobResult) -> str:
     """``rule: a.png -> b.png`` (roles named when a job has several inputs)."""
-    if len(job.inputs) == 1:
+    if not job.inputs:
+        src = "(no input)"
+    elif len(job.inputs) == 1:
         src = next(iter(job.inputs.values()))["path"]
     else:
         src = " + ".join(f"{role}={v['path']}" for role, v in job.inputs.items())

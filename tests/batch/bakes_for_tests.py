@@ -59,3 +59,23 @@ def _mix(inputs: dict[str, Path], output: Path, params: MixParams) -> list[Path]
 INVERT = register(Bake("test-invert", "1 - x (batch tests)", ("source",), InvertParams, _invert))
 MIX = register(Bake("test-mix", "weighted mix of two maps (batch tests)", ("base", "detail", "mask?"), MixParams,
                     _mix))
+
+
+@dataclass(frozen=True)
+class RampParams:
+    """A horizontal ramp of ``size`` texels from 0 to 1."""
+
+    size: int = 8
+
+
+def _ramp(inputs: dict[str, Path], output: Path, params: RampParams) -> list[Path]:
+    import numpy as np
+
+    from bakery.io import write_image, write_manifest
+
+    write_image(output, np.tile(np.linspace(0, 1, params.size, dtype=np.float32), (2, 1)), depth="u16")
+    m = write_manifest(output, bake="test-ramp", inputs={}, params=params_to_dict(params), outputs=[output])
+    return [output, m]
+
+
+RAMP = register(Bake("test-ramp", "a ramp, no inputs (batch tests)", (), RampParams, _ramp))

@@ -108,3 +108,17 @@ def test_output_into_the_state_folder_is_refused(library):
 def test_only(library, only, outputs):
     plan = _plan(library, only=only)
     assert len(plan.jobs) == outputs and plan.unselected == 8 - outputs
+
+
+def test_a_bake_without_inputs_makes_one_job(library):
+    library.write_text(library.read_text() + '\n[[rule]]\nname = "ramp"\nbake = "test-ramp"\n'
+                       'output = "tables/{rule}.png"\nparams = { size = 4 }\n')
+    rep = run(library, jobs=1)
+    ramp = [j for j in rep.jobs if j.rule == "ramp"]
+    assert [(j.output, j.inputs, j.status, j.params) for j in ramp] == [("tables/ramp.png", {}, "ran", {"size": 4})]
+    assert run(library, dry_run=True).planned == 0
+    library.write_text(library.read_text().replace("size = 4", "size = 5"))
+    assert [j.output for j in run(library, dry_run=True).jobs if j.status == "planned"] == ["tables/ramp.png"]
+    library.write_text(library.read_text().replace('bake = "test-ramp"', 'bake = "test-ramp"\nmatch = "*.png"'))
+    with pytest.raises(BakeryError, match=r"rule 'ramp': key 'match': bake 'test-ramp' reads no input files"):
+        load_recipe(library)

@@ -89,6 +89,8 @@ def _recipe(tmp_path, text):
     (('source = "lib"', 'sources = "lib"'), r"unknown key 'sources'"),
     (('name = "inv"', 'name = "inv"\nunpaired = "maybe"'), r"key 'unpaired': expected \"skip\" or \"fail\""),
     (("gain = 0.9", "gain = 0.9\n[[rule"), r"TOML syntax error: .*line 6"),
+    (('match = "**/{m}_height.png"\noutput = "{dir}/{m}_inv.png"', 'output = "{dir}/{m}_inv.png"'),
+     r"rule 'inv': missing key 'match' \(the pattern of the files for input 'source'\)"),
 ])
 def test_validation_names_file_key_and_expectation(tmp_path, change, message):
     p = _recipe(tmp_path, RECIPE.replace(*change))
