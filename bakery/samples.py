@@ -288,13 +288,30 @@ def material_exponent(height: np.ndarray, lo: float, hi: float, *, seed: int = 1
     return np.exp(np.log(lo) + t * (np.log(hi) - np.log(lo))).astype(np.float32)
 
 
+def _slope_normals(height: np.ndarray, scale: float) -> np.ndarray:
+    """Demo normal map from a height map by wrapped central differences, encoded n/2 + 1/2 (+Y up): invented
+    "authored" data for the sample library, not the normal bake."""
+    gx = (np.roll(height, -1, axis=1) - np.roll(height, 1, axis=1)) * (0.5 * scale)
+    gy = (np.roll(height, 1, axis=0) - np.roll(height, -1, axis=0)) * (0.5 * scale)  # rows run downward
+    n = np.stack([-gx, -gy, np.ones_like(height)], axis=-1)
+    n /= np.linalg.norm(n, axis=-1, keepdims=True)
+    return (0.5 * n + 0.5).astype(np.float32)
+
+
 def library(folder: str | Path, *, size: int = 256, sky_width: int = 512,
             materials: tuple = MATERIALS) -> dict[str, Path]:
-    """Write an invented texture library into ``folder``: per material ``<group>/<name>_height.png`` (16-bit)
-    and ``<group>/<name>_exponent.exr`` (half float Blinn-Phong exponents), and ``skies/clear_sky.hdr``.
+    """Write an invented texture library into ``folder``.
 
-    Returns the written files by ``"<name>_height"``, ``"<name>_exponent"`` and ``"sky"``. Every file
-    is rebuilt exactly from the seeds in :data:`MATERIALS`.
+    - Legacy materials (every group but ``ceramic``): ``<group>/<name>_height.png`` (16-bit) and
+      ``<group>/<name>_exponent.exr`` (half-float Blinn-Phong exponents).
+    - Authored materials (``ceramic``): ``ceramic/<name>_normal.png`` (8-bit, +Y up) and
+      ``ceramic/<name>_roughness.png`` (8-bit perceptual roughness), except ``mosaic``, which has no roughness
+      map (a pairing gap for batch recipes to report).
+    - ``details/crackle_normal.png``: a fine detail normal map to blend over the authored ones.
+    - ``skies/clear_sky.hdr``: an HDR panorama (:func:`sky_panorama`).
+
+    Returns the written files by ``"<name>_<map>"``, ``"crackle_normal"`` and ``"sky"``. Every file is rebuilt
+    exactly from the seeds in :data:`MATERIALS`.
     """
     from bakery.io.images import write_image
 
@@ -303,9 +320,22 @@ def library(folder: str | Path, *, size: int = 256, sky_width: int = 512,
     for group, name, kind, seed, (lo, hi) in materials:
         (folder / group).mkdir(parents=True, exist_ok=True)
         h = material_height(kind, size, seed=seed)
-        files[f"{name}_height"] = write_image(folder / group / f"{name}_height.png", h, depth="u16")
-        files[f"{name}_exponent"] = write_image(folder / group / f"{name}_exponent.exr",
-                                                material_exponent(h, lo, hi, seed=seed), depth="f16")
+        exponent = material_exponent(h, lo, hi, seed=seed)
+        if group != "ceramic":
+            files[f"{name}_height"] = write_image(folder / group / f"{name}_height.png", h, depth="u16")
+            files[f"{name}_exponent"] = write_image(folder / group / f"{name}_exponent.exr", exponent, depth="f16")
+            continue
+        files[f"{name}_normal"] = write_image(folder / group / f"{name}_normal.png",
+                                              _slope_normals(h, 0.05 * size), depth="u8")
+        if name != "mosaic":
+            # perceptual roughness r = (2 / (n + 2))^(1/4), i.e. n = 2/alpha^2 - 2 with alpha = r^2 (Walter et al.
+            # 2007, Microfacet Models for Refraction, sec. 5.2, from memory; Burley 2012 for alpha = r^2)
+            r = (2.0 / (exponent + 2.0)) ** 0.25
+            files[f"{name}_roughness"] = write_image(folder / group / f"{name}_roughness.png", r, depth="u8")
+    (folder / "details").mkdir(parents=True, exist_ok=True)
+    crackle = material_height("dimples", size, seed=99) * 0.3 + 0.02 * tiling_noise((size, size), scale=2.0, seed=98)
+    files["crackle_normal"] = write_image(folder / "details" / "crackle_normal.png",
+                                          _slope_normals(crackle, 0.08 * size), depth="u8")
     (folder / "skies").mkdir(parents=True, exist_ok=True)
     files["sky"] = write_image(folder / "skies" / "clear_sky.hdr",
                                sky_panorama(sky_width, sun_elevation_deg=50.0, sun_azimuth_deg=-30.0))

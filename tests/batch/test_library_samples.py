@@ -29,8 +29,13 @@ def test_exponents_span_their_range():
 
 def test_library_files(tmp_path):
     files = library(tmp_path, size=32, sky_width=64)
-    assert len(MATERIALS) == 12 and len(files) == 2 * 12 + 1
+    assert len(MATERIALS) == 12
+    # 9 legacy materials (height + exponent), 3 authored (normal + roughness, mosaic without), detail, sky
+    assert len(files) == 9 * 2 + 3 + 2 + 1 + 1
     assert files["oak_height"] == tmp_path / "wood" / "oak_height.png"
+    assert "mosaic_normal" in files and "mosaic_roughness" not in files
+    n = read_image(files["tile_normal"]).pixels * 2 - 1
+    assert np.allclose(np.linalg.norm(n, axis=-1), 1, atol=0.02)  # unit vectors up to 8-bit rounding
     assert read_image(files["oak_height"]).depth == "u16"
     assert read_image(files["oak_exponent"]).depth == "f16"
     sky = read_image(files["sky"])
