@@ -245,7 +245,7 @@ def material_height(kind: str, size: int = 256, *, seed: int = 1) -> np.ndarray:
     """A seamlessly tiling height map in [0, 1], float32 ``(size, size)``, for one invented surface kind.
 
     ``kind``: ``"stones"`` (irregular paving, :func:`paving_height`), ``"planks"`` (wood boards with grain
-    and seams), ``"brushed"`` (fine streaks along x), ``"dimples"`` (hammered metal: round dents),
+    and seams), ``"brushed"`` (fine streaks along x), ``"dimples"`` (hammered metal: dents sunk from ridges),
     ``"tiles"`` (square tiles with bevels and grout).
     """
     rng = np.random.default_rng(seed)
@@ -266,7 +266,7 @@ def material_height(kind: str, size: int = 256, *, seed: int = 1) -> np.ndarray:
     elif kind == "dimples":
         _, gap = _voronoi_torus(shape, int(rng.integers(20, 40)), seed)
         r = size / 12
-        h = 0.35 + 0.55 * np.sqrt(np.clip(gap / r, 0, 1)) + 0.03 * tiling_noise(shape, scale=size / 32, seed=seed)
+        h = 0.9 - 0.55 * np.sqrt(np.clip(gap / r, 0, 1)) + 0.03 * tiling_noise(shape, scale=size / 32, seed=seed)
     elif kind == "tiles":
         count = int(rng.choice([2, 4, 8]))
         fx, fy = np.mod(x * count, 1.0), np.mod(y * count, 1.0)
