@@ -112,6 +112,21 @@ def run_bake(name: str, inputs: Mapping[str, str | os.PathLike], output: str | o
     return bake.run(paths, output, params)
 
 
+def bake_threads() -> int | None:
+    """How many threads a bake may start for one job: ``BAKERY_THREADS`` when set (batch workers set 1, so N
+    workers use N cores), else None (each function's own default). Results never depend on it."""
+    value = os.environ.get("BAKERY_THREADS", "").strip()
+    if not value:
+        return None
+    try:
+        n = int(value)
+    except ValueError:
+        raise BakeryError(f"BAKERY_THREADS must be a whole number; got {value!r}") from None
+    if n < 1:
+        raise BakeryError(f"BAKERY_THREADS must be at least 1; got {n}")
+    return n
+
+
 def params_to_dict(params: Any) -> dict[str, Any]:
     """A bake's parameters as plain JSON-able values (for manifests and cache keys)."""
     out = {}

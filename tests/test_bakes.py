@@ -37,3 +37,15 @@ def test_bad_values_name_the_place(values, match):
     with pytest.raises(BakeryError, match=match) as info:
         params_from_mapping(_BAKE, values, "r.toml: rule 'a'")
     assert str(info.value).startswith("r.toml: rule 'a'")
+
+
+def test_bake_threads_from_the_environment(monkeypatch):
+    from bakery.bakes import bake_threads
+
+    monkeypatch.delenv("BAKERY_THREADS", raising=False)
+    assert bake_threads() is None
+    monkeypatch.setenv("BAKERY_THREADS", "1")
+    assert bake_threads() == 1
+    monkeypatch.setenv("BAKERY_THREADS", "many")
+    with pytest.raises(BakeryError, match="BAKERY_THREADS must be a whole number; got 'many'"):
+        bake_threads()

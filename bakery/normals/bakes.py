@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
-from bakery.bakes import Bake, params_to_dict, register
+from bakery.bakes import Bake, bake_threads, params_to_dict, register
 from bakery.errors import BakeryError, BakeryWarning
 
 KernelName = Literal["scharr", "sobel", "prewitt", "central"]
@@ -225,11 +225,11 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams) -> list[P
                 b = blocks[key] = np.empty((r1 - r0, cols, 3), np.float32)
             return b[: r1 - r0]
 
-        run_strips(h, target=target, finish=finish, threads=None, **opts)
+        run_strips(h, target=target, finish=finish, threads=bake_threads(), **opts)
         del h
         write_image(output, q)
     else:
-        n = normal_from_height(h, **opts)
+        n = normal_from_height(h, threads=bake_threads(), **opts)
         del h
         write_image(output, encode_normals(n, y=p.y, channels=p.channels), depth=depth)
     extra = {"conventions": _conventions(p.y),
