@@ -342,11 +342,70 @@ def library(folder: str | Path, *, size: int = 256, sky_width: int = 512,
     return files
 
 
+#: The batch recipe over :func:`library` (``samples/library.toml`` is this text; see docs/batch.md).
+LIBRARY_RECIPE = """\
+# A batch recipe over the sample library (see docs/batch.md).
+#   python -m bakery.samples --library samples/library   # writes the library (invented, procedural)
+#   bakery batch samples/library.toml --dry-run           # the plan
+#   bakery batch samples/library.toml                     # bake it; run it again: nothing to do
+# samples/library/stone/bakery-folder.toml overrides a parameter for the stone materials.
+
+source = "library"
+output = "library-baked"
+
+# For every rule that runs the "normal" bake.
+[defaults.normal]
+strength = 6.0
+kernel = "scharr"
+
+# Legacy materials: height maps -> tangent-space normal maps (16-bit, like their heights).
+[[rule]]
+name = "normals"
+bake = "normal"
+match = "**/{material}_height.png"
+output = "{dir}/{material}_normal.png"
+
+# Authored materials: the crackle detail layered over each normal map (one fixed partner for all).
+[[rule]]
+name = "crackle"
+bake = "blend"
+match = "ceramic/{material}_normal.png"
+inputs.detail = "details/crackle_normal.png"
+output = "{dir}/{material}_normal_crackle.png"
+params = { detail-strength = 0.5 }
+"""
+
+#: Per-folder override files of the sample library, by folder.
+LIBRARY_FOLDER_FILES = {"stone": """\
+# Stone has deeper relief than the rest of the library: steeper normals for every stone material.
+[bake.normal]
+strength = 10.0
+"""}
+
+
+def write_library_recipe(folder: str | Path) -> Path:
+    """Write :data:`LIBRARY_RECIPE` as ``<folder>.toml`` beside the library ``folder`` (its source root;
+    outputs go to ``<folder>-baked``) and the folder files into ``folder``; return the recipe path."""
+    from bakery.io.atomic import atomic_output
+
+    folder = Path(folder)
+    text = LIBRARY_RECIPE.replace('source = "library"', f'source = "{folder.name}"')
+    text = text.replace('output = "library-baked"', f'output = "{folder.name}-baked"')
+    files = {folder.parent / f"{folder.name}.toml": text}
+    files |= {folder / sub / "bakery-folder.toml": t for sub, t in LIBRARY_FOLDER_FILES.items()}
+    for target, content in files.items():
+        target.parent.mkdir(parents=True, exist_ok=True)
+        with atomic_output(target) as tmp:
+            tmp.write_text(content, encoding="utf-8")
+    return folder.parent / f"{folder.name}.toml"
+
 if __name__ == "__main__":  # python -m bakery.samples samples/ | python -m bakery.samples --library samples/library
     import sys
 
-    if len(sys.argv) > 1 and sys.argv[1] == "--library":
-        made = library(sys.argv[2] if len(sys.argv) > 2 else "samples/library")
+    if len(sys.argv) > 1 and sys.argv[1] == "--library":  # the maps, plus the recipe and folder files beside them
+        folder = Path(sys.argv[2] if len(sys.argv) > 2 else "samples/library")
+        made = library(folder)
+        made["recipe"] = write_library_recipe(folder)
     else:
         made = write_samples(sys.argv[1] if len(sys.argv) > 1 else "samples")
     for name, p in made.items():

@@ -126,7 +126,7 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
             if client is not None:
                 executor, workers = f"dask {cluster}", max(1, sum(client.nthreads().values()))
             else:
-                executor, workers = "local", max(1, min(jobs, len(to_run)))
+                executor, workers = "local", min(jobs, len(to_run))  # 0: nothing to run, no worker started
             rep = _report(recipe, plan, version, executor, workers, False, started)
             rep.notes = notes
             results = {id(j): r for j, r in zip(plan.jobs, rep.jobs, strict=True)}

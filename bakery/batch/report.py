@@ -90,8 +90,9 @@ class BatchReport:
             text = (f"plan: {self.planned} to run, {self.skipped} skipped, {self.failed} failing "
                     f"({len(self.jobs)} jobs)")
         else:
-            text = (f"batch: {self.ran} ran, {self.skipped} skipped, {self.failed} failed in "
-                    f"{self.seconds:.1f} s ({self.executor}, {self.workers} worker{'s' * (self.workers != 1)})")
+            text = f"batch: {self.ran} ran, {self.skipped} skipped, {self.failed} failed in {self.seconds:.1f} s"
+            if self.workers:
+                text += f" ({self.executor}, {self.workers} worker{'s' * (self.workers != 1)})"
         if self.unselected:
             text += f"; {self.unselected} not selected by --only"
         return text

@@ -40,3 +40,19 @@ def test_library_files(tmp_path):
     assert read_image(files["oak_exponent"]).depth == "f16"
     sky = read_image(files["sky"])
     assert sky.pixels.shape == (32, 64, 3) and sky.pixels.max() > 100
+
+
+def test_sample_recipe_is_the_generated_one(tmp_path):
+    from pathlib import Path
+
+    from bakery.samples import LIBRARY_FOLDER_FILES, LIBRARY_RECIPE, write_library_recipe
+
+    root = Path(__file__).resolve().parents[2]
+    assert (root / "samples" / "library.toml").read_text(encoding="utf-8") == LIBRARY_RECIPE
+    for sub, text in LIBRARY_FOLDER_FILES.items():
+        assert (root / "samples" / "library" / sub / "bakery-folder.toml").read_text(encoding="utf-8") == text
+    recipe = write_library_recipe(tmp_path / "lib")
+    assert recipe == tmp_path / "lib.toml"
+    text = recipe.read_text(encoding="utf-8")
+    assert 'source = "lib"' in text and 'output = "lib-baked"' in text
+    assert (tmp_path / "lib" / "stone" / "bakery-folder.toml").exists()
