@@ -365,6 +365,14 @@ bake = "normal"
 match = "**/{material}_height.png"
 output = "{dir}/{material}_normal.png"
 
+# Legacy materials: Blinn-Phong specular exponents -> perceptual roughness, 8-bit.
+[[rule]]
+name = "roughness"
+bake = "roughness"
+match = "**/{material}_exponent.exr"
+output = "{dir}/{material}_roughness.png"
+params = { depth = "u8" }
+
 # Authored materials: the crackle detail layered over each normal map (one fixed partner for all).
 [[rule]]
 name = "crackle"
@@ -373,6 +381,25 @@ match = "ceramic/{material}_normal.png"
 inputs.detail = "details/crackle_normal.png"
 output = "{dir}/{material}_normal_crackle.png"
 params = { detail-strength = 0.5 }
+
+# Authored materials: normal map + roughness map -> anti-aliased roughness mips (NAME.mip00.png ...), the two
+# maps paired by material name; a missing roughness map fails the job.
+[[rule]]
+name = "roughness-mips"
+bake = "antialias"
+match = "ceramic/{material}_normal.png"
+exclude = "ceramic/mosaic_*"
+inputs.roughness = "{dir}/{material}_roughness.png"
+unpaired = "fail"
+output = "{dir}/{material}_roughness_aa.png"
+
+# Mosaic was authored without a roughness map: a constant roughness under its mips.
+[[rule]]
+name = "mosaic-roughness-mips"
+bake = "antialias"
+match = "ceramic/mosaic_normal.png"
+output = "{dir}/mosaic_roughness_aa.png"
+params = { roughness = 0.3 }
 """
 
 #: Per-folder override files of the sample library, by folder.
