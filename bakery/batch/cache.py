@@ -22,7 +22,6 @@ from __future__ import annotations
 import contextlib
 import json
 import os
-import socket
 from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -190,7 +189,8 @@ def run_lock(root: Path) -> Iterator[Path]:
                               "finish (the lock goes away by itself when that run ends)", root)
         os.ftruncate(fd, 0)
         os.lseek(fd, 0, os.SEEK_SET)
-        os.write(fd, f"pid {os.getpid()} on {socket.gethostname()}".encode())
+        host = os.uname().nodename if hasattr(os, "uname") else os.environ.get("COMPUTERNAME", "this machine")
+        os.write(fd, f"pid {os.getpid()} on {host}".encode())
         try:
             yield path
         finally:
