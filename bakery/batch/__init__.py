@@ -14,6 +14,7 @@ workers, so a run with nothing to do starts and ends fast.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import re
 import time
@@ -109,11 +110,12 @@ def run(recipe: str | os.PathLike | Recipe, *, jobs: int | None = None, force: b
 
 def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: str | None, report: Any,
          progress: Any, t0: float, started: str, version: str) -> BatchReport:
-    from bakery.batch.cache import Cache, run_lock
+    from bakery.batch.cache import STATE_DIR, Cache, run_lock
     from bakery.batch.plan import FAIL, cache_entry, make_plan
 
+    made = [p for p in (recipe.output, recipe.output / STATE_DIR) if not p.exists()]
     recipe.output.mkdir(parents=True, exist_ok=True)
-    with run_lock(recipe.output):
+    with run_lock(recipe.output) as lock:
         cache = Cache.load(recipe.output)
         notes = []
         if cache.interrupted:
@@ -121,7 +123,16 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
             notes.append("the previous run was cut off; finished jobs are kept"
                          + (f", {removed} temporary file(s) removed" if removed else ""))
         try:
-            plan = make_plan(recipe, cache=cache, **plan_args)
+            try:
+                plan = make_plan(recipe, cache=cache, **plan_args)
+            except BakeryError:  # nothing ran: leave no trace of this run (the folders it made, its lock)
+                if made:
+                    with contextlib.suppress(OSError):
+                        lock.unlink()
+                    for p in reversed(made):
+                        with contextlib.suppress(OSError):
+                            p.rmdir()
+                raise
             to_run = plan.to_run
             if client is not None:
                 executor, workers = f"dask {cluster}", max(1, sum(client.nthreads().values()))

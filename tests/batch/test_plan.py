@@ -93,10 +93,11 @@ def test_link_leading_out_of_the_output_root_is_refused_before_any_job(library, 
     assert not any(p.suffix == ".png" for p in out.rglob("*"))
 
 
-def test_output_into_the_state_folder_is_refused(library):
+def test_output_into_the_state_folder_is_refused(library, tmp_path):
     library.write_text(library.read_text().replace('output = "{dir}/{m}_inv.png"', 'output = ".bakery/{m}.png"'))
     with pytest.raises(BakeryError, match=r"inside the output root's .bakery folder"):
-        _plan(library)
+        run(library)
+    assert not (tmp_path / "out").exists()  # a refused run leaves nothing behind, not even its lock
 
 
 @pytest.mark.parametrize("only,outputs", [
