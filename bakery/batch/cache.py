@@ -158,6 +158,7 @@ class Cache:
             self._journal = None
         if keep_outputs is not None:
             self.jobs = {k: v for k, v in self.jobs.items() if k in keep_outputs}
+        self.sources = {k: v for k, v in self.sources.items() if os.path.exists(k)}  # forget deleted sources
         self.folder.mkdir(parents=True, exist_ok=True)
         write_json(self.folder / "cache.json", {"format": CACHE_FORMAT, "sources": self.sources,
                                                 "jobs": self.jobs})
