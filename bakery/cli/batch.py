@@ -15,8 +15,8 @@ from bakery.cli._common import STATE, command, echo
 @app.command("batch")
 @command
 def batch(
-    recipe: Annotated[Path, typer.Argument(help="The recipe (TOML): source root, output root, rules.",
-                                           show_default=False)],
+    recipe: Annotated[Path | None, typer.Argument(help="The recipe (TOML): source root, output root, rules.",
+                                                  show_default=False)] = None,
     dry_run: Annotated[bool, typer.Option("--dry-run", "-n",
                                           help="Print the plan (inputs -> outputs, parameters, why each job "
                                                "runs or is skipped) and write nothing.")] = False,
@@ -33,6 +33,8 @@ def batch(
     report: Annotated[Path | None, typer.Option(
         "--report", help="Write the JSON report here [default: OUTPUT/.bakery/report.json; a dry run writes "
                          "one only when this is given].", show_default=False, dir_okay=False)] = None,
+    list_bakes: Annotated[bool, typer.Option(
+        "--list-bakes", help="List the bakes a recipe can use, with their inputs and parameters, and exit.")] = False,
 ) -> None:
     """Run a batch recipe: only changed jobs, in parallel, with a JSON report.
 
@@ -41,10 +43,17 @@ def batch(
     """
     from bakery.batch import run
     from bakery.batch.report import BarProgress, PlainProgress, format_plan
+    from bakery.errors import BakeryError
 
+    if list_bakes:
+        from bakery.batch.recipe import describe_bakes
+
+        for line in describe_bakes():
+            echo(line)
+        return
+    if recipe is None:
+        raise BakeryError("give a RECIPE file (see docs/batch.md), or --list-bakes")
     if cluster is not None and jobs is not None:
-        from bakery.errors import BakeryError
-
         raise BakeryError("--jobs and --cluster exclude each other: the cluster decides how many jobs run at once")
     progress = None
     if not dry_run:

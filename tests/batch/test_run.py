@@ -128,6 +128,11 @@ def test_cli(library, tmp_path):
     assert not (tmp_path / "out").exists()  # a dry run writes nothing
     r = runner.invoke(app, ["batch", str(library), "--jobs", "2", "--cluster", "tcp://127.0.0.1:1"])
     assert r.exit_code == 2 and "--jobs and --cluster exclude each other" in r.output
+    r = runner.invoke(app, ["batch", "--list-bakes"])
+    assert r.exit_code == 0 and "test-mix: weighted mix" in r.output
+    assert "  inputs: base, detail, mask (optional)" in r.output and "  weight = 0.5  (number)" in r.output
+    r = runner.invoke(app, ["batch"])
+    assert r.exit_code == 2 and "give a RECIPE file" in r.output
     r = runner.invoke(app, ["batch", str(tmp_path / "missing.toml")])
     assert r.exit_code == 2 and "missing.toml: file not found" in r.output
     r = runner.invoke(app, ["batch", str(library), "--only", "inv", "-j", "1"])
