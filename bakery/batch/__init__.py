@@ -1,9 +1,13 @@
 """Batch runs over a texture library: a recipe, an incremental plan, parallel or cluster execution, a report.
 
->>> from bakery.batch import run                      # doctest: +SKIP
->>> report = run("library.toml", jobs=4)              # doctest: +SKIP
->>> report.ran, report.skipped, report.failed         # doctest: +SKIP
-(48, 0, 0)
+Example (a script; local workers are spawned, so guard the top level)::
+
+    from bakery.batch import run
+
+    if __name__ == "__main__":
+        report = run("library.toml", jobs=4)
+        print(report.summary())        # batch: 24 ran, 0 skipped, 0 failed in 3.0 s (local, 4 workers)
+        raise SystemExit(report.exit_code)
 
 The recipe format is described in ``docs/batch.md``. Modules: :mod:`~bakery.batch.recipe` (reading and
 checking recipes), :mod:`~bakery.batch.plan` (jobs and why they run), :mod:`~bakery.batch.cache`
