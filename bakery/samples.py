@@ -400,6 +400,23 @@ bake = "antialias"
 match = "ceramic/mosaic_normal.png"
 output = "{dir}/mosaic_roughness_aa.png"
 params = { roughness = 0.3 }
+
+# Sky panoramas -> KTX2 cubemaps with their mip chains.
+[[rule]]
+name = "sky-cubemaps"
+bake = "env-convert"
+match = "skies/{sky}.hdr"
+output = "skies/{sky}_cube.ktx2"
+params = { size = 64 }
+
+# Sky panoramas -> diffuse irradiance (SH9 coefficients in JSON, a small irradiance cubemap beside them), by the
+# exact cosine convolution because the skies hold a sun.
+[[rule]]
+name = "sky-irradiance"
+bake = "env-diffuse"
+match = "skies/{sky}.hdr"
+output = "skies/{sky}_irradiance.json"
+params = { size = 16, method = "exact" }
 """
 
 #: Per-folder override files of the sample library, by folder.

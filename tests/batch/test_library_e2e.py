@@ -36,6 +36,10 @@ def _cli_args(job, src: Path, out: Path) -> list[str]:
         if "roughness" in i:
             return ["antialias", i["normal"], i["roughness"], "-o", o]
         return ["antialias", i["normal"], "-o", o, "--roughness", str(p["roughness"])]
+    if job.bake == "env-convert":
+        return ["env", "convert", i["source"], "-o", o, "--size", str(p["size"])]
+    if job.bake == "env-diffuse":
+        return ["env", "diffuse", i["source"], "-o", o, "--size", str(p["size"]), "--method", p["method"]]
     raise AssertionError(f"no command line for {job.bake}")
 
 
