@@ -151,8 +151,9 @@ def make_plan(recipe: Recipe, *, force: bool = False, only: tuple[str, ...] = ()
             check_output(out_root, output, rule)
             merged, origins = _resolve_values(rule, recipe, settings, rel)
             params_obj = params_from_mapping(bake, merged, f"{rule.where}: params" + (f" for {rel}" if rel else ""))
-            job = Job(rule.name, bake.name, bake.run.__module__, dict(sorted(job_inputs.items())), output,
-                      merged, params_to_dict(params_obj), origins)
+            ordered = {r: job_inputs[r] for r in (x.rstrip("?") for x in bake.inputs) if r in job_inputs}
+            job = Job(rule.name, bake.name, bake.run.__module__, ordered, output, merged, params_to_dict(params_obj),
+                      origins)
             if missing:
                 job.action = SKIP if rule.unpaired == "skip" else FAIL
                 job.reason = "; ".join(missing)
