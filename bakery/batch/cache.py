@@ -77,8 +77,8 @@ class Cache:
         try:
             data = json.loads(snap.read_text(encoding="utf-8"))
             if data.get("format") == CACHE_FORMAT:
-                cache.sources = dict(data.get("sources", {}))
-                cache.jobs = dict(data.get("jobs", {}))
+                cache.sources = {k: v for k, v in data.get("sources", {}).items() if isinstance(v, list)}
+                cache.jobs = {k: v for k, v in data.get("jobs", {}).items() if isinstance(v, dict)}
         except (OSError, ValueError, AttributeError):
             pass
         journal = cache.folder / "journal.jsonl"
@@ -94,17 +94,18 @@ class Cache:
                 rec = json.loads(line)
             except ValueError:
                 continue  # the line being written when the run died
-            cache._apply(rec)
+            if isinstance(rec, dict):
+                cache._apply(rec)
         return cache
 
     def _apply(self, rec: dict[str, Any]) -> None:
         out = rec.get("output")
         if not isinstance(out, str):
             return
-        if rec.get("entry") is None:
-            self.jobs.pop(out, None)
-        else:
+        if isinstance(rec.get("entry"), dict):
             self.jobs[out] = rec["entry"]
+        else:
+            self.jobs.pop(out, None)
         for k, v in rec.get("sources", {}).items():
             self.sources[k] = v
 

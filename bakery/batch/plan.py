@@ -168,7 +168,11 @@ def make_plan(recipe: Recipe, *, force: bool = False, only: tuple[str, ...] = ()
     for job in jobs:
         if job.reason:  # unpaired: decided already
             continue
-        job.digests = {role: cache.digest(recipe.source / rel) for role, rel in job.inputs.items()}
+        try:
+            job.digests = {role: cache.digest(recipe.source / rel) for role, rel in job.inputs.items()}
+        except BakeryError as exc:  # an unreadable input fails its own job, not the batch
+            job.action, job.reason = FAIL, str(exc)
+            continue
         named = {role: (Path(rel).name, job.digests[role]) for role, rel in job.inputs.items()}
         job.key = job_key(job.bake, named, job.params, __version__)
         job.action, job.reason = _decide(job, cache, recipe.output, force, __version__)

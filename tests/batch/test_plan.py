@@ -123,3 +123,32 @@ def test_a_bake_without_inputs_makes_one_job(library):
     library.write_text(library.read_text().replace('bake = "test-ramp"', 'bake = "test-ramp"\nmatch = "*.png"'))
     with pytest.raises(BakeryError, match=r"rule 'ramp': key 'match': bake 'test-ramp' reads no input files"):
         load_recipe(library)
+
+
+def test_an_unreadable_input_fails_its_jobs_alone(library, monkeypatch):
+    import bakery.io.manifest as manifest
+
+    real = manifest.file_digest
+
+    def digest(path, **kw):
+        if str(path).endswith("stone_height.png"):
+            raise PermissionError(13, "Permission denied")
+        return real(path, **kw)
+
+    monkeypatch.setattr(manifest, "file_digest", digest)
+    rep = run(library, dry_run=True)
+    failed = {j.output: j.error for j in rep.jobs if j.status == "failed"}
+    assert failed == {o: f"{library.parent / 'lib' / 'stone' / 'stone_height.png'}: cannot read the file "
+                         "(Permission denied)" for o in ("stone/stone_inv.png", "stone/stone_mix.png")}
+    assert rep.planned == 5 and rep.exit_code == 1
+
+
+def test_a_damaged_cache_means_a_cold_start(library, tmp_path):
+    state = tmp_path / "out" / ".bakery"
+    state.mkdir(parents=True)
+    (state / "cache.json").write_text('{"format": 1, "jobs": {"stone/stone_inv.png": 3}, "sources": []}')
+    (state / "journal.jsonl").write_text('7\n{"output": "metal/metal_inv.png", "entry": "x"}\n{"outp')
+    rep = run(library, jobs=1)
+    assert (rep.ran, rep.skipped, rep.failed) == (7, 1, 0)
+    assert rep.notes[0].startswith("the previous run was cut off")
+    assert run(library, jobs=1, dry_run=True).planned == 0
