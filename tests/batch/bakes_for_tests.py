@@ -79,3 +79,24 @@ def _ramp(inputs: dict[str, Path], output: Path, params: RampParams) -> list[Pat
 
 
 RAMP = register(Bake("test-ramp", "a ramp, no inputs (batch tests)", (), RampParams, _ramp))
+
+
+@dataclass(frozen=True)
+class ProbeParams:
+    """No parameters: the ``test-probe`` bake records the thread settings of the process that runs it."""
+
+
+def _probe(inputs: dict[str, Path], output: Path, params: ProbeParams) -> list[Path]:
+    import cv2
+    import OpenEXR
+
+    from bakery.bakes import bake_threads
+    from bakery.io import write_json
+
+    names = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS")
+    data = {"cv2": cv2.getNumThreads(), "openexr": OpenEXR.global_thread_count(), "bakery": bake_threads(),
+            "env": {k: os.environ.get(k) for k in names}}
+    return [write_json(output, data)]
+
+
+PROBE = register(Bake("test-probe", "thread settings of a worker (batch tests)", (), ProbeParams, _probe))

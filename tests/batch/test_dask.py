@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import json
+
 import pytest
 
 from bakery.batch import run
@@ -28,6 +30,13 @@ def test_dask_equals_local_pool(library, tmp_path, cluster):
     assert rep.executor.startswith("dask tcp://") and rep.workers == 2
     assert outputs(tmp_path / "out") == expected
     assert run(library, cluster=cluster.scheduler_address).ran == 0
+    # Dask workers run each job single-threaded too
+    library.write_text(library.read_text() + '\n[[rule]]\nname = "probe"\nbake = "test-probe"\n'
+                       'output = "probe.json"\n')
+    run(library, cluster=cluster.scheduler_address, only=["probe"])
+    data = json.loads((tmp_path / "out" / "probe.json").read_text())
+    assert (data["cv2"], data["openexr"], data["bakery"]) == (1, 1, 1)
+    assert set(data["env"].values()) == {"1"}
 
 
 def test_unreachable_scheduler():

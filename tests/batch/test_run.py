@@ -197,3 +197,13 @@ def test_progress_displays(library):
         assert "batch: 2 job(s) to run, 6 up to date (local, 2 workers)" in text
         assert "FAILED inv: stone/stone_height.png -> stone/stone_inv.png: x.png: file not found" in text
         assert "warning: metal/metal_inv.png: values clipped" in text
+
+
+def test_workers_are_single_threaded(library, tmp_path):
+    library.write_text(library.read_text() + '\n[[rule]]\nname = "probe"\nbake = "test-probe"\noutput = "probe.json"\n')
+    before = dict(os.environ)
+    run(library, jobs=2, only=["probe"])
+    assert dict(os.environ) == before  # the thread settings were for the workers only
+    data = json.loads((tmp_path / "out" / "probe.json").read_text())
+    assert data == {"cv2": 1, "openexr": 1, "bakery": 1, "env": dict.fromkeys(
+        ["OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS"], "1")}
