@@ -417,6 +417,21 @@ bake = "env-diffuse"
 match = "skies/{sky}.hdr"
 output = "skies/{sky}_irradiance.json"
 params = { size = 16, method = "exact" }
+
+# Sky panoramas -> specular prefiltered cubemap chains (GGX, roughness linear in mip) for split-sum lighting.
+[[rule]]
+name = "sky-specular"
+bake = "env-specular"
+match = "skies/{sky}.hdr"
+output = "skies/{sky}_specular.ktx2"
+params = { size = 32 }
+
+# The split-sum BRDF table: a bake without input files, so one job and no match.
+[[rule]]
+name = "brdf-table"
+bake = "env-lut"
+output = "tables/brdf_lut.png"
+params = { size = 64 }
 """
 
 #: Per-folder override files of the sample library, by folder.

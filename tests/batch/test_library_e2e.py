@@ -40,6 +40,10 @@ def _cli_args(job, src: Path, out: Path) -> list[str]:
         return ["env", "convert", i["source"], "-o", o, "--size", str(p["size"])]
     if job.bake == "env-diffuse":
         return ["env", "diffuse", i["source"], "-o", o, "--size", str(p["size"]), "--method", p["method"]]
+    if job.bake == "env-specular":
+        return ["env", "specular", i["env"], "-o", o, "--size", str(p["size"])]
+    if job.bake == "env-lut":
+        return ["env", "lut", "-o", o, "--size", str(p["size"])]
     raise AssertionError(f"no command line for {job.bake}")
 
 
