@@ -38,8 +38,8 @@ def batch(
 ) -> None:
     """Run a batch recipe: only changed jobs, in parallel, with a JSON report.
 
-    Exit codes: 0 every job ran or was skipped, 1 some jobs failed (the others finished), 2 the recipe or
-    the command line is wrong (nothing ran).
+    Exit codes: 0 every job ran or was skipped, 1 some jobs failed (the others finished; with --dry-run: some
+    would fail), 2 the recipe or the command line is wrong (nothing ran).
     """
     from bakery.batch import run
     from bakery.batch.report import BarProgress, PlainProgress, format_plan
@@ -64,10 +64,10 @@ def batch(
     if dry_run:
         for line in format_plan(rep):
             echo(line)
-        return
-    for note in rep.notes:
+    for note in [] if dry_run else rep.notes:
         echo(note)
-    echo(rep.summary())
+    if not dry_run:
+        echo(rep.summary())
     if rep.path is not None:
         echo(f"report: {rep.path}")
     if rep.exit_code:

@@ -41,6 +41,12 @@ def test_unpaired_fail(library):
     rep = run(library, dry_run=True)
     assert rep.failed == 1 and rep.exit_code == 1
     assert rep.jobs[4].error == "no detail input metal/metal_detail.png"
+    from typer.testing import CliRunner
+
+    from bakery.cli import app
+
+    r = CliRunner().invoke(app, ["batch", str(library), "--dry-run"])
+    assert r.exit_code == 1 and "FAIL  mix: metal/metal_height.png -> metal/metal_mix.png  (no detail" in r.output
 
 
 def test_parameter_precedence(library):
