@@ -49,3 +49,17 @@ def test_bake_threads_from_the_environment(monkeypatch):
     monkeypatch.setenv("BAKERY_THREADS", "many")
     with pytest.raises(BakeryError, match="BAKERY_THREADS must be a whole number; got 'many'"):
         bake_threads()
+
+
+def test_public_api_loads_lazily_and_completely():
+    """Every public name resolves; importing bakery alone loads no numpy (fast CLI start, batch no-op runs)."""
+    import subprocess
+    import sys
+
+    import bakery
+
+    for name in bakery.__all__:
+        assert getattr(bakery, name) is not None
+    code = "import sys, bakery.cli; print('numpy' in sys.modules)"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    assert out.strip() == "False"
