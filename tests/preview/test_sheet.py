@@ -1,0 +1,203 @@
+"""Contact sheets: content of the page, the grid picture, atomic writing, and the page in a real headless
+browser (Debian's ``chromium`` package, installed by ``.ci/run``)."""
+
+from __future__ import annotations
+
+import os
+import re
+import shutil
+import subprocess
+import tempfile
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from bakery.errors import BakeryError
+from bakery.io import write_image
+from bakery.preview.render import Lighting
+from bakery.preview.sheet import (
+    find_maps,
+    lit_previews,
+    make_entry,
+    material_for,
+    sheet_html,
+    write_sheet,
+)
+from tests.preview import envtools
+
+
+@pytest.fixture(scope="module")
+def lighting() -> Lighting:
+    src = envtools.cube_from_function(
+        lambda d: 0.2 + 0.8 * np.clip(d[..., 1:2], 0, 1) * np.array([0.6, 0.8, 1.0]), 8)
+    return Lighting((src, envtools.brute_prefilter(src, 0.6, 4)), np.array([0.0, 0.6]),
+                    envtools.split_sum_table(16), envtools.sh_project(src))
+
+
+def _bump_normals(size=32, flip=False):
+    """Normals of h = sin(x) sin(2y) (Blinn 1978: n ∝ (−∂h/∂x, −∂h/∂y, 1)), +y up the image, encoded n·0.5 + 0.5;
+    ``flip`` stores the Y-down convention g' = 1 − g."""
+    rows, cols = np.mgrid[0:size, 0:size]
+    x, y = cols * (2 * np.pi / size), (size - 1 - rows) * (2 * np.pi / size)
+    hx, hy = np.cos(x) * np.sin(2 * y), 2 * np.sin(x) * np.cos(2 * y)
+    n = np.stack([-hx, -hy, np.full_like(hx, 2.0)], -1)
+    n /= np.linalg.norm(n, axis=-1, keepdims=True)
+    enc = n * 0.5 + 0.5
+    if flip:
+        enc[..., 1] = 1 - enc[..., 1]
+    return enc.astype(np.float32)
+
+
+@pytest.fixture()
+def maps(tmp_path) -> Path:
+    d = tmp_path / "maps"
+    (d / "sub").mkdir(parents=True)
+    write_image(d / "rock_normal.png", _bump_normals(), depth="u8")
+    write_image(d / "sub" / "rock normal & dx.png", _bump_normals(flip=True), depth="u8")
+    write_image(d / "rock_rough.png", np.linspace(0, 1, 32 * 32, dtype=np.float32).reshape(32, 32, 1), depth="u8")
+    rng = np.random.default_rng(3)
+    write_image(d / "albedo.png", rng.random((32, 32, 3), dtype=np.float32), depth="u8")
+    sky = np.ones((16, 32, 3), np.float32) * 2.0
+    write_image(d / "sky.exr", sky, depth="f16")
+    (d / "broken.png").write_bytes(b"\x89PNG\r\n\x1a\nnope")
+    (d / "notes.txt").write_text("not a map")
+    (d / ".hidden.png").write_bytes(b"")
+    return d
+
+
+def test_find_maps_is_sorted_and_skips_non_maps(maps):
+    names = [p.relative_to(maps).as_posix() for p in find_maps(maps)]
+    assert names == ["albedo.png", "broken.png", "rock_normal.png", "rock_rough.png", "sky.exr",
+                     "sub/rock normal & dx.png"]
+    assert "sub/rock normal & dx.png" not in [p.relative_to(maps).as_posix()
+                                              for p in find_maps(maps, recursive=False)]
+    with pytest.raises(BakeryError, match="not a folder"):
+        find_maps(maps / "albedo.png")
+
+
+def test_entries_carry_kind_size_findings_and_previews(maps, lighting):
+    fn = lit_previews(lighting, size=32, supersample=1)
+    entries = {e.name: e for e in (make_entry(p, maps, thumb=48, preview=fn) for p in find_maps(maps))}
+    n = entries["rock_normal.png"]
+    assert (n.kind, n.width, n.height, n.channels, n.depth) == ("normal", 32, 32, 3, "u8")
+    assert n.preview is not None and n.preview.shape == (32, 32, 3)
+    assert n.thumbnail.shape == (48, 48, 3)
+    # the Y-down map is flagged by bakery.inspect and the flag reaches the card
+    dx = entries["sub/rock normal & dx.png"]
+    assert "green-y-down" in [f.code for f in dx.problems]
+    assert not n.problems
+    assert entries["rock_rough.png"].preview_note == "lit: roughness map"
+    assert entries["albedo.png"].preview_note == "lit: base colour"
+    assert entries["sky.exr"].kind == "environment" and entries["sky.exr"].preview is None
+    broken = entries["broken.png"]
+    assert broken.kind == "unreadable" and broken.findings[0].severity == "error"
+    assert broken.thumbnail is None
+
+
+def test_material_for_reads_normals_as_y_up():
+    # Encoding n·0.5 + 0.5 (references.md §1, glTF 2.0 normalTexture): (0.65, 0.70, 0.933013) is (0.3, 0.4, 0.866)
+    px = np.broadcast_to(np.array([0.65, 0.70, 0.933013], np.float32), (4, 4, 3))
+    mat, note = material_for(px, "normal", "u8", "n.png")
+    np.testing.assert_allclose(mat.normals[0, 0], [0.3, 0.4, 0.866025], atol=1e-4)
+    assert "Y-up" in note
+
+
+def test_page_escapes_names_and_links(maps, lighting):
+    entries = [make_entry(p, maps, thumb=32) for p in find_maps(maps)]
+    page = sheet_html(entries, title="<b>sheet</b>", thumbs=[("t/a b&c.png", None)] * len(entries), grids=[])
+    assert "<b>sheet</b>" not in page and "&lt;b&gt;sheet&lt;/b&gt;" in page
+    assert "rock normal &amp; dx.png" in page
+    assert 'src="t/a%20b%26c.png"' in page
+
+
+def test_write_sheet_outputs_and_replaces_atomically(maps, tmp_path, lighting):
+    out = tmp_path / "out"
+    out.mkdir()
+    entries = [make_entry(p, maps, thumb=40, preview=lit_previews(lighting, size=32, supersample=1))
+               for p in find_maps(maps)]
+    written = write_sheet(entries, out / "sheet.html", thumb=40)
+    assert [p.name for p in written] == ["sheet_files", "sheet.png", "sheet.html"]
+    thumbs = sorted(p.name for p in (out / "sheet_files").iterdir())
+    assert len(thumbs) == len(entries) - 1 + 4  # one map thumbnail per readable file, four lit previews
+    import cv2
+
+    grid = cv2.imread(str(out / "sheet.png"))
+    assert grid.shape[0] > 100 and grid.std() > 10
+    # written again (fewer entries), the old thumbnails are replaced, nothing temporary is left
+    write_sheet(entries[:2], out / "sheet.html", thumb=40)
+    assert len(list((out / "sheet_files").iterdir())) == 2  # albedo: map + lit; broken: none
+    assert sorted(p.name for p in out.iterdir()) == ["sheet.html", "sheet.png", "sheet_files"]
+    with pytest.raises(BakeryError, match=r"\.html"):
+        write_sheet(entries, out / "sheet.png")
+
+
+def test_failed_write_leaves_no_sheet(maps, tmp_path, monkeypatch):
+    out = tmp_path / "o"
+    out.mkdir()
+    entries = [make_entry(p, maps, thumb=32) for p in find_maps(maps)]
+    import bakery.preview.sheet as sheet
+
+    def boom(*a, **k):
+        raise RuntimeError("disk full")
+
+    monkeypatch.setattr(sheet, "sheet_html", boom)
+    with pytest.raises(RuntimeError):
+        write_sheet(entries, out / "s.html")
+    assert list(out.iterdir()) == []
+
+
+# ------------------------------------------------------------------------------------------ real browser
+
+
+def _chromium() -> str:
+    exe = shutil.which("chromium") or shutil.which("chromium-browser")
+    if exe is None:
+        pytest.skip("Debian's chromium package is not installed (.ci/run installs it)")
+    return exe
+
+
+def _browser(exe: str, *args: str) -> subprocess.CompletedProcess:
+    profile = tempfile.mkdtemp(prefix="bakery-chromium-")
+    try:
+        cmd = [exe, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+               "--disable-background-networking", "--disable-component-update", "--disable-sync",
+               f"--user-data-dir={profile}", *args]
+        return subprocess.run(cmd, capture_output=True, text=True, timeout=120,
+                              env={**os.environ, "HOME": profile})
+    finally:
+        shutil.rmtree(profile, ignore_errors=True)
+
+
+def _loaded(exe: str, page: Path) -> tuple[int, int]:
+    res = _browser(exe, "--virtual-time-budget=10000", "--dump-dom", page.resolve().as_uri())
+    body = re.search(r"<body[^>]*>", res.stdout)
+    assert body, f"no DOM from chromium: {res.stderr[-500:]}"
+    total = re.search(r'data-images-total="(\d+)"', body.group(0))
+    ok = re.search(r'data-images-loaded="(\d+)"', body.group(0))
+    assert total and ok, f"the page's load script did not run: {body.group(0)}"
+    return int(ok.group(1)), int(total.group(1))
+
+
+def test_sheet_in_headless_chromium(maps, tmp_path, lighting):
+    exe = _chromium()
+    out = tmp_path / "web page"  # a space in the path: links must be relative and quoted
+    out.mkdir()
+    entries = [make_entry(p, maps, thumb=64, preview=lit_previews(lighting, size=48, supersample=1))
+               for p in find_maps(maps)]
+    write_sheet(entries, out / "sheet.html", thumb=64)
+    n_images = len(list((out / "sheet_files").iterdir()))
+    loaded, total = _loaded(exe, out / "sheet.html")
+    assert total == n_images and loaded == total
+    shot = tmp_path / "shot.png"
+    res = _browser(exe, "--window-size=1200,900", f"--screenshot={shot}", (out / "sheet.html").resolve().as_uri())
+    assert shot.exists(), res.stderr[-500:]
+    import cv2
+
+    img = cv2.imread(str(shot))
+    assert img.shape[:2] == (900, 1200)
+    assert img.std() > 10  # a page with pictures, not a blank window
+    # the check can fail: a missing thumbnail is counted as not loaded
+    next((out / "sheet_files").iterdir()).unlink()
+    loaded, total = _loaded(exe, out / "sheet.html")
+    assert loaded == total - 1
