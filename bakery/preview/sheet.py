@@ -185,13 +185,9 @@ def material_for(pixels: np.ndarray, kind: str, depth: str, name: str):
 
     px = np.asarray(pixels, dtype=np.float32)
     if kind == "normal":
-        n = px[..., :3] * 2 - 1 if px.shape[2] >= 3 else None
-        if n is None:
-            xy = px[..., :2] * 2 - 1
-            z = np.sqrt(np.clip(1 - np.sum(xy * xy, axis=-1, keepdims=True), 0, 1))
-            n = np.concatenate([xy, z], axis=-1)
-        length = np.linalg.norm(n, axis=-1, keepdims=True)
-        n = np.where(length > 1e-6, n / np.maximum(length, 1e-6), np.array([0, 0, 1], np.float32))
+        from bakery.preview.inputs import decode_normal_pixels
+
+        n = decode_normal_pixels(px, green="up")
         return Material(normals=n.astype(np.float32), roughness=0.35), "lit: normal map read as Y-up"
     if kind == "color" and px.shape[2] >= 3:
         rgb = px[..., :3]

@@ -1,0 +1,175 @@
+"""``bakery preview`` (a lit material ball and tile) and ``bakery sheet`` (contact sheets)."""
+
+from __future__ import annotations
+
+import math
+from enum import StrEnum
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from bakery.cli import app
+from bakery.cli._common import command, echo, max_pixels_from_env, output_path, progress
+from bakery.errors import BakeryError
+
+
+class Green(StrEnum):
+    up = "up"
+    down = "down"
+
+
+class Views(StrEnum):
+    both = "both"
+    ball = "ball"
+    tile = "tile"
+
+
+def _exposure(text: str) -> float | None:
+    if text.strip().lower() == "auto":
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        raise BakeryError(f"--exposure takes a number of EV or 'auto'; got {text!r}") from None
+    if not math.isfinite(value) or abs(value) > 40:
+        raise BakeryError(f"--exposure must lie within ±40 EV; got {value}")
+    return value
+
+
+@app.command("preview")
+@command
+def preview(
+    output: Annotated[Path, typer.Option("--output", "-o", help="Picture to write: .png, or .gif/.webp with "
+                                         "--turntable.", show_default=False)],
+    normal: Annotated[Path | None, typer.Option(help="Normal map (tangent space).", dir_okay=False)] = None,
+    green: Annotated[Green, typer.Option(help="Green channel of the normal map file: up (OpenGL-style, glTF) "
+                                         "or down (DirectX-style).")] = Green.up,
+    roughness: Annotated[str, typer.Option(help="Perceptual roughness: a number in [0, 1] or a roughness "
+                                           "map.")] = "0.5",
+    base_color: Annotated[str, typer.Option("--base-color", help="Base colour: a grey level, R,G,B (linear, "
+                                            "0-1) or a colour map (8/16-bit files are sRGB).")] = "0.5",
+    metallic: Annotated[float, typer.Option(min=0.0, max=1.0, help="0 = dielectric, 1 = metal.")] = 0.0,
+    env: Annotated[Path | None, typer.Option(help="HDR environment panorama (equirectangular .hdr/.exr); "
+                                             "default: the built-in procedural sky.", dir_okay=False)] = None,
+    size: Annotated[int, typer.Option(min=8, max=4096, help="Height of the picture in pixels (each view is "
+                                      "size x size).")] = 512,
+    views: Annotated[Views, typer.Option("--views", help="Which views to draw.")] = Views.both,
+    yaw: Annotated[float, typer.Option(help="Camera orbit around the vertical axis, degrees.")] = 0.0,
+    pitch: Annotated[float, typer.Option(min=-80.0, max=80.0, help="Camera height above the ball's equator, "
+                                         "degrees.")] = 15.0,
+    tile_pitch: Annotated[float, typer.Option(min=5.0, max=90.0, help="Camera elevation above the tile, "
+                                              "degrees.")] = 40.0,
+    env_rotation: Annotated[float, typer.Option(help="Turn the environment about the vertical axis, degrees "
+                                                "(content moves to the right).")] = 0.0,
+    tiles: Annotated[tuple[float, float], typer.Option(help="Texture repeats around the ball and from pole to "
+                                                       "pole.")] = (4.0, 2.0),
+    repeat: Annotated[float, typer.Option(min=0.01, help="Texture repeats along each side of the tile.")] = 2.0,
+    exposure: Annotated[str, typer.Option(help="Exposure in EV, or 'auto' (log-average luminance to key "
+                                          "0.18, Reinhard et al. 2002).")] = "0",
+    white: Annotated[float | None, typer.Option(min=0.0, help="Luminance that maps to white (extended "
+                                                "Reinhard); default: none.")] = None,
+    supersample: Annotated[int, typer.Option(min=1, max=4, help="Samples per pixel along each axis.")] = 2,
+    turntable: Annotated[int | None, typer.Option(min=2, max=720, help="Write an animation of N frames: the "
+                                                  "ball turning once under the fixed environment.")] = None,
+    fps: Annotated[float, typer.Option(min=1.0, max=100.0, help="Frames per second of --turntable.")] = 24.0,
+) -> None:
+    """Render a lit preview of a material: a ball and a flat tile under an HDR environment (split-sum
+    specular, spherical-harmonic diffuse, Reinhard tone mapping, sRGB output)."""
+    from bakery.io.atomic import check_distinct
+    from bakery.preview.inputs import load_material, parse_value_or_path
+
+    anim = turntable is not None
+    output_path(output, suffixes=(".gif", ".webp") if anim else (".png",))
+    rough = parse_value_or_path(roughness, "--roughness", channels=1)
+    color = parse_value_or_path(base_color, "--base-color", channels=3)
+    ev = _exposure(exposure)
+    inputs = [p for p in (normal, env, rough, color) if isinstance(p, Path)]
+    check_distinct([output], inputs)
+    limit = max_pixels_from_env()
+    material = load_material(normal=normal, green=green.value, roughness=rough, base_color=color,
+                             metallic=metallic, max_pixels=limit)
+    lighting = _lighting(env, limit)
+    if anim:
+        from bakery.io.animation import write_animation
+        from bakery.preview.render import turntable_frames
+
+        ticks = iter(progress(range(turntable), turntable, "frames"))
+        next(ticks)  # primed: each later step reports the frame just finished
+        frames, used = turntable_frames(material, lighting, turntable, size=size, yaw=yaw, pitch=pitch,
+                                        env_rotation=env_rotation, tiles=tiles, supersample=supersample,
+                                        exposure=ev, white=white, progress=lambda i: next(ticks, None))
+        write_animation(output, frames, fps=fps)
+        echo(f"wrote {output} ({turntable} frames, {size}x{size}, exposure {used:+.2f} EV)")
+        return
+    from bakery.io.images import write_image
+    from bakery.preview.render import preview_image
+
+    img, used = preview_image(material, lighting, size=size, yaw=yaw, pitch=pitch, env_rotation=env_rotation,
+                              tiles=tiles, repeat=repeat, tile_pitch=tile_pitch, supersample=supersample,
+                              exposure=ev, white=white, views=views.value)
+    write_image(output, img, depth="u8")
+    echo(f"wrote {output} ({img.shape[1]}x{img.shape[0]}, exposure {used:+.2f} EV)")
+
+
+def _lighting(env: Path | None, limit: int | None):
+    from bakery.preview.lighting import default_lighting, lighting_from_file
+
+    if env is None:
+        return default_lighting()
+    return lighting_from_file(env, max_pixels=limit)
+
+
+@app.command("sheet")
+@command
+def sheet(
+    sources: Annotated[list[Path], typer.Argument(help="Folders of maps and/or map files.", show_default=False)],
+    output: Annotated[Path, typer.Option("--output", "-o", help="The page to write (.html); the PNG grid and "
+                                         "a NAME_files/ folder of thumbnails go beside it.", show_default=False)],
+    recursive: Annotated[bool, typer.Option(help="Look into sub-folders.")] = True,
+    thumb: Annotated[int, typer.Option(min=32, max=1024, help="Thumbnail size in pixels.")] = 160,
+    columns: Annotated[int, typer.Option(min=1, max=32, help="Cards per row of the PNG grid.")] = 4,
+    lit: Annotated[bool, typer.Option("--lit/--no-lit", help="Render a lit preview for each map that has "
+                                      "one (normal, colour and roughness maps).")] = True,
+    env: Annotated[Path | None, typer.Option(help="HDR panorama lighting the previews; default: the built-in "
+                                             "procedural sky.", dir_okay=False)] = None,
+    title: Annotated[str, typer.Option(help="Title of the page.")] = "bakery contact sheet",
+) -> None:
+    """Make a contact sheet: an HTML page (opens from disk, no server) and a PNG grid with every map, its lit
+    preview, size and the findings of `bakery inspect`."""
+    written = make_sheet(sources, output, recursive=recursive, thumb=thumb, columns=columns, lit=lit, env=env,
+                         title=title)
+    echo(f"wrote {written[-1]} and {', '.join(p.name for p in written[:-1])}")
+
+
+def make_sheet(sources: list[Path], output: Path, *, recursive: bool = True, thumb: int = 160, columns: int = 4,
+               lit: bool = True, env: Path | None = None, title: str = "bakery contact sheet",
+               show_progress: bool = True) -> list[Path]:
+    """The work of ``bakery sheet`` (also called after a batch)."""
+    from bakery.preview.sheet import find_maps, lit_previews, make_entry, sheet_paths, write_sheet
+
+    output_path(output, suffixes=(".html", ".htm"))
+    own = [sheet_paths(output, 1)[0]]
+    files: list[tuple[Path, Path]] = []
+    for src in sources:
+        if src.is_dir():
+            files += [(p, src) for p in find_maps(src, recursive=recursive, exclude=own)]
+        elif src.is_file():
+            files.append((src, src.parent))
+        else:
+            raise BakeryError("no such file or folder", src)
+    if not files:
+        raise BakeryError("no maps found (looked for " + ", ".join(
+            (".png", ".tif", ".tiff", ".exr", ".hdr", ".jpg")) + ")", sources[0])
+    limit = max_pixels_from_env()
+    fn = lit_previews(_lighting(env, limit), size=thumb) if lit else None
+    many_roots = len({root for _, root in files}) > 1
+    entries = []
+    items = progress(files, len(files), "maps") if show_progress else files
+    for path, root in items:
+        e = make_entry(path, root, thumb=thumb, preview=fn, max_pixels=limit)
+        if many_roots:
+            e.name = f"{root.name}/{e.name}"
+        entries.append(e)
+    source = ", ".join(str(s) for s in sources)
+    return write_sheet(entries, output, title=title, source=source, columns=columns, thumb=thumb)

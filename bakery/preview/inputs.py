@@ -1,0 +1,128 @@
+"""From files and option values to the renderer's plain inputs (:class:`~bakery.preview.render.Material`).
+
+The I/O edge of the preview: reads maps with :func:`bakery.io.read_image`, applies the file conventions
+(normal-map green channel, sRGB colour), and checks values, so :mod:`bakery.preview.render` only sees arrays.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import numpy as np
+
+from bakery.errors import BakeryError
+
+
+def parse_value_or_path(text: str, what: str, *, channels: int) -> float | tuple[float, ...] | Path:
+    """``"0.4"`` -> 0.4; ``"0.8,0.5,0.2"`` -> a tuple (when ``channels`` is 3); anything else is a file path.
+
+    Examples
+    --------
+    >>> parse_value_or_path("0.25", "roughness", channels=1)
+    0.25
+    >>> parse_value_or_path("1,0.5,0", "base colour", channels=3)
+    (1.0, 0.5, 0.0)
+    """
+    parts = [p.strip() for p in text.split(",")]
+    try:
+        values = tuple(float(p) for p in parts)
+    except ValueError:
+        return Path(text)
+    if len(values) == 1:
+        return values[0]
+    if len(values) != channels:
+        raise BakeryError(f"{what} takes one number{f' or {channels} numbers' if channels > 1 else ''} or a "
+                          f"file; got {text!r}")
+    return values
+
+
+def decode_normal_pixels(pixels: np.ndarray, *, green: str = "up", path: str | os.PathLike | None = None
+                         ) -> np.ndarray:
+    """Stored normal-map values (H, W, C) in [0, 1] -> unit normals (H, W, 3), +Y up.
+
+    Encoding ``n·0.5 + 0.5`` (glTF 2.0, material.normalTexture); ``green="down"`` reads files whose green
+    channel stores −y (the Y-down trade convention). Two-channel files rebuild z = sqrt(max(0, 1 − x² − y²)).
+    Zero-length vectors become (0, 0, 1).
+    """
+    if green not in ("up", "down"):
+        raise BakeryError(f"green must be 'up' or 'down'; got {green!r}")
+    px = np.asarray(pixels, dtype=np.float32)
+    if px.ndim != 3 or px.shape[2] not in (2, 3, 4):
+        raise BakeryError(f"a normal map needs 2, 3 or 4 channels; got {px.shape[-1] if px.ndim == 3 else 1}",
+                          path)
+    if px.shape[2] == 2:
+        xy = px * 2 - 1
+        n = np.concatenate([xy, np.sqrt(np.clip(1 - np.sum(xy * xy, axis=-1, keepdims=True), 0, 1))], axis=-1)
+    else:
+        n = px[..., :3] * 2 - 1
+    if green == "down":
+        n[..., 1] *= -1
+    length = np.linalg.norm(n, axis=-1, keepdims=True)
+    flat = np.array([0, 0, 1], np.float32)
+    return np.where(length > 1e-6, n / np.maximum(length, 1e-6), flat).astype(np.float32)
+
+
+def _read(path: Path, *, color: str = "data", max_pixels: int | None = None) -> np.ndarray:
+    from bakery.io.images import read_image
+
+    return read_image(path, color=color, max_pixels=max_pixels).pixels
+
+
+def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
+                  roughness: float | str | os.PathLike = 0.5,
+                  base_color: float | tuple[float, float, float] | str | os.PathLike = 0.5,
+                  metallic: float = 0.0, max_pixels: int | None = None):
+    """Build a :class:`~bakery.preview.render.Material` from files and values.
+
+    Parameters
+    ----------
+    normal : path, optional
+        Tangent-space normal map (2, 3 or 4 channels, alpha ignored). None: flat.
+    green : {"up", "down"}
+        The normal map file's green-channel convention.
+    roughness : float or path
+        Perceptual roughness in [0, 1], or a single-channel map of it (data, never colour-converted).
+    base_color : float, (r, g, b) or path
+        Linear values in [0, 1], or a colour map (8/16-bit files decoded from sRGB, IEC 61966-2-1; float files
+        taken as linear).
+    metallic : float
+    max_pixels : int, optional
+        Passed to :func:`bakery.io.read_image`.
+    """
+    from bakery.preview.render import Material
+
+    normals = None
+    if normal is not None:
+        normals = decode_normal_pixels(_read(Path(normal), max_pixels=max_pixels), green=green, path=normal)
+    if isinstance(roughness, str | os.PathLike):
+        path = Path(roughness)
+        px = _read(path, max_pixels=max_pixels)
+        if px.shape[2] >= 3 and not (np.array_equal(px[..., 0], px[..., 1])
+                                     and np.array_equal(px[..., 0], px[..., 2])):
+            raise BakeryError("a roughness map needs one channel (or three equal ones); this one has colour",
+                              path)
+        rough = px[..., 0]
+        if rough.min() < 0 or rough.max() > 1:
+            raise BakeryError(f"roughness values must lie in [0, 1]; found {rough.min():.3g} to "
+                              f"{rough.max():.3g}", path)
+    else:
+        rough = float(roughness)
+        if not 0 <= rough <= 1:
+            raise BakeryError(f"roughness must lie in [0, 1]; got {rough}")
+    if isinstance(base_color, str | os.PathLike):
+        path = Path(base_color)
+        px = _read(path, color="srgb", max_pixels=max_pixels)
+        if px.shape[2] == 1:
+            px = np.repeat(px, 3, axis=2)
+        elif px.shape[2] == 2:
+            raise BakeryError("a base colour map needs 1, 3 or 4 channels; this one has 2", path)
+        color = np.clip(px[..., :3], 0, 1)
+    else:
+        c = np.broadcast_to(np.asarray(base_color, dtype=np.float32), (3,))
+        if c.min() < 0 or c.max() > 1:
+            raise BakeryError(f"base colour values must lie in [0, 1]; got {tuple(float(v) for v in c)}")
+        color = c
+    if not 0 <= float(metallic) <= 1:
+        raise BakeryError(f"metallic must lie in [0, 1]; got {metallic}")
+    return Material(normals=normals, roughness=rough, base_color=color, metallic=float(metallic))

@@ -1,0 +1,134 @@
+"""``bakery preview`` and ``bakery sheet`` from the command line: outputs, animations, one-line errors with exit
+code 2 and no output left behind."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from bakery.cli import app
+from bakery.io import read_image, write_image
+from bakery.io.animation import read_animation
+from bakery.preview.inputs import decode_normal_pixels, load_material
+
+runner = CliRunner()
+
+
+@pytest.fixture()
+def maps(tmp_path):
+    rows, cols = np.mgrid[0:32, 0:32] * (2 * np.pi / 32)
+    n = np.stack([np.cos(cols) * 0.4, np.sin(rows) * 0.4, np.ones((32, 32))], -1)
+    n /= np.linalg.norm(n, axis=-1, keepdims=True)
+    write_image(tmp_path / "n.png", (n * 0.5 + 0.5).astype(np.float32), depth="u8")
+    write_image(tmp_path / "r.png", np.full((32, 32, 1), 0.3, np.float32), depth="u8")
+    write_image(tmp_path / "c.png", np.full((32, 32, 3), 0.5, np.float32), depth="u8")
+    return tmp_path
+
+
+@pytest.mark.parametrize("cmd", [["preview"], ["sheet"]])
+def test_help(cmd):
+    r = runner.invoke(app, [*cmd, "--help"])
+    assert r.exit_code == 0 and "Usage" in r.output
+
+
+def test_preview_png(maps):
+    out = maps / "out.png"
+    r = runner.invoke(app, ["preview", "-o", str(out), "--normal", str(maps / "n.png"), "--roughness",
+                            str(maps / "r.png"), "--base-color", str(maps / "c.png"), "--size", "48",
+                            "--supersample", "1"])
+    assert r.exit_code == 0, r.output
+    img = read_image(out)
+    assert img.pixels.shape == (48, 96, 3) and img.depth == "u8"
+    assert img.pixels.std() > 0.02
+
+
+def test_preview_options_change_the_picture(maps):
+    def run(*extra):
+        out = maps / "o.png"
+        r = runner.invoke(app, ["preview", "-o", str(out), "--normal", str(maps / "n.png"), "--size", "32",
+                                "--supersample", "1", "--views", "ball", *extra])
+        assert r.exit_code == 0, r.output
+        return read_image(out).pixels
+
+    base = run()
+    assert base.shape == (32, 32, 3)
+    for extra in (["--env-rotation", "90"], ["--yaw", "40"], ["--green", "down"], ["--exposure", "auto"]):
+        assert np.abs(run(*extra) - base).mean() > 1 / 255, extra
+
+
+@pytest.mark.parametrize("suffix", [".gif", ".webp"])
+def test_turntable_animation(maps, suffix):
+    out = maps / f"spin{suffix}"
+    r = runner.invoke(app, ["preview", "-o", str(out), "--normal", str(maps / "n.png"), "--turntable", "5",
+                            "--size", "32", "--supersample", "1"])
+    assert r.exit_code == 0, r.output
+    frames = read_animation(out)
+    assert frames.shape == (5, 32, 32, 3)
+    assert np.abs(frames[1].astype(int) - frames[0]).mean() > 0.5  # the bumps move
+
+
+@pytest.mark.parametrize("args, message", [
+    (["--roughness", "1.5"], "roughness must lie in [0, 1]"),
+    (["--roughness", "missing.png"], "file not found"),
+    (["--base-color", "1,2"], "--base-color takes one number or 3 numbers"),
+    (["--exposure", "bright"], "--exposure"),
+    (["--turntable", "4"], "output must end in"),
+    (["--normal", "c.png", "--base-color", "0.5,0.5"], "--base-color"),
+])
+def test_bad_input_exits_2_and_writes_nothing(maps, monkeypatch, args, message):
+    monkeypatch.chdir(maps)
+    before = sorted(p.name for p in maps.iterdir())
+    r = runner.invoke(app, ["preview", "-o", "out.png", "--size", "16", *args])
+    assert r.exit_code == 2, r.output
+    assert message in r.output
+    assert sorted(p.name for p in maps.iterdir()) == before
+
+
+def test_environment_must_be_a_panorama(maps):
+    write_image(maps / "sq.exr", np.ones((16, 16, 3), np.float32) * 2, depth="f16")
+    r = runner.invoke(app, ["preview", "-o", str(maps / "o.png"), "--env", str(maps / "sq.exr"), "--size", "16"])
+    assert r.exit_code == 2 and "equirectangular" in r.output
+    assert not (maps / "o.png").exists()
+
+
+def test_output_equal_to_input_is_refused(maps):
+    r = runner.invoke(app, ["preview", "-o", str(maps / "n.png"), "--normal", str(maps / "n.png")])
+    assert r.exit_code == 2 and "also an input" in r.output
+
+
+def test_load_material_conventions(maps):
+    # Y-down files store −y (references.md §1); decoding as "down" negates it back
+    px = read_image(maps / "n.png").pixels
+    up = decode_normal_pixels(px, green="up")
+    down = decode_normal_pixels(px, green="down")
+    np.testing.assert_allclose(down[..., 1], -up[..., 1])
+    np.testing.assert_allclose(np.linalg.norm(up, axis=-1), 1, atol=1e-5)
+    # colour maps are decoded from sRGB (IEC 61966-2-1): stored 128/255 is linear 0.215861
+    m = load_material(base_color=maps / "c.png")
+    assert float(m.base_color[0, 0, 0]) == pytest.approx(0.215861, abs=1e-5)
+
+
+def test_sheet_command(maps):
+    out = maps / "sheet" / "index.html"
+    out.parent.mkdir()
+    r = runner.invoke(app, ["sheet", str(maps), "-o", str(out), "--thumb", "32"])
+    assert r.exit_code == 0, r.output
+    page = out.read_text()
+    for name in ("n.png", "r.png", "c.png"):
+        assert name in page
+    assert (maps / "sheet" / "index.png").exists()
+    # run again over the same folder: the sheet's own files are not listed as maps
+    r = runner.invoke(app, ["sheet", str(maps), str(out.parent), "-o", str(out), "--thumb", "32", "--no-lit"])
+    assert r.exit_code == 0, r.output
+    assert "index_files" not in out.read_text().split("<h1>")[1].split("Picture grid")[0]
+
+
+def test_sheet_errors(tmp_path):
+    r = runner.invoke(app, ["sheet", str(tmp_path), "-o", str(tmp_path / "s.html")])
+    assert r.exit_code == 2 and "no maps found" in r.output
+    r = runner.invoke(app, ["sheet", str(tmp_path / "nope"), "-o", str(tmp_path / "s.html")])
+    assert r.exit_code == 2 and "no such file or folder" in r.output
+    r = runner.invoke(app, ["sheet", str(tmp_path), "-o", str(tmp_path / "s.png")])
+    assert r.exit_code == 2 and ".html" in r.output
+    assert list(tmp_path.iterdir()) == []
