@@ -1,0 +1,91 @@
+"""The preview's lighting, baked in memory from an HDR panorama by the environment-map bakes.
+
+A thin layer: the specular prefiltered chain comes from :func:`bakery.envmap.specular.prefilter_specular`, the
+split-sum table from :func:`bakery.envmap.brdf_lut.brdf_lut`, the SH9 radiance coefficients from a projection of
+the panorama (Ramamoorthi & Hanrahan 2001); :class:`~bakery.preview.render.Lighting` holds them.
+
+The chain is made with fewer levels than a full mip chain (face 128², six levels, perceptual roughness linear
+in the level index, r = 0, 0.2, ... 1, smallest face 4²): a 1² or 2² face shows its six faces as flat patches
+on a rough ball, and the preview does not need them.
+"""
+
+from __future__ import annotations
+
+import functools
+import os
+from pathlib import Path
+
+import numpy as np
+
+from bakery.errors import BakeryError
+
+#: Face size of level 0, number of levels and table size of the lighting made for previews.
+PREVIEW_FACE = 128
+PREVIEW_LEVELS = 6
+PREVIEW_LUT = 64
+
+
+def sh_from_panorama(panorama: np.ndarray) -> np.ndarray:
+    """Radiance SH9 coefficients (9, 3) of an equirect panorama: L_lm = Σ L Y_lm Ω over its texels
+    (Ramamoorthi & Hanrahan 2001, eq. 3 basis; texel solid angles of :mod:`bakery.sphere`)."""
+    from bakery import sphere
+    from bakery.preview.render import sh_basis
+
+    h, w = panorama.shape[:2]
+    d = sphere.equirect_directions(w, h)
+    omega = sphere.equirect_solid_angles(w, h)
+    y = sh_basis(d) * omega[..., None]
+    return np.einsum("hwk,hwc->kc", y.astype(np.float64), panorama[..., :3].astype(np.float64)).astype(np.float32)
+
+
+def lighting_from_panorama(panorama: np.ndarray, *, face: int = PREVIEW_FACE, levels: int = PREVIEW_LEVELS,
+                           lut_size: int = PREVIEW_LUT, quality: str = "draft"):
+    """Bake the preview lighting of an equirect HDR panorama ``(H, 2H, 3)`` float32 in memory."""
+    from bakery.envmap.brdf_lut import brdf_lut
+    from bakery.envmap.specular import prefilter_specular
+    from bakery.preview.render import Lighting
+
+    pano = np.asarray(panorama, dtype=np.float32)
+    if pano.ndim != 3 or pano.shape[2] < 3 or pano.shape[1] != 2 * pano.shape[0]:
+        raise BakeryError(f"the environment must be an equirectangular RGB panorama (width = 2 x height); got "
+                          f"shape {pano.shape}")
+    if not np.all(np.isfinite(pano[..., :3])) or float(pano[..., :3].min()) < 0:
+        raise BakeryError("the environment holds NaN, Inf or negative radiance")
+    pano = np.ascontiguousarray(pano[..., :3])
+    if pano.shape[0] % 2:
+        raise BakeryError(f"the panorama's height must be even; got {pano.shape[0]}")
+    chain = prefilter_specular(pano, face, levels=levels, roughness="linear", quality=quality)
+    return Lighting(tuple(lv[..., :3] for lv in chain.levels), chain.roughness, brdf_lut(lut_size),
+                    sh_from_panorama(pano))
+
+
+def lighting_from_file(path: str | os.PathLike, *, max_pixels: int | None = None):
+    """Read an equirect HDR panorama (.hdr, .exr, or any readable image) and bake its preview lighting."""
+    from bakery.io.images import read_image
+
+    path = Path(path)
+    img = read_image(path, max_pixels=max_pixels)
+    h, w = img.pixels.shape[:2]
+    if w != 2 * h or img.channels < 3:
+        raise BakeryError(f"the environment must be an RGB equirectangular panorama, width = 2 x height; this "
+                          f"one is {w}x{h} with {img.channels} channel(s)", path)
+    if not img.is_float:
+        import warnings
+
+        from bakery.errors import BakeryWarning
+
+        warnings.warn(f"{path}: the environment is a low-dynamic-range image; highlights will be weak",
+                      BakeryWarning, stacklevel=2)
+    try:
+        return lighting_from_panorama(img.pixels)
+    except BakeryError as exc:
+        raise BakeryError(str(exc), path) from None
+
+
+@functools.lru_cache(maxsize=1)
+def default_lighting():
+    """The lighting of the built-in procedural sky (:func:`bakery.samples.sky_panorama`, 512 x 256, its sun 35°
+    high over the default camera's right shoulder), baked once per process."""
+    from bakery.samples import sky_panorama
+
+    return lighting_from_panorama(sky_panorama(512, sun_azimuth_deg=145.0))
