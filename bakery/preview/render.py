@@ -400,6 +400,19 @@ def _footprint_lod(u: np.ndarray, v: np.ndarray, hit: np.ndarray, width: int, he
     return np.log2(np.maximum(np.maximum(fx, fy), 1e-6)).astype(np.float32)
 
 
+def _lod_memo(u: np.ndarray, v: np.ndarray, hit: np.ndarray):
+    """Per-texture level of detail at the hit samples, computed once per texture size."""
+    memo: dict[tuple[int, int], np.ndarray] = {}
+
+    def lod(tex: _Texture) -> np.ndarray:
+        key = (tex.width, tex.height)
+        if key not in memo:
+            memo[key] = _footprint_lod(u, v, hit, tex.width, tex.height)[hit]
+        return memo[key]
+
+    return lod
+
+
 # ------------------------------------------------------------------------------------------ shading
 
 
@@ -565,30 +578,29 @@ def render_ball(material: Material, lighting: Lighting, *, size: int = 512, yaw:
     distance = 4.0
     eye, right, up, fwd = _camera(yaw, pitch, distance)
     tan_half = math.tan(math.asin(1 / distance)) / 0.92  # the ball fills 92% of the frame
-    d = _rays(n, eye, right, up, fwd, tan_half)
+    d = _rays(n, eye, right, up, fwd, tan_half).astype(np.float32)
+    eye = eye.astype(np.float32)
     b = d @ eye
-    disc = b * b - (eye @ eye - 1)
+    disc = b * b - np.float32(eye @ eye - 1)
     hit = disc > 0
     t = -b - np.sqrt(np.where(hit, disc, 0))
-    p = eye[None, None, :] + t[..., None] * d  # on the unit sphere where hit
-    spin_m = sphere.rotation_y(-spin)  # object turns by +spin about +Y: p_obj = R(spin)^T p
-    p_obj = p @ spin_m
+    spin_m = sphere.rotation_y(-spin).astype(np.float32)  # object turns by +spin about +Y: p_obj = R^T p
+    p_obj = (eye[None, None, :] + t[..., None] * d) @ spin_m  # on the unit sphere where hit
     phi = np.arctan2(p_obj[..., 0], p_obj[..., 2])
     lat = np.arcsin(np.clip(p_obj[..., 1], -1, 1))
     tu, tv = float(tiles[0]), float(tiles[1])
     if not (tu > 0 and tv > 0 and math.isfinite(tu) and math.isfinite(tv)):
         raise BakeryError(f"tiles must be positive numbers; got {tiles}")
-    u = tu * (phi / (2 * np.pi) + 0.5)
-    v = tv * (lat / np.pi + 0.5)
-
-    def lod_fn(tex: _Texture) -> np.ndarray:
-        return _footprint_lod(u, v, hit, tex.width, tex.height)[hit]
-
+    u = np.float32(tu) * (phi * np.float32(1 / (2 * np.pi)) + np.float32(0.5))
+    v = np.float32(tv) * (lat * np.float32(1 / np.pi) + np.float32(0.5))
+    lod_fn = _lod_memo(u, v, hit)
     n_t, rough, base = _surface_values(material, u[hit], v[hit], lod_fn)
-    ph, lh = phi[hit], lat[hit]
-    tangent = np.stack([np.cos(ph), np.zeros_like(ph), -np.sin(ph)], axis=-1)
-    bitangent = np.stack([-np.sin(lh) * np.sin(ph), np.cos(lh), -np.sin(lh) * np.cos(ph)], axis=-1)
+    # T = dP/du and B = dP/dv normalised, from P = (cos lat sin phi, sin lat, cos lat cos phi)
     normal = p_obj[hit]
+    px, py, pz = normal[:, 0], normal[:, 1], normal[:, 2]
+    cl = np.maximum(np.sqrt(px * px + pz * pz), np.float32(1e-6))
+    tangent = np.stack([pz / cl, np.zeros_like(px), -px / cl], axis=-1)
+    bitangent = np.stack([-py * px / cl, cl, -py * pz / cl], axis=-1)
     world = (n_t[:, :1] * tangent + n_t[:, 1:2] * bitangent + n_t[:, 2:] * normal) @ spin_m.T
     world = (world / np.linalg.norm(world, axis=1, keepdims=True)).astype(np.float32)
     radiance = np.empty((n, n, 3), np.float32)
@@ -619,17 +631,17 @@ def render_tile(material: Material, lighting: Lighting, *, size: int = 512, yaw:
     corners = np.array([[x, 0.0, z] for x in (-1, 1) for z in (-1, 1)]) - eye
     depth = corners @ fwd
     extent = np.max(np.abs(np.stack([corners @ right, corners @ up]) / depth))
-    d = _rays(n, eye, right, up, fwd, extent / 0.94)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        t = np.where(d[..., 1] < 0, -eye[1] / d[..., 1], np.inf)
-    p = eye[None, None, :] + np.where(np.isfinite(t), t, 0)[..., None] * d
-    hit = np.isfinite(t) & (np.abs(p[..., 0]) <= 1) & (np.abs(p[..., 2]) <= 1)
-    u = repeat * (p[..., 0] + 1) / 2
-    v = repeat * (1 - p[..., 2]) / 2
+    d = _rays(n, eye, right, up, fwd, extent / 0.94).astype(np.float32)
+    eye = eye.astype(np.float32)
+    down = d[..., 1] < 0
+    t = -eye[1] / np.where(down, d[..., 1], np.float32(-1))
+    px = eye[0] + t * d[..., 0]
+    pz = eye[2] + t * d[..., 2]
+    hit = down & (np.abs(px) <= 1) & (np.abs(pz) <= 1)
+    u = np.float32(repeat / 2) * (px + 1)
+    v = np.float32(repeat / 2) * (1 - pz)
 
-    def lod_fn(tex: _Texture) -> np.ndarray:
-        return _footprint_lod(u, v, hit, tex.width, tex.height)[hit]
-
+    lod_fn = _lod_memo(u, v, hit)
     n_t, rough, base = _surface_values(material, u[hit], v[hit], lod_fn)
     # tangent +X (u), bitangent -Z (v), normal +Y
     world = np.stack([n_t[:, 0], n_t[:, 2], -n_t[:, 1]], axis=-1).astype(np.float32)
