@@ -137,30 +137,47 @@ def sheet(
 ) -> None:
     """Make a contact sheet: an HTML page (opens from disk, no server) and a PNG grid with every map, its lit
     preview, size and the findings of `bakery inspect`."""
-    written = make_sheet(sources, output, recursive=recursive, thumb=thumb, columns=columns, lit=lit, env=env,
-                         title=title)
+    output_path(output, suffixes=(".html", ".htm"))
+    files = collect_maps(sources, output, recursive=recursive)
+    written = make_sheet(files, output, source=", ".join(str(s) for s in sources), thumb=thumb,
+                         columns=columns, lit=lit, env=env, title=title)
     echo(f"wrote {written[-1]} and {', '.join(p.name for p in written[:-1])}")
 
 
-def make_sheet(sources: list[Path], output: Path, *, recursive: bool = True, thumb: int = 160, columns: int = 4,
-               lit: bool = True, env: Path | None = None, title: str = "bakery contact sheet",
-               show_progress: bool = True) -> list[Path]:
-    """The work of ``bakery sheet`` (also called after a batch)."""
-    from bakery.preview.sheet import find_maps, lit_previews, make_entry, sheet_paths, write_sheet
+def collect_maps(sources: list[Path], output: Path, *, recursive: bool = True) -> list[tuple[Path, Path]]:
+    """(map, folder its name is relative to) for every map in ``sources`` (folders and files), leaving out the
+    sheet's own thumbnails and grid pictures."""
+    import re
 
-    output_path(output, suffixes=(".html", ".htm"))
-    own = [sheet_paths(output, 1)[0]]
+    from bakery.preview.sheet import find_maps, sheet_paths
+
+    own_folder = sheet_paths(output, 1)[0]
+    own_grid = re.compile(re.escape(output.stem) + r"(-\d+)?\.png")
+
+    def own(p: Path) -> bool:
+        return p.parent.resolve() == output.parent.resolve() and own_grid.fullmatch(p.name) is not None
+
     files: list[tuple[Path, Path]] = []
     for src in sources:
         if src.is_dir():
-            files += [(p, src) for p in find_maps(src, recursive=recursive, exclude=own)]
+            files += [(p, src) for p in find_maps(src, recursive=recursive, exclude=[own_folder]) if not own(p)]
         elif src.is_file():
             files.append((src, src.parent))
         else:
             raise BakeryError("no such file or folder", src)
     if not files:
-        raise BakeryError("no maps found (looked for " + ", ".join(
-            (".png", ".tif", ".tiff", ".exr", ".hdr", ".jpg")) + ")", sources[0])
+        raise BakeryError("no maps found (looked for .png, .tif, .tiff, .exr, .hdr, .jpg)", sources[0])
+    return files
+
+
+def make_sheet(files: list[tuple[Path, Path]], output: Path, *, source: str = "", thumb: int = 160,
+               columns: int = 4, lit: bool = True, env: Path | None = None, title: str = "bakery contact sheet",
+               show_progress: bool = True) -> list[Path]:
+    """The work of ``bakery sheet`` (also run after a batch): ``files`` holds (map, folder its card name is
+    relative to) pairs, see :func:`collect_maps`."""
+    from bakery.preview.sheet import lit_previews, make_entry, write_sheet
+
+    output_path(output, suffixes=(".html", ".htm"))
     limit = max_pixels_from_env()
     fn = lit_previews(_lighting(env, limit), size=thumb) if lit else None
     many_roots = len({root for _, root in files}) > 1
@@ -171,5 +188,4 @@ def make_sheet(sources: list[Path], output: Path, *, recursive: bool = True, thu
         if many_roots:
             e.name = f"{root.name}/{e.name}"
         entries.append(e)
-    source = ", ".join(str(s) for s in sources)
     return write_sheet(entries, output, title=title, source=source, columns=columns, thumb=thumb)
