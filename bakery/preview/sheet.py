@@ -199,10 +199,22 @@ def material_for(pixels: np.ndarray, kind: str, depth: str, name: str):
 
 
 def lit_previews(lighting, *, size: int = 160, supersample: int = 2) -> PreviewFn:
-    """A :data:`PreviewFn` rendering the ball of :func:`material_for` under ``lighting``."""
-    from bakery.preview.render import preview_image
+    """A :data:`PreviewFn` rendering the ball of :func:`material_for` under ``lighting``. An equirect HDR
+    environment is shown instead on a polished metal ball (roughness 0.15) lit by itself, its lighting baked
+    in memory at a small size (face 64², five levels), with automatic exposure."""
+    from bakery.preview.render import Material, preview_image
 
     def fn(pixels: np.ndarray, kind: str, depth: str, name: str):
+        if kind == "environment":
+            from bakery.preview.lighting import lighting_from_panorama
+
+            h, w = pixels.shape[:2]
+            if w != 2 * h or h % 2:
+                return None, "no lit preview: not an equirectangular panorama (2:1, even height)"
+            own = lighting_from_panorama(pixels[..., :3], face=64, levels=5)
+            ball = Material(roughness=0.15, metallic=1.0, base_color=(0.95, 0.95, 0.95))
+            img, _ = preview_image(ball, own, size=size, views="ball", supersample=supersample, exposure=None)
+            return img, "lit by itself: metal ball, roughness 0.15"
         material, note = material_for(pixels, kind, depth, name)
         if material is None:
             return None, note

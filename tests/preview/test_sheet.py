@@ -89,7 +89,9 @@ def test_entries_carry_kind_size_findings_and_previews(maps, lighting):
     assert not n.problems
     assert entries["rock_rough.png"].preview_note == "lit: roughness map"
     assert entries["albedo.png"].preview_note == "lit: base colour"
-    assert entries["sky.exr"].kind == "environment" and entries["sky.exr"].preview is None
+    sky = entries["sky.exr"]
+    assert sky.kind == "environment" and sky.preview.shape == (32, 32, 3)
+    assert sky.preview_note.startswith("lit by itself")
     broken = entries["broken.png"]
     assert broken.kind == "unreadable" and broken.findings[0].severity == "error"
     assert broken.thumbnail is None
@@ -119,7 +121,7 @@ def test_write_sheet_outputs_and_replaces_atomically(maps, tmp_path, lighting):
     written = write_sheet(entries, out / "sheet.html", thumb=40)
     assert [p.name for p in written] == ["sheet_files", "sheet.png", "sheet.html"]
     thumbs = sorted(p.name for p in (out / "sheet_files").iterdir())
-    assert len(thumbs) == len(entries) - 1 + 4  # one map thumbnail per readable file, four lit previews
+    assert len(thumbs) == len(entries) - 1 + 5  # one map thumbnail per readable file, five lit previews
     import cv2
 
     grid = cv2.imread(str(out / "sheet.png"))
