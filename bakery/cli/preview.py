@@ -45,8 +45,15 @@ def preview(
     normal: Annotated[Path | None, typer.Option(help="Normal map (tangent space).", dir_okay=False)] = None,
     green: Annotated[Green, typer.Option(help="Green channel of the normal map file: up (OpenGL-style, glTF) "
                                          "or down (DirectX-style).")] = Green.up,
+    height: Annotated[Path | None, typer.Option(help="Height map instead of --normal: normals are baked from "
+                                                "it in memory (as `bakery normal` does).", dir_okay=False)] = None,
+    strength: Annotated[float | None, typer.Option(help="Strength of the --height bake, texels per height unit "
+                                                   "[default: depth = width / 32].", show_default=False)] = None,
     roughness: Annotated[str, typer.Option(help="Perceptual roughness: a number in [0, 1] or a roughness "
                                            "map.")] = "0.5",
+    exponent: Annotated[Path | None, typer.Option(help="Specular-exponent map instead of a roughness map, "
+                                                  "converted in memory (as `bakery roughness` does).",
+                                                  dir_okay=False)] = None,
     base_color: Annotated[str, typer.Option("--base-color", help="Base colour: a grey level, R,G,B (linear, "
                                             "0-1) or a colour map (8/16-bit files are sRGB).")] = "0.5",
     metallic: Annotated[float, typer.Option(min=0.0, max=1.0, help="0 = dielectric, 1 = metal.")] = 0.0,
@@ -84,11 +91,12 @@ def preview(
     rough = parse_value_or_path(roughness, "--roughness", channels=1)
     color = parse_value_or_path(base_color, "--base-color", channels=3)
     ev = _exposure(exposure)
-    inputs = [p for p in (normal, env, rough, color) if isinstance(p, Path)]
+    inputs = [p for p in (normal, height, exponent, env, rough, color) if isinstance(p, Path)]
     check_distinct([output], inputs)
     limit = max_pixels_from_env()
-    material = load_material(normal=normal, green=green.value, roughness=rough, base_color=color,
-                             metallic=metallic, max_pixels=limit)
+    material = load_material(normal=normal, green=green.value, height=height, strength=strength,
+                             roughness=rough, exponent=exponent, base_color=color, metallic=metallic,
+                             max_pixels=limit)
     lighting = _lighting(env, limit)
     if anim:
         from bakery.io.animation import write_animation

@@ -70,7 +70,8 @@ def _read(path: Path, *, color: str = "data", max_pixels: int | None = None) -> 
 
 
 def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
-                  roughness: float | str | os.PathLike = 0.5,
+                  height: str | os.PathLike | None = None, strength: float | None = None,
+                  roughness: float | str | os.PathLike = 0.5, exponent: str | os.PathLike | None = None,
                   base_color: float | tuple[float, float, float] | str | os.PathLike = 0.5,
                   metallic: float = 0.0, max_pixels: int | None = None):
     """Build a :class:`~bakery.preview.render.Material` from files and values.
@@ -81,8 +82,17 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
         Tangent-space normal map (2, 3 or 4 channels, alpha ignored). None: flat.
     green : {"up", "down"}
         The normal map file's green-channel convention.
+    height : path, optional
+        A height map instead of ``normal``: normals are baked from it in memory with
+        :func:`bakery.normals.normal_from_height` (the ``bakery normal`` defaults: Scharr derivatives, wrapping
+        edges).
+    strength : float, optional
+        Strength of that bake (texels per height unit); default as ``bakery normal``: depth = width / 32.
     roughness : float or path
         Perceptual roughness in [0, 1], or a single-channel map of it (data, never colour-converted).
+    exponent : path, optional
+        A Blinn-Phong specular-exponent map instead of a roughness map, converted in memory with
+        :func:`bakery.roughness.roughness_from_exponent` (its defaults: the peak rule of Walter et al. 2007).
     base_color : float, (r, g, b) or path
         Linear values in [0, 1], or a colour map (8/16-bit files decoded from sRGB, IEC 61966-2-1; float files
         taken as linear).
@@ -93,9 +103,42 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
     from bakery.preview.render import Material
 
     normals = None
+    if normal is not None and height is not None:
+        raise BakeryError("give a normal map or a height map, not both")
+    if exponent is not None and isinstance(roughness, str | os.PathLike):
+        raise BakeryError("give a roughness map or an exponent map, not both")
+    if height is not None:
+        from bakery.normals.from_height import DEFAULT_DEPTH_RATIO, normal_from_height, strength_from_size
+
+        path = Path(height)
+        px = _read(path, max_pixels=max_pixels)
+        if px.shape[2] >= 3 and not (np.array_equal(px[..., 0], px[..., 1])
+                                     and np.array_equal(px[..., 0], px[..., 2])):
+            raise BakeryError("a height map needs one channel (or three equal ones); this one has colour", path)
+        h = px[..., 0]
+        if strength is None:
+            s = strength_from_size(h.shape, DEFAULT_DEPTH_RATIO, 1.0)
+        elif not (np.isfinite(strength) and strength != 0):
+            raise BakeryError(f"--strength must be a non-zero number; got {strength}")
+        else:
+            s = float(strength)
+        normals = normal_from_height(h, strength=s)
+    elif strength is not None:
+        raise BakeryError("--strength applies to a height map (--height)")
     if normal is not None:
         normals = decode_normal_pixels(_read(Path(normal), max_pixels=max_pixels), green=green, path=normal)
-    if isinstance(roughness, str | os.PathLike):
+    if exponent is not None:
+        from bakery.roughness import roughness_from_exponent
+
+        path = Path(exponent)
+        px = _read(path, max_pixels=max_pixels)
+        if px.shape[2] != 1:
+            raise BakeryError(f"an exponent map needs one channel; this one has {px.shape[2]}", path)
+        try:
+            rough = np.asarray(roughness_from_exponent(px[..., 0]), dtype=np.float32)
+        except BakeryError as exc:
+            raise BakeryError(str(exc), path) from None
+    elif isinstance(roughness, str | os.PathLike):
         path = Path(roughness)
         px = _read(path, max_pixels=max_pixels)
         if px.shape[2] >= 3 and not (np.array_equal(px[..., 0], px[..., 1])

@@ -136,3 +136,26 @@ def test_sheet_errors(tmp_path):
     r = runner.invoke(app, ["sheet", str(tmp_path), "-o", str(tmp_path / "s.png")])
     assert r.exit_code == 2 and ".html" in r.output
     assert list(tmp_path.iterdir()) == []
+
+
+def test_sources_are_baked_in_memory(tmp_path):
+    # A height ramp rising one unit per texel, strength 1: n = normalize(−1, 0, 1) (Blinn 1978, as in
+    # references.md §1); exponents 1, 32, 8192 -> perceptual roughness 0.903602, 0.492479, 0.124992
+    # (Walter et al. 2007: alpha = sqrt(2/(n + 2)), r = sqrt(alpha); references.md §5).
+    ramp = np.tile(np.arange(16, dtype=np.float32), (8, 1))[..., None]
+    write_image(tmp_path / "h.exr", ramp, depth="f32")
+    exps = np.array([[1.0, 32.0, 8192.0]], np.float32)[..., None]
+    write_image(tmp_path / "e.exr", exps, depth="f32")
+    m = load_material(height=tmp_path / "h.exr", strength=1.0, exponent=tmp_path / "e.exr")
+    np.testing.assert_allclose(m.normals[4, 8], [-0.707107, 0.0, 0.707107], atol=1e-5)
+    np.testing.assert_allclose(m.roughness[0], [0.903602, 0.492479, 0.124992], atol=1e-5)
+    out = tmp_path / "o.png"
+    r = runner.invoke(app, ["preview", "-o", str(out), "--height", str(tmp_path / "h.exr"), "--exponent",
+                            str(tmp_path / "e.exr"), "--size", "16", "--supersample", "1"])
+    assert r.exit_code == 0, r.output
+    for args, message in ((["--normal", str(out)], "not both"), (["--roughness", str(out)], "not both")):
+        r = runner.invoke(app, ["preview", "-o", str(tmp_path / "x.png"), "--height", str(tmp_path / "h.exr"),
+                                "--exponent", str(tmp_path / "e.exr"), *args])
+        assert r.exit_code == 2 and message in r.output
+    r = runner.invoke(app, ["preview", "-o", str(tmp_path / "x.png"), "--strength", "2"])
+    assert r.exit_code == 2 and "--height" in r.output
