@@ -194,10 +194,42 @@ def _step_batch(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
             ("batch plan and summaries", text), ("batch report (JSON)", first.path)]
 
 
-#: Demo steps in order: (name, function).
-STEPS: list[tuple[str, Step]] = [("info", _step_info), ("normals", _step_normals),
-                                  ("roughness", _step_roughness), ("envmaps", _step_envmaps),
-                                  ("specular", _step_specular), ("batch", _step_batch)]
+def _step_preview(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
+    """Lit previews of the paving stones, baked from their sources in memory, under the demo sky."""
+    from bakery.io.animation import write_animation
+    from bakery.io.images import write_image
+    from bakery.preview.inputs import load_material
+    from bakery.preview.lighting import lighting_from_file
+    from bakery.preview.render import preview_image, turntable_frames
+
+    folder = out / "preview"
+    folder.mkdir(exist_ok=True)
+    material = load_material(height=inputs["height"], exponent=inputs["exponent"], base_color=(0.45, 0.41, 0.36))
+    light = lighting_from_file(inputs["sky"])
+    size = int(min(384, max(96, 1.5 * material.normals.shape[1])))  # follows the demo's map size
+    img, _ = preview_image(material, light, size=size, env_rotation=85.0)
+    still = write_image(folder / "paving.png", img, depth="u8")
+    frames, _ = turntable_frames(material, light, 24, size=size // 2, env_rotation=85.0)
+    spin = write_animation(folder / "paving_turntable.webp", frames, fps=12)
+    return [("the paving stones lit by the sky, ball and tile (bakery preview)", still),
+            ("the ball turning under the sky (bakery preview --turntable 24)", spin)]
+
+
+def _step_sheet(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
+    """A contact sheet of every map the demo made so far, preview pictures aside (keep this step last)."""
+    from bakery.cli.preview import collect_maps, make_sheet
+
+    page = out / "sheet.html"
+    previews = (out / "preview").resolve()
+    maps = [(p, root) for p, root in collect_maps([out], page) if previews not in p.resolve().parents]
+    make_sheet(maps, page, source="the demo", env=inputs["sky"], title="bakery demo", show_progress=False)
+    return [("every map with its preview and findings (bakery sheet)", page)]
+
+
+#: Demo steps in order: (name, function). The contact sheet stays last: it shows what the others made.
+STEPS: list[tuple[str, Step]] = [("info", _step_info), ("normals", _step_normals), ("roughness", _step_roughness),
+                                 ("envmaps", _step_envmaps), ("specular", _step_specular), ("batch", _step_batch),
+                                 ("preview", _step_preview), ("sheet", _step_sheet)]
 
 
 def run_demo(out: str | Path, *, size: int = 256, log: Callable[[str], None] = print) -> Path:

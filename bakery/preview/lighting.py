@@ -5,13 +5,14 @@ split-sum table from :func:`bakery.envmap.brdf_lut.brdf_lut`, the SH9 radiance c
 the panorama (Ramamoorthi & Hanrahan 2001); :class:`~bakery.preview.render.Lighting` holds them.
 
 The chain is made with fewer levels than a full mip chain (face 128², six levels, perceptual roughness linear
-in the level index, r = 0, 0.2, ... 1, smallest face 4²): a 1² or 2² face shows its six faces as flat patches
-on a rough ball, and the preview does not need them.
+in the level index, r = 0, 0.2, ... 1, smallest face 4², for panoramas 1024 wide or more): a 1² or 2² face
+shows its six faces as flat patches on a rough ball, and the preview does not need them.
 """
 
 from __future__ import annotations
 
 import functools
+import math
 import os
 from pathlib import Path
 
@@ -23,6 +24,8 @@ from bakery.errors import BakeryError
 PREVIEW_FACE = 128
 PREVIEW_LEVELS = 6
 PREVIEW_LUT = 64
+#: Panoramas are shrunk to this width before baking the preview lighting.
+MAX_WIDTH = 1024
 
 
 def sh_from_panorama(panorama: np.ndarray) -> np.ndarray:
@@ -40,8 +43,13 @@ def sh_from_panorama(panorama: np.ndarray) -> np.ndarray:
 
 def lighting_from_panorama(panorama: np.ndarray, *, face: int = PREVIEW_FACE, levels: int = PREVIEW_LEVELS,
                            lut_size: int = PREVIEW_LUT, quality: str = "draft"):
-    """Bake the preview lighting of an equirect HDR panorama ``(H, 2H, 3)`` float32 in memory."""
-    from bakery.envmap.brdf_lut import brdf_lut
+    """Bake the preview lighting of an equirect HDR panorama ``(H, 2H, 3)`` float32 in memory.
+
+    Panoramas wider than :data:`MAX_WIDTH` are first shrunk to it by area averaging (OpenCV ``INTER_AREA``;
+    energy is kept up to the small change of texel solid angle within each averaged block); the face size is
+    at most ``face`` and at most an eighth of the panorama's width, and the chain has at most ``levels``
+    levels, perceptual roughness linear in the level index from 0 to 1.
+    """
     from bakery.envmap.specular import prefilter_specular
     from bakery.preview.render import Lighting
 
@@ -54,9 +62,24 @@ def lighting_from_panorama(panorama: np.ndarray, *, face: int = PREVIEW_FACE, le
     pano = np.ascontiguousarray(pano[..., :3])
     if pano.shape[0] % 2:
         raise BakeryError(f"the panorama's height must be even; got {pano.shape[0]}")
+    if pano.shape[1] > MAX_WIDTH:  # area average: the preview's faces need no more detail
+        import cv2
+
+        w = MAX_WIDTH
+        pano = cv2.resize(pano, (w, w // 2), interpolation=cv2.INTER_AREA)
+    face = int(min(face, max(8, 2 ** int(math.log2(pano.shape[1] / 8)))))
+    levels = min(levels, face.bit_length())
     chain = prefilter_specular(pano, face, levels=levels, roughness="linear", quality=quality)
-    return Lighting(tuple(lv[..., :3] for lv in chain.levels), chain.roughness, brdf_lut(lut_size),
+    return Lighting(tuple(lv[..., :3] for lv in chain.levels), chain.roughness, _table(lut_size),
                     sh_from_panorama(pano))
+
+
+@functools.lru_cache(maxsize=2)
+def _table(size: int) -> np.ndarray:
+    """The split-sum table does not depend on the environment: made once per process."""
+    from bakery.envmap.brdf_lut import brdf_lut
+
+    return brdf_lut(size)
 
 
 def lighting_from_file(path: str | os.PathLike, *, max_pixels: int | None = None):
@@ -84,8 +107,8 @@ def lighting_from_file(path: str | os.PathLike, *, max_pixels: int | None = None
 
 @functools.lru_cache(maxsize=1)
 def default_lighting():
-    """The lighting of the built-in procedural sky (:func:`bakery.samples.sky_panorama`, 512 x 256, its sun 35°
+    """The lighting of the built-in procedural sky (:func:`bakery.samples.sky_panorama`, 1024 x 512, its sun 35°
     high over the default camera's right shoulder), baked once per process."""
     from bakery.samples import sky_panorama
 
-    return lighting_from_panorama(sky_panorama(512, sun_azimuth_deg=145.0))
+    return lighting_from_panorama(sky_panorama(1024, sun_azimuth_deg=145.0))
