@@ -73,7 +73,9 @@ def test_flat_mirror_tile_under_constant_environment_is_split_sum(table, base):
     spec = 0.04 * ab[:, 0] + ab[:, 1]
     np.testing.assert_allclose(spec, 0.04 + 0.96 * (1 - nv) ** 5, atol=1e-9)  # the mirror limit
     expected = L[None, :] * spec[:, None] + np.array(base)[None, :] * L[None, :] * (1 - spec[:, None])
-    np.testing.assert_allclose(r.radiance[inside], expected, rtol=2e-3, atol=1e-5)
+    # tolerance: the renderer reads a 64² table bilinearly; (1 − n·v)^5 between table columns is off by up to
+    # about 0.2% of the result here (measured 0.21% at base 0)
+    np.testing.assert_allclose(r.radiance[inside], expected, rtol=3e-3, atol=1e-5)
     # the view angle varies across the tile, so the shading does too: the check is not vacuous
     assert nv.max() - nv.min() > 0.2
 
