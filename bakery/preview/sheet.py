@@ -175,15 +175,27 @@ def _to_u8(img: np.ndarray) -> np.ndarray:
 PreviewFn = Callable[[np.ndarray, str, str, str], tuple[np.ndarray | None, str]]
 
 
+#: Name parts that say what a single-channel map holds (common practice in texture naming).
+ROUGHNESS_WORDS = ("rough",)
+HEIGHT_WORDS = ("height", "disp", "bump")
+EXPONENT_WORDS = ("exponent", "shin")
+
+
 def material_for(pixels: np.ndarray, kind: str, depth: str, name: str):
-    """The material a map is previewed as, and a note saying how; ``(None, reason)`` when the kind has no
-    preview here. Normal maps are read as Y-up (bakery's and glTF's convention), so a Y-down map shows its
-    inverted relief on the ball; colour maps become the base colour (8/16-bit files decoded from sRGB,
-    IEC 61966-2-1); single-channel maps whose name contains "rough" become the roughness."""
+    """The material a map is previewed as, and a note saying how; ``(None, reason)`` when there is none.
+
+    - normal maps: read as Y-up (bakery's and glTF's convention), so a Y-down map shows its inverted relief;
+    - colour maps: the base colour (8/16-bit files decoded from sRGB, IEC 61966-2-1);
+    - single-channel maps say what they hold by name only: ``rough`` -> roughness; ``height``, ``disp``,
+      ``bump`` -> normals baked in memory (:func:`bakery.normals.normal_from_height`, depth = width / 32 as
+      ``bakery normal`` assumes); float maps named ``exponent`` or ``shin`` -> roughness through
+      :func:`bakery.roughness.roughness_from_exponent`.
+    """
     from bakery.io.color import srgb_to_linear
     from bakery.preview.render import Material
 
     px = np.asarray(pixels, dtype=np.float32)
+    stem = Path(name).stem.lower()
     if kind == "normal":
         from bakery.preview.inputs import decode_normal_pixels
 
@@ -193,8 +205,21 @@ def material_for(pixels: np.ndarray, kind: str, depth: str, name: str):
         rgb = px[..., :3]
         rgb = srgb_to_linear(rgb) if depth in ("u8", "u16") else np.clip(rgb, 0, None)
         return Material(base_color=np.minimum(rgb, 1), roughness=0.5), "lit: base colour"
-    if kind == "height" and "rough" in Path(name).stem.lower():
-        return Material(roughness=np.clip(px[..., 0], 0, 1)), "lit: roughness map"
+    if kind in ("height", "data"):
+        g = px[..., 0]
+        if any(w in stem for w in ROUGHNESS_WORDS) and g.min() >= 0 and g.max() <= 1:
+            return Material(roughness=g), "lit: roughness map"
+        if any(w in stem for w in HEIGHT_WORDS):
+            from bakery.normals.from_height import DEFAULT_DEPTH_RATIO, normal_from_height, strength_from_size
+
+            n = normal_from_height(g, strength=strength_from_size(g.shape, DEFAULT_DEPTH_RATIO, 1.0))
+            return Material(normals=n, roughness=0.35), "lit: normals baked from the heights (depth = width/32)"
+        if kind == "data" and any(w in stem for w in EXPONENT_WORDS) and g.min() >= 0:
+            from bakery.roughness import roughness_from_exponent
+
+            r = np.asarray(roughness_from_exponent(g), dtype=np.float32)
+            return Material(roughness=r), "lit: roughness from the exponents"
+        return None, "no lit preview: the name does not say rough, height or exponent"
     return None, f"no lit preview for this kind of map ({kind})"
 
 

@@ -105,6 +105,20 @@ def test_material_for_reads_normals_as_y_up():
     assert "Y-up" in note
 
 
+def test_single_channel_maps_are_previewed_by_name():
+    # heights: normals baked with depth = width/32 (bakery normal's default), n = normalize(−s ∂h/∂x, ..., 1)
+    # (Blinn 1978) with s = 64/32 = 2 for a ramp rising 0.01 per texel; exponents: 32 -> r = 0.492479
+    # (Walter et al. 2007 peak rule, references.md §5)
+    ramp = np.tile(np.arange(64, dtype=np.float32) * 0.01, (16, 1))[..., None]
+    mat, note = material_for(ramp, "height", "u16", "wall_height.png")
+    np.testing.assert_allclose(mat.normals[8, 30], np.array([-0.02, 0, 1]) / np.hypot(0.02, 1), atol=1e-5)
+    assert "baked from the heights" in note
+    mat, note = material_for(np.full((4, 4, 1), 32.0, np.float32), "data", "f16", "wall_exponent.exr")
+    np.testing.assert_allclose(mat.roughness, 0.492479, atol=1e-5)
+    mat, note = material_for(ramp, "height", "u16", "wall_mask.png")
+    assert mat is None and "rough, height or exponent" in note
+
+
 def test_page_escapes_names_and_links(maps, lighting):
     entries = [make_entry(p, maps, thumb=32) for p in find_maps(maps)]
     page = sheet_html(entries, title="<b>sheet</b>", thumbs=[("t/a b&c.png", None)] * len(entries), grids=[])
