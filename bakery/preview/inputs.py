@@ -37,30 +37,15 @@ def parse_value_or_path(text: str, what: str, *, channels: int) -> float | tuple
     return values
 
 
-def decode_normal_pixels(pixels: np.ndarray, *, green: str = "up", path: str | os.PathLike | None = None
-                         ) -> np.ndarray:
+def decode_normal_pixels(pixels: np.ndarray, *, green: str = "up") -> np.ndarray:
     """Stored normal-map values (H, W, C) in [0, 1] -> unit normals (H, W, 3), +Y up.
 
-    Encoding ``n·0.5 + 0.5`` (glTF 2.0, material.normalTexture); ``green="down"`` reads files whose green
-    channel stores −y (the Y-down trade convention). Two-channel files rebuild z = sqrt(max(0, 1 − x² − y²)).
-    Zero-length vectors become (0, 0, 1).
+    :func:`bakery.normals.decode_normals` (encoding ``n·0.5 + 0.5``, glTF 2.0; ``green="down"`` for files whose
+    green channel stores −y; two-channel files rebuild z), then renormalised; zero vectors become (0, 0, 1).
     """
-    if green not in ("up", "down"):
-        raise BakeryError(f"green must be 'up' or 'down'; got {green!r}")
-    px = np.asarray(pixels, dtype=np.float32)
-    if px.ndim != 3 or px.shape[2] not in (2, 3, 4):
-        raise BakeryError(f"a normal map needs 2, 3 or 4 channels; got {px.shape[-1] if px.ndim == 3 else 1}",
-                          path)
-    if px.shape[2] == 2:
-        xy = px * 2 - 1
-        n = np.concatenate([xy, np.sqrt(np.clip(1 - np.sum(xy * xy, axis=-1, keepdims=True), 0, 1))], axis=-1)
-    else:
-        n = px[..., :3] * 2 - 1
-    if green == "down":
-        n[..., 1] *= -1
-    length = np.linalg.norm(n, axis=-1, keepdims=True)
-    flat = np.array([0, 0, 1], np.float32)
-    return np.where(length > 1e-6, n / np.maximum(length, 1e-6), flat).astype(np.float32)
+    from bakery.normals.encode import decode_normals, normalize
+
+    return normalize(decode_normals(pixels, y=green))[0]
 
 
 def _read(path: Path, *, color: str = "data", max_pixels: int | None = None) -> np.ndarray:
@@ -126,7 +111,9 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
     elif strength is not None:
         raise BakeryError("--strength applies to a height map (--height)")
     if normal is not None:
-        normals = decode_normal_pixels(_read(Path(normal), max_pixels=max_pixels), green=green, path=normal)
+        from bakery.normals.bakes import read_normals  # decodes, warns about and renormalizes non-unit vectors
+
+        normals, _ = read_normals(Path(normal), green)
     if exponent is not None:
         from bakery.roughness import roughness_from_exponent
 
