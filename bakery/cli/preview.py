@@ -57,8 +57,17 @@ def preview(
     base_color: Annotated[str, typer.Option("--base-color", help="Base colour: a grey level, R,G,B (linear, "
                                             "0-1) or a colour map (8/16-bit files are sRGB).")] = "0.5",
     metallic: Annotated[float, typer.Option(min=0.0, max=1.0, help="0 = dielectric, 1 = metal.")] = 0.0,
-    env: Annotated[Path | None, typer.Option(help="HDR environment panorama (equirectangular .hdr/.exr); "
-                                             "default: the built-in procedural sky.", dir_okay=False)] = None,
+    env: Annotated[Path | None, typer.Option(help="HDR environment panorama (equirectangular .hdr/.exr), baked "
+                                             "in memory; default: the built-in procedural sky.",
+                                             dir_okay=False)] = None,
+    specular: Annotated[Path | None, typer.Option(help="Baked lighting instead of --env: the prefiltered KTX2 "
+                                                  "chain of `bakery env specular` (needs --diffuse).",
+                                                  dir_okay=False)] = None,
+    diffuse: Annotated[Path | None, typer.Option(help="Baked lighting: the SH JSON of `bakery env diffuse`.",
+                                                 dir_okay=False)] = None,
+    lut: Annotated[Path | None, typer.Option(help="Baked lighting: the BRDF table of `bakery env lut` "
+                                             "[default: made in memory].", dir_okay=False,
+                                             show_default=False)] = None,
     size: Annotated[int, typer.Option(min=8, max=4096, help="Height of the picture in pixels (each view is "
                                       "size x size).")] = 512,
     views: Annotated[Views, typer.Option("--views", help="Which views to draw.")] = Views.both,
@@ -91,13 +100,14 @@ def preview(
     rough = parse_value_or_path(roughness, "--roughness", channels=1)
     color = parse_value_or_path(base_color, "--base-color", channels=3)
     ev = _exposure(exposure)
-    inputs = [p for p in (normal, height, exponent, env, rough, color) if isinstance(p, Path)]
+    inputs = [p for p in (normal, height, exponent, env, specular, diffuse, lut, rough, color)
+              if isinstance(p, Path)]
     check_distinct([output], inputs)
     limit = max_pixels_from_env()
     material = load_material(normal=normal, green=green.value, height=height, strength=strength,
                              roughness=rough, exponent=exponent, base_color=color, metallic=metallic,
                              max_pixels=limit)
-    lighting = _lighting(env, limit)
+    lighting = _lighting(env, limit, specular=specular, diffuse=diffuse, lut=lut)
     if anim:
         from bakery.io.animation import write_animation
         from bakery.preview.render import turntable_frames
@@ -120,9 +130,18 @@ def preview(
     echo(f"wrote {output} ({img.shape[1]}x{img.shape[0]}, exposure {used:+.2f} EV)")
 
 
-def _lighting(env: Path | None, limit: int | None):
-    from bakery.preview.lighting import default_lighting, lighting_from_file
+def _lighting(env: Path | None, limit: int | None, *, specular: Path | None = None, diffuse: Path | None = None,
+              lut: Path | None = None):
+    from bakery.preview.lighting import default_lighting, lighting_from_baked, lighting_from_file
 
+    if specular is not None or diffuse is not None:
+        if env is not None:
+            raise BakeryError("give either a panorama (--env) or baked lighting (--specular, --diffuse), not both")
+        if specular is None or diffuse is None:
+            raise BakeryError("baked lighting needs both --specular (the KTX2 chain) and --diffuse (the SH JSON)")
+        return lighting_from_baked(specular, diffuse, lut)
+    if lut is not None:
+        raise BakeryError("--lut goes with baked lighting (--specular, --diffuse)")
     if env is None:
         return default_lighting()
     return lighting_from_file(env, max_pixels=limit)

@@ -105,6 +105,120 @@ def lighting_from_file(path: str | os.PathLike, *, max_pixels: int | None = None
         raise BakeryError(str(exc), path) from None
 
 
+#: KTX2 key/value entries written by the environment bakes (``bakery env specular``, ``bakery env lut``).
+ROUGHNESS_KEY = "bakery.roughness-per-level"
+LUT_KEY = "bakery.brdf-lut"
+
+
+def _kv_json(value: bytes, key: str, path: Path) -> dict:
+    import json
+
+    try:
+        return json.loads(value.rstrip(b"\0").decode("utf-8"))
+    except (UnicodeDecodeError, json.JSONDecodeError):
+        raise BakeryError(f"key/value entry {key!r} is not valid JSON", path) from None
+
+
+def read_specular_chain(path: str | os.PathLike) -> tuple[list[np.ndarray], np.ndarray]:
+    """The levels (each ``(6, N, N, 3)``) and per-level perceptual roughness of a prefiltered KTX2 cube chain
+    as ``bakery env specular`` writes it (roughness in the key ``bakery.roughness-per-level``)."""
+    import warnings
+
+    from bakery.errors import BakeryWarning
+    from bakery.io.ktx2 import read_ktx2
+
+    path = Path(path)
+    tex = read_ktx2(path)
+    if not tex.cubemap:
+        raise BakeryError("is not a cubemap: a prefiltered specular chain has six faces per level", path)
+    if ROUGHNESS_KEY not in tex.key_values:
+        raise BakeryError(f"does not say the roughness of its levels (no {ROUGHNESS_KEY!r} entry); bake the chain "
+                          "with bakery env specular", path)
+    table = _kv_json(tex.key_values[ROUGHNESS_KEY], ROUGHNESS_KEY, path)
+    rough = np.asarray(table.get("roughness", []), dtype=np.float32)
+    if rough.shape != (len(tex.levels),):
+        raise BakeryError(f"lists {rough.size} roughness values for {len(tex.levels)} levels", path)
+    if table.get("lobe", "ggx") != "ggx":
+        warnings.warn(f"{path}: the chain was prefiltered with the {table.get('lobe')} lobe; the preview's BRDF "
+                      "table is GGX, so highlights will not match exactly", BakeryWarning, stacklevel=2)
+    levels = []
+    for lv in tex.levels:
+        if lv.shape[-1] < 3:
+            lv = np.repeat(lv[..., :1], 3, axis=-1)
+        levels.append(np.ascontiguousarray(lv[..., :3], dtype=np.float32))
+    return levels, rough
+
+
+def read_radiance_sh(path: str | os.PathLike) -> np.ndarray:
+    """The radiance SH9 coefficients ``(9, 3)`` from the JSON that ``bakery env diffuse`` writes
+    (``radiance_sh``, bakery's axes, Ramamoorthi & Hanrahan 2001 basis)."""
+    import json
+
+    path = Path(path)
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise BakeryError("file not found", path) from None
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise BakeryError(f"is not valid JSON ({exc.__class__.__name__})", path) from None
+    sh = np.asarray(data.get("radiance_sh", []) if isinstance(data, dict) else [], dtype=np.float64)
+    if sh.ndim != 2 or sh.shape[0] != 9 or sh.shape[1] not in (1, 3) or not np.all(np.isfinite(sh)):
+        raise BakeryError("has no 'radiance_sh' entry of 9 rows (1 or 3 channels); bake it with "
+                          "bakery env diffuse", path)
+    if sh.shape[1] == 1:
+        sh = np.repeat(sh, 3, axis=1)
+    return sh.astype(np.float32)
+
+
+def read_brdf_table(path: str | os.PathLike) -> np.ndarray:
+    """A split-sum table as ``bakery env lut`` writes it (16-bit PNG, EXR or KTX2), as ``(H, W, 2)`` with
+    roughness growing down the rows. The orientation comes from the KTX2 key ``bakery.brdf-lut`` or, for PNG and
+    EXR, from the manifest beside the file (``NAME.json``); without either, rows are taken to grow down."""
+    import json
+
+    path = Path(path)
+    layout = None
+    if path.suffix.lower() == ".ktx2":
+        from bakery.io.ktx2 import read_ktx2
+
+        tex = read_ktx2(path)
+        if tex.cubemap or len(tex.levels[0].shape) != 3:
+            raise BakeryError("is not a 2D texture: a BRDF table is one (H, W, 2) image", path)
+        table = tex.levels[0]
+        if LUT_KEY in tex.key_values:
+            layout = _kv_json(tex.key_values[LUT_KEY], LUT_KEY, path)
+    else:
+        from bakery.io.images import read_image
+
+        table = read_image(path).pixels
+        manifest = path.with_name(path.name + ".json")
+        if manifest.is_file():
+            try:
+                layout = json.loads(manifest.read_text(encoding="utf-8")).get("layout")
+            except (UnicodeDecodeError, json.JSONDecodeError, AttributeError):
+                layout = None
+    if table.shape[-1] < 2:
+        raise BakeryError(f"has {table.shape[-1]} channel(s): a BRDF table holds A and B in two", path)
+    if isinstance(layout, dict) and "grows up" in str(layout.get("rows", "")):
+        table = table[::-1]
+    return np.ascontiguousarray(table[..., :2], dtype=np.float32)
+
+
+def lighting_from_baked(specular: str | os.PathLike, diffuse: str | os.PathLike,
+                        lut: str | os.PathLike | None = None):
+    """Lighting from baked files: a prefiltered KTX2 cube chain, the diffuse JSON with radiance SH9
+    coefficients, and optionally a BRDF table (default: made in memory, 64²)."""
+    from bakery.preview.render import Lighting
+
+    levels, rough = read_specular_chain(specular)
+    sh = read_radiance_sh(diffuse)
+    table = read_brdf_table(lut) if lut is not None else _table(PREVIEW_LUT)
+    try:
+        return Lighting(tuple(levels), rough, table, sh)
+    except BakeryError as exc:
+        raise BakeryError(str(exc), specular) from None
+
+
 @functools.lru_cache(maxsize=1)
 def default_lighting():
     """The lighting of the built-in procedural sky (:func:`bakery.samples.sky_panorama`, 1024 x 512, its sun 35°
