@@ -208,7 +208,8 @@ def material_for(pixels: np.ndarray, kind: str, depth: str, name: str):
     if kind in ("height", "data"):
         g = px[..., 0]
         if any(w in stem for w in ROUGHNESS_WORDS) and g.min() >= 0 and g.max() <= 1:
-            return Material(roughness=g), "lit: roughness map"
+            # a dark base colour so the specular reflection, where roughness shows, dominates
+            return Material(roughness=g, base_color=(0.04, 0.04, 0.04)), "lit: roughness map (dark base)"
         if any(w in stem for w in HEIGHT_WORDS):
             from bakery.normals.from_height import DEFAULT_DEPTH_RATIO, normal_from_height, strength_from_size
 
@@ -218,7 +219,7 @@ def material_for(pixels: np.ndarray, kind: str, depth: str, name: str):
             from bakery.roughness import roughness_from_exponent
 
             r = np.asarray(roughness_from_exponent(g), dtype=np.float32)
-            return Material(roughness=r), "lit: roughness from the exponents"
+            return Material(roughness=r, base_color=(0.04, 0.04, 0.04)), "lit: roughness from the exponents"
         return None, "no lit preview: the name does not say rough, height or exponent"
     return None, f"no lit preview for this kind of map ({kind})"
 

@@ -87,7 +87,7 @@ def test_entries_carry_kind_size_findings_and_previews(maps, lighting):
     dx = entries["sub/rock normal & dx.png"]
     assert "green-y-down" in [f.code for f in dx.problems]
     assert not n.problems
-    assert entries["rock_rough.png"].preview_note == "lit: roughness map"
+    assert entries["rock_rough.png"].preview_note == "lit: roughness map (dark base)"
     assert entries["albedo.png"].preview_note == "lit: base colour"
     sky = entries["sky.exr"]
     assert sky.kind == "environment" and sky.preview.shape == (32, 32, 3)
