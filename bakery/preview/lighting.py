@@ -1,8 +1,9 @@
 """The preview's lighting, baked in memory from an HDR panorama by the environment-map bakes.
 
 A thin layer: the specular prefiltered chain comes from :func:`bakery.envmap.specular.prefilter_specular`, the
-split-sum table from :func:`bakery.envmap.brdf_lut.brdf_lut`, the SH9 radiance coefficients from a projection of
-the panorama (Ramamoorthi & Hanrahan 2001); :class:`~bakery.preview.render.Lighting` holds them.
+split-sum table from :func:`bakery.envmap.brdf_lut.brdf_lut`, the SH9 radiance coefficients from
+:func:`bakery.envmap.irradiance.project_sh` (Ramamoorthi & Hanrahan 2001); :class:`~bakery.preview.render.Lighting`
+holds them.
 
 The chain is made with fewer levels than a full mip chain (face 128², six levels, perceptual roughness linear
 in the level index, r = 0, 0.2, ... 1, smallest face 4², for panoramas 1024 wide or more): a 1² or 2² face
@@ -28,19 +29,6 @@ PREVIEW_LUT = 64
 MAX_WIDTH = 1024
 
 
-def sh_from_panorama(panorama: np.ndarray) -> np.ndarray:
-    """Radiance SH9 coefficients (9, 3) of an equirect panorama: L_lm = Σ L Y_lm Ω over its texels
-    (Ramamoorthi & Hanrahan 2001, eq. 3 basis; texel solid angles of :mod:`bakery.sphere`)."""
-    from bakery import sphere
-    from bakery.preview.render import sh_basis
-
-    h, w = panorama.shape[:2]
-    d = sphere.equirect_directions(w, h)
-    omega = sphere.equirect_solid_angles(w, h)
-    y = sh_basis(d) * omega[..., None]
-    return np.einsum("hwk,hwc->kc", y.astype(np.float64), panorama[..., :3].astype(np.float64)).astype(np.float32)
-
-
 def lighting_from_panorama(panorama: np.ndarray, *, face: int = PREVIEW_FACE, levels: int = PREVIEW_LEVELS,
                            lut_size: int = PREVIEW_LUT, quality: str = "draft"):
     """Bake the preview lighting of an equirect HDR panorama ``(H, 2H, 3)`` float32 in memory.
@@ -50,6 +38,7 @@ def lighting_from_panorama(panorama: np.ndarray, *, face: int = PREVIEW_FACE, le
     at most ``face`` and at most an eighth of the panorama's width, and the chain has at most ``levels``
     levels, perceptual roughness linear in the level index from 0 to 1.
     """
+    from bakery.envmap.irradiance import project_sh
     from bakery.envmap.specular import prefilter_specular
     from bakery.preview.render import Lighting
 
@@ -71,7 +60,7 @@ def lighting_from_panorama(panorama: np.ndarray, *, face: int = PREVIEW_FACE, le
     levels = min(levels, face.bit_length())
     chain = prefilter_specular(pano, face, levels=levels, roughness="linear", quality=quality)
     return Lighting(tuple(lv[..., :3] for lv in chain.levels), chain.roughness, _table(lut_size),
-                    sh_from_panorama(pano))
+                    project_sh(pano, "equirect"))
 
 
 @functools.lru_cache(maxsize=2)

@@ -72,7 +72,6 @@ __all__ = [
     "preview_image",
     "render_ball",
     "render_tile",
-    "sh_basis",
     "shade",
     "tonemap_reinhard",
     "turntable_frames",
@@ -83,9 +82,6 @@ DIELECTRIC_F0 = 0.04
 
 #: Luminance weights of linear Rec. 709 / sRGB primaries (ITU-R BT.709-6).
 LUMA = np.array([0.2126, 0.7152, 0.0722], dtype=np.float32)
-
-#: Cosine-lobe convolution constants per SH band l = 0, 1, 2 (Ramamoorthi & Hanrahan 2001).
-SH_BAND_SCALE = np.array([math.pi] + [2 * math.pi / 3] * 3 + [math.pi / 4] * 5, dtype=np.float32)
 
 _CHUNK = 4096  # point lists are shaped (n / _CHUNK, _CHUNK) for cv2.remap (every side must be < 32767)
 
@@ -147,15 +143,20 @@ class Lighting:
         object.__setattr__(self, "level_roughness", rough)
         object.__setattr__(self, "lut", np.ascontiguousarray(lut[..., :2]))
         object.__setattr__(self, "sh", sh)
-        object.__setattr__(self, "_atlases", [_padded_atlas(lv) for lv in levels])
+        from bakery.envmap.sample import cube_atlas
+
+        object.__setattr__(self, "_atlases", [cube_atlas(lv) for lv in levels])
 
     def prefiltered(self, dirs: np.ndarray, roughness: np.ndarray) -> np.ndarray:
         """Prefiltered radiance along ``dirs`` (P, 3) at perceptual ``roughness`` (P,): (P, 3) float32.
 
         Linear interpolation in the level index between the two levels whose roughness brackets the value
-        (clamped to the chain's range); bilinear and seamless within each level.
+        (clamped to the chain's range); bilinear and seamless within each level
+        (:func:`bakery.envmap.sample.sample_cube`).
         """
-        face, s, t = sphere.dir_to_face(dirs.astype(np.float32, copy=False))
+        from bakery.envmap.sample import sample_cube
+
+        dirs = dirs.astype(np.float32, copy=False)
         idx = np.interp(roughness, self.level_roughness, np.arange(len(self.levels), dtype=np.float32))
         idx = idx.astype(np.float32)
         out = np.zeros((len(idx), 3), np.float32)
@@ -164,10 +165,7 @@ class Lighting:
             sel = np.nonzero(w > 0)[0]
             if sel.size == 0:
                 continue
-            n = self.levels[k].shape[1]
-            x = face[sel].astype(np.float32) * np.float32(n + 2) + np.float32(0.5) + s[sel] * np.float32(n)
-            y = np.float32(0.5) + t[sel] * np.float32(n)
-            out[sel] += w[sel, None] * _remap_points(atlas, x, y, wrap=False)
+            out[sel] += w[sel, None] * sample_cube(self.levels[k], dirs[sel], padded_atlas=atlas)
         return out
 
     def brdf_terms(self, n_dot_v: np.ndarray, roughness: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -183,30 +181,10 @@ class Lighting:
         return irradiance_sh(self.sh, normals)
 
 
-def sh_basis(dirs: np.ndarray) -> np.ndarray:
-    """The nine real SH basis functions at unit directions ``(..., 3)``: ``(..., 9)`` float32.
-
-    Ramamoorthi & Hanrahan 2001, eq. 3: 0.282095; 0.488603 (y, z, x); 1.092548 (xy, yz); 0.315392 (3z² − 1);
-    1.092548 xz; 0.546274 (x² − y²).
-
-    Examples
-    --------
-    >>> [round(float(v), 6) for v in sh_basis(np.array([0.0, 0.0, 1.0]))[:4]]
-    [0.282095, 0.0, 0.488603, 0.0]
-    """
-    d = np.asarray(dirs, dtype=np.float32)
-    x, y, z = d[..., 0], d[..., 1], d[..., 2]
-    return np.stack([
-        np.full_like(x, 0.282095),
-        0.488603 * y, 0.488603 * z, 0.488603 * x,
-        1.092548 * x * y, 1.092548 * y * z, 0.315392 * (3 * z * z - 1), 1.092548 * x * z,
-        0.546274 * (x * x - y * y),
-    ], axis=-1).astype(np.float32)
-
-
 def irradiance_sh(sh: np.ndarray, normals: np.ndarray) -> np.ndarray:
     """Irradiance E(n) = Σ Â_l L_lm Y_lm(n) from radiance coefficients ``sh`` (9, 3) at unit ``normals``
-    (..., 3); returns (..., 3) float32 (Ramamoorthi & Hanrahan 2001, eq. 7).
+    (..., 3); returns (..., 3) float32 (Ramamoorthi & Hanrahan 2001, eqs. 7-9, through
+    :mod:`bakery.envmap.irradiance`).
 
     Examples
     --------
@@ -214,7 +192,9 @@ def irradiance_sh(sh: np.ndarray, normals: np.ndarray) -> np.ndarray:
     >>> [round(float(v), 5) for v in irradiance_sh(sh, np.array([0.0, 1.0, 0.0]))]   # E = π L
     [3.14159, 3.14159, 3.14159]
     """
-    return (sh_basis(normals) * SH_BAND_SCALE) @ np.asarray(sh, dtype=np.float32)
+    from bakery.envmap.irradiance import eval_sh, irradiance_coefficients
+
+    return eval_sh(irradiance_coefficients(sh), np.asarray(normals, dtype=np.float32)).astype(np.float32)
 
 
 @dataclass(frozen=True, eq=False)
@@ -304,38 +284,6 @@ def _remap_points(img: np.ndarray, x: np.ndarray, y: np.ndarray, *, wrap: bool) 
         r = cv2.remap(part, mx, my, cv2.INTER_LINEAR, borderMode=border)
         out[..., c0:c0 + 4] = r.reshape(rows, _CHUNK, -1)
     return out.reshape(-1, c)[:p]
-
-
-def _padded_atlas(cube: np.ndarray) -> np.ndarray:
-    """The faces of a cube map side by side, each with one texel of border copied bilinearly from the
-    neighbouring face (so bilinear lookups are seamless across face edges): (N+2, 6(N+2), 3)."""
-    n = cube.shape[1]
-    m = n + 2
-    atlas = np.zeros((m, 6 * m, 3), np.float32)
-    for f in range(6):
-        atlas[1:-1, f * m + 1:f * m + 1 + n] = cube[f]
-    idx = np.arange(-1, n + 1)
-    ring = [(i, j) for i in (-1, n) for j in idx] + [(i, j) for i in range(n) for j in (-1, n)]
-    ri = np.array([p[0] for p in ring])
-    rj = np.array([p[1] for p in ring])
-    f = np.repeat(np.arange(6), len(ring))
-    s = np.tile((rj + 0.5) / n, 6)
-    t = np.tile((ri + 0.5) / n, 6)
-    d = sphere.face_to_dir(f, s, t)
-    face, ss, tt = sphere.dir_to_face(d)
-    # bilinear within the neighbouring face, clamped to its texels
-    x = np.clip(ss * n - 0.5, 0, n - 1)
-    y = np.clip(tt * n - 0.5, 0, n - 1)
-    x0 = np.minimum(np.floor(x).astype(int), n - 1)
-    y0 = np.minimum(np.floor(y).astype(int), n - 1)
-    x1 = np.minimum(x0 + 1, n - 1)
-    y1 = np.minimum(y0 + 1, n - 1)
-    fx = (x - x0)[:, None]
-    fy = (y - y0)[:, None]
-    v = (cube[face, y0, x0] * (1 - fx) * (1 - fy) + cube[face, y0, x1] * fx * (1 - fy)
-         + cube[face, y1, x0] * (1 - fx) * fy + cube[face, y1, x1] * fx * fy)
-    atlas[np.tile(ri, 6) + 1, f * m + np.tile(rj, 6) + 1] = v
-    return atlas
 
 
 class _Texture:
