@@ -100,6 +100,8 @@ def preview(
     rough = parse_value_or_path(roughness, "--roughness", channels=1)
     color = parse_value_or_path(base_color, "--base-color", channels=3)
     ev = _exposure(exposure)
+    if white is not None and not white > 0:
+        raise BakeryError(f"--white must be a positive luminance; got {white}")
     inputs = [p for p in (normal, height, exponent, env, specular, diffuse, lut, rough, color)
               if isinstance(p, Path)]
     check_distinct([output], inputs)

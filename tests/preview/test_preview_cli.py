@@ -75,6 +75,7 @@ def test_turntable_animation(maps, suffix):
     (["--roughness", "missing.png"], "file not found"),
     (["--base-color", "1,2"], "--base-color takes one number or 3 numbers"),
     (["--exposure", "bright"], "--exposure"),
+    (["--white", "0"], "--white must be a positive"),
     (["--turntable", "4"], "output must end in"),
     (["--normal", "c.png", "--base-color", "0.5,0.5"], "--base-color"),
 ])
