@@ -35,6 +35,9 @@ def batch(
                          "one only when this is given].", show_default=False, dir_okay=False)] = None,
     list_bakes: Annotated[bool, typer.Option(
         "--list-bakes", help="List the bakes a recipe can use, with their inputs and parameters, and exit.")] = False,
+    sheet: Annotated[bool, typer.Option(
+        "--sheet", help="After the run, write a contact sheet of the output folder (OUTPUT/.bakery/sheet.html "
+                        "and sheet.png): every map, its lit preview and the findings of `bakery inspect`.")] = False,
 ) -> None:
     """Run a batch recipe: only changed jobs, in parallel, with a JSON report.
 
@@ -70,5 +73,22 @@ def batch(
         echo(rep.summary())
     if rep.path is not None:
         echo(f"report: {rep.path}")
+    if sheet:
+        _contact_sheet(Path(rep.output))
     if rep.exit_code:
         raise typer.Exit(rep.exit_code)
+
+
+def _contact_sheet(output: Path) -> None:
+    """The contact sheet of a batch's output folder, in OUTPUT/.bakery/ (a hidden folder, so later sheets and
+    runs never take its pictures for maps)."""
+    from bakery.cli.preview import collect_maps, make_sheet
+    from bakery.preview.sheet import find_maps
+
+    page = output / ".bakery" / "sheet.html"
+    if not find_maps(output):
+        echo("contact sheet: no maps in the output folder")
+        return
+    page.parent.mkdir(exist_ok=True)
+    make_sheet(collect_maps([output], page), page, source=str(output), title=f"bakery batch: {output.name}")
+    echo(f"contact sheet: {page}")
