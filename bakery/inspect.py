@@ -22,6 +22,10 @@ from bakery.classify import map_kind
 
 Severity = Literal["error", "warning", "info"]
 
+#: Height-range, terracing and tiling statistics are not judged on maps smaller than this on a side (a 4x4
+#: mip level legitimately has a low range); common practice, not published.
+MIN_STATISTICS_SIZE = 16
+
 
 @dataclass(frozen=True)
 class Finding:
@@ -70,15 +74,16 @@ def inspect_pixels(pixels: np.ndarray, *, depth: str, kind: str | None = None) -
     findings: list[Finding] = []
     findings += _check_finite(pixels, kind)
     finite = np.nan_to_num(pixels, nan=0.0, posinf=0.0, neginf=0.0)
+    small = min(pixels.shape[:2]) < MIN_STATISTICS_SIZE
     if kind == "normal":
         findings += check_normal_map(finite, depth=depth)
-    elif kind == "height":
+    elif kind == "height" and not small:
         findings += check_height_map(finite[..., 0], depth=depth)
     elif kind == "environment":
         findings += check_environment(finite, depth=depth)
     findings += check_size(pixels.shape[1], pixels.shape[0], kind)
     findings += _check_channels(pixels, kind)
-    if kind in ("normal", "height", "data", "color"):
+    if kind in ("normal", "height", "data", "color") and not small:
         findings += check_tiling(finite)
     return kind, findings
 
@@ -294,13 +299,16 @@ def check_environment(px: np.ndarray, *, depth: str) -> list[Finding]:
         out.append(Finding("env-ldr", "warning", f"highest value is {vmax:.3g}: this looks like a low dynamic "
                            "range image", "use an HDR source (.hdr/.exr); a clipped sun lights far too weakly"))
     else:
-        at_max = float(np.mean(px[..., :3].max(axis=-1) >= vmax * 0.999))
-        if at_max > 0.001:
-            out.append(Finding("env-clipped", "warning", f"{at_max:.2%} of texels sit at the maximum value "
-                               f"{vmax:.4g}: highlights look clipped", "use an unclipped HDR capture"))
+        # a clipped capture saturates: many texels hold exactly the same top value (a smooth peak does not)
+        peak = px[..., :3].max(axis=-1)
+        at_max = int(np.count_nonzero(peak == vmax))
+        if at_max >= max(4, 0.001 * peak.size):
+            out.append(Finding("env-clipped", "warning", f"{at_max} texels ({at_max / peak.size:.2%}) hold exactly "
+                               f"the maximum value {vmax:.4g}: highlights look clipped",
+                               "use an unclipped HDR capture"))
     from bakery.classify import env_layout
 
-    if env_layout(w, h) is None:
+    if env_layout(w, h) is None and w != h:  # square: one cube face
         out.append(Finding("env-aspect", "warning", f"aspect {w}x{h} is neither 2:1 (equirectangular) nor a "
-                           "cube layout", "crop or resample the panorama to 2:1"))
+                           "cube layout nor a square cube face", "crop or resample the panorama to 2:1"))
     return out

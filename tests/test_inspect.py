@@ -158,3 +158,22 @@ def test_cli_text_and_json(tmp_path):
     assert data[0]["kind"] == "normal" and "green-y-down" in {f["code"] for f in data[0]["findings"]}
     assert runner.invoke(app, ["inspect", "--strict", str(bad)]).exit_code == 1
     assert runner.invoke(app, ["inspect", str(tmp_path / "missing.png")]).exit_code == 2
+
+
+def test_smooth_irradiance_face_is_neither_clipped_nor_misshapen():
+    """A 32x32 cube face of a smooth HDR field (max 3): no clipping (a smooth peak has no plateau), and a
+    square float image is a cube face, not a panorama of the wrong aspect."""
+    from bakery.sphere import cube_directions
+
+    d = cube_directions(32)[4]
+    face = (1.5 + 1.5 * np.clip(d @ np.array([0.3, 0.8, -0.5]) / np.linalg.norm([0.3, 0.8, -0.5]), 0, 1))
+    face = (face[..., None] * np.array([1.0, 0.9, 0.8])).astype(np.float16).astype(np.float32)
+    kind, findings = inspect_pixels(face, depth="f16")
+    assert kind == "environment"
+    assert not _codes(findings) & {"env-clipped", "env-aspect"}
+
+
+def test_tiny_mip_levels_are_not_judged_for_range_or_tiling():
+    level = np.full((4, 4, 1), 0.5, np.float32)
+    level[0, 0] = 0.52
+    assert inspect_pixels(level, depth="u8", kind="height")[1] == []
