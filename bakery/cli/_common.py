@@ -11,6 +11,7 @@ import sys
 import time
 import warnings
 from collections.abc import Callable, Iterable, Iterator
+from enum import StrEnum
 from pathlib import Path
 from typing import Any, TypeVar
 
@@ -19,6 +20,23 @@ import typer
 from bakery.errors import BakeryError, BakeryWarning
 
 STATE = {"debug": False, "quiet": False}
+
+
+class BitsOpt(StrEnum):
+    """Output sample type, the same ``--bits`` option in every command that writes images."""
+
+    b8 = "8"
+    b16 = "16"
+    half = "half"
+    float = "float"
+
+
+#: ``--bits`` value -> the sample type name of :mod:`bakery.io.images` ("u8", "u16", "f16", "f32").
+BITS_TO_DEPTH = {"8": "u8", "16": "u16", "half": "f16", "float": "f32"}
+
+
+def bits_to_depth(bits: BitsOpt | None) -> str | None:
+    return None if bits is None else BITS_TO_DEPTH[bits.value]
 T = TypeVar("T")
 
 

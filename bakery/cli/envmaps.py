@@ -10,7 +10,7 @@ from typing import Annotated
 import typer
 
 from bakery.cli import env_app
-from bakery.cli._common import command, echo
+from bakery.cli._common import BitsOpt, bits_to_depth, command, echo
 
 
 class LayoutChoice(StrEnum):
@@ -27,13 +27,6 @@ class FilterChoice(StrEnum):
     auto = "auto"
     area = "area"
     bilinear = "bilinear"
-
-
-class DepthChoice(StrEnum):
-    u8 = "u8"
-    u16 = "u16"
-    f16 = "f16"
-    f32 = "f32"
 
 
 class MethodChoice(StrEnum):
@@ -85,8 +78,9 @@ def convert(
     filter_: Annotated[FilterChoice, typer.Option(
         "--filter", help="auto: area-weighted (energy-keeping) when shrinking, bilinear otherwise.")
     ] = FilterChoice.auto,
-    depth: Annotated[DepthChoice | None, typer.Option(help="Image sample type (default follows the input; "
-                                                      "float input -> half-float EXR).")] = None,
+    bits: Annotated[BitsOpt | None, typer.Option(
+        "--bits", help="Image samples: 8, 16 (PNG/TIFF), half, float (EXR; float also TIFF). Default follows "
+        "the input (float input -> half-float EXR).", show_default=False)] = None,
     ktx_format: Annotated[str | None, typer.Option(
         "--ktx-format", help="KTX2 format: rgba16f (default), rgba32f, rg11b10f, rgb9e5, rgba8, rgba16 or a "
                              "VkFormat name.")] = None,
@@ -103,7 +97,7 @@ def convert(
     if ktx_format is not None:
         get_format(ktx_format)  # a clear error before any work
     params = ConvertParams(layout_in=_value(layout_in), layout=_value(layout), size=size, width=width,
-                           rotate=rotate, exposure=exposure, filter=_value(filter_), depth=_value(depth),
+                           rotate=rotate, exposure=exposure, filter=_value(filter_), depth=bits_to_depth(bits),
                            ktx_format=ktx_format, mips=mips, repair=repair)
     _report(run_bake("env-convert", {"source": source}, out, params))
 

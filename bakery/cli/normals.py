@@ -12,7 +12,7 @@ from typing import Annotated
 import typer
 
 from bakery.cli import app
-from bakery.cli._common import command, echo, output_path
+from bakery.cli._common import BitsOpt, command, echo, output_path
 from bakery.errors import BakeryError
 
 SUFFIXES = (".png", ".tif", ".tiff", ".exr")
@@ -34,13 +34,6 @@ class EdgesOpt(StrEnum):
 class YOpt(StrEnum):
     up = "up"
     down = "down"
-
-
-class BitsOpt(StrEnum):
-    b8 = "8"
-    b16 = "16"
-    half = "half"
-    float = "float"
 
 
 class ChannelOpt(StrEnum):

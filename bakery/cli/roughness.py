@@ -9,7 +9,7 @@ from typing import Annotated
 import typer
 
 from bakery.cli import app
-from bakery.cli._common import command, echo, output_path
+from bakery.cli._common import BitsOpt, bits_to_depth, command, echo, output_path
 
 
 class QuantityChoice(StrEnum):
@@ -37,13 +37,6 @@ class ChannelChoice(StrEnum):
     G = "G"
     B = "B"
     A = "A"
-
-
-class DepthChoice(StrEnum):
-    u8 = "u8"
-    u16 = "u16"
-    f16 = "f16"
-    f32 = "f32"
 
 
 class MethodChoice(StrEnum):
@@ -92,11 +85,11 @@ def roughness(
     clamp: Annotated[bool, typer.Option(
         "--clamp", help="Clip out-of-range input values (NaN -> roughest) with a warning instead of "
         "stopping.")] = False,
-    channel: Annotated[ChannelChoice | None, typer.Option(
+    channel: Annotated[ChannelChoice | None, typer.Option(case_sensitive=False,
         help="Channel of IN to read (default: the only one, or equal R, G, B).", show_default=False)] = None,
-    depth: Annotated[DepthChoice | None, typer.Option(
-        help="Output sample type (default: follows IN, or the image to pack into).",
-        show_default=False)] = None,
+    bits: Annotated[BitsOpt | None, typer.Option(
+        "--bits", help="Output samples: 8, 16 (PNG/TIFF), half, float (EXR; float also TIFF). Default: follows "
+        "IN, or the image to pack into.", show_default=False)] = None,
     pack_into: Annotated[Path | None, typer.Option(
         help="Write the result into one channel of a copy of this image (glTF 2.0 metallic-roughness: "
         "roughness in G, metalness in B). The image itself is not modified.", show_default=False)] = None,
@@ -111,7 +104,7 @@ def roughness(
     params = RoughnessParams(
         source=_value(source), target=target.value, model=model.value, rule=rule.value,
         exponent_range=exponent_range, gloss_base=gloss_base, gloss_scale=gloss_scale, clamp=clamp,
-        channel=_value(channel), depth=_value(depth), pack_channel=pack_channel.value)
+        channel=_value(channel), depth=bits_to_depth(bits), pack_channel=pack_channel.value)
     written = run_bake("roughness", {"map": src, "pack": pack_into}, out, params)
     echo(f"wrote {written[0]}")
 
@@ -140,10 +133,11 @@ def antialias(
         help="Number of mip levels (default: the full chain to 1x1).", min=1, show_default=False)] = None,
     ktx2: Annotated[bool, typer.Option(
         "--ktx2", help="With an image OUT, also write NAME.ktx2 beside the loose levels.")] = False,
-    channel: Annotated[ChannelChoice | None, typer.Option(
+    channel: Annotated[ChannelChoice | None, typer.Option(case_sensitive=False,
         help="Channel of ROUGHNESS to read (G for a glTF metallic-roughness map).", show_default=False)] = None,
-    depth: Annotated[DepthChoice | None, typer.Option(
-        help="Sample type of the levels (default: follows ROUGHNESS, else 16-bit).", show_default=False)] = None,
+    bits: Annotated[BitsOpt | None, typer.Option(
+        "--bits", help="Samples of the levels: 8, 16, half, float (default: follows ROUGHNESS, else 16).",
+        show_default=False)] = None,
 ) -> None:
     """Write a roughness mip chain whose coarser levels keep the bumps the normal map's mips average away."""
     from bakery.bakes import run_bake
@@ -151,7 +145,7 @@ def antialias(
 
     output_path(out, suffixes=IMAGE_SUFFIXES + (".ktx2",))
     params = AntialiasParams(roughness=roughness, method=method.value, lobe=lobe.value, levels=levels,
-                             ktx2=ktx2, channel=_value(channel), depth=_value(depth))
+                             ktx2=ktx2, channel=_value(channel), depth=bits_to_depth(bits))
     written = run_bake("antialias", {"normal": normal, "roughness": rough}, out, params)
     images = [p for p in written if not p.name.endswith(".json")]
     echo(f"wrote {len(images)} file(s): {images[0]}" + (f" ... {images[-1]}" if len(images) > 1 else ""))

@@ -190,7 +190,7 @@ def clamp_for(pixels: np.ndarray, limit: float, where: object, what: str, advice
 
 def _prepare_image(path: object, px: np.ndarray, depth: str) -> np.ndarray:
     if depth == "f16":
-        return clamp_for(px, HALF_MAX, path, "a half float", "write float32 (--depth f32) to keep them")
+        return clamp_for(px, HALF_MAX, path, "a half float", "write float32 (--bits float) to keep them")
     if depth in ("u8", "u16"):
         return clamp_for(px, 1.0, path, f"a {depth[1:]}-bit image",
                          "write .exr or .hdr to keep HDR values, or lower --exposure")

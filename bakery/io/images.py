@@ -459,7 +459,7 @@ def clamp_to_half(a: np.ndarray, where: str | os.PathLike = "output") -> np.ndar
     over = int(np.count_nonzero(np.abs(a) > HALF_MAX))
     if over:
         warnings.warn(f"{where}: {over} sample(s) exceed the half-float range and were clamped to "
-                      f"+-{HALF_MAX:g}; write float32 (--depth f32) to keep them", BakeryWarning, stacklevel=3)
+                      f"+-{HALF_MAX:g}; write float32 (--bits float) to keep them", BakeryWarning, stacklevel=3)
         a = np.clip(a, -HALF_MAX, HALF_MAX)
     return a
 

@@ -64,7 +64,7 @@ def output_depth(out: Path, requested: str | None, source_depth: str, *, bounded
         depth = "f16" if "f16" in WRITABLE[fmt] else "f32"
     if not bounded and depth in ("u8", "u16"):
         raise BakeryError("exponents and Beckmann widths are unbounded and need a float file (.exr or .tif "
-                          "with --depth f32)", out)
+                          "with --bits float)", out)
     return depth
 
 
@@ -162,7 +162,7 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
         big = int(np.count_nonzero(result > 65504.0))
         if big:
             warnings.warn(f"{output}: {big} value(s) above 65504 (the largest half float) stored as 65504; "
-                          "write --depth f32 to keep them", BakeryWarning, stacklevel=2)
+                          "write --bits float to keep them", BakeryWarning, stacklevel=2)
             result = np.minimum(result, np.float32(65504.0))
     if packed is not None:
         pixels = packed.pixels.copy()
@@ -259,7 +259,7 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
     if ktx2_only:
         depth = params.depth or ("u8" if source_depth == "u8" else "u16")
         if depth not in KTX2_FORMATS:
-            raise BakeryError("KTX2 roughness chains are stored as R8_UNORM or R16_UNORM; use --depth u8 or u16",
+            raise BakeryError("KTX2 roughness chains are stored as R8_UNORM or R16_UNORM; use --bits 8 or 16",
                               output)
     else:
         depth = output_depth(output, params.depth, source_depth, bounded=True)

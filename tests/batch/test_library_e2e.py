@@ -29,7 +29,8 @@ def _cli_args(job, src: Path, out: Path) -> list[str]:
     if job.bake == "normal":
         return ["normal", i["height"], "-o", o, "--strength", str(p["strength"]), "--kernel", p["kernel"]]
     if job.bake == "roughness":
-        return ["roughness", i["map"], "-o", o, "--depth", p["depth"]]
+        bits = {"u8": "8", "u16": "16", "f16": "half", "f32": "float"}[p["depth"]]
+        return ["roughness", i["map"], "-o", o, "--bits", bits]
     if job.bake == "blend":
         return ["blend", i["base"], i["detail"], "-o", o, "--detail-strength", str(p["detail_strength"])]
     if job.bake == "antialias":

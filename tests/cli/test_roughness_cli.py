@@ -42,7 +42,7 @@ def test_help(cmd):
 def test_roughness_from_float_exponents(tmp_path, exponent_map):
     path, n = exponent_map
     out = tmp_path / "r.exr"
-    r = invoke("roughness", path, "-o", out, "--depth", "f32")
+    r = invoke("roughness", path, "-o", out, "--bits", "float")
     assert r.exit_code == 0, r.output
     got = read_image(out).pixels[..., 0]
     np.testing.assert_allclose(got, roughness_from_exponent(n), rtol=1e-6)  # the library function, exactly
@@ -89,9 +89,9 @@ def test_negative_and_nan_exponents(tmp_path):
 
 def test_inverse_direction_and_unbounded_targets(tmp_path, exponent_map):
     path, n = exponent_map
-    r = invoke("roughness", path, "-o", tmp_path / "r.exr", "--depth", "f32")
+    r = invoke("roughness", path, "-o", tmp_path / "r.exr", "--bits", "float")
     r = invoke("roughness", tmp_path / "r.exr", "-o", tmp_path / "n.exr", "--from", "roughness", "--to",
-               "exponent", "--depth", "f32")
+               "exponent", "--bits", "float")
     assert r.exit_code == 0, r.output
     np.testing.assert_allclose(read_image(tmp_path / "n.exr").pixels[..., 0], n, rtol=2e-5)
     r = invoke("roughness", path, "-o", tmp_path / "n.png", "--to", "exponent")
@@ -124,7 +124,7 @@ def test_channel_choice(tmp_path):
     src = write_image(tmp_path / "rgb.exr", rgb, depth="f32")
     r = invoke("roughness", src, "-o", tmp_path / "o.exr")
     assert r.exit_code == 2 and "--channel" in r.output
-    r = invoke("roughness", src, "-o", tmp_path / "o.exr", "--channel", "B", "--depth", "f32")
+    r = invoke("roughness", src, "-o", tmp_path / "o.exr", "--channel", "B", "--bits", "float")
     assert r.exit_code == 0
     assert read_image(tmp_path / "o.exr").pixels[0, 0, 0] == pytest.approx(float(roughness_from_exponent(1000.0)))
 
@@ -144,7 +144,7 @@ def test_recipe_and_command_line_agree(tmp_path, exponent_map):
 def test_antialias_loose_and_ktx2(tmp_path):
     n = bumpy_normals()
     src = write_image(tmp_path / "n.exr", n * 0.5 + 0.5, depth="f32")
-    r = invoke("antialias", src, "--roughness", 0.3, "-o", tmp_path / "aa.exr", "--depth", "f32", "--ktx2")
+    r = invoke("antialias", src, "--roughness", 0.3, "-o", tmp_path / "aa.exr", "--bits", "float", "--ktx2")
     assert r.exit_code == 0, r.output
     expect = roughness_mips(n, 0.3)
     for k, level in enumerate(expect):
@@ -178,7 +178,7 @@ def test_antialias_bad_input(tmp_path):
     assert not list(tmp_path.glob("aa*"))
     r = invoke("antialias", src, "-o", tmp_path / "aa.png")
     assert r.exit_code == 2 and "--roughness" in r.output
-    r = invoke("antialias", src, "--roughness", 0.5, "-o", tmp_path / "aa.ktx2", "--depth", "f16")
+    r = invoke("antialias", src, "--roughness", 0.5, "-o", tmp_path / "aa.ktx2", "--bits", "half")
     assert r.exit_code == 2 and "R16_UNORM" in r.output
     r = invoke("antialias", tmp_path / "missing.png", "--roughness", 0.5, "-o", tmp_path / "aa.png")
     assert r.exit_code == 2 and "missing.png" in r.output

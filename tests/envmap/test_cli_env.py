@@ -40,12 +40,12 @@ def test_convert_through_every_layout(tmp_path, pano):
     steps = [
         (pano, tmp_path / "a_{face}.exr", []),
         (tmp_path / "a_{face}.exr", tmp_path / "b.exr", ["--layout", "hcross"]),
-        (tmp_path / "b.exr", tmp_path / "c.exr", ["--layout", "vcross", "--depth", "f32"]),
+        (tmp_path / "b.exr", tmp_path / "c.exr", ["--layout", "vcross", "--bits", "float"]),
         (tmp_path / "c.exr", tmp_path / "d.tif", ["--layout", "strip"]),
-        (tmp_path / "d.tif", tmp_path / "e.exr", ["--layout", "column", "--depth", "f32"]),
+        (tmp_path / "d.tif", tmp_path / "e.exr", ["--layout", "column", "--bits", "float"]),
         (tmp_path / "e.exr", tmp_path / "f.ktx2", ["--ktx-format", "rgba32f"]),
-        (tmp_path / "f.ktx2", tmp_path / "g.exr", ["--layout", "equirect", "--width", "128", "--depth",
-                                                   "f32"]),
+        (tmp_path / "f.ktx2", tmp_path / "g.exr", ["--layout", "equirect", "--width", "128", "--bits",
+                                                   "float"]),
     ]
     for src, dst, extra in steps:
         r = run("env", "convert", src, "-o", dst, *extra)
@@ -74,14 +74,14 @@ def test_half_float_range_is_clamped_with_a_count(tmp_path, pano):
     r = run("env", "convert", pano, "-o", tmp_path / "h.exr", "--width", "128")
     assert r.exit_code == 0
     assert "warning: " in r.output and "3 sample(s) above 65504" in r.output  # R, G, B of the sun
-    r = run("env", "convert", pano, "-o", tmp_path / "f.exr", "--width", "128", "--depth", "f32")
+    r = run("env", "convert", pano, "-o", tmp_path / "f.exr", "--width", "128", "--bits", "float")
     assert "65504" not in r.output
     assert read_image(tmp_path / "f.exr").pixels.max() == pytest.approx(1.0e5)
 
 
 def test_rotate_and_exposure(tmp_path, pano):
-    r = run("env", "convert", pano, "-o", tmp_path / "r.exr", "--rotate", "90", "--exposure", "1", "--depth",
-            "f32")
+    r = run("env", "convert", pano, "-o", tmp_path / "r.exr", "--rotate", "90", "--exposure", "1", "--bits",
+            "float")
     assert r.exit_code == 0
     out = read_image(tmp_path / "r.exr").pixels
     np.testing.assert_allclose(out, 2 * np.roll(read_image(pano).pixels, 32, axis=1), rtol=1e-3)
