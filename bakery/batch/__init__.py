@@ -159,6 +159,7 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
                 jr.status = RAN if res["status"] == "ran" else FAILED
                 jr.error, jr.traceback = res["error"], res["traceback"]
                 jr.warnings, jr.seconds = res["warnings"], res["seconds"]
+                jr.findings = res.get("findings", [])
                 jr.outputs = sorted(res["written"])
                 sources = [str(recipe.source / rel) for rel in job.inputs.values()]
                 if jr.status == RAN:

@@ -88,7 +88,8 @@ def run_job(spec: Spec) -> Result:
 
     limit_threads()
     t0 = time.perf_counter()
-    result: Result = {"status": "ran", "error": None, "traceback": None, "warnings": [], "written": {}}
+    result: Result = {"status": "ran", "error": None, "traceback": None, "warnings": [], "written": {},
+                      "findings": []}
     out_root = Path(spec["out_root"])
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
@@ -111,6 +112,7 @@ def run_job(spec: Spec) -> Result:
                 sig = stat_signature(p)
                 if sig is not None:
                     result["written"][rel] = list(sig)
+            result["findings"] = inspect_outputs(out_root, sorted(result["written"]))
         except BakeryError as exc:
             result.update(status="failed", error=str(exc))
         except Exception as exc:  # one broken job must not stop the batch; the report keeps the traceback
@@ -123,7 +125,26 @@ def run_job(spec: Spec) -> Result:
 
 def failed(message: str) -> Result:
     return {"status": "failed", "error": message, "traceback": None, "warnings": [], "written": {},
-            "seconds": None}
+            "findings": [], "seconds": None}
+
+
+#: Outputs that ``bakery inspect`` reads (KTX2 containers and JSON manifests are not inspected).
+INSPECTED_SUFFIXES = (".png", ".tif", ".tiff", ".exr", ".hdr")
+
+
+def inspect_outputs(out_root: Path, written: list[str]) -> list[dict]:
+    """The findings of :func:`bakery.inspect.inspect_pixels` for each image a job wrote, for the report."""
+    from bakery.inspect import inspect_pixels
+    from bakery.io.images import read_image
+
+    found = []
+    for rel in written:
+        if Path(rel).suffix.lower() not in INSPECTED_SUFFIXES:
+            continue
+        img = read_image(out_root / rel, allow_nonfinite=True)
+        kind, findings = inspect_pixels(img.pixels, depth=img.depth)
+        found += [{"file": rel, "kind": kind, **f.as_dict()} for f in findings]
+    return found
 
 
 @contextlib.contextmanager

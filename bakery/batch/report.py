@@ -35,6 +35,7 @@ class JobResult:
     outputs: list[str] = field(default_factory=list)
     seconds: float | None = None
     warnings: list[str] = field(default_factory=list)
+    findings: list[dict[str, str]] = field(default_factory=list)
     error: str | None = None
     traceback: str | None = None
 
@@ -95,6 +96,9 @@ class BatchReport:
                 text += f" ({self.executor}, {self.workers} worker{'s' * (self.workers != 1)})"
         if self.unselected:
             text += f"; {self.unselected} not selected by --only"
+        flagged = sum(1 for j in self.jobs for f in j.findings if f["severity"] != "info")
+        if flagged:
+            text += f"; bakery inspect flagged {flagged} finding(s) in the outputs (see the report)"
         return text
 
     def to_dict(self) -> dict[str, Any]:

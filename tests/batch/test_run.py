@@ -207,3 +207,34 @@ def test_workers_are_single_threaded(library, tmp_path):
     data = json.loads((tmp_path / "out" / "probe.json").read_text())
     assert data == {"cv2": 1, "openexr": 1, "bakery": 1, "env": dict.fromkeys(
         ["OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS"], "1")}
+
+
+def test_report_carries_the_inspect_findings_of_the_outputs(library, tmp_path):
+    """Each job that ran lists what `bakery inspect` finds in the images it wrote (the same findings as
+    inspecting the files directly), in the report and its JSON."""
+    from bakery.inspect import inspect_pixels
+    from bakery.io import read_image
+
+    # a height map whose output is not a power of two in size: inspect says so (an info finding)
+    (tmp_path / "lib" / "odd").mkdir()
+    write_image(tmp_path / "lib" / "odd" / "odd_height.png",
+                np.random.default_rng(5).random((24, 40), dtype=np.float32), depth="u16")
+    rep = run(library, jobs=1)
+    out = tmp_path / "out"
+    seen = 0
+    for job in rep.jobs:
+        if job.status != "ran":
+            continue
+        expected = []
+        for rel in job.outputs:
+            if rel.endswith(".png"):
+                img = read_image(out / rel)
+                kind, found = inspect_pixels(img.pixels, depth=img.depth)
+                expected += [{"file": rel, "kind": kind, **f.as_dict()} for f in found]
+        assert job.findings == expected
+        seen += len(expected)
+    assert seen > 0
+    odd = next(j for j in rep.jobs if j.output == "odd/odd_inv.png")
+    assert "non-power-of-two" in {f["code"] for f in odd.findings}
+    data = json.loads((out / ".bakery" / "report.json").read_text())
+    assert sum(len(j["findings"]) for j in data["jobs"]) == seen
