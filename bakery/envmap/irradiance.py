@@ -87,19 +87,12 @@ def project_sh(env: np.ndarray, kind: str) -> np.ndarray:
     st, ct = np.sin(lat), np.cos(lat)
     om = sphere.equirect_row_solid_angles(w_, h, dtype=np.float64)
     # the image is read once, against 5 functions of latitude (times the row solid angle):
-    # 1, sin, cos, sin cos, cos^2 (sin^2 = 1 - cos^2); row blocks keep the product in cache
+    # 1, sin, cos, sin cos, cos^2 (sin^2 = 1 - cos^2)
     rowf = (np.stack([np.ones_like(st), st, ct, st * ct, ct * ct]) * om).astype(np.float32)
     flat = np.asarray(env, dtype=np.float32).reshape(h, w_ * c)
     t = np.zeros((5, w_ * c), dtype=np.float64)
-    part = np.zeros((5, w_ * c), dtype=np.float32)
-    tmp = np.empty((5, w_ * c), dtype=np.float32)
-    for g0 in range(0, h, 256):  # float32 sums over 256 rows at most, then float64
-        part[:] = 0
-        for h0 in range(g0, min(h, g0 + 256), 8):  # 8-row blocks: small products OpenBLAS runs unthreaded
-            blk = flat[h0:h0 + 8]
-            np.matmul(np.ascontiguousarray(rowf[:, h0:h0 + blk.shape[0]]), blk, out=tmp)
-            part += tmp
-        t += part
+    for g0 in range(0, h, 256):  # one float32 product per 256 rows (BLAS), summed in float64
+        t += rowf[:, g0:g0 + 256] @ flat[g0:g0 + 256]
     t = t.reshape(5, w_, c)
     phi = 2 * np.pi * ((np.arange(w_) + 0.5) / w_ - 0.5)
     sp, cp = np.sin(phi), np.cos(phi)
