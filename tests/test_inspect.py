@@ -177,3 +177,15 @@ def test_tiny_mip_levels_are_not_judged_for_range_or_tiling():
     level = np.full((4, 4, 1), 0.5, np.float32)
     level[0, 0] = 0.52
     assert inspect_pixels(level, depth="u8", kind="height")[1] == []
+
+
+@pytest.mark.parametrize("y_down", [False, True])
+def test_large_maps_are_judged_on_a_stride_with_the_same_answers(y_down):
+    """Maps over 1024 texels a side are sampled every 2nd texel for vector and seam statistics."""
+    h = samples.paving_height(1024) * 40
+    px = _normals(h, y_down=y_down)
+    codes = _codes(inspect_pixels(px, depth="u16")[1])
+    assert ("green-y-down" if y_down else "green-y-up") in codes
+    assert "not-tiling" not in codes
+    crop = px[37:37 + 1024 - 100, 91:91 + 1024 - 60]
+    assert "not-tiling" in _codes(inspect_pixels(crop, depth="u16", kind="normal")[1])
