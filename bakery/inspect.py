@@ -72,8 +72,9 @@ def inspect_pixels(pixels: np.ndarray, *, depth: str, kind: str | None = None) -
     is_float = depth in ("f16", "f32")
     kind = kind or map_kind(pixels, is_float=is_float)
     findings: list[Finding] = []
-    findings += _check_finite(pixels, kind)
-    finite = np.nan_to_num(pixels, nan=0.0, posinf=0.0, neginf=0.0)
+    nonfinite = _check_finite(pixels, kind)
+    findings += nonfinite
+    finite = np.nan_to_num(pixels, nan=0.0, posinf=0.0, neginf=0.0) if nonfinite else pixels
     small = min(pixels.shape[:2]) < MIN_STATISTICS_SIZE
     # vector statistics and the seam score are judged on every step-th texel of large maps: the same answers
     # (curl and seams compare texels one step apart on both sides) at a fraction of the cost
