@@ -45,7 +45,7 @@ def default_jobs() -> int:
 
 def run(recipe: str | os.PathLike | Recipe, *, jobs: int | None = None, force: bool = False,
         only: tuple[str, ...] | list[str] = (), dry_run: bool = False, cluster: str | None = None,
-        report: str | os.PathLike | None = None, progress: Any = None) -> BatchReport:
+        report: str | os.PathLike | None = None, progress: Any = None, inspect: bool = True) -> BatchReport:
     """Run a batch recipe and return its report.
 
     Parameters
@@ -66,6 +66,9 @@ def run(recipe: str | os.PathLike | Recipe, *, jobs: int | None = None, force: b
     report : path-like, optional
         Where to write the JSON report; default ``<output root>/.bakery/report.json`` (a dry run writes one
         only when this is given).
+    inspect : bool
+        Check every image a job writes with :func:`bakery.inspect.inspect_pixels` and list the findings in the
+        report (default). False skips the re-read, for speed.
     progress : object, optional
         A progress display with ``start(total, skipped, executor, workers)``, ``update(job_result)`` and
         ``stop()`` (:class:`bakery.batch.report.PlainProgress`, :class:`~bakery.batch.report.BarProgress`);
@@ -106,14 +109,15 @@ def run(recipe: str | os.PathLike | Recipe, *, jobs: int | None = None, force: b
         client = connect(cluster)
     try:
         return _run(recipe, plan_args={"force": force, "only": only}, jobs=jobs or default_jobs(), client=client,
-                    cluster=cluster, report=report, progress=progress, t0=t0, started=started, version=__version__)
+                    cluster=cluster, report=report, progress=progress, t0=t0, started=started, version=__version__,
+                    inspect=inspect)
     finally:
         if client is not None:
             client.close()
 
 
 def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: str | None, report: Any,
-         progress: Any, t0: float, started: str, version: str) -> BatchReport:
+         progress: Any, t0: float, started: str, version: str, inspect: bool = True) -> BatchReport:
     from bakery.batch.cache import STATE_DIR, Cache, run_lock
     from bakery.batch.plan import FAIL, cache_entry, make_plan
 
@@ -151,7 +155,7 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
                     cache.record(job.output, None, [])
             if progress is not None:
                 progress.start(len(to_run), len(plan.jobs) - len(to_run), executor, workers)
-            specs = [_spec(recipe, job) for job in to_run]
+            specs = [_spec(recipe, job, inspect) for job in to_run]
 
             def on_result(i: int, res: dict) -> None:
                 job = to_run[i]
@@ -195,12 +199,13 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
     return rep
 
 
-def _spec(recipe: Recipe, job: Any) -> dict[str, Any]:
+def _spec(recipe: Recipe, job: Any, inspect: bool = True) -> dict[str, Any]:
     rule = next(r for r in recipe.rules if r.name == job.rule)
     first = next(iter(job.inputs.values()), None)
     return {"bake": job.bake, "module": job.module, "output": job.output, "out_root": str(recipe.output),
             "inputs": {role: str(recipe.source / rel) for role, rel in job.inputs.items()},
-            "values": job.values, "where": f"{rule.where}: params" + (f" for {first}" if first else "")}
+            "values": job.values, "where": f"{rule.where}: params" + (f" for {first}" if first else ""),
+            "inspect": inspect}
 
 
 def _report(recipe: Recipe, plan: Any, version: str, executor: str, workers: int, dry_run: bool,

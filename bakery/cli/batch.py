@@ -35,6 +35,9 @@ def batch(
                          "one only when this is given].", show_default=False, dir_okay=False)] = None,
     list_bakes: Annotated[bool, typer.Option(
         "--list-bakes", help="List the bakes a recipe can use, with their inputs and parameters, and exit.")] = False,
+    inspect: Annotated[bool, typer.Option(
+        "--inspect/--no-inspect", help="Check every image written with `bakery inspect` and list the findings in "
+        "the report (--no-inspect saves re-reading the outputs).")] = True,
     sheet: Annotated[bool, typer.Option(
         "--sheet", help="After the run, write a contact sheet of the output folder (OUTPUT/.bakery/sheet.html "
                         "and sheet.png): every map, its lit preview and the findings of `bakery inspect`.")] = False,
@@ -63,7 +66,7 @@ def batch(
         cls = BarProgress if sys.stderr.isatty() and not STATE["quiet"] else PlainProgress
         progress = cls(sys.stderr, quiet=STATE["quiet"])
     rep = run(recipe, jobs=jobs, force=force, only=tuple(only or ()), dry_run=dry_run, cluster=cluster,
-              report=report, progress=progress)
+              report=report, progress=progress, inspect=inspect)
     if dry_run:
         for line in format_plan(rep):
             echo(line)

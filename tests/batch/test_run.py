@@ -238,3 +238,10 @@ def test_report_carries_the_inspect_findings_of_the_outputs(library, tmp_path):
     assert "non-power-of-two" in {f["code"] for f in odd.findings}
     data = json.loads((out / ".bakery" / "report.json").read_text())
     assert sum(len(j["findings"]) for j in data["jobs"]) == seen
+
+
+def test_no_inspect_leaves_findings_out(library, tmp_path):
+    rep = run(library, jobs=1, inspect=False)
+    assert rep.ran and all(j.findings == [] for j in rep.jobs)
+    r = CliRunner().invoke(app, ["batch", str(library), "--force", "--no-inspect", "--jobs", "1"])
+    assert r.exit_code == 0, r.output
