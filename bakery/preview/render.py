@@ -551,14 +551,8 @@ def render_ball(material: Material, lighting: Lighting, *, size: int = 512, yaw:
     bitangent = np.stack([-py * px / cl, cl, -py * pz / cl], axis=-1)
     world = (n_t[:, :1] * tangent + n_t[:, 1:2] * bitangent + n_t[:, 2:] * normal) @ spin_m.T
     world = (world / np.linalg.norm(world, axis=1, keepdims=True)).astype(np.float32)
-    radiance = np.empty((n, n, 3), np.float32)
-    rad, nv = shade(world, (-d[hit]).astype(np.float32), rough, base, material.metallic, lighting,
-                    env_rotation=env_rotation)
-    radiance[hit] = rad
-    radiance[~hit] = _background(d[~hit], lighting, env_rotation, background_roughness)
-    nv_full = np.zeros((n, n), np.float32)
-    nv_full[hit] = nv
-    return _finish(radiance, hit, nv_full, supersample)
+    return _shade_view(world, d, hit, rough, base, material, lighting, env_rotation=env_rotation,
+                       background_roughness=background_roughness, n=n, supersample=supersample)
 
 
 def render_tile(material: Material, lighting: Lighting, *, size: int = 512, yaw: float = 0.0,
@@ -593,6 +587,13 @@ def render_tile(material: Material, lighting: Lighting, *, size: int = 512, yaw:
     n_t, rough, base = _surface_values(material, u[hit], v[hit], lod_fn)
     # tangent +X (u), bitangent -Z (v), normal +Y
     world = np.stack([n_t[:, 0], n_t[:, 2], -n_t[:, 1]], axis=-1).astype(np.float32)
+    return _shade_view(world, d, hit, rough, base, material, lighting, env_rotation=env_rotation,
+                       background_roughness=background_roughness, n=n, supersample=supersample)
+
+
+def _shade_view(world, d, hit, rough, base, material, lighting, *, env_rotation, background_roughness, n,
+                supersample):
+    """Shade the hit pixels of an n x n view, fill the rest with the background, and finish the image."""
     radiance = np.empty((n, n, 3), np.float32)
     rad, nv = shade(world, (-d[hit]).astype(np.float32), rough, base, material.metallic, lighting,
                     env_rotation=env_rotation)

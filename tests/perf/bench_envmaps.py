@@ -13,18 +13,9 @@ is the best of N runs.
 from __future__ import annotations
 
 import argparse
-import time
 
 import numpy as np
-
-
-def best(fn, repeat: int) -> float:
-    times = []
-    for _ in range(repeat):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return min(times)
+from timing import best  # noqa: E402  (tests/perf/timing.py, beside this script)
 
 
 def case_convert(repeat: int) -> str:

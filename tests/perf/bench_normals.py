@@ -28,18 +28,10 @@ import time
 from pathlib import Path
 
 import numpy as np
+from timing import best  # noqa: E402  (tests/perf/timing.py, beside this script)
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
-
-
-def best(fn, repeat: int) -> float:
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return min(times)
 
 
 def height_field(n: int, seed: int = 0) -> np.ndarray:

@@ -13,21 +13,13 @@ import time
 from pathlib import Path
 
 import numpy as np
+from timing import best  # noqa: E402  (tests/perf/timing.py, beside this script)
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from bakery.preview.lighting import default_lighting  # noqa: E402
 from bakery.preview.render import Material, preview_image, render_ball, render_tile  # noqa: E402
 from bakery.samples import paving_exponent, paving_height  # noqa: E402
-
-
-def best(fn, repeat=3):
-    times = []
-    for _ in range(repeat):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return min(times)
 
 
 def floor(samples: int) -> float:

@@ -13,20 +13,11 @@ load from other processes affects both alike. Core functions only (no file I/O).
 from __future__ import annotations
 
 import argparse
-import time
 
 import numpy as np
+from timing import best  # noqa: E402  (tests/perf/timing.py, beside this script)
 
 from bakery.roughness import roughness_from_exponent, roughness_mips
-
-
-def best(fn, repeat: int) -> float:
-    times = []
-    for _ in range(repeat):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return min(times)
 
 
 def box_chain(a: np.ndarray) -> list[np.ndarray]:
