@@ -6,6 +6,7 @@ and returns a list of ``(description, path)`` pairs for the summary.
 
 from __future__ import annotations
 
+import os
 from collections.abc import Callable
 from pathlib import Path
 
@@ -249,7 +250,8 @@ def run_demo(out: str | Path, *, size: int = 256, log: Callable[[str], None] = p
         made += step(inputs, out)
     summary = out / "SUMMARY.md"
     lines = ["# bakery demo", "", "Scene: worn paving stones under an open sky (procedural, bakery.samples).", ""]
-    lines += [f"- {desc}: `{p.relative_to(out).as_posix()}`" for desc, p in made]
+    lines += [f"- {desc}: `{Path(os.path.relpath(Path(p).absolute(), out.absolute())).as_posix()}`"
+              for desc, p in made]
     with atomic_output(summary) as tmp:
         tmp.write_text("\n".join(lines) + "\n", encoding="utf-8")
     return summary

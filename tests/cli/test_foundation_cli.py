@@ -84,8 +84,9 @@ def test_pixel_limit_from_environment(tmp_path):
     assert r.exit_code == 2 and "over the limit of 100" in r.output
 
 
-def test_demo_writes_inputs_and_summary(tmp_path):
-    r = runner.invoke(app, ["demo", "-o", str(tmp_path / "d"), "--size", "64"])
+def test_demo_writes_inputs_and_summary(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)  # a relative output folder, as in the README's command
+    r = runner.invoke(app, ["demo", "-o", "d", "--size", "64"])
     assert r.exit_code == 0, r.output
     assert (tmp_path / "d" / "SUMMARY.md").exists()
     assert (tmp_path / "d" / "inputs" / "paving_height.png").exists()
