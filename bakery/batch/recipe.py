@@ -230,8 +230,6 @@ def load_recipe(path: str | Path) -> Recipe:
     Parameters are checked against each bake's parameter dataclass here, so a wrong value stops the run
     before any job starts.
     """
-    from bakery.bakes import get_bake, params_from_mapping
-
     path = Path(path)
     data = read_toml(path)
     where = str(path)
@@ -254,15 +252,7 @@ def load_recipe(path: str | Path) -> Recipe:
         raise BakeryError(f"{where}: key 'defaults': expected tables like [defaults.normal]")
     defaults: dict[str, dict[str, Any]] = {}
     for bake_name, values in defaults_raw.items():
-        w = f"{where}: [defaults.{bake_name}]"
-        if not isinstance(values, dict):
-            raise BakeryError(f"{w}: expected a table of parameters")
-        try:
-            bake = get_bake(bake_name)
-        except BakeryError as exc:
-            raise BakeryError(f"{w}: {exc}") from None
-        params_from_mapping(bake, values, w)
-        defaults[bake_name] = dict(values)
+        defaults[bake_name] = _bake_values(bake_name, values, f"{where}: [defaults.{bake_name}]")
     rules_raw = data.get("rule")
     if not isinstance(rules_raw, list) or not rules_raw:
         raise BakeryError(f"{where}: no rules; add at least one [[rule]] with bake, match and output")
@@ -396,15 +386,7 @@ def load_folder_file(path: Path, recipe: Recipe, shown: str) -> FolderSettings:
     bakes: dict[str, dict[str, Any]] = {}
     rules: dict[str, dict[str, Any]] = {}
     for key, table in data.get("bake", {}).items():
-        w = f"{shown}: [bake.{key}]"
-        if not isinstance(table, dict):
-            raise BakeryError(f"{w}: expected a table of parameters")
-        try:
-            bake = get_bake(key)
-        except BakeryError as exc:
-            raise BakeryError(f"{w}: {exc}") from None
-        params_from_mapping(bake, table, w)
-        bakes[key] = dict(table)
+        bakes[key] = _bake_values(key, table, f"{shown}: [bake.{key}]")
     for key, table in data.get("rule", {}).items():
         w = f"{shown}: [rule.{key}]"
         if not isinstance(table, dict):
@@ -470,3 +452,17 @@ def _type_text(hint: Any) -> str:
     if isinstance(hint, type) and hasattr(hint, "__members__"):  # Enum
         return "one of " + ", ".join(_toml(m.value) for m in hint)
     return names.get(hint, getattr(hint, "__name__", str(hint)))
+
+
+def _bake_values(name: str, values: Any, where: str) -> dict[str, Any]:
+    """A table of parameters for the bake ``name``, checked against its parameter dataclass."""
+    from bakery.bakes import get_bake, params_from_mapping
+
+    if not isinstance(values, dict):
+        raise BakeryError(f"{where}: expected a table of parameters")
+    try:
+        bake = get_bake(name)
+    except BakeryError as exc:
+        raise BakeryError(f"{where}: {exc}") from None
+    params_from_mapping(bake, values, where)
+    return dict(values)

@@ -59,6 +59,15 @@ def downsample(v: np.ndarray) -> np.ndarray:
     return np.ascontiguousarray(_halve_axis(_halve_axis(np.asarray(v, np.float32), 0), 1))
 
 
+def level_count(width: int, height: int, levels: int | None) -> int:
+    """The number of mip levels to make: all of them for None, else ``levels`` checked against the size."""
+    full = mip_count(width, height)
+    levels = full if levels is None else int(levels)
+    if not 1 <= levels <= full:
+        raise BakeryError(f"a {width}x{height} map has 1 to {full} mip levels; got {levels}")
+    return levels
+
+
 def normal_mips(normals: np.ndarray, *, levels: int | None = None) -> list[tuple[np.ndarray, np.ndarray]]:
     """A mip chain of unit normals with the per-texel length of the averaged normal.
 
@@ -93,10 +102,7 @@ def normal_mips(normals: np.ndarray, *, levels: int | None = None) -> list[tuple
     if n.ndim != 3 or n.shape[2] != 3 or n.size == 0:
         raise BakeryError(f"normal_mips needs normals of shape (H, W, 3); got {n.shape}")
     h, w = n.shape[:2]
-    full = mip_count(w, h)
-    levels = full if levels is None else int(levels)
-    if not 1 <= levels <= full:
-        raise BakeryError(f"a {w}x{h} map has 1 to {full} mip levels; got {levels}")
+    levels = level_count(w, h, levels)
     unit, length = normalize(n)
     chain = [(unit, np.where(length > 0, np.float32(1.0), np.float32(0.0)))]
     avg = unit

@@ -286,12 +286,9 @@ def roughness_mips(normals: np.ndarray, roughness, *, levels: int | None = None,
     if n.ndim != 3 or n.shape[2] != 3:
         raise BakeryError(f"normals must have shape (H, W, 3); got {n.shape}")
     h, w = n.shape[:2]
-    from bakery.normals.mips import mip_count
+    from bakery.normals.mips import level_count
 
-    full = mip_count(w, h)
-    levels = full if levels is None else int(levels)
-    if not 1 <= levels <= full:
-        raise BakeryError(f"a {w}x{h} map has 1 to {full} mip levels; got {levels}")
+    levels = level_count(w, h, levels)
     r = np.asarray(roughness, dtype=np.float32)
     if not np.isfinite(r).all() or r.min() < 0 or r.max() > 1:
         bad = int(np.count_nonzero(~((r >= 0) & (r <= 1))))
