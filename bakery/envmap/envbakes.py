@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
-from bakery.bakes import Bake, params_to_dict, register
+from bakery.bakes import Bake, bake_threads, params_to_dict, register
 from bakery.errors import BakeryError
 
 Layout = Literal["equirect", "hcross", "vcross", "strip", "column", "faces", "ktx2"]
@@ -209,7 +209,7 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams) ->
     env = read_environment(src, repair=params.repair)
     check_distinct([ktx_path, *face_paths(faces_pattern)], env.paths)
     px = env.pixels[..., :3] if env.pixels.shape[-1] >= 3 else env.pixels
-    radiance = irr.project_sh(px, env.kind)
+    radiance = irr.project_sh(px, env.kind, threads=bake_threads())
     plain = irr.irradiance_coefficients(radiance)
     windowed = irr.irradiance_coefficients(radiance, window=params.window)
     if params.method == "sh":

@@ -69,12 +69,13 @@ def sh_basis(d: np.ndarray) -> np.ndarray:
                      K20 * (3 * z * z - 1), K2 * x * z, K22 * (x * x - y * y)], axis=-1)
 
 
-def project_sh(env: np.ndarray, kind: str) -> np.ndarray:
+def project_sh(env: np.ndarray, kind: str, *, threads: int | None = None) -> np.ndarray:
     """Radiance SH coefficients ``(9, C)`` (float64) of a panorama ``(H, W, C)`` or cubemap
     ``(6, N, N, C)``: the sum over texels of ``L * Y_lm * solid angle``.
 
     For a panorama the basis separates into functions of latitude and longitude, so the image is read once
-    in a product with 5 latitude functions and the rest is per column.
+    against 5 latitude functions (:func:`bakery.envmap.rowsums.latitude_sums`, on ``threads`` worker threads;
+    the result does not depend on it) and the rest is per column.
     """
     env = np.asarray(env)
     if kind == "cube":
@@ -86,32 +87,29 @@ def project_sh(env: np.ndarray, kind: str) -> np.ndarray:
     lat = np.pi * (0.5 - (np.arange(h) + 0.5) / h)
     st, ct = np.sin(lat), np.cos(lat)
     om = sphere.equirect_row_solid_angles(w_, h, dtype=np.float64)
-    # the image is read once, against 5 functions of latitude (times the row solid angle):
-    # 1, sin, cos, sin cos, cos^2 (sin^2 = 1 - cos^2)
-    rowf = (np.stack([np.ones_like(st), st, ct, st * ct, ct * ct]) * om).astype(np.float32)
-    flat = np.asarray(env, dtype=np.float32).reshape(h, w_ * c)
-    t = np.zeros((5, w_ * c), dtype=np.float64)
-    for g0 in range(0, h, 256):  # one float32 product per 256 rows (BLAS), summed in float64
-        t += rowf[:, g0:g0 + 256] @ flat[g0:g0 + 256]
-    t = t.reshape(5, w_, c)
-    phi = 2 * np.pi * ((np.arange(w_) + 0.5) / w_ - 0.5)
-    sp, cp = np.sin(phi), np.cos(phi)
-    t0, t1, t2, t3, t4 = t
+    # the image is read once (bakery.envmap.shsums): each latitude function times the row solid angle meets the
+    # longitude functions of its parity over the first half-turn of columns
+    from bakery.envmap.shsums import folded_sums  # imports numba: only when a panorama is projected
 
-    def acc(g: np.ndarray, tt: np.ndarray) -> np.ndarray:
-        return g @ tt
+    if w_ % 2:
+        raise ValueError(f"a panorama's width must be even (2:1); got {w_}")
+    lat_f = np.stack([np.ones_like(st), ct * ct, st, ct, st * ct]) * om
+    t0, t4, t1, t2, t3 = folded_sums(np.asarray(env, dtype=np.float32).reshape(h, w_ * c), lat_f,
+                                     threads=threads).reshape(5, w_ // 2, c)
+    phi = 2 * np.pi * ((np.arange(w_ // 2) + 0.5) / w_ - 0.5)  # the first half-turn
+    sp, cp = np.sin(phi), np.cos(phi)
 
     one = np.ones_like(phi)
     out = np.empty((9, c), dtype=np.float64)
-    out[0] = K0 * acc(one, t0)
-    out[1] = K1 * acc(one, t1)  # y = sin(lat)
-    out[2] = K1 * acc(-cp, t2)  # z = -cos(phi) cos(lat)
-    out[3] = K1 * acc(sp, t2)  # x = sin(phi) cos(lat)
-    out[4] = K2 * acc(sp, t3)  # x y
-    out[5] = K2 * acc(-cp, t3)  # y z
-    out[6] = K20 * (3 * acc(cp * cp, t4) - acc(one, t0))  # 3 z^2 - 1
-    out[7] = K2 * acc(-sp * cp, t4)  # x z
-    out[8] = K22 * (acc(sp * sp, t4) - acc(one, t0 - t4))  # x^2 - y^2, y^2 = 1 - cos^2(lat)
+    out[0] = K0 * (one @ t0)
+    out[1] = K1 * (one @ t1)  # y = sin(lat)
+    out[2] = K1 * (-cp @ t2)  # z = -cos(phi) cos(lat)
+    out[3] = K1 * (sp @ t2)  # x = sin(phi) cos(lat)
+    out[4] = K2 * (sp @ t3)  # x y
+    out[5] = K2 * (-cp @ t3)  # y z
+    out[6] = K20 * (3 * (cp * cp) @ t4 - one @ t0)  # 3 z^2 - 1
+    out[7] = K2 * (-sp * cp @ t4)  # x z
+    out[8] = K22 * ((sp * sp) @ t4 - one @ (t0 - t4))  # x^2 - y^2, y^2 = 1 - cos^2(lat)
     return out
 
 
