@@ -85,21 +85,21 @@ def _remap(src: np.ndarray, x: np.ndarray, y: np.ndarray) -> np.ndarray:
 # ------------------------------------------------------------------------------------------- lookups
 
 
-def pad_equirect(img: np.ndarray) -> np.ndarray:
+def pad_equirect(img: np.ndarray, *, rows_filter=None) -> np.ndarray:
     """A panorama with one texel of border on each side, continued across the wrap and over the poles
-    (the texel above row 0 at column x is row 0 at column x + W/2)."""
-    cv2 = _cv2()
+    (the texel above row 0 at column x is row 0 at column x + W/2). ``rows_filter(out)``, if given, may
+    rewrite rows of the copy (``out`` is the ``(H, W, C)`` interior) before the border is filled."""
     h, w, c = img.shape
-    src = np.ascontiguousarray(img, dtype=np.float32)
-    if c <= 4:
-        out = cv2.copyMakeBorder(src, 1, 1, 1, 1, cv2.BORDER_WRAP)
-        out = out.reshape(h + 2, w + 2, c)
-    else:
-        out = np.concatenate([src[:, -1:], src, src[:, :1]], axis=1)
-        out = np.concatenate([out[:1], out, out[-1:]], axis=0)
+    out = np.empty((h + 2, w + 2, c), dtype=np.float32)
+    inner = out[1:-1, 1:-1]
+    inner[...] = img  # one copy (numpy's strided copy was twice as fast as OpenCV's copyMakeBorder here)
+    if rows_filter is not None:
+        rows_filter(inner)
+    out[1:-1, 0] = inner[:, -1]
+    out[1:-1, -1] = inner[:, 0]
     half = w // 2
-    for row, src_row in ((0, 0), (h + 1, h - 1)):
-        line = np.roll(src[src_row], -half, axis=0)
+    for row, src_row in ((0, 1), (h + 1, h)):
+        line = np.roll(out[src_row, 1:-1], -half, axis=0)
         out[row, 1:-1] = line
         out[row, 0] = line[-1]
         out[row, -1] = line[0]
@@ -237,10 +237,13 @@ def reduce_equirect(img: np.ndarray, fy: int = 2, fx: int | None = None) -> np.n
     return acc
 
 
-def _row_box_filter(img: np.ndarray, target: float, *, dst_width: int | None = None) -> np.ndarray:
+def _row_box_filter(img: np.ndarray, target: float, *, dst_width: int | None = None,
+                    out: np.ndarray | None = None) -> np.ndarray:
     """Average each panorama row along its length with a circular box as wide as ``target`` radians,
     where the row's texels are narrower than that (toward the poles). Each row keeps its sum. For a
-    panorama destination of ``dst_width``, the box is as wide as a destination texel of the same row."""
+    panorama destination of ``dst_width``, the box is as wide as a destination texel of the same row.
+    ``out``: an array holding a copy of ``img`` whose filtered rows are rewritten (default: a new copy, or
+    ``img`` itself when no row needs filtering)."""
     h, w, c = img.shape
     if dst_width is not None:
         m = np.full(h, max(1, w // dst_width), dtype=np.int64)
@@ -250,8 +253,9 @@ def _row_box_filter(img: np.ndarray, target: float, *, dst_width: int | None = N
         m = np.minimum(np.floor(target / np.maximum(width, 1e-12)).astype(np.int64), w)
     rows = np.nonzero(m >= 2)[0]
     if rows.size == 0:
-        return img
-    out = img.copy()
+        return img if out is None else out
+    if out is None:
+        out = img.copy()
     whole = rows[m[rows] >= w - 1]
     if whole.size:
         out[whole] = img[whole].astype(np.float64).mean(axis=1, keepdims=True).astype(np.float32)
@@ -285,40 +289,63 @@ def _row_box_filter(img: np.ndarray, target: float, *, dst_width: int | None = N
     return out
 
 
+def _unfold(q: np.ndarray, n: int, col, row, both) -> np.ndarray:
+    """An ``(n, n)`` array from its quadrant ``q`` of the first ``(n + 1) // 2`` rows and columns: the other
+    three are ``col(q)`` mirrored left-right, ``row(q)`` mirrored top-bottom and ``both(q)`` mirrored both ways
+    (an odd n's middle row and column are written twice, with equal values)."""
+    h = q.shape[0]
+    out = np.empty((n, n), dtype=q.dtype)
+    out[:h, :h] = q
+    out[:h, n - h:] = col(q[:, ::-1])
+    out[n - h:, :h] = row(q[::-1])
+    out[n - h:, n - h:] = both(q[::-1, ::-1])
+    return out
+
+
 def cube_equirect_uv(n: int, rotation_deg: float = 0.0, *, scale: tuple[int, int] = (1, 1),
                      offset: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
     """Panorama coordinates (u, v) of the texel centres of a cubemap of face ``n``, ``(6, n, n)`` each,
     float32; the same as :func:`bakery.sphere.dir_to_equirect` of :func:`bakery.sphere.cube_directions`
-    but computed from two faces: the four side faces are quarter turns of one another (u shifts by 1/4)
-    and the bottom face mirrors the top one. ``rotation_deg`` shifts u by ``-rotation_deg / 360`` (where
+    but with a quarter of the trigonometry: the four side faces are quarter turns of one another (u shifts by
+    1/4), the bottom face mirrors the top one, and within a face the angles of the other three quadrants
+    follow from the first one's by reflections. ``rotation_deg`` shifts u by ``-rotation_deg / 360`` (where
     an output texel finds its source after :func:`bakery.sphere.rotation_y`). With ``scale = (W, H)`` and
     ``offset`` the results are ``u W + offset`` and ``v H + offset`` (remap coordinates)."""
-    c = 2 * sphere.face_texel_coords(n, np.float64) - 1
-    sx, sy = float(scale[0]), float(scale[1])
+    c = (2 * sphere.face_texel_coords(n, np.float64) - 1).astype(np.float32)
+    h = (n + 1) // 2
+    cq = c[:h]  # <= 0
+    sx, sy, off = np.float32(scale[0]), np.float32(scale[1]), np.float32(offset)
     shift = -rotation_deg / 360.0
+    last = np.float32(np.nextafter(np.float32(1), np.float32(0)))
     u = np.empty((6, n, n), dtype=np.float32)
     v = np.empty((6, n, n), dtype=np.float32)
-    # face +Z (layer 4) looks along bakery -Z: direction (s_c, -t_c, -1); u depends on the column only
-    u_front = np.arctan(c) / (2 * np.pi) + 0.5
-    v_side = (0.5 - np.arctan2(-c[:, None], np.sqrt(c[None, :] ** 2 + 1)) / np.pi).astype(np.float32)
-    v_side = v_side * np.float32(sy) + np.float32(offset)
+    # side faces: face +Z (layer 4) looks along bakery -Z, direction (s_c, -t_c, -1); u depends on the
+    # column only; v = 1/2 + atan(t_c / sqrt(s_c^2 + 1)) / pi, even in s_c and v -> 1 - v with t_c -> -t_c
+    u_front = np.arctan(c.astype(np.float64)) / (2 * np.pi) + 0.5
+    vq = np.float32(0.5) + np.arctan(cq[:, None] / np.sqrt(cq[None, :] * cq[None, :] + np.float32(1))) * np.float32(
+        1 / np.pi)
+    v_side = _unfold(vq, n, lambda a: a, lambda a: 1 - a, lambda a: 1 - a) * sy + off
     for f, centre in ((0, 0.75), (1, 0.25), (4, 0.5), (5, 1.0)):
-        uu = np.mod(u_front + (centre - 0.5) + shift, 1.0)
-        uu = np.minimum(uu, np.nextafter(1.0, 0.0))
-        u[f] = (uu * sx + offset).astype(np.float32)[None, :]
+        uu = np.minimum(np.mod(u_front + (centre - 0.5) + shift, 1.0), np.nextafter(1.0, 0.0))
+        u[f] = (uu * sx + off).astype(np.float32)[None, :]
         v[f] = v_side
-    # +Y (layer 2): (s_c, 1, -t_c); -Y (layer 3): (s_c, -1, t_c)
-    c32 = c.astype(np.float32)
-    sc = c32[None, :]
-    tc = c32[:, None]
-    lat = np.arctan2(np.float32(1), np.sqrt(sc * sc + tc * tc)) * np.float32(1 / np.pi)
-    v[2] = (np.float32(0.5) - lat) * np.float32(sy) + np.float32(offset)
-    v[3] = (np.float32(0.5) + lat) * np.float32(sy) + np.float32(offset)
-    for f, sign in ((2, 1.0), (3, -1.0)):
-        uu = np.arctan2(sc, np.float32(sign) * tc) * np.float32(0.5 / np.pi) + np.float32(0.5 + shift)
-        uu -= np.floor(uu)
-        np.minimum(uu, np.float32(np.nextafter(np.float32(1), np.float32(0))), out=uu)
-        u[f] = uu * np.float32(sx) + np.float32(offset)
+    # +Y (layer 2): direction (s_c, 1, -t_c): latitude atan2(1, r) = pi/2 - atan(r), r = |(s_c, t_c)|, the
+    # same in all four quadrants; u = atan2(s_c, t_c) / 2pi + 1/2 (in turns: w -> -w with s_c -> -s_c,
+    # 1/2 - w with t_c -> -t_c). -Y (layer 3): direction (s_c, -1, t_c), the top face mirrored top-bottom.
+    rq = np.sqrt(cq[:, None] * cq[:, None] + cq[None, :] * cq[None, :])
+    latq = np.float32(0.5) - np.arctan(rq) * np.float32(1 / np.pi)  # latitude / pi
+    lat = _unfold(latq, n, lambda a: a, lambda a: a, lambda a: a)
+    v[2] = (np.float32(0.5) - lat) * sy + off
+    v[3] = (np.float32(0.5) + lat) * sy + off
+    wq = np.arctan2(cq[None, :], cq[:, None]) * np.float32(0.5 / np.pi)
+    top = _unfold(wq, n, lambda a: -a, lambda a: 0.5 - a, lambda a: a + 0.5)
+    if n % 2:  # an odd face's centre texel looks at the pole: atan2(0, 0) = 0, as the direction gives
+        top[h - 1, h - 1] = 0
+    top += np.float32(0.5 + shift)
+    top -= np.floor(top)
+    np.minimum(top, last, out=top)
+    u[2] = top * sx + off
+    u[3] = u[2][::-1]
     return u, v
 
 
@@ -674,6 +701,11 @@ def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_d
         use_area = False
     if use_area:
         return area_resample(src, kind, dst_kind, size, rotation_deg=rotation_deg)
+    if dst_kind == "cube" and kind == "equirect":  # the row filter writes into the padded copy: one copy
+        h, w = src.shape[:2]
+        x, y = cube_equirect_uv(size, rotation_deg, scale=(w, h), offset=0.5)
+        padded = pad_equirect(src, rows_filter=lambda out: _row_box_filter(src, dst_angle, out=out))
+        return _remap(padded, x, y)
     if kind == "equirect":
         src = _row_box_filter(src, dst_angle, dst_width=size if dst_kind == "equirect" else None)
     if kind == dst_kind == "equirect":
@@ -683,10 +715,6 @@ def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_d
         v = (np.arange(h, dtype=np.float64) + 0.5) / h
         uu, vv = np.broadcast_arrays(u[None, :].astype(np.float32), v[:, None].astype(np.float32))
         return sample_equirect_uv(src, uu, vv)
-    if dst_kind == "cube" and kind == "equirect":
-        h, w = src.shape[:2]
-        x, y = cube_equirect_uv(size, rotation_deg, scale=(w, h), offset=0.5)
-        return _remap(pad_equirect(src), x, y)
     if dst_kind == "cube":
         dirs = sphere.cube_directions(size)
     else:
