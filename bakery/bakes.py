@@ -127,6 +127,15 @@ def bake_threads() -> int | None:
     return n
 
 
+def bake_progress(message: str) -> None:
+    """A short progress line from a long bake, on stderr. Silent where ``BAKERY_PROGRESS=0``: set by
+    ``bakery --quiet`` and in batch workers, whose jobs the batch reports itself."""
+    if os.environ.get("BAKERY_PROGRESS", "").strip() != "0":
+        import sys
+
+        print(message, file=sys.stderr, flush=True)
+
+
 def params_to_dict(params: Any) -> dict[str, Any]:
     """A bake's parameters as plain JSON-able values (for manifests and cache keys)."""
     out = {}

@@ -63,3 +63,29 @@ def test_public_api_loads_lazily_and_completely():
     code = "import sys, bakery.cli; print('numpy' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
     assert out.strip() == "False"
+
+
+def test_bake_progress_lines_and_where_they_are_silent(monkeypatch, capsys):
+    from bakery.bakes import bake_progress
+    from bakery.batch.execute import THREAD_ENV
+
+    monkeypatch.delenv("BAKERY_PROGRESS", raising=False)
+    bake_progress("level 1: working")
+    assert capsys.readouterr().err == "level 1: working\n"
+    monkeypatch.setenv("BAKERY_PROGRESS", "0")
+    bake_progress("level 2: working")
+    assert capsys.readouterr().err == ""
+    assert THREAD_ENV["BAKERY_PROGRESS"] == "0"  # batch workers: the batch reports each job itself
+
+
+def test_quiet_option_silences_bake_progress(monkeypatch, tmp_path):
+    import os
+
+    from typer.testing import CliRunner
+
+    from bakery.cli import app
+
+    monkeypatch.setenv("BAKERY_PROGRESS", "1")  # restored after the test
+    r = CliRunner().invoke(app, ["--quiet", "env", "lut", "-o", str(tmp_path / "lut.png"), "--size", "8"])
+    assert r.exit_code == 0, r.output
+    assert os.environ["BAKERY_PROGRESS"] == "0"

@@ -34,6 +34,7 @@ THREAD_ENV = {
     "NUMBA_NUM_THREADS": "1",
     "OPENCV_FOR_THREADS_NUM": "1",
     "BAKERY_THREADS": "1",  # for bakes that start their own thread pools (see DEVELOPERS.md)
+    "BAKERY_PROGRESS": "0",  # bakes' own progress lines (bakery.bakes.bake_progress): the batch reports jobs
 }
 
 Spec = dict[str, Any]

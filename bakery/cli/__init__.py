@@ -8,6 +8,7 @@ import heavy libraries inside their functions only, so ``bakery --help`` is fast
 from __future__ import annotations
 
 import importlib
+import os
 from typing import Annotated
 
 import typer
@@ -47,6 +48,8 @@ def _root(
 ) -> None:
     STATE["debug"] = debug
     STATE["quiet"] = quiet
+    if quiet:
+        os.environ["BAKERY_PROGRESS"] = "0"  # bakes' own progress lines (bakery.bakes.bake_progress)
 
 
 for _mod in COMMAND_MODULES:

@@ -10,7 +10,7 @@ import json
 from dataclasses import dataclass
 from pathlib import Path
 
-from bakery.bakes import Bake, params_to_dict, register
+from bakery.bakes import Bake, bake_progress, params_to_dict, register
 from bakery.errors import BakeryError
 
 #: KTX2 formats offered for the specular chain (float formats only: radiance is HDR).
@@ -145,7 +145,7 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams)
     levels = params.levels or params.size.bit_length()
     r = level_roughness(levels, rough)
     res = prefilter_specular(env, params.size, levels=levels, roughness=r.tolist(), lobe=params.lobe,
-                             quality=params.quality, progress=_progress)
+                             quality=params.quality, progress=bake_progress)
     mapping = rough if isinstance(rough, str) else "list"
     table = {
         "lobe": params.lobe,
@@ -183,15 +183,6 @@ def _level_formula(mapping: str, levels: int) -> str:
     if mapping == "quadratic":
         return f"level = sqrt(r) * {n}"
     return "interpolate the roughness list"
-
-
-def _progress(message: str) -> None:
-    import sys
-
-    from bakery.cli._common import STATE
-
-    if not STATE.get("quiet"):
-        print(message, file=sys.stderr, flush=True)
 
 
 def _run_lut(inputs: dict[str, Path], output: Path, params: LutParams) -> list[Path]:
