@@ -38,6 +38,7 @@ def lighting_from_panorama(panorama: np.ndarray, *, face: int = PREVIEW_FACE, le
     at most ``face`` and at most an eighth of the panorama's width, and the chain has at most ``levels``
     levels, perceptual roughness linear in the level index from 0 to 1.
     """
+    from bakery.bakes import bake_threads
     from bakery.envmap.irradiance import project_sh
     from bakery.envmap.specular import prefilter_specular
     from bakery.preview.render import Lighting
@@ -60,7 +61,7 @@ def lighting_from_panorama(panorama: np.ndarray, *, face: int = PREVIEW_FACE, le
     levels = min(levels, face.bit_length())
     chain = prefilter_specular(pano, face, levels=levels, roughness="linear", quality=quality)
     return Lighting(tuple(lv[..., :3] for lv in chain.levels), chain.roughness, _table(lut_size),
-                    project_sh(pano, "equirect"))
+                    project_sh(pano, "equirect", threads=bake_threads()))
 
 
 @functools.lru_cache(maxsize=2)
