@@ -20,13 +20,13 @@ parity:
 so four texels cost eight additions and five multiply-adds, where a plain product with five latitude functions
 costs twenty multiply-adds; and the five accumulator rows are half as long.
 
-``folded_sums(flat, lat, c)`` returns, for each k, ``sum over all rows r of lat[k, r] * (x[r, :half] + s_k x[r,
+``folded_sums(flat, lat)`` returns, for each k, ``sum over all rows r of lat[k, r] * (x[r, :half] + s_k x[r,
 half:])`` with ``s_k = +1`` (longitude-even) or ``-1`` (longitude-odd), lat[k] extended to the lower rows by its
 parity; only ``lat[:, :H // 2]`` and the middle row of an odd height are read. Multiplying by a longitude
 function of the same parity and summing over the first half-turn of columns gives the full sum over the sphere.
 
 Why compiled: a BLAS product with five rows first copies (packs) the image into cache-sized panels and measured
-2.3-3.4x the time of one matrix-vector pass over the same image here; this loop reads each texel once
+2.3-4.3x the time of one matrix-vector pass over the same image here; this loop reads each texel once
 (``tests/perf/bench_envmaps.py`` shows the ratio). Row pairs are summed in fixed blocks of :data:`BLOCK` in
 float32, and the blocks in float64 in a fixed order, so the result does not depend on the number of threads.
 
