@@ -74,8 +74,8 @@ def project_sh(env: np.ndarray, kind: str, *, threads: int | None = None) -> np.
     ``(6, N, N, C)``: the sum over texels of ``L * Y_lm * solid angle``.
 
     For a panorama the basis separates into functions of latitude and longitude, so the image is read once
-    against 5 latitude functions (:func:`bakery.envmap.rowsums.latitude_sums`, on ``threads`` worker threads;
-    the result does not depend on it) and the rest is per column.
+    against 5 latitude functions (:func:`bakery.envmap.shsums.folded_sums`, on ``threads`` threads; the
+    result does not depend on it) and the rest is per column. A panorama's width must be even.
     """
     env = np.asarray(env)
     if kind == "cube":
@@ -84,6 +84,8 @@ def project_sh(env: np.ndarray, kind: str, *, threads: int | None = None) -> np.
         basis = sh_basis(sphere.cube_directions(n, dtype=np.float64))  # (6, n, n, 9)
         return np.einsum("fijk,fijc,ij->kc", basis, env.astype(np.float64), w)
     h, w_, c = env.shape
+    if w_ % 2:
+        raise ValueError(f"a panorama's width must be even (2:1); got {w_}")
     lat = np.pi * (0.5 - (np.arange(h) + 0.5) / h)
     st, ct = np.sin(lat), np.cos(lat)
     om = sphere.equirect_row_solid_angles(w_, h, dtype=np.float64)
@@ -91,8 +93,6 @@ def project_sh(env: np.ndarray, kind: str, *, threads: int | None = None) -> np.
     # longitude functions of its parity over the first half-turn of columns
     from bakery.envmap.shsums import folded_sums  # imports numba: only when a panorama is projected
 
-    if w_ % 2:
-        raise ValueError(f"a panorama's width must be even (2:1); got {w_}")
     lat_f = np.stack([np.ones_like(st), ct * ct, st, ct, st * ct]) * om
     t0, t4, t1, t2, t3 = folded_sums(np.asarray(env, dtype=np.float32).reshape(h, w_ * c), lat_f,
                                      threads=threads).reshape(5, w_ // 2, c)

@@ -43,10 +43,11 @@ def case_sh(repeat: int) -> str:
     flat = pano.reshape(2048, -1)
     w = rng.random(flat.shape[1], dtype=np.float32)
     irradiance.project_sh(pano, "equirect")  # loads (or first compiles) the numba kernel
+    rounds = 7
     med, lo, hi, sh, floor = ratio_rounds(lambda: irradiance.project_sh(pano, "equirect"), lambda: flat @ w,
-                                          rounds=7, repeat=repeat)
+                                          rounds=rounds, repeat=repeat)
     return (f"SH9 projection of 4096x2048: {sh * 1e3:.1f} ms; floor (one multiply-add pass) {floor * 1e3:.1f} ms;"
-            f" ratio {med:.2f}, median of 7 rounds (range {lo:.2f}-{hi:.2f}) (target <= 2)")
+            f" ratio {med:.2f}, median of {rounds} rounds (range {lo:.2f}-{hi:.2f}) (target <= 2)")
 
 
 def case_area(repeat: int) -> str:
