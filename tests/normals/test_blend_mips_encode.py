@@ -4,8 +4,8 @@ import numpy as np
 import pytest
 
 from bakery import BakeryError, BakeryWarning
+from bakery.mips import downsample
 from bakery.normals import blend_normals, decode_normals, encode_normals, mip_count, normal_from_height, normal_mips
-from bakery.normals.mips import downsample
 
 
 def random_normals(shape, seed, tilt=0.6):
