@@ -65,7 +65,7 @@ def env_layout(w: int, h: int) -> str | None:
 
 
 def _looks_like_normals(rgb: np.ndarray) -> bool:
-    from bakery.io.color import srgb_to_linear
+    from bakery.color import srgb_to_linear
 
     for candidate in (rgb, srgb_to_linear(rgb)):  # also recognise normal maps saved with an sRGB curve
         n = candidate * 2.0 - 1.0

@@ -16,7 +16,7 @@ Step = Callable[[dict[str, Path], Path], list[tuple[str, Path]]]
 
 
 def _step_info(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
-    from bakery.cli.info_report import describe
+    from bakery.info import describe
 
     report = out / "info.txt"
     lines = []
@@ -33,8 +33,8 @@ def _step_normals(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
     """Normal map from the demo height, its Y-down twin, its mip chain, the height integrated back, and a
     detail normal map blended over it."""
     from bakery.bakes import run_bake
+    from bakery.bakes.normals import BlendParams, FixParams, HeightParams, MipsParams, NormalParams
     from bakery.io.images import write_image
-    from bakery.normals.bakes import BlendParams, FixParams, HeightParams, MipsParams, NormalParams
     from bakery.samples import stone_grain_height
 
     folder = out / "normals"
@@ -51,7 +51,7 @@ def _step_normals(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
     from bakery.io.images import read_image
 
     size = read_image(height).pixels.shape[0]
-    grain = write_image(folder / "grain_height.png", stone_grain_height(size), depth="u16")
+    grain = write_image(folder / "grain_height.png", stone_grain_height(size), bits="16")
     grain_n = folder / "grain_normal.png"
     run_bake("normal", {"height": grain}, grain_n, NormalParams(strength=2.0, blur=0.5))
     blended = folder / "paving_normal_with_grain.png"
@@ -65,29 +65,31 @@ def _step_normals(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
 
 
 def _step_roughness(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
-    """The exponent map and its 8-bit gloss copy (exponent = 2^(13 g)) -> perceptual roughness by both rules;
+    """The exponent map and its 8-bit gloss copy (exponent = 2 * 1500^g) -> perceptual roughness by both rules;
     then the paving normal map and that roughness -> an anti-aliased roughness mip chain."""
     from bakery.bakes import run_bake
-    from bakery.normals.bakes import NormalParams
-    from bakery.roughness.bakes import AntialiasParams, RoughnessParams
+    from bakery.bakes.normals import NormalParams
+    from bakery.bakes.roughness import AntialiasParams, RoughnessParams
+    from bakery.samples import GLOSS_EXPONENT_RANGE
 
     folder = out / "roughness"
     (folder / "antialias").mkdir(parents=True, exist_ok=True)
-    peak = run_bake("roughness", {"map": inputs["exponent"]}, folder / "paving_roughness.png",
-                    RoughnessParams(depth="u16"))[0]
-    width = run_bake("roughness", {"map": inputs["exponent"]}, folder / "paving_roughness_width.png",
-                     RoughnessParams(depth="u16", rule="width"))[0]
-    gloss = run_bake("roughness", {"map": inputs["gloss"]}, folder / "paving_roughness_from_gloss.png",
-                     RoughnessParams(source="gloss-exp", gloss_base=2.0, gloss_scale=13.0))[0]
+    peak = run_bake("roughness", {"specular": inputs["exponent"]}, folder / "paving_roughness.png",
+                    RoughnessParams(bits="16"))[0]
+    width = run_bake("roughness", {"specular": inputs["exponent"]}, folder / "paving_roughness_width.png",
+                     RoughnessParams(bits="16", rule="width"))[0]
+    gloss = run_bake("roughness", {"specular": inputs["gloss"]}, folder / "paving_roughness_from_gloss.png",
+                     RoughnessParams(source="gloss-exp", exponent_range=GLOSS_EXPONENT_RANGE))[0]
     normal = run_bake("normal", {"height": inputs["height"]}, folder / "antialias" / "paving_normal.png",
                       NormalParams())[0]
     written = run_bake("antialias", {"normal": normal, "roughness": peak},
-                       folder / "antialias" / "paving_roughness.png", AntialiasParams(ktx2=True))
+                       folder / "antialias" / "paving_roughness.png", AntialiasParams())
     levels = [p for p in written if p.suffix == ".png"]
-    ktx2 = next(p for p in written if p.suffix == ".ktx2")
+    ktx2 = run_bake("antialias", {"normal": normal, "roughness": peak},
+                    folder / "antialias" / "paving_roughness.ktx2", AntialiasParams())[0]
     return [("roughness from the exponent map, peak rule (bakery roughness)", peak),
             ("roughness from the exponent map, width rule (bakery roughness --rule width)", width),
-            ("roughness from the 8-bit gloss map, exponent = 2^(13 g) (bakery roughness --from gloss-exp)", gloss),
+            ("roughness from the 8-bit gloss map, exponent = 2 * 1500^g (bakery roughness --source gloss-exp)", gloss),
             (f"anti-aliased roughness mip chain, {len(levels)} levels (bakery antialias)", levels[0]),
             ("the same chain in one KTX 2.0 file", ktx2)]
 
@@ -98,7 +100,7 @@ def _step_envmaps(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
     import warnings
 
     from bakery.bakes import run_bake
-    from bakery.envmap.envbakes import ConvertParams, DiffuseParams
+    from bakery.bakes.envmaps import ConvertParams, DiffuseParams
     from bakery.errors import BakeryWarning
     from bakery.io.images import read_image
 
@@ -107,17 +109,17 @@ def _step_envmaps(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
     folder.mkdir(exist_ok=True)
     face = max(8, read_image(sky).pixels.shape[1] // 4)
     made = []
-    run_bake("env-convert", {"source": sky}, folder / "sky.ktx2", ConvertParams(size=face))
+    run_bake("env-convert", {"environment": sky}, folder / "sky.ktx2", ConvertParams(face_size=face))
     made.append(("sky as a KTX2 cubemap, RGBA16F with mips (bakery env convert)", folder / "sky.ktx2"))
-    run_bake("env-convert", {"source": sky}, folder / "sky_cross.exr", ConvertParams(layout="hcross",
-                                                                                     size=face))
+    run_bake("env-convert", {"environment": sky}, folder / "sky_cross.exr", ConvertParams(output_layout="cross-wide",
+                                                                                     face_size=face))
     made.append(("sky as a horizontal cross, half-float EXR", folder / "sky_cross.exr"))
     with warnings.catch_warnings():  # the sun is far brighter than an 8-bit preview holds: expected
         warnings.simplefilter("ignore", BakeryWarning)
-        run_bake("env-convert", {"source": sky}, folder / "sky_cross_preview.png",
-                 ConvertParams(layout="hcross", size=face, exposure=-1.0))
+        run_bake("env-convert", {"environment": sky}, folder / "sky_cross_preview.png",
+                 ConvertParams(output_layout="cross-wide", face_size=face, exposure=-1.0))
     made.append(("sky cross preview, 8-bit sRGB, -1 EV (the sun clips)", folder / "sky_cross_preview.png"))
-    run_bake("env-diffuse", {"source": sky}, folder / "sky_diffuse.json", DiffuseParams())
+    run_bake("env-diffuse", {"environment": sky}, folder / "sky_diffuse.json", DiffuseParams())
     made.append(("diffuse irradiance: SH9 coefficients (bakery env diffuse)", folder / "sky_diffuse.json"))
     made.append(("diffuse irradiance cubemap (E/pi), 32 x 32 per face", folder / "sky_diffuse.ktx2"))
     return made
@@ -129,7 +131,7 @@ def specular_levels_sheet(levels: list, *, exposure: float = 1.0):
     sRGB-encoded by the writer. Returns float32 (H, W, 3) in [0, 1]."""
     import numpy as np
 
-    from bakery.envmap.layouts import assemble
+    from bakery.io.layouts import assemble
 
     n0 = levels[0].shape[1]
     tiles = []
@@ -137,7 +139,7 @@ def specular_levels_sheet(levels: list, *, exposure: float = 1.0):
         f = np.asarray(lv, dtype=np.float32)[..., :3] * exposure
         rep = n0 // f.shape[1]
         f = np.repeat(np.repeat(f, rep, axis=1), rep, axis=2)
-        cross = assemble(f, "hcross")
+        cross = assemble(f, "cross-wide")
         tiles.append(cross / (1 + cross))
     h, w, _ = tiles[0].shape
     pad = max(2, n0 // 16)
@@ -154,7 +156,7 @@ def _step_specular(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]
     """Prefiltered specular chain of the demo sky (bakery env specular), a picture of its levels, and the
     split-sum BRDF table (bakery env lut)."""
     from bakery.bakes import run_bake
-    from bakery.envmap.glossy_bakes import LutParams, SpecularParams
+    from bakery.bakes.glossy import LutParams, SpecularParams
     from bakery.io.images import write_image
     from bakery.io.ktx2 import read_ktx2
 
@@ -162,7 +164,7 @@ def _step_specular(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]
     folder.mkdir(parents=True, exist_ok=True)
     size = 64
     spec = folder / "sky_specular.ktx2"
-    run_bake("env-specular", {"env": inputs["sky"]}, spec, SpecularParams(size=size))
+    run_bake("env-specular", {"environment": inputs["sky"]}, spec, SpecularParams(face_size=size))
     sheet = folder / "sky_specular_levels.png"
     write_image(sheet, specular_levels_sheet(read_ktx2(spec).levels), color="srgb")
     lut = folder / "brdf_lut.png"
@@ -209,7 +211,7 @@ def _step_preview(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
     light = lighting_from_file(inputs["sky"])
     size = int(min(384, max(96, 1.5 * material.normals.shape[1])))  # follows the demo's map size
     img, _ = preview_image(material, light, size=size, env_rotation=85.0)
-    still = write_image(folder / "paving.png", img, depth="u8")
+    still = write_image(folder / "paving.png", img, bits="8")
     frames, _ = turntable_frames(material, light, 24, size=size // 2, env_rotation=85.0)
     spin = write_animation(folder / "paving_turntable.webp", frames, fps=12)
     return [("the paving stones lit by the sky, ball and tile (bakery preview)", still),
@@ -218,12 +220,12 @@ def _step_preview(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
 
 def _step_sheet(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
     """A contact sheet of every map the demo made so far, preview pictures aside (keep this step last)."""
-    from bakery.cli.preview import collect_maps, make_sheet
+    from bakery.preview.sheet import collect_maps, make_sheet
 
     page = out / "sheet.html"
     previews = (out / "preview").resolve()
     maps = [(p, root) for p, root in collect_maps([out], page) if previews not in p.resolve().parents]
-    make_sheet(maps, page, source="the demo", env=inputs["sky"], title="bakery demo", show_progress=False)
+    make_sheet(maps, page, source="the demo", env=inputs["sky"], title="bakery demo")
     return [("every map with its preview and findings (bakery sheet)", page)]
 
 

@@ -52,14 +52,14 @@ class Finding:
         return asdict(self)
 
 
-def inspect_pixels(pixels: np.ndarray, *, depth: str, kind: str | None = None) -> tuple[str, list[Finding]]:
+def inspect_pixels(pixels: np.ndarray, *, bits: str, kind: str | None = None) -> tuple[str, list[Finding]]:
     """Run the checks for one map.
 
     Parameters
     ----------
     pixels : ndarray, float32, (H, W, C)
         Integer files scaled to [0, 1], RGB(A) order.
-    depth : {"u8", "u16", "f16", "f32"}
+    bits : {"8", "16", "half", "float"}
         The file's sample type.
     kind : {"normal", "height", "environment", "data", "color"}, optional
         Force the kind of map; default: guessed by :func:`bakery.classify.map_kind`.
@@ -69,7 +69,7 @@ def inspect_pixels(pixels: np.ndarray, *, depth: str, kind: str | None = None) -
     kind : str
     findings : list of Finding
     """
-    is_float = depth in ("f16", "f32")
+    is_float = bits in ("half", "float")
     kind = kind or map_kind(pixels, is_float=is_float)
     findings: list[Finding] = []
     nonfinite = _check_finite(pixels, kind)
@@ -81,11 +81,11 @@ def inspect_pixels(pixels: np.ndarray, *, depth: str, kind: str | None = None) -
     step = _stride(pixels.shape[:2])
     coarse = finite[::step, ::step]
     if kind == "normal":
-        findings += check_normal_map(coarse, depth=depth)
+        findings += check_normal_map(coarse, bits=bits)
     elif kind == "height" and not small:
-        findings += check_height_map(finite[..., 0], depth=depth)
+        findings += check_height_map(finite[..., 0], bits=bits)
     elif kind == "environment":
-        findings += check_environment(finite, depth=depth)
+        findings += check_environment(finite, bits=bits)
     findings += check_size(pixels.shape[1], pixels.shape[0], kind)
     findings += _check_channels(pixels, kind)
     if kind in ("normal", "height", "data", "color") and not small:
@@ -175,12 +175,12 @@ def check_tiling(pixels: np.ndarray) -> list[Finding]:
 # ------------------------------------------------------------------------------------------ normal maps
 
 
-def check_normal_map(pixels: np.ndarray, *, depth: str) -> list[Finding]:
+def check_normal_map(pixels: np.ndarray, *, bits: str) -> list[Finding]:
     """Unit length, negative Z, sRGB encoding and the green-channel convention of an RGB normal map."""
     out: list[Finding] = []
     n = pixels[..., :3] * 2.0 - 1.0
     length = np.linalg.norm(n, axis=-1)
-    tol = {"u8": 2.5 / 255, "u16": 0.01}.get(depth, 0.01) + 0.02
+    tol = {"8": 2.5 / 255, "16": 0.01}.get(bits, 0.01) + 0.02
     off = float(np.mean(np.abs(length - 1.0) > tol))
     if off > 0.01:
         srgb = _srgb_explains(pixels[..., :3], tol)
@@ -203,7 +203,7 @@ def check_normal_map(pixels: np.ndarray, *, depth: str) -> list[Finding]:
 
 
 def _srgb_explains(rgb: np.ndarray, tol: float) -> bool:
-    from bakery.io.color import srgb_to_linear
+    from bakery.color import srgb_to_linear
 
     lin = srgb_to_linear(rgb) * 2.0 - 1.0
     return bool(np.mean(np.abs(np.linalg.norm(lin, axis=-1) - 1.0) > tol) < 0.01)
@@ -258,12 +258,12 @@ def _green_finding(n: np.ndarray) -> list[Finding]:
 # ------------------------------------------------------------------------------------------ height maps
 
 
-def check_height_map(h: np.ndarray, *, depth: str) -> list[Finding]:
+def check_height_map(h: np.ndarray, *, bits: str) -> list[Finding]:
     """Terracing of 8-bit heights, clipped range, low used range."""
     out: list[Finding] = []
     lo, hi = float(h.min()), float(h.max())
     used = hi - lo
-    if depth in ("u8", "u16"):
+    if bits in ("8", "16"):
         for value, name in ((0.0, "black"), (1.0, "white")):
             frac = float(np.mean(h == value))
             if frac > 0.01:
@@ -274,7 +274,7 @@ def check_height_map(h: np.ndarray, *, depth: str) -> list[Finding]:
             out.append(Finding("height-low-range", "warning",
                                f"heights use {used:.1%} of the file's range", "stretch the levels before "
                                "saving, or the normal map will be weak and show steps"))
-    if depth == "u8" and used > 0:
+    if bits == "8" and used > 0:
         steps = _terracing(h)
         if steps is not None:
             out.append(Finding("height-terraced", "warning", steps,
@@ -299,7 +299,7 @@ def _terracing(h: np.ndarray) -> str | None:
 # ------------------------------------------------------------------------------------------ environments
 
 
-def check_environment(px: np.ndarray, *, depth: str) -> list[Finding]:
+def check_environment(px: np.ndarray, *, bits: str) -> list[Finding]:
     """Negative values, clipped highlights (an LDR source), aspect ratio."""
     out: list[Finding] = []
     neg = int(np.count_nonzero(px[..., :3] < 0))
@@ -308,7 +308,7 @@ def check_environment(px: np.ndarray, *, depth: str) -> list[Finding]:
                            "radiance cannot be negative: clamp at 0 in the source"))
     h, w = px.shape[:2]
     vmax = float(px[..., :3].max())
-    if depth in ("u8", "u16") or vmax <= 1.0:
+    if bits in ("8", "16") or vmax <= 1.0:
         out.append(Finding("env-ldr", "warning", f"highest value is {vmax:.3g}: this looks like a low dynamic "
                            "range image", "use an HDR source (.hdr/.exr); a clipped sun lights far too weakly"))
     else:

@@ -197,20 +197,25 @@ def stone_grain_height(size: int = 256, *, seed: int = 11) -> np.ndarray:
     return np.clip(0.5 + 0.35 * grain - 1.5 * pits, 0.0, 1.0).astype(np.float32)
 
 
+#: The demo gloss map's encoding: gloss g in [0, 1] stands for exponent lo * (hi / lo)^g (bakery's gloss-exp).
+GLOSS_EXPONENT_RANGE = (2.0, 3000.0)
+
+
 def write_samples(folder: str | Path, *, size: int = 256, sky_width: int = 512) -> dict[str, Path]:
     """Write the demo inputs into ``folder``: 16-bit PNG height, float EXR exponents, 8-bit gloss PNG
-    (exponent = 2^(13 g), an exponential encoding, see docs/), and a Radiance HDR sky."""
+    (exponent = 2 * 1500^g: exponents 2 to 3000 stored geometrically, see docs/roughness.md), and a Radiance HDR sky."""
     from bakery.io.images import write_image
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     height = paving_height(size)
     exponent = paving_exponent(height)
-    gloss = np.log2(exponent) / 13.0
+    lo, hi = GLOSS_EXPONENT_RANGE
+    gloss = np.log(np.maximum(exponent, lo) / lo) / np.log(hi / lo)
     files = {
-        "height": write_image(folder / "paving_height.png", height, depth="u16"),
-        "exponent": write_image(folder / "paving_exponent.exr", exponent, depth="f16"),
-        "gloss": write_image(folder / "paving_gloss.png", gloss, depth="u8"),
+        "height": write_image(folder / "paving_height.png", height, bits="16"),
+        "exponent": write_image(folder / "paving_exponent.exr", exponent, bits="half"),
+        "gloss": write_image(folder / "paving_gloss.png", gloss, bits="8"),
         "sky": write_image(folder / "sky.hdr", sky_panorama(sky_width)),
     }
     return files
@@ -322,20 +327,20 @@ def library(folder: str | Path, *, size: int = 256, sky_width: int = 512,
         h = material_height(kind, size, seed=seed)
         exponent = material_exponent(h, lo, hi, seed=seed)
         if group != "ceramic":
-            files[f"{name}_height"] = write_image(folder / group / f"{name}_height.png", h, depth="u16")
-            files[f"{name}_exponent"] = write_image(folder / group / f"{name}_exponent.exr", exponent, depth="f16")
+            files[f"{name}_height"] = write_image(folder / group / f"{name}_height.png", h, bits="16")
+            files[f"{name}_exponent"] = write_image(folder / group / f"{name}_exponent.exr", exponent, bits="half")
             continue
         files[f"{name}_normal"] = write_image(folder / group / f"{name}_normal.png",
-                                              _slope_normals(h, 0.05 * size), depth="u8")
+                                              _slope_normals(h, 0.05 * size), bits="8")
         if name != "mosaic":
             # perceptual roughness r = (2 / (n + 2))^(1/4), i.e. n = 2/alpha^2 - 2 with alpha = r^2 (Walter et al.
             # 2007, Microfacet Models for Refraction, sec. 5.2, from memory; Burley 2012 for alpha = r^2)
             r = (2.0 / (exponent + 2.0)) ** 0.25
-            files[f"{name}_roughness"] = write_image(folder / group / f"{name}_roughness.png", r, depth="u8")
+            files[f"{name}_roughness"] = write_image(folder / group / f"{name}_roughness.png", r, bits="8")
     (folder / "details").mkdir(parents=True, exist_ok=True)
     crackle = material_height("dimples", size, seed=99) * 0.3 + 0.02 * tiling_noise((size, size), scale=2.0, seed=98)
     files["crackle_normal"] = write_image(folder / "details" / "crackle_normal.png",
-                                          _slope_normals(crackle, 0.08 * size), depth="u8")
+                                          _slope_normals(crackle, 0.08 * size), bits="8")
     (folder / "skies").mkdir(parents=True, exist_ok=True)
     files["sky"] = write_image(folder / "skies" / "clear_sky.hdr",
                                sky_panorama(sky_width, sun_elevation_deg=50.0, sun_azimuth_deg=-30.0))
@@ -371,7 +376,7 @@ name = "roughness"
 bake = "roughness"
 match = "**/{material}_exponent.exr"
 output = "{dir}/{material}_roughness.png"
-params = { depth = "u8" }
+params = { bits = "8" }
 
 # Authored materials: the crackle detail layered over each normal map (one fixed partner for all).
 [[rule]]
@@ -382,7 +387,7 @@ inputs.detail = "details/crackle_normal.png"
 output = "{dir}/{material}_normal_crackle.png"
 params = { detail-strength = 0.5 }
 
-# Authored materials: normal map + roughness map -> anti-aliased roughness mips (NAME.mip00.png ...), the two
+# Authored materials: normal map + roughness map -> anti-aliased roughness mips (NAME.png, NAME.mip01.png ...), the two
 # maps paired by material name; a missing roughness map fails the job.
 [[rule]]
 name = "roughness-mips"
@@ -407,7 +412,7 @@ name = "sky-cubemaps"
 bake = "env-convert"
 match = "skies/{sky}.hdr"
 output = "skies/{sky}_cube.ktx2"
-params = { size = 64 }
+params = { face-size = 64 }
 
 # Sky panoramas -> diffuse irradiance (SH9 coefficients in JSON, a small irradiance cubemap beside them), by the
 # exact cosine convolution because the skies hold a sun.
@@ -416,7 +421,7 @@ name = "sky-irradiance"
 bake = "env-diffuse"
 match = "skies/{sky}.hdr"
 output = "skies/{sky}_irradiance.json"
-params = { size = 16, method = "exact" }
+params = { face-size = 16, method = "exact" }
 
 # Sky panoramas -> specular prefiltered cubemap chains (GGX, roughness linear in mip) for split-sum lighting.
 [[rule]]
@@ -424,7 +429,7 @@ name = "sky-specular"
 bake = "env-specular"
 match = "skies/{sky}.hdr"
 output = "skies/{sky}_specular.ktx2"
-params = { size = 32 }
+params = { face-size = 32 }
 
 # The split-sum BRDF table: a bake without input files, so one job and no match.
 [[rule]]
@@ -458,14 +463,25 @@ def write_library_recipe(folder: str | Path) -> Path:
             tmp.write_text(content, encoding="utf-8")
     return folder.parent / f"{folder.name}.toml"
 
-if __name__ == "__main__":  # python -m bakery.samples samples/ | python -m bakery.samples --library samples/library
-    import sys
+def main(argv: list[str] | None = None) -> None:
+    """``python -m bakery.samples [FOLDER]`` writes the demo inputs; ``--library [FOLDER]`` the sample library."""
+    import argparse
 
-    if len(sys.argv) > 1 and sys.argv[1] == "--library":  # the maps, plus the recipe and folder files beside them
-        folder = Path(sys.argv[2] if len(sys.argv) > 2 else "samples/library")
+    ap = argparse.ArgumentParser(prog="python -m bakery.samples",
+                                 description="Write bakery's procedural sample data (an invented scene).")
+    ap.add_argument("folder", nargs="?", help="where to write (default: samples, or samples/library)")
+    ap.add_argument("--library", action="store_true", help="write the sample library: a dozen materials, a sky, "
+                    "the recipe and folder files beside them")
+    args = ap.parse_args(argv)
+    if args.library:
+        folder = Path(args.folder or "samples/library")
         made = library(folder)
         made["recipe"] = write_library_recipe(folder)
     else:
-        made = write_samples(sys.argv[1] if len(sys.argv) > 1 else "samples")
+        made = write_samples(args.folder or "samples")
     for name, p in made.items():
         print(f"{name}: {p}")
+
+
+if __name__ == "__main__":
+    main()

@@ -5,19 +5,20 @@ from typing import Literal
 
 import pytest
 
-from bakery.bakes import Bake, params_from_mapping, params_to_dict, register
+from bakery.bakes import Bake, params_from_mapping, params_to_dict, register, run_bake
+from bakery.bakes.params import Params, param
 from bakery.errors import BakeryError
 
 
 @dataclass(frozen=True)
-class _P:
-    strength: float = 1.0
-    edges: Literal["wrap", "clamp"] = "wrap"
-    levels: int | None = None
-    flip: bool = False
+class _P(Params):
+    strength: float = param(1.0, "Strength.", low=0.0)
+    edges: Literal["wrap", "clamp"] = param("wrap", "Edges.")
+    levels: int | None = param(None, "Levels.", low=1)
+    flip: bool = param(False, "Flip.")
 
 
-_BAKE = register(Bake("test-params", "for tests", ("src",), _P, lambda i, o, p: []))
+_BAKE = register(Bake("test-params", "for tests", ("src",), _P, lambda i, o, p: [], lambda i, o, p, g: []))
 
 
 def test_values_are_coerced_and_checked():
@@ -28,10 +29,13 @@ def test_values_are_coerced_and_checked():
 
 @pytest.mark.parametrize("values,match", [
     ({"strenght": 1}, "no parameter 'strenght'; it takes: edges, flip, levels, strength"),
-    ({"strength": "x"}, "parameter 'strength': expected a number"),
-    ({"edges": "mirror"}, "expected one of 'wrap', 'clamp'"),
-    ({"levels": 2.5}, "expected a whole number"),
-    ({"flip": 1}, "expected true or false"),
+    ({"strength": "x"}, "strength must be a number; got 'x'"),
+    ({"strength": float("nan")}, "strength must be a finite number; got nan"),
+    ({"strength": -1}, "strength must be at least 0; got -1"),
+    ({"edges": "mirror"}, "edges must be one of wrap, clamp; got 'mirror'"),
+    ({"levels": 2.5}, "levels must be a whole number; got 2.5"),
+    ({"levels": 0}, "levels must be at least 1; got 0"),
+    ({"flip": 1}, "flip must be true or false; got 1"),
 ])
 def test_bad_values_name_the_place(values, match):
     with pytest.raises(BakeryError, match=match) as info:
@@ -65,27 +69,35 @@ def test_public_api_loads_lazily_and_completely():
     assert out.strip() == "False"
 
 
-def test_bake_progress_lines_and_where_they_are_silent(monkeypatch, capsys):
-    from bakery.bakes import bake_progress
-    from bakery.batch.execute import THREAD_ENV
+def test_progress_rises_to_one_and_changes_no_byte(tmp_path):
+    from bakery.samples import sky_panorama
 
-    monkeypatch.delenv("BAKERY_PROGRESS", raising=False)
-    bake_progress("level 1: working")
-    assert capsys.readouterr().err == "level 1: working\n"
-    monkeypatch.setenv("BAKERY_PROGRESS", "0")
-    bake_progress("level 2: working")
+    sky = tmp_path / "sky.exr"
+    from bakery.io import write_image
+
+    write_image(sky, sky_panorama(64), bits="float")
+    seen = []
+    a = run_bake("env-specular", {"environment": sky}, tmp_path / "a.ktx2", None, progress=lambda f, w: seen.append(f))
+    from bakery.bakes.glossy import SpecularParams
+
+    b = run_bake("env-specular", {"environment": sky}, tmp_path / "b.ktx2", SpecularParams())
+    assert seen and seen[-1] == 1.0 and all(x <= y for x, y in zip(seen, seen[1:], strict=False))
+    assert len(seen) > 3  # within the work, not only at its end
+    assert a[0].read_bytes() == b[0].read_bytes()
+
+
+def test_progress_display_lines_off_a_terminal_and_silent_when_quiet(monkeypatch, capsys):
+    import bakery.cli._common as common
+
+    clock = iter([0.0, 1.5, 1.6, 3.0, 4.0, 5.0, 6.0])
+    monkeypatch.setattr(common.time, "monotonic", lambda: next(clock))
+    show = common.ProgressDisplay("normal rock.png")
+    show(0.2, "strips")  # 1.5 s in: shown
+    show(0.4, "strips")  # 0.1 s later: skipped
+    show(1.0, "done")  # always shown once something was
+    assert capsys.readouterr().err.splitlines() == ["normal rock.png: 20% strips", "normal rock.png: 100% done"]
+    monkeypatch.setitem(common.STATE, "quiet", True)
+    show(0.5, "strips")
     assert capsys.readouterr().err == ""
-    assert THREAD_ENV["BAKERY_PROGRESS"] == "0"  # batch workers: the batch reports each job itself
 
 
-def test_quiet_option_silences_bake_progress(monkeypatch, tmp_path):
-    import os
-
-    from typer.testing import CliRunner
-
-    from bakery.cli import app
-
-    monkeypatch.setenv("BAKERY_PROGRESS", "1")  # restored after the test
-    r = CliRunner().invoke(app, ["--quiet", "env", "lut", "-o", str(tmp_path / "lut.png"), "--size", "8"])
-    assert r.exit_code == 0, r.output
-    assert os.environ["BAKERY_PROGRESS"] == "0"

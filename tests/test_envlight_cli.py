@@ -9,8 +9,8 @@ import pytest
 from typer.testing import CliRunner
 
 from bakery.bakes import run_bake
+from bakery.bakes.glossy import KTX_ROUGHNESS_KEY, LutParams, SpecularParams
 from bakery.cli import app
-from bakery.envmap.glossy_bakes import KTX_ROUGHNESS_KEY, LutParams, SpecularParams
 from bakery.io import read_image, write_image
 from bakery.io.ktx2 import read_ktx2
 from bakery.samples import sky_panorama
@@ -21,7 +21,7 @@ runner = CliRunner()
 @pytest.fixture(scope="module")
 def sky(tmp_path_factory):
     p = tmp_path_factory.mktemp("sky") / "sky.exr"
-    write_image(p, sky_panorama(128, sun_radius_deg=3.0), depth="f32")
+    write_image(p, sky_panorama(128, sun_radius_deg=3.0), bits="float")
     return p
 
 
@@ -33,7 +33,7 @@ def test_help():
 
 def test_specular_ktx2_manifest_and_loose(sky, tmp_path):
     out = tmp_path / "spec.ktx2"
-    res = runner.invoke(app, ["env", "specular", str(sky), "-o", str(out), "--size", "16", "--loose",
+    res = runner.invoke(app, ["env", "specular", str(sky), "-o", str(out), "--face-size", "16", "--loose",
                               "--quality", "draft"])
     assert res.exit_code == 0, res.output
     tex = read_ktx2(out)
@@ -41,33 +41,34 @@ def test_specular_ktx2_manifest_and_loose(sky, tmp_path):
     table = json.loads(tex.key_values[KTX_ROUGHNESS_KEY].rstrip(b"\0"))
     assert table["roughness"] == [0.0, 0.25, 0.5, 0.75, 1.0] and table["lobe"] == "ggx"
     assert table["level_from_roughness"] == "level = r * 4"
-    man = json.loads((tmp_path / "spec.ktx2.json").read_text())
+    man = json.loads((tmp_path / "spec.bakery.json").read_text())
     assert man["roughness_per_level"] == table and man["bake"] == "env-specular"
-    face = read_image(tmp_path / "spec_m2_pz.exr").pixels
+    face = read_image(tmp_path / "spec.mip02.z+.exr").pixels
     assert face.shape == (4, 4, 3)
     assert np.allclose(face, tex.levels[2][4, :, :, :3], rtol=1e-3)
 
 
 def test_recipe_and_command_give_identical_bytes(sky, tmp_path):
     a, b = tmp_path / "a.ktx2", tmp_path / "b.ktx2"
-    runner.invoke(app, ["env", "specular", str(sky), "-o", str(a), "--size", "8", "--lobe", "blinn-phong",
-                        "--roughness", "0,0.3,0.6,1"])
-    run_bake("env-specular", {"env": sky}, b, SpecularParams(size=8, lobe="blinn-phong", roughness="0,0.3,0.6,1"))
+    runner.invoke(app, ["env", "specular", str(sky), "-o", str(a), "--face-size", "8", "--lobe", "blinn-phong",
+                        "--level-roughness", "0,0.3,0.6,1"])
+    run_bake("env-specular", {"environment": sky}, b,
+             SpecularParams(face_size=8, lobe="blinn-phong", level_roughness=(0, 0.3, 0.6, 1)))
     assert a.read_bytes() == b.read_bytes()
-    ja = json.loads((tmp_path / "a.ktx2.json").read_text())
-    jb = json.loads((tmp_path / "b.ktx2.json").read_text())
+    ja = json.loads((tmp_path / "a.bakery.json").read_text())
+    jb = json.loads((tmp_path / "b.bakery.json").read_text())
     ja.pop("outputs"), jb.pop("outputs")
     assert ja == jb
 
 
 @pytest.mark.parametrize(("args", "message"), [
-    (["--size", "24"], "power of two"),
-    (["--size", "16", "--levels", "6"], "at most 5 levels"),
-    (["--roughness", "0,0.5,1.5", "--levels", "3"], "[0, 1]"),
-    (["--roughness", "cubic"], "--roughness"),
+    (["--face-size", "24"], "power of two"),
+    (["--face-size", "16", "--levels", "6"], "at most 5 levels"),
+    (["--level-roughness", "0,0.5,1.5", "--levels", "3"], "[0, 1]"),
+    (["--level-roughness", "cubic"], "--level-roughness"),
     (["--lobe", "phong"], "--lobe"),
     (["--quality", "best"], "--quality"),
-    (["--format", "rgba8"], "--format"),
+    (["--ktx2-format", "rgba8"], "--ktx2-format"),
 ])
 def test_bad_options(sky, tmp_path, args, message):
     out = tmp_path / "x.ktx2"
@@ -78,7 +79,7 @@ def test_bad_options(sky, tmp_path, args, message):
 
 def test_bad_inputs(tmp_path):
     odd = tmp_path / "odd.exr"
-    write_image(odd, np.ones((10, 30, 3), np.float32), depth="f32")
+    write_image(odd, np.ones((10, 30, 3), np.float32), bits="float")
     res = runner.invoke(app, ["env", "specular", str(odd), "-o", str(tmp_path / "x.ktx2")])
     assert res.exit_code == 2 and "odd.exr" in res.output
     res = runner.invoke(app, ["env", "specular", str(tmp_path / "missing.hdr"), "-o", str(tmp_path / "x.ktx2")])
@@ -108,7 +109,7 @@ def test_lut_files(tmp_path, suffix):
             assert np.all(got[..., 2] == 0)
     assert got.shape[:2] == (16, 16)
     assert np.abs(got[..., :2] - want).max() <= tol
-    man = json.loads(out.with_name(out.name + ".json").read_text())
+    man = json.loads(out.with_name(out.stem + ".bakery.json").read_text())
     assert "n·v" in man["layout"]["columns"]
 
 

@@ -49,7 +49,7 @@ def test_green_convention_guess(name, h, y_down):
     conv, conf = green_convention(px * 2 - 1)
     assert conv == ("y-down" if y_down else "y-up"), (name, conv, conf)
     assert conf > 0.5
-    kind, findings = inspect_pixels(px, depth="u16")
+    kind, findings = inspect_pixels(px, bits="16")
     assert kind == "normal"
     assert ("green-y-down" in _codes(findings)) == y_down
 
@@ -57,54 +57,54 @@ def test_green_convention_guess(name, h, y_down):
 def test_green_convention_unsure_on_a_flat_map():
     flat = np.broadcast_to(np.array([0.5, 0.5, 1.0], np.float32), (32, 32, 3)).copy()
     assert green_convention(flat * 2 - 1) == ("unsure", 0.0)
-    assert "green-unsure" in _codes(inspect_pixels(flat, depth="u8")[1])
+    assert "green-unsure" in _codes(inspect_pixels(flat, bits="8")[1])
 
 
 def test_normal_not_unit_length():
     px = _normals(samples.paving_height(64) * 8)
-    assert inspect_pixels(px, depth="u16")[0] == "normal"
-    assert "normal-not-unit" not in _codes(inspect_pixels(px, depth="u16")[1])
+    assert inspect_pixels(px, bits="16")[0] == "normal"
+    assert "normal-not-unit" not in _codes(inspect_pixels(px, bits="16")[1])
     short = (px * 2 - 1) * 0.7 * 0.5 + 0.5
-    assert "normal-not-unit" in _codes(inspect_pixels(short, depth="u16", kind="normal")[1])
+    assert "normal-not-unit" in _codes(inspect_pixels(short, bits="16", kind="normal")[1])
 
 
 def test_normal_saved_with_srgb_curve():
     """A linear normal map written through the sRGB encode curve (IEC 61966-2-1)."""
-    from bakery.io.color import linear_to_srgb, srgb_to_linear
+    from bakery.color import linear_to_srgb, srgb_to_linear
 
     px = _normals(samples.paving_height(64) * 8)
     as_srgb = linear_to_srgb(px)
     assert np.allclose(srgb_to_linear(as_srgb), px, atol=1e-5)
-    codes = _codes(inspect_pixels(as_srgb, depth="u8", kind="normal")[1])
+    codes = _codes(inspect_pixels(as_srgb, bits="8", kind="normal")[1])
     assert "normal-srgb" in codes and "normal-not-unit" not in codes
-    assert "normal-srgb" not in _codes(inspect_pixels(px, depth="u8")[1])
+    assert "normal-srgb" not in _codes(inspect_pixels(px, bits="8")[1])
 
 
 def test_negative_z():
     px = _normals(samples.paving_height(64) * 8)
-    assert "normal-negative-z" not in _codes(inspect_pixels(px, depth="u16")[1])
+    assert "normal-negative-z" not in _codes(inspect_pixels(px, bits="16")[1])
     flipped = px.copy()
     flipped[..., 2] = 1 - flipped[..., 2]
-    assert "normal-negative-z" in _codes(inspect_pixels(flipped, depth="u16", kind="normal")[1])
+    assert "normal-negative-z" in _codes(inspect_pixels(flipped, bits="16", kind="normal")[1])
 
 
 def test_height_terracing_in_8_bit():
     y, x = np.mgrid[0:128, 0:128] / 128.0
     smooth = (0.3 + 0.05 * np.sin(2 * np.pi * x) + 0.05 * np.cos(2 * np.pi * y)).astype(np.float32)
     stepped = np.round(smooth[..., None] * 255) / 255
-    assert "height-terraced" in _codes(inspect_pixels(stepped, depth="u8", kind="height")[1])
-    assert "height-terraced" not in _codes(inspect_pixels(smooth[..., None], depth="u16", kind="height")[1])
+    assert "height-terraced" in _codes(inspect_pixels(stepped, bits="8", kind="height")[1])
+    assert "height-terraced" not in _codes(inspect_pixels(smooth[..., None], bits="16", kind="height")[1])
     noisy = samples.paving_height(128)[..., None]
-    assert "height-terraced" not in _codes(inspect_pixels(np.round(noisy * 255) / 255, depth="u8",
+    assert "height-terraced" not in _codes(inspect_pixels(np.round(noisy * 255) / 255, bits="8",
                                                           kind="height")[1])
 
 
 def test_height_clipped_and_low_range():
     h = samples.paving_height(64)[..., None]
-    codes = _codes(inspect_pixels(h, depth="u16", kind="height")[1])
+    codes = _codes(inspect_pixels(h, bits="16", kind="height")[1])
     assert not codes & {"height-clipped", "height-low-range"}
-    assert "height-clipped" in _codes(inspect_pixels(np.clip(h * 1.6, 0, 1), depth="u16", kind="height")[1])
-    assert "height-low-range" in _codes(inspect_pixels(0.5 + h * 0.05, depth="u16", kind="height")[1])
+    assert "height-clipped" in _codes(inspect_pixels(np.clip(h * 1.6, 0, 1), bits="16", kind="height")[1])
+    assert "height-low-range" in _codes(inspect_pixels(0.5 + h * 0.05, bits="16", kind="height")[1])
 
 
 def test_tiling_score_separates_a_tiling_map_from_an_off_grid_crop():
@@ -112,44 +112,44 @@ def test_tiling_score_separates_a_tiling_map_from_an_off_grid_crop():
     assert seam_score(h) < 2.0
     crop = h[37:37 + 160, 91:91 + 160]
     assert seam_score(crop) > 2.0
-    assert "not-tiling" not in _codes(inspect_pixels(h[..., None], depth="u16", kind="height")[1])
-    assert "not-tiling" in _codes(inspect_pixels(crop[..., None], depth="u16", kind="height")[1])
+    assert "not-tiling" not in _codes(inspect_pixels(h[..., None], bits="16", kind="height")[1])
+    assert "not-tiling" in _codes(inspect_pixels(crop[..., None], bits="16", kind="height")[1])
 
 
 def test_non_power_of_two():
     assert "non-power-of-two" in _codes(inspect_pixels(np.zeros((48, 64, 1), np.float32) + 0.5,
-                                                       depth="u8", kind="height")[1])
+                                                       bits="8", kind="height")[1])
     assert "non-power-of-two" not in _codes(inspect_pixels(np.zeros((32, 64, 1), np.float32) + 0.5,
-                                                           depth="u8", kind="height")[1])
+                                                           bits="8", kind="height")[1])
 
 
 def test_environment_checks():
     sky = samples.sky_panorama(128)
-    assert inspect_pixels(sky, depth="f32") == ("environment", [])
+    assert inspect_pixels(sky, bits="float") == ("environment", [])
     neg = sky.copy()
     neg[3, 3, 0] = -1
-    assert "env-negative" in _codes(inspect_pixels(neg, depth="f32")[1])
+    assert "env-negative" in _codes(inspect_pixels(neg, bits="float")[1])
     ldr = np.clip(sky, 0, 1)
-    assert "env-ldr" in _codes(inspect_pixels(ldr, depth="f32", kind="environment")[1])
+    assert "env-ldr" in _codes(inspect_pixels(ldr, bits="float", kind="environment")[1])
     clipped = np.minimum(sky, 1.05)  # a capture whose bright horizon clipped
-    assert "env-clipped" in _codes(inspect_pixels(clipped, depth="f32", kind="environment")[1])
+    assert "env-clipped" in _codes(inspect_pixels(clipped, bits="float", kind="environment")[1])
     wide = samples.sky_panorama(128)[:, :100]
-    assert "env-aspect" in _codes(inspect_pixels(wide, depth="f32", kind="environment")[1])
+    assert "env-aspect" in _codes(inspect_pixels(wide, bits="float", kind="environment")[1])
 
 
 def test_non_finite_and_colour_height():
     d = np.ones((8, 8, 3), np.float32) * 2
     d[0, 0] = np.nan
-    assert "non-finite" in _codes(inspect_pixels(d, depth="f32")[1])
+    assert "non-finite" in _codes(inspect_pixels(d, bits="float")[1])
     rgb = np.random.default_rng(0).random((8, 8, 3)).astype(np.float32)
-    assert "height-colour" in _codes(inspect_pixels(rgb, depth="u8", kind="height")[1])
+    assert "height-colour" in _codes(inspect_pixels(rgb, bits="8", kind="height")[1])
     gray = np.repeat(rgb[..., :1], 3, axis=2)
-    assert "height-colour" not in _codes(inspect_pixels(gray, depth="u8", kind="height")[1])
+    assert "height-colour" not in _codes(inspect_pixels(gray, bits="8", kind="height")[1])
 
 
 def test_cli_text_and_json(tmp_path):
-    good = write_image(tmp_path / "n.png", _normals(samples.paving_height(64) * 8), depth="u16")
-    bad = write_image(tmp_path / "flip.png", _normals(samples.paving_height(64) * 8, y_down=True), depth="u16")
+    good = write_image(tmp_path / "n.png", _normals(samples.paving_height(64) * 8), bits="16")
+    bad = write_image(tmp_path / "flip.png", _normals(samples.paving_height(64) * 8, y_down=True), bits="16")
     r = runner.invoke(app, ["inspect", str(good), str(bad)])
     assert r.exit_code == 0, r.output
     assert "green-y-down" in r.output and "hint:" in r.output
@@ -168,7 +168,7 @@ def test_smooth_irradiance_face_is_neither_clipped_nor_misshapen():
     d = cube_directions(32)[4]
     face = (1.5 + 1.5 * np.clip(d @ np.array([0.3, 0.8, -0.5]) / np.linalg.norm([0.3, 0.8, -0.5]), 0, 1))
     face = (face[..., None] * np.array([1.0, 0.9, 0.8])).astype(np.float16).astype(np.float32)
-    kind, findings = inspect_pixels(face, depth="f16")
+    kind, findings = inspect_pixels(face, bits="half")
     assert kind == "environment"
     assert not _codes(findings) & {"env-clipped", "env-aspect"}
 
@@ -176,7 +176,7 @@ def test_smooth_irradiance_face_is_neither_clipped_nor_misshapen():
 def test_tiny_mip_levels_are_not_judged_for_range_or_tiling():
     level = np.full((4, 4, 1), 0.5, np.float32)
     level[0, 0] = 0.52
-    assert inspect_pixels(level, depth="u8", kind="height")[1] == []
+    assert inspect_pixels(level, bits="8", kind="height")[1] == []
 
 
 @pytest.mark.parametrize("y_down", [False, True])
@@ -184,8 +184,8 @@ def test_large_maps_are_judged_on_a_stride_with_the_same_answers(y_down):
     """Maps over 1024 texels a side are sampled every 2nd texel for vector and seam statistics."""
     h = samples.paving_height(1024) * 40
     px = _normals(h, y_down=y_down)
-    codes = _codes(inspect_pixels(px, depth="u16")[1])
+    codes = _codes(inspect_pixels(px, bits="16")[1])
     assert ("green-y-down" if y_down else "green-y-up") in codes
     assert "not-tiling" not in codes
     crop = px[37:37 + 1024 - 100, 91:91 + 1024 - 60]
-    assert "not-tiling" in _codes(inspect_pixels(crop, depth="u16", kind="normal")[1])
+    assert "not-tiling" in _codes(inspect_pixels(crop, bits="16", kind="normal")[1])

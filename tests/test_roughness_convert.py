@@ -49,7 +49,7 @@ def test_peak_rule_matches_walter_formula():
     np.testing.assert_allclose(roughness_from_exponent(EXPONENTS, target="alpha"), alpha, rtol=1e-12)
     np.testing.assert_allclose(roughness_from_exponent(EXPONENTS, target="beckmann"), alpha, rtol=1e-12)
     np.testing.assert_allclose(roughness_from_exponent(EXPONENTS), np.sqrt(alpha), rtol=1e-12)
-    np.testing.assert_allclose(roughness_from_exponent(EXPONENTS, encoding="exponent", target="roughness"),
+    np.testing.assert_allclose(roughness_from_exponent(EXPONENTS, source="exponent", target="roughness"),
                                np.sqrt(alpha), rtol=1e-12)
 
 
@@ -67,7 +67,7 @@ def test_limits_mirror_and_flat():
     # n -> inf is a perfect mirror (alpha = 0); n = 0 a uniform lobe, alpha = 1 (Walter et al. 2007 formula).
     out = roughness_from_exponent(np.array([np.inf, 0.0], np.float32), target="alpha")
     np.testing.assert_array_equal(out, [0.0, 1.0])
-    back = exponent_from_roughness(np.array([0.0, 1.0]), kind="alpha")
+    back = exponent_from_roughness(np.array([0.0, 1.0]), source="alpha")
     np.testing.assert_array_equal(back, [np.inf, 0.0])
 
 
@@ -156,15 +156,17 @@ def test_phong_exponent_counts_four_times_less():
 
 
 def test_gloss_exp_values():
-    # Exponential gloss n = base^(g k); shared reference sheet section 5: g = 0.5 -> 90.510 with 2^(13 g),
-    # 45.255 with 2^(11 g) (the 13 and 11 are published-talk constants, unconfirmed source).
-    g = np.array([0.5])
-    n13 = convert_specular(g, source="gloss-exp", target="exponent", gloss_base=2, gloss_scale=13)
-    n11 = convert_specular(g, source="gloss-exp", target="exponent", gloss_base=2, gloss_scale=11)
-    assert float(n13[0]) == pytest.approx(90.510, abs=5e-4)
-    assert float(n11[0]) == pytest.approx(45.255, abs=5e-4)
-    r = roughness_from_exponent(g, encoding="gloss-exp", gloss_base=2, gloss_scale=13)
-    assert float(r[0]) == pytest.approx((2 / (2**6.5 + 2)) ** 0.25, rel=1e-12)
+    # Geometric gloss n = lo (hi/lo)^g, by definition: g = 0.5 is the geometric mean sqrt(lo hi); the range
+    # (1, 8192) gives 2^6.5 = 90.510, (2, 2048) gives 64, and the ends give lo and hi.
+    g = np.array([0.0, 0.5, 1.0])
+    n = convert_specular(g, source="gloss-exp", target="exponent", exponent_range=(1, 8192))
+    np.testing.assert_allclose(n, [1.0, 90.50967, 8192.0], rtol=1e-6)
+    n2 = convert_specular(g, source="gloss-exp", target="exponent", exponent_range=(2, 2048))
+    np.testing.assert_allclose(n2, [2.0, 64.0, 2048.0], rtol=1e-6)
+    r = roughness_from_exponent(g[1:2], source="gloss-exp", exponent_range=(1, 8192))
+    assert float(r[0]) == pytest.approx((2 / (2**6.5 + 2)) ** 0.25, rel=1e-6)
+    back = convert_specular(n2, source="exponent", target="gloss-exp", exponent_range=(2, 2048))
+    np.testing.assert_allclose(back, g, atol=1e-6)
 
 
 def test_gloss_linear_and_smoothness():
@@ -172,19 +174,19 @@ def test_gloss_linear_and_smoothness():
     n = convert_specular(g, source="gloss-linear", target="exponent", exponent_range=(2, 1026))
     np.testing.assert_allclose(n, [2, 258, 1026])  # n = lo + g (hi - lo), by definition
     s = np.array([0.0, 0.3, 1.0])
-    np.testing.assert_allclose(roughness_from_exponent(s, encoding="smoothness"), 1 - s)  # r = 1 - s
-    np.testing.assert_allclose(roughness_from_exponent(s, encoding="smoothness", target="alpha"), (1 - s) ** 2)
-    back = exponent_from_roughness(np.array([0.5]), encoding="gloss-linear", exponent_range=(2, 1026))
+    np.testing.assert_allclose(roughness_from_exponent(s, source="smoothness"), 1 - s)  # r = 1 - s
+    np.testing.assert_allclose(roughness_from_exponent(s, source="smoothness", target="alpha"), (1 - s) ** 2)
+    back = exponent_from_roughness(np.array([0.5]), target="gloss-linear", exponent_range=(2, 1026))
     assert float(back[0]) == pytest.approx((2 / 0.5**4 - 2 - 2) / 1024)
 
 
 def test_missing_encoding_constants():
     with pytest.raises(BakeryError, match="--exponent-range"):
-        roughness_from_exponent(np.array([0.5]), encoding="gloss-linear")
-    with pytest.raises(BakeryError, match="--gloss-base B --gloss-scale K"):
-        roughness_from_exponent(np.array([0.5]), encoding="gloss-exp", gloss_base=2)
+        roughness_from_exponent(np.array([0.5]), source="gloss-linear")
+    with pytest.raises(BakeryError, match="0 < lo < hi"):
+        roughness_from_exponent(np.array([0.5]), source="gloss-exp", exponent_range=(0, 10))
     with pytest.raises(BakeryError, match="0 <= lo < hi"):
-        roughness_from_exponent(np.array([0.5]), encoding="gloss-linear", exponent_range=(10, 1))
+        roughness_from_exponent(np.array([0.5]), source="gloss-linear", exponent_range=(10, 1))
     with pytest.raises(BakeryError, match="must be one of"):
         roughness_from_exponent(np.array([0.5]), rule="middle")
 
@@ -227,7 +229,7 @@ def test_quantities_table_is_consistent():
 def test_beckmann_width_inverse_edges():
     # m = 0 is a mirror (n = inf); the Newton solve of s/m^2 = ln2 + 2 ln(1 + s) reproduces the forward map.
     m = np.array([0.0, 0.01, 0.3, 0.9, 2.0])
-    n = exponent_from_roughness(m, kind="beckmann", rule="width")
+    n = exponent_from_roughness(m, source="beckmann", rule="width")
     assert n[0] == np.inf
     np.testing.assert_allclose(roughness_from_exponent(n[1:], target="beckmann", rule="width"), m[1:], rtol=1e-9)
 
@@ -240,7 +242,7 @@ def test_smoothness_to_beckmann_goes_through_the_exponent():
     np.testing.assert_allclose(convert_specular(s, source="smoothness", target="beckmann"), a, rtol=1e-12)
     got = convert_specular(s, source="smoothness", target="beckmann", rule="width")
     np.testing.assert_allclose(got, roughness_from_exponent(
-        exponent_from_roughness(a, kind="alpha", rule="width"), target="beckmann", rule="width"), rtol=1e-12)
+        exponent_from_roughness(a, source="alpha", rule="width"), target="beckmann", rule="width"), rtol=1e-12)
     assert np.all(np.isfinite(n))
 
 
@@ -249,6 +251,5 @@ def test_smoothness_to_beckmann_goes_through_the_exponent():
 def test_inputs_are_never_modified(source, target):
     x = np.array([0.0, 0.25, 0.5, 1.0], np.float32)
     keep = x.copy()
-    convert_specular(x, source=source, target=target, rule="width", model="phong", exponent_range=(1, 100),
-                     gloss_base=2, gloss_scale=13)
+    convert_specular(x, source=source, target=target, rule="width", model="phong", exponent_range=(1, 100))
     np.testing.assert_array_equal(x, keep)

@@ -34,7 +34,6 @@ THREAD_ENV = {
     "NUMBA_NUM_THREADS": "1",
     "OPENCV_FOR_THREADS_NUM": "1",
     "BAKERY_THREADS": "1",  # for bakes that start their own thread pools (see DEVELOPERS.md)
-    "BAKERY_PROGRESS": "0",  # bakes' own progress lines (bakery.bakes.bake_progress): the batch reports jobs
 }
 
 Spec = dict[str, Any]
@@ -144,7 +143,7 @@ def inspect_outputs(out_root: Path, written: list[str]) -> list[dict]:
         if Path(rel).suffix.lower() not in INSPECTED_SUFFIXES:
             continue
         img = read_image(out_root / rel, allow_nonfinite=True)
-        kind, findings = inspect_pixels(img.pixels, depth=img.depth)
+        kind, findings = inspect_pixels(img.pixels, bits=img.bits)
         found += [{"file": rel, "kind": kind, **f.as_dict()} for f in findings]
     return found
 

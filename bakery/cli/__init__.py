@@ -8,13 +8,16 @@ import heavy libraries inside their functions only, so ``bakery --help`` is fast
 from __future__ import annotations
 
 import importlib
-import os
 from typing import Annotated
 
 import typer
+import typer.core
 
 from bakery._version import __version__
 from bakery.cli._common import STATE
+
+# Arguments are described by their help text; typer's type labels (``<list[Path]>``) say nothing to users.
+typer.core.TyperArgument.display_type = lambda self, ctx: ""
 
 app = typer.Typer(
     name="bakery",
@@ -48,8 +51,6 @@ def _root(
 ) -> None:
     STATE["debug"] = debug
     STATE["quiet"] = quiet
-    if quiet:
-        os.environ["BAKERY_PROGRESS"] = "0"  # bakes' own progress lines (bakery.bakes.bake_progress)
 
 
 for _mod in COMMAND_MODULES:

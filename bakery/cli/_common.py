@@ -6,11 +6,10 @@ Heavy libraries are never imported here, so ``bakery --help`` stays fast.
 from __future__ import annotations
 
 import functools
-import os
 import sys
 import time
 import warnings
-from collections.abc import Callable, Iterable, Iterator
+from collections.abc import Callable
 from enum import StrEnum
 from pathlib import Path
 from typing import Any, TypeVar
@@ -31,11 +30,11 @@ class BitsOpt(StrEnum):
     float = "float"
 
 
-#: ``--bits`` value -> the sample type name of :mod:`bakery.io.images` ("u8", "u16", "f16", "f32").
-BITS_TO_DEPTH = {"8": "u8", "16": "u16", "half": "f16", "float": "f32"}
+#: ``--bits`` value -> the sample type name of :mod:`bakery.io.images` ("8", "16", "half", "float").
+BITS_TO_DEPTH = {"8": "8", "16": "16", "half": "half", "float": "float"}
 
 
-def bits_to_depth(bits: BitsOpt | None) -> str | None:
+def bits_to_bits(bits: BitsOpt | None) -> str | None:
     return None if bits is None else BITS_TO_DEPTH[bits.value]
 T = TypeVar("T")
 
@@ -73,31 +72,40 @@ def command(fn: Callable[..., T]) -> Callable[..., T]:
     return wrapper
 
 
-def max_pixels_from_env() -> int | None:
-    value = os.environ.get("BAKERY_MAX_PIXELS")
-    if value is None:
-        return None
-    try:
-        n = int(value)
-    except ValueError:
-        raise BakeryError(f"BAKERY_MAX_PIXELS must be a whole number; got {value!r}") from None
-    if n <= 0:
-        raise BakeryError(f"BAKERY_MAX_PIXELS must be positive; got {n}")
-    return n
+class ProgressDisplay:
+    """The progress display of one command: a bar that redraws itself on a terminal, plain lines otherwise
+    (at most one a second, the first after a second, so quick bakes stay silent)."""
 
+    def __init__(self, label: str):
+        self.label = label
+        self.start = time.monotonic()
+        self.last = 0.0
+        self.shown = False
+        self.tty = sys.stderr.isatty()
 
-def progress(items: Iterable[T], total: int, label: str) -> Iterator[T]:
-    """Plain progress lines on stderr (``label: i/total``) at most twice a second, and a last line.
-
-    Plain lines work both on terminals and in CI logs; silent with ``--quiet``.
-    """
-    last = 0.0
-    for i, item in enumerate(items, 1):
-        yield item
+    def __call__(self, fraction: float, what: str) -> None:
+        if STATE["quiet"]:
+            return
         now = time.monotonic()
-        if not STATE["quiet"] and (now - last > 0.5 or i == total):
-            print(f"{label}: {i}/{total}", file=sys.stderr, flush=True)
-            last = now
+        done = fraction >= 1.0
+        if now - self.start < 1.0 or (now - self.last < (0.2 if self.tty else 1.0) and not done):
+            return
+        if done and not self.shown:
+            return
+        self.last = now
+        self.shown = True
+        pct = max(0.0, min(1.0, fraction)) * 100
+        if self.tty:
+            bar = "#" * int(pct / 5)
+            sys.stderr.write(f"\r{self.label} [{bar:<20}] {pct:3.0f}% {what[:40]:<40}" + ("\n" if done else ""))
+            sys.stderr.flush()
+        else:
+            print(f"{self.label}: {pct:.0f}% {what}", file=sys.stderr, flush=True)
+
+
+def progress_lines(label: str) -> ProgressDisplay:
+    """A ``progress(fraction, label)`` callback for long work (silent under ``--quiet``)."""
+    return ProgressDisplay(label)
 
 
 def output_path(path: Path, *, suffixes: tuple[str, ...] | None = None) -> Path:

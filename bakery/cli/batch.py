@@ -85,13 +85,14 @@ def batch(
 def _contact_sheet(output: Path) -> None:
     """The contact sheet of a batch's output folder, in OUTPUT/.bakery/ (a hidden folder, so later sheets and
     runs never take its pictures for maps)."""
-    from bakery.cli.preview import collect_maps, make_sheet
-    from bakery.preview.sheet import find_maps
+    from bakery.cli._common import progress_lines
+    from bakery.preview.sheet import collect_maps, find_maps, make_sheet
 
     page = output / ".bakery" / "sheet.html"
     if not find_maps(output):
         echo("contact sheet: no maps in the output folder")
         return
     page.parent.mkdir(exist_ok=True)
-    make_sheet(collect_maps([output], page), page, source=str(output), title=f"bakery batch: {output.name}")
+    make_sheet(collect_maps([output], page), page, source=str(output), title=f"bakery batch: {output.name}",
+               progress=progress_lines("maps"))
     echo(f"contact sheet: {page}")

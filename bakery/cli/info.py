@@ -8,7 +8,7 @@ from typing import Annotated
 import typer
 
 from bakery.cli import app
-from bakery.cli._common import command, echo, max_pixels_from_env
+from bakery.cli._common import command, echo
 
 
 @app.command("info")
@@ -16,10 +16,10 @@ from bakery.cli._common import command, echo, max_pixels_from_env
 def info(
     files: Annotated[list[Path], typer.Argument(help="Image files to describe.", show_default=False)],
 ) -> None:
-    """Print format, size, channels, bit depth, value range, NaN/Inf counts and a guess of the map kind."""
-    from bakery.cli.info_report import describe
+    """Print format, size, channels, sample type, value range, NaN/Inf counts and a guess of the map kind."""
+    from bakery.info import describe
 
-    limit = max_pixels_from_env()
+    limit = None  # read_image applies BAKERY_MAX_PIXELS
     for i, path in enumerate(files):
         if i:
             echo()

@@ -10,7 +10,7 @@ from typing import Annotated
 import typer
 
 from bakery.cli import app
-from bakery.cli._common import command, echo, max_pixels_from_env
+from bakery.cli._common import command, echo
 
 
 class Kind(StrEnum):
@@ -36,11 +36,11 @@ def inspect(
     from bakery.inspect import inspect_pixels
     from bakery.io.images import read_image
 
-    limit = max_pixels_from_env()
+    limit = None  # read_image applies BAKERY_MAX_PIXELS
     reports = []
     for path in files:
         img = read_image(path, max_pixels=limit, allow_nonfinite=True)
-        found_kind, findings = inspect_pixels(img.pixels, depth=img.depth, kind=kind.value if kind else None)
+        found_kind, findings = inspect_pixels(img.pixels, bits=img.bits, kind=kind.value if kind else None)
         reports.append({"file": str(path), "kind": found_kind, "findings": [f.as_dict() for f in findings]})
     if as_json:
         typer.echo(json.dumps(reports, indent=2))

@@ -10,7 +10,7 @@ from typing import Annotated
 import typer
 
 from bakery.cli import app
-from bakery.cli._common import command, echo, max_pixels_from_env, output_path, progress
+from bakery.cli._common import command, echo, output_path, progress_lines
 from bakery.errors import BakeryError
 
 
@@ -43,12 +43,12 @@ def preview(
     output: Annotated[Path, typer.Option("--output", "-o", help="Picture to write: .png, or .gif/.webp with "
                                          "--turntable.", show_default=False)],
     normal: Annotated[Path | None, typer.Option(help="Normal map (tangent space).", dir_okay=False)] = None,
-    green: Annotated[Green, typer.Option(help="Green channel of the normal map file: up (OpenGL-style, glTF) "
-                                         "or down (DirectX-style).")] = Green.up,
+    y: Annotated[Green, typer.Option("--y", help="Green-channel convention of the normal map file: up "
+                                     "(OpenGL-style, glTF 2.0) or down (DirectX-style).")] = Green.up,
     height: Annotated[Path | None, typer.Option(help="Height map instead of --normal: normals are baked from "
                                                 "it in memory (as `bakery normal` does).", dir_okay=False)] = None,
     strength: Annotated[float | None, typer.Option(help="Strength of the --height bake, texels per height unit "
-                                                   "[default: depth = width / 32].", show_default=False)] = None,
+                                                   "[default: bits = width / 32].", show_default=False)] = None,
     roughness: Annotated[str, typer.Option(help="Perceptual roughness: a number in [0, 1] or a roughness "
                                            "map.")] = "0.5",
     exponent: Annotated[Path | None, typer.Option(help="Specular-exponent map instead of a roughness map, "
@@ -76,8 +76,8 @@ def preview(
                                          "degrees.")] = 15.0,
     tile_pitch: Annotated[float, typer.Option(min=5.0, max=90.0, help="Camera elevation above the tile, "
                                               "degrees.")] = 40.0,
-    env_rotation: Annotated[float, typer.Option(help="Turn the environment about the vertical axis, degrees "
-                                                "(content moves to the right).")] = 0.0,
+    rotation: Annotated[float, typer.Option(help="Turn the environment about the vertical axis, degrees "
+                                            "(content moves to the right).")] = 0.0,
     tiles: Annotated[tuple[float, float], typer.Option(help="Texture repeats around the ball and from pole to "
                                                        "pole.")] = (4.0, 2.0),
     repeat: Annotated[float, typer.Option(min=0.01, help="Texture repeats along each side of the tile.")] = 2.0,
@@ -94,6 +94,7 @@ def preview(
     specular, spherical-harmonic diffuse, Reinhard tone mapping, sRGB output)."""
     from bakery.io.atomic import check_distinct
     from bakery.preview.inputs import load_material, parse_value_or_path
+    from bakery.preview.lighting import choose_lighting
 
     anim = turntable is not None
     output_path(output, suffixes=(".gif", ".webp") if anim else (".png",))
@@ -105,48 +106,31 @@ def preview(
     inputs = [p for p in (normal, height, exponent, env, specular, diffuse, lut, rough, color)
               if isinstance(p, Path)]
     check_distinct([output], inputs)
-    limit = max_pixels_from_env()
-    material = load_material(normal=normal, green=green.value, height=height, strength=strength,
+    limit = None  # read_image applies BAKERY_MAX_PIXELS
+    material = load_material(normal=normal, green=y.value, height=height, strength=strength,
                              roughness=rough, exponent=exponent, base_color=color, metallic=metallic,
                              max_pixels=limit)
-    lighting = _lighting(env, limit, specular=specular, diffuse=diffuse, lut=lut)
+    lighting = choose_lighting(env, specular=specular, diffuse=diffuse, lut=lut)
     if anim:
         from bakery.io.animation import write_animation
         from bakery.preview.render import turntable_frames
 
-        ticks = iter(progress(range(turntable), turntable, "frames"))
-        next(ticks)  # primed: each later step reports the frame just finished
+        display = progress_lines("frames")
         frames, used = turntable_frames(material, lighting, turntable, size=size, yaw=yaw, pitch=pitch,
-                                        env_rotation=env_rotation, tiles=tiles, supersample=supersample,
-                                        exposure=ev, white=white, progress=lambda i: next(ticks, None))
+                                        env_rotation=rotation, tiles=tiles, supersample=supersample,
+                                        exposure=ev, white=white,
+                                        progress=lambda i: display((i + 1) / turntable, f"frame {i + 1}"))
         write_animation(output, frames, fps=fps)
         echo(f"wrote {output} ({turntable} frames, {size}x{size}, exposure {used:+.2f} EV)")
         return
     from bakery.io.images import write_image
     from bakery.preview.render import preview_image
 
-    img, used = preview_image(material, lighting, size=size, yaw=yaw, pitch=pitch, env_rotation=env_rotation,
+    img, used = preview_image(material, lighting, size=size, yaw=yaw, pitch=pitch, env_rotation=rotation,
                               tiles=tiles, repeat=repeat, tile_pitch=tile_pitch, supersample=supersample,
                               exposure=ev, white=white, views=views.value)
-    write_image(output, img, depth="u8")
+    write_image(output, img, bits="8")
     echo(f"wrote {output} ({img.shape[1]}x{img.shape[0]}, exposure {used:+.2f} EV)")
-
-
-def _lighting(env: Path | None, limit: int | None, *, specular: Path | None = None, diffuse: Path | None = None,
-              lut: Path | None = None):
-    from bakery.preview.lighting import default_lighting, lighting_from_baked, lighting_from_file
-
-    if specular is not None or diffuse is not None:
-        if env is not None:
-            raise BakeryError("give either a panorama (--env) or baked lighting (--specular, --diffuse), not both")
-        if specular is None or diffuse is None:
-            raise BakeryError("baked lighting needs both --specular (the KTX2 chain) and --diffuse (the SH JSON)")
-        return lighting_from_baked(specular, diffuse, lut)
-    if lut is not None:
-        raise BakeryError("--lut goes with baked lighting (--specular, --diffuse)")
-    if env is None:
-        return default_lighting()
-    return lighting_from_file(env, max_pixels=limit)
 
 
 @app.command("sheet")
@@ -166,55 +150,12 @@ def sheet(
 ) -> None:
     """Make a contact sheet: an HTML page (opens from disk, no server) and a PNG grid with every map, its lit
     preview, size and the findings of `bakery inspect`."""
+    from bakery.preview.sheet import collect_maps, make_sheet
+
     output_path(output, suffixes=(".html", ".htm"))
     files = collect_maps(sources, output, recursive=recursive)
     written = make_sheet(files, output, source=", ".join(str(s) for s in sources), thumb=thumb,
-                         columns=columns, lit=lit, env=env, title=title)
+                         columns=columns, lit=lit, env=env, title=title, progress=progress_lines("maps"))
     echo(f"wrote {written[-1]} and {', '.join(p.name for p in written[:-1])}")
 
 
-def collect_maps(sources: list[Path], output: Path, *, recursive: bool = True) -> list[tuple[Path, Path]]:
-    """(map, folder its name is relative to) for every map in ``sources`` (folders and files), leaving out the
-    sheet's own thumbnails and grid pictures."""
-    import re
-
-    from bakery.preview.sheet import find_maps, sheet_paths
-
-    own_folder = sheet_paths(output, 1)[0]
-    own_grid = re.compile(re.escape(output.stem) + r"(-\d+)?\.png")
-
-    def own(p: Path) -> bool:
-        return p.parent.resolve() == output.parent.resolve() and own_grid.fullmatch(p.name) is not None
-
-    files: list[tuple[Path, Path]] = []
-    for src in sources:
-        if src.is_dir():
-            files += [(p, src) for p in find_maps(src, recursive=recursive, exclude=[own_folder]) if not own(p)]
-        elif src.is_file():
-            files.append((src, src.parent))
-        else:
-            raise BakeryError("no such file or folder", src)
-    if not files:
-        raise BakeryError("no maps found (looked for .png, .tif, .tiff, .exr, .hdr, .jpg)", sources[0])
-    return files
-
-
-def make_sheet(files: list[tuple[Path, Path]], output: Path, *, source: str = "", thumb: int = 160,
-               columns: int = 4, lit: bool = True, env: Path | None = None, title: str = "bakery contact sheet",
-               show_progress: bool = True) -> list[Path]:
-    """The work of ``bakery sheet`` (also run after a batch): ``files`` holds (map, folder its card name is
-    relative to) pairs, see :func:`collect_maps`."""
-    from bakery.preview.sheet import lit_previews, make_entry, write_sheet
-
-    output_path(output, suffixes=(".html", ".htm"))
-    limit = max_pixels_from_env()
-    fn = lit_previews(_lighting(env, limit), size=thumb) if lit else None
-    many_roots = len({root for _, root in files}) > 1
-    entries = []
-    items = progress(files, len(files), "maps") if show_progress else files
-    for path, root in items:
-        e = make_entry(path, root, thumb=thumb, preview=fn, max_pixels=limit)
-        if many_roots:
-            e.name = f"{root.name}/{e.name}"
-        entries.append(e)
-    return write_sheet(entries, output, title=title, source=source, columns=columns, thumb=thumb)

@@ -54,3 +54,20 @@ def check_distinct(outputs: Iterable[str | os.PathLike], inputs: Iterable[str | 
         r = Path(out).resolve()
         if r in resolved:
             raise BakeryError("output path is also an input; choose another output name", out)
+
+
+def check_output_folder(outputs: Iterable[str | os.PathLike]) -> None:
+    """Before any work: every output's folder exists and is writable, and no output is an existing folder."""
+    seen: set[Path] = set()
+    for out in outputs:
+        out = Path(out)
+        if out.is_dir():
+            raise BakeryError("output path is a folder; give a file name (or end -o with / for a folder)", out)
+        folder = out.parent
+        if folder in seen:
+            continue
+        seen.add(folder)
+        if not folder.is_dir():
+            raise BakeryError("output folder does not exist", folder)
+        if not os.access(folder, os.W_OK | os.X_OK):
+            raise BakeryError("output folder is not writable (permission denied)", folder)

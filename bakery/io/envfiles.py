@@ -1,11 +1,11 @@
 """Reading and writing environment maps in every layout: panoramas, cross/strip/column images, six face
 files and KTX2 cubemaps.
 
-Layouts (see :mod:`bakery.envmap.layouts` for the pictures):
+Layouts (see :mod:`bakery.io.layouts` for the pictures):
 
-- a single image (``.exr``, ``.hdr``, ``.tif``, ``.png``, ``.jpg``): ``equirect``, ``hcross``, ``vcross``,
-  ``strip``, ``column``, detected from the aspect ratio unless given;
-- six face files: a path holding ``{face}`` (replaced by px, nx, py, ny, pz, nz) or ``{index}`` (0..5);
+- a single image (``.exr``, ``.hdr``, ``.tif``, ``.png``, ``.jpg``): ``equirect``, ``cross-wide``, ``cross-tall``,
+  ``row``, ``stack``, detected from the aspect ratio unless given;
+- six face files: a path holding ``{face}`` (replaced by x+, x-, y+, y-, z+, z-) or ``{index}`` (0..5);
 - ``.ktx2``: a cubemap (level 0 is read; mips are written), or a 2D panorama.
 
 8/16-bit images hold colour data: they are decoded from sRGB on reading and encoded on writing
@@ -22,10 +22,10 @@ from pathlib import Path
 
 import numpy as np
 
-from bakery.envmap import layouts as L
 from bakery.errors import BakeryError, BakeryWarning
+from bakery.io import layouts as L
 
-LAYOUTS = ("equirect", "hcross", "vcross", "strip", "column", "faces", "ktx2")
+LAYOUTS = ("equirect", "cross-wide", "cross-tall", "row", "stack", "files", "ktx2")
 HALF_MAX = 65504.0
 
 
@@ -40,8 +40,8 @@ class Environment:
         ``(6, N, N, C)`` for a cube, ``(H, W, C)`` for a panorama; linear radiance.
     layout : str
         The layout it was stored in (one of :data:`LAYOUTS`).
-    depth : str
-        Sample type of the source ("u8", "u16", "f16", "f32"), for output defaults.
+    bits : str
+        Sample type of the source ("8", "16", "half", "float"), for output defaults.
     paths : list of Path
         The files read.
     """
@@ -49,7 +49,7 @@ class Environment:
     kind: str
     pixels: np.ndarray
     layout: str
-    depth: str
+    bits: str
     paths: list[Path] = field(default_factory=list)
 
 
@@ -66,9 +66,9 @@ def face_paths(pattern: str | os.PathLike) -> list[Path]:
 
 
 def layout_of_path(path: str | os.PathLike) -> str | None:
-    """"faces" for a pattern, "ktx2" for a .ktx2 file, None for a single image (layout from its shape)."""
+    """"files" for a pattern, "ktx2" for a .ktx2 file, None for a single image (layout from its shape)."""
     if is_face_pattern(path):
-        return "faces"
+        return "files"
     if Path(path).suffix.lower() == ".ktx2":
         return "ktx2"
     return None
@@ -101,7 +101,7 @@ def _read_one(path: Path, max_pixels: int | None):
     px = img.pixels
     if px.shape[2] == 2:
         raise BakeryError("an environment map needs 1, 3 or 4 channels; this image has 2", path)
-    return px, img.depth
+    return px, img.bits
 
 
 def read_environment(path: str | os.PathLike, *, layout: str | None = None, repair: bool = False,
@@ -126,14 +126,14 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
     from bakery.io import ktx2
 
     path_layout = layout_of_path(path)
-    if layout in ("faces", "ktx2") and path_layout != layout:
-        need = "a pattern with {face}" if layout == "faces" else "a .ktx2"
+    if layout in ("files", "ktx2") and path_layout != layout:
+        need = "a pattern with {face}" if layout == "files" else "a .ktx2"
         raise BakeryError(f"layout {layout!r} needs {need} path", path)
-    if path_layout == "faces":
+    if path_layout == "files":
         paths = face_paths(path)
         faces, depths, size = [], [], None
         for p in paths:
-            px, depth = _read_one(p, max_pixels)
+            px, bits = _read_one(p, max_pixels)
             h, w = px.shape[:2]
             if h != w:
                 raise BakeryError(f"cube faces must be square; this one is {w}x{h}", p)
@@ -142,23 +142,23 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
                                   f"{size}x{size}x{faces[0].shape[2]} in {paths[0]}", p)
             size = h
             faces.append(px)
-            depths.append(depth)
+            depths.append(bits)
         cube = np.stack(faces)
         cube = _check_values(cube, path, repair)
-        return Environment("cube", cube, "faces", max(depths, key=_DEPTH_ORDER.index), paths)
+        return Environment("cube", cube, "files", max(depths, key=_BITS_ORDER.index), paths)
     p = Path(path)
     if path_layout == "ktx2":
         tex = ktx2.read_ktx2(p)
         px = tex.levels[0]
-        depth = "f32" if tex.format.name.startswith("R32") else ("f16" if tex.format.is_float else
-                                                               ("u16" if tex.format.bits == 16 else "u8"))
+        bits = "float" if tex.format.name.startswith("R32") else ("half" if tex.format.is_float else
+                                                               ("16" if tex.format.bits == 16 else "8"))
         if px.shape[-1] == 4 and np.all(px[..., 3] == 1):  # RGB stored as RGBA: the alpha carries nothing
             px = px[..., :3]
         if tex.cubemap:
-            return Environment("cube", _check_values(px, p, repair), "ktx2", depth, [p])
+            return Environment("cube", _check_values(px, p, repair), "ktx2", bits, [p])
         img = px
     else:
-        img, depth = _read_one(p, max_pixels)
+        img, bits = _read_one(p, max_pixels)
     h, w = img.shape[:2]
     lay = layout or L.detect_layout(w, h, where=p)
     if lay not in L.IMAGE_LAYOUTS:
@@ -168,11 +168,11 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
     if lay == "equirect":
         if w != 2 * h:
             raise BakeryError(f"a panorama must be twice as wide as high; got {w}x{h}", p)
-        return Environment("equirect", img, "equirect", depth, [p])
-    return Environment("cube", L.split(img, lay, where=p), lay, depth, [p])
+        return Environment("equirect", img, "equirect", bits, [p])
+    return Environment("cube", L.split(img, lay, where=p), lay, bits, [p])
 
 
-_DEPTH_ORDER = ["u8", "u16", "f16", "f32"]
+_BITS_ORDER = ["8", "16", "half", "float"]
 
 
 def clamp_for(pixels: np.ndarray, limit: float, where: object, what: str, advice: str) -> np.ndarray:
@@ -188,42 +188,42 @@ def clamp_for(pixels: np.ndarray, limit: float, where: object, what: str, advice
     return pixels
 
 
-def _prepare_image(path: object, px: np.ndarray, depth: str) -> np.ndarray:
-    if depth == "f16":
+def _prepare_image(path: object, px: np.ndarray, bits: str) -> np.ndarray:
+    if bits == "half":
         return clamp_for(px, HALF_MAX, path, "a half float", "write float32 (--bits float) to keep them")
-    if depth in ("u8", "u16"):
-        return clamp_for(px, 1.0, path, f"a {depth[1:]}-bit image",
+    if bits in ("8", "16"):
+        return clamp_for(px, 1.0, path, f"a {bits[1:]}-bit image",
                          "write .exr or .hdr to keep HDR values, or lower --exposure")
     return px
 
 
-def output_depth(path: str | os.PathLike, depth: str | None, source_depth: str) -> str:
+def output_bits(path: str | os.PathLike, bits: str | None, source_bits: str) -> str:
     """The sample type for an image output: as asked, else follow the source where the format can hold it
-    (float sources give half-float EXR, 8/16-bit sources keep their depth), else the format's default."""
-    from bakery.io.images import DEFAULT_DEPTH, WRITABLE, image_format
+    (float sources give half-float EXR, 8/16-bit sources keep their bits), else the format's default."""
+    from bakery.io.images import DEFAULT_BITS, WRITABLE, image_format
 
     fmt = image_format(path, writing=True)
-    if depth is not None:
-        if depth not in WRITABLE[fmt]:
-            raise BakeryError(f"{fmt.upper()} files cannot hold {depth} samples; use one of "
+    if bits is not None:
+        if bits not in WRITABLE[fmt]:
+            raise BakeryError(f"{fmt.upper()} files cannot hold {bits} samples; use one of "
                               f"{', '.join(WRITABLE[fmt])}", path)
-        return depth
-    if source_depth in WRITABLE[fmt] and not (fmt == "exr" and source_depth == "f32"):
-        return source_depth
+        return bits
+    if source_bits in WRITABLE[fmt] and not (fmt == "exr" and source_bits == "float"):
+        return source_bits
     if fmt == "exr":
-        return "f16"
-    if fmt == "tiff" and source_depth in ("f16", "f32"):
-        return "f32"
-    return DEFAULT_DEPTH[fmt]
+        return "half"
+    if fmt == "tiff" and source_bits in ("half", "float"):
+        return "float"
+    return DEFAULT_BITS[fmt]
 
 
 def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *, layout: str | None = None,
-                      depth: str | None = None, source_depth: str = "f32", ktx_format: str | None = None,
+                      bits: str | None = None, source_bits: str = "float", ktx_format: str | None = None,
                       mips: list[np.ndarray] | None = None, key_values: dict[str, str] | None = None
                       ) -> list[Path]:
     """Write a cube ``(6, N, N, C)`` or panorama ``(H, W, C)`` in a layout; returns the written paths.
 
-    ``layout`` defaults from the path (pattern -> faces, .ktx2 -> ktx2) or the kind (cube -> hcross,
+    ``layout`` defaults from the path (pattern -> faces, .ktx2 -> ktx2) or the kind (cube -> cross-wide,
     panorama -> equirect). For KTX2, ``mips`` are the levels after level 0 (optional). All files are written
     to temporary names first and renamed only when every one succeeded.
     """
@@ -232,7 +232,7 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
     from bakery.io.images import write_image
 
     path_layout = layout_of_path(path)
-    lay = path_layout or layout or ("hcross" if kind == "cube" else "equirect")
+    lay = path_layout or layout or ("cross-wide" if kind == "cube" else "equirect")
     if path_layout and layout and layout != path_layout and not (path_layout == "ktx2" and layout in
                                                                 ("equirect",)):
         raise BakeryError(f"layout {layout!r} does not match the output path", path)
@@ -251,18 +251,18 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
         p = Path(path)
         ktx2.write_ktx2(p, levels, fmt, cubemap=(lay == "ktx2"), key_values=key_values)
         return [p]
-    if lay == "faces":
+    if lay == "files":
         paths = face_paths(path)
-        d = output_depth(paths[0], depth, source_depth)
+        d = output_bits(paths[0], bits, source_bits)
         faces = list(_prepare_image(path, np.asarray(pixels), d))
         with contextlib.ExitStack() as stack:
             tmps = [stack.enter_context(atomic_output(p)) for p in paths]
             for tmp, face in zip(tmps, faces, strict=True):
-                write_image(tmp, face, depth=d, color="srgb" if d in ("u8", "u16") else "data")
+                write_image(tmp, face, bits=d, color="srgb" if d in ("8", "16") else "data")
         return paths
     p = Path(path)
     img = pixels if kind == "equirect" else L.assemble(pixels, lay)
-    d = output_depth(p, depth, source_depth)
+    d = output_bits(p, bits, source_bits)
     img = _prepare_image(p, img, d)
-    write_image(p, img, depth=d, color="srgb" if d in ("u8", "u16") else "data")
+    write_image(p, img, bits=d, color="srgb" if d in ("8", "16") else "data")
     return [p]

@@ -2,7 +2,7 @@
 
 The only door between files and arrays. In memory every image is ``float32`` of shape ``(H, W, C)``, channels
 in RGB(A) order, rows top to bottom. Integer files map to [0, 1] (``v / 255`` or ``v / 65535``) and are written
-back with round-to-nearest, so integer data round-trips bit-exactly at its depth. Float data is never rescaled.
+back with round-to-nearest, so integer data round-trips bit-exactly at its bits. Float data is never rescaled.
 
 Backends (chosen per format, never by guessing from the extension inside a library):
 
@@ -31,11 +31,11 @@ from typing import Literal
 
 import numpy as np
 
+from bakery.color import linear_to_srgb, srgb_to_linear
 from bakery.errors import BakeryError, BakeryWarning
 from bakery.io.atomic import atomic_output
-from bakery.io.color import linear_to_srgb, srgb_to_linear
 
-Depth = Literal["u8", "u16", "f16", "f32"]
+Bits = Literal["8", "16", "half", "float"]
 Color = Literal["data", "srgb"]
 
 #: Largest image (in pixels) read by default: 16384 x 16384. Override with ``max_pixels=`` or the
@@ -52,10 +52,10 @@ FORMATS = {
     ".jpg": "jpeg",
     ".jpeg": "jpeg",
 }
-WRITABLE = {"png": ("u8", "u16"), "tiff": ("u8", "u16", "f32"), "exr": ("f16", "f32"), "hdr": ("f32",)}
-DEFAULT_DEPTH: dict[str, Depth] = {"png": "u8", "tiff": "u16", "exr": "f16", "hdr": "f32"}
-INTEGER_MAX = {"u8": 255, "u16": 65535}
-_INTEGER_DTYPES = {np.dtype(np.uint8): "u8", np.dtype(np.uint16): "u16"}
+WRITABLE = {"png": ("8", "16"), "tiff": ("8", "16", "float"), "exr": ("half", "float"), "hdr": ("float",)}
+DEFAULT_BITS: dict[str, Bits] = {"png": "8", "tiff": "16", "exr": "half", "hdr": "float"}
+INTEGER_MAX = {"8": 255, "16": 65535}
+_INTEGER_DTYPES = {np.dtype(np.uint8): "8", np.dtype(np.uint16): "16"}
 
 
 @dataclass(frozen=True)
@@ -67,14 +67,14 @@ class Image:
     pixels : ndarray, float32, shape (H, W, C)
         RGB(A) order; integer files scaled to [0, 1]; colour-decoded to linear only when read with
         ``color="srgb"``.
-    depth : {"u8", "u16", "f16", "f32"}
-        The file's sample type, so outputs can default to it (RGBE files report "f32").
+    bits : {"8", "16", "half", "float"}
+        The file's sample type, so outputs can default to it (RGBE files report "float").
     format : {"png", "tiff", "exr", "hdr", "jpeg"}
     path : Path
     """
 
     pixels: np.ndarray
-    depth: Depth
+    bits: Bits
     format: str
     path: Path
 
@@ -84,7 +84,7 @@ class Image:
 
     @property
     def is_float(self) -> bool:
-        return self.depth in ("f16", "f32")
+        return self.bits in ("half", "float")
 
 
 def image_format(path: str | os.PathLike, *, writing: bool = False) -> str:
@@ -120,7 +120,7 @@ def read_image(
         is never converted and float files are never converted.
     max_pixels : int, optional
         Refuse images larger than this many pixels before decoding them (decompression-bomb guard).
-        Default :data:`DEFAULT_MAX_PIXELS`.
+        Default: :func:`pixel_limit` (``BAKERY_MAX_PIXELS``, else :data:`DEFAULT_MAX_PIXELS`).
     allow_nonfinite : bool
         Float files holding NaN or Inf are refused unless this is true (``bakery info`` uses it to count them).
 
@@ -137,33 +137,62 @@ def read_image(
         raise BakeryError("not a regular file", path)
     if not os.access(path, os.R_OK):
         raise BakeryError("file is not readable (permission denied)", path)
-    limit = DEFAULT_MAX_PIXELS if max_pixels is None else int(max_pixels)
     width, height = _peek_size(path, fmt)
-    if width * height > limit:
-        raise BakeryError(
-            f"image is {width}x{height} = {width * height} pixels, over the limit of {limit} "
-            "(raise it with --max-pixels or BAKERY_MAX_PIXELS if the file is trusted)", path)
+    check_pixel_limit(width, height, path, max_pixels)
     try:
-        raw, depth = _READERS[fmt](path)
+        raw, bits = _READERS[fmt](path)
     except BakeryError:
         raise
     except Exception as exc:  # decoder libraries raise many types for corrupt data
         raise BakeryError(f"cannot decode {fmt.upper()} data ({_short(exc)})", path) from exc
-    pixels = _to_float(raw, depth)
+    pixels = _to_float(raw, bits)
     if pixels.ndim == 2:
         pixels = pixels[:, :, None]
     if pixels.ndim != 3 or pixels.shape[2] not in (1, 2, 3, 4) or pixels.size == 0:
         raise BakeryError(f"unsupported image shape {raw.shape}", path)
-    if depth in ("f16", "f32") and not allow_nonfinite:
+    if bits in ("half", "float") and not allow_nonfinite:
         bad = int(np.count_nonzero(~np.isfinite(pixels)))
         if bad:
             raise BakeryError(f"{bad} sample(s) are NaN or Inf; repair the file before baking", path)
-    if color == "srgb" and depth in ("u8", "u16"):
+    if color == "srgb" and bits in ("8", "16"):
         nc = 3 if pixels.shape[2] >= 3 else 1
         pixels[:, :, :nc] = srgb_to_linear(pixels[:, :, :nc])
     elif color not in ("data", "srgb"):
         raise ValueError(f"color must be 'data' or 'srgb'; got {color!r}")
-    return Image(np.ascontiguousarray(pixels), depth, fmt, path)
+    return Image(np.ascontiguousarray(pixels), bits, fmt, path)
+
+
+def pixel_limit() -> int:
+    """The most pixels an image may have: ``BAKERY_MAX_PIXELS`` when set (a positive whole number), else
+    :data:`DEFAULT_MAX_PIXELS`. Every reader of bakery applies it before decoding."""
+    value = os.environ.get("BAKERY_MAX_PIXELS")
+    if value is None or not value.strip():
+        return DEFAULT_MAX_PIXELS
+    try:
+        n = int(value)
+    except ValueError:
+        raise BakeryError(f"BAKERY_MAX_PIXELS must be a whole number; got {value!r}") from None
+    if n <= 0:
+        raise BakeryError(f"BAKERY_MAX_PIXELS must be positive; got {n}")
+    return n
+
+
+def check_pixel_limit(width: int, height: int, path: str | os.PathLike, max_pixels: int | None = None) -> None:
+    """Refuse an image of ``width`` x ``height`` over the pixel limit (``max_pixels`` or :func:`pixel_limit`)."""
+    limit = pixel_limit() if max_pixels is None else int(max_pixels)
+    if width * height > limit:
+        raise BakeryError(
+            f"image is {width}x{height} = {width * height} pixels, over the limit of {limit} "
+            "(raise BAKERY_MAX_PIXELS if the file is trusted)", path)
+
+
+def image_size(path: str | os.PathLike) -> tuple[int, int]:
+    """(width, height) of an image file from its header, without decoding the pixels."""
+    path = Path(path)
+    fmt = image_format(path)
+    if not path.is_file():
+        raise BakeryError("file not found", path)
+    return _peek_size(path, fmt)
 
 
 def _short(exc: BaseException) -> str:
@@ -171,9 +200,9 @@ def _short(exc: BaseException) -> str:
     return text if len(text) < 160 else text[:157] + "..."
 
 
-def _to_float(raw: np.ndarray, depth: str) -> np.ndarray:
-    if depth in INTEGER_MAX:
-        return raw.astype(np.float32) * np.float32(1.0 / INTEGER_MAX[depth])
+def _to_float(raw: np.ndarray, bits: str) -> np.ndarray:
+    if bits in INTEGER_MAX:
+        return raw.astype(np.float32) * np.float32(1.0 / INTEGER_MAX[bits])
     return np.array(raw, dtype=np.float32, copy=True)
 
 
@@ -198,10 +227,10 @@ def _read_cv2(path: Path) -> tuple[np.ndarray, str]:
     a = cv2.imdecode(data, cv2.IMREAD_UNCHANGED)
     if a is None:
         raise BakeryError("file is corrupt or truncated (decoder returned no image)", path)
-    depth = {np.dtype(np.uint8): "u8", np.dtype(np.uint16): "u16", np.dtype(np.float32): "f32"}.get(a.dtype)
-    if depth is None:
+    bits = {np.dtype(np.uint8): "8", np.dtype(np.uint16): "16", np.dtype(np.float32): "float"}.get(a.dtype)
+    if bits is None:
         raise BakeryError(f"unsupported sample type {a.dtype}", path)
-    return _bgr_to_rgb(a), depth
+    return _bgr_to_rgb(a), bits
 
 
 def _read_png(path: Path) -> tuple[np.ndarray, str]:
@@ -232,15 +261,15 @@ def _read_tiff(path: Path) -> tuple[np.ndarray, str]:
     del extra
     dtype = a.dtype
     if dtype == np.uint8:
-        return a, "u8"
+        return a, "8"
     if dtype == np.uint16:
-        return a, "u16"
+        return a, "16"
     if dtype == np.float32:
-        return a, "f32"
+        return a, "float"
     if dtype == np.float16:
-        return a, "f16"
+        return a, "half"
     if dtype == np.float64:
-        return a.astype(np.float32), "f32"
+        return a.astype(np.float32), "float"
     raise BakeryError(f"unsupported TIFF sample type {dtype}; use 8/16-bit integer or float32", path)
 
 
@@ -259,8 +288,8 @@ def _read_exr(path: Path) -> tuple[np.ndarray, str]:
     kinds = {p.dtype for p in planes}
     if any(k not in (np.dtype(np.float16), np.dtype(np.float32)) for k in kinds):
         raise BakeryError(f"unsupported OpenEXR channel type(s) {sorted(map(str, kinds))}", path)
-    depth = "f16" if kinds == {np.dtype(np.float16)} else "f32"
-    return np.stack([p.astype(np.float32) for p in planes], axis=-1), depth
+    bits = "half" if kinds == {np.dtype(np.float16)} else "float"
+    return np.stack([p.astype(np.float32) for p in planes], axis=-1), bits
 
 
 def _exr_channel_order(names: list[str], path: Path) -> list[str]:
@@ -278,10 +307,10 @@ def _exr_channel_order(names: list[str], path: Path) -> list[str]:
 
 
 def _read_hdr(path: Path) -> tuple[np.ndarray, str]:
-    a, depth = _read_cv2(path)
-    if depth != "f32":
+    a, bits = _read_cv2(path)
+    if bits != "float":
         raise BakeryError("Radiance HDR file did not decode to float data", path)
-    return a, "f32"
+    return a, "float"
 
 
 _READERS = {"png": _read_png, "tiff": _read_tiff, "exr": _read_exr, "hdr": _read_hdr, "jpeg": _read_cv2}
@@ -352,7 +381,7 @@ def write_image(
     path: str | os.PathLike,
     pixels: np.ndarray,
     *,
-    depth: Depth | None = None,
+    bits: Bits | None = None,
     color: Color = "data",
 ) -> Path:
     """Write float32 ``(H, W)`` or ``(H, W, C)`` RGB(A) pixels atomically.
@@ -365,7 +394,7 @@ def write_image(
         Float data; integer outputs take values in [0, 1] (clipped) and round to nearest, ties to even
         (``numpy.rint``). ``uint8`` / ``uint16`` arrays are taken as already quantised and written as they are
         (PNG and TIFF; lets big images be encoded strip by strip without a float copy).
-    depth : {"u8", "u16", "f16", "f32"}, optional
+    bits : {"8", "16", "half", "float"}, optional
         Sample type; default per format: PNG u8, TIFF u16, EXR f16, HDR (RGBE) f32.
     color : {"data", "srgb"}
         ``"srgb"`` encodes colour channels with the IEC 61966-2-1 curve before quantising (never alpha).
@@ -379,12 +408,12 @@ def write_image(
     fmt = image_format(path, writing=True)
     stored = _INTEGER_DTYPES.get(np.asarray(pixels).dtype)
     if stored is not None:  # already quantised: written exactly as given
-        if depth not in (None, stored) or color != "data":
-            raise ValueError(f"{stored} pixels are written as stored; got depth={depth!r}, color={color!r}")
-        depth = stored
-    depth = depth or DEFAULT_DEPTH[fmt]
-    if depth not in WRITABLE[fmt]:
-        raise BakeryError(f"{fmt.upper()} files cannot hold {depth} samples; use one of "
+        if bits not in (None, stored) or color != "data":
+            raise ValueError(f"{stored} pixels are written as stored; got bits={bits!r}, color={color!r}")
+        bits = stored
+    bits = bits or DEFAULT_BITS[fmt]
+    if bits not in WRITABLE[fmt]:
+        raise BakeryError(f"{fmt.upper()} files cannot hold {bits} samples; use one of "
                           f"{', '.join(WRITABLE[fmt])}", path)
     a = np.asarray(pixels) if stored else np.asarray(pixels, dtype=np.float32)
     if a.ndim == 2:
@@ -401,36 +430,36 @@ def write_image(
         raise BakeryError("Radiance HDR cannot store negative values; clamp them or write .exr", path)
     if fmt == "hdr" and a.shape[2] != 3:
         a = np.repeat(a[:, :, :1], 3, axis=2) if a.shape[2] == 1 else a[:, :, :3]
-    if depth == "f16":
+    if bits == "half":
         a = clamp_to_half(a, path)
     with atomic_output(path) as tmp:
-        _WRITERS[fmt](tmp, a, depth)
+        _WRITERS[fmt](tmp, a, bits)
     return path
 
 
-def quantize(a: np.ndarray, depth: Depth) -> np.ndarray:
-    """Float [0, 1] -> unsigned integers of ``depth``, round to nearest, ties to even (``numpy.rint``)."""
-    if _INTEGER_DTYPES.get(a.dtype) == depth:
+def quantize(a: np.ndarray, bits: Bits) -> np.ndarray:
+    """Float [0, 1] -> unsigned integers of ``bits``, round to nearest, ties to even (``numpy.rint``)."""
+    if _INTEGER_DTYPES.get(a.dtype) == bits:
         return a
-    top = INTEGER_MAX[depth]
-    out = np.empty(a.shape, dtype=np.uint8 if depth == "u8" else np.uint16)
+    top = INTEGER_MAX[bits]
+    out = np.empty(a.shape, dtype=np.uint8 if bits == "8" else np.uint16)
     scaled = np.clip(a, 0.0, 1.0) * np.float32(top)
     np.rint(scaled, out=scaled)
     out[...] = scaled
     return out
 
 
-def _write_png(tmp: Path, a: np.ndarray, depth: str) -> None:
+def _write_png(tmp: Path, a: np.ndarray, bits: str) -> None:
     cv2 = _cv2()
-    q = _bgr_to_rgb(quantize(a, depth))  # the same swap turns RGB(A) into BGR(A)
+    q = _bgr_to_rgb(quantize(a, bits))  # the same swap turns RGB(A) into BGR(A)
     if not cv2.imwrite(str(tmp), np.ascontiguousarray(q)):
         raise BakeryError("OpenCV failed to write the PNG file", tmp)
 
 
-def _write_tiff(tmp: Path, a: np.ndarray, depth: str) -> None:
+def _write_tiff(tmp: Path, a: np.ndarray, bits: str) -> None:
     import tifffile
 
-    data = quantize(a, depth) if depth in INTEGER_MAX else a.astype(np.float32)
+    data = quantize(a, bits) if bits in INTEGER_MAX else a.astype(np.float32)
     if data.shape[2] == 1:
         data = data[:, :, 0]
     photometric = "minisblack" if data.ndim == 2 or data.shape[2] == 2 else "rgb"
@@ -439,10 +468,10 @@ def _write_tiff(tmp: Path, a: np.ndarray, depth: str) -> None:
                      extrasamples=extrasamples, metadata=None)
 
 
-def _write_exr(tmp: Path, a: np.ndarray, depth: str) -> None:
+def _write_exr(tmp: Path, a: np.ndarray, bits: str) -> None:
     import OpenEXR
 
-    dtype = np.float16 if depth == "f16" else np.float32
+    dtype = np.float16 if bits == "half" else np.float32
     names = {1: ("Y",), 2: ("R", "G"), 3: ("R", "G", "B"), 4: ("R", "G", "B", "A")}[a.shape[2]]
     data = a.astype(dtype)
     channels = {n: np.ascontiguousarray(data[:, :, i]) for i, n in enumerate(names)}
@@ -464,7 +493,7 @@ def clamp_to_half(a: np.ndarray, where: str | os.PathLike = "output") -> np.ndar
     return a
 
 
-def _write_hdr(tmp: Path, a: np.ndarray, depth: str) -> None:
+def _write_hdr(tmp: Path, a: np.ndarray, bits: str) -> None:
     cv2 = _cv2()
     if not cv2.imwrite(str(tmp), np.ascontiguousarray(_bgr_to_rgb(a))):
         raise BakeryError("OpenCV failed to write the HDR file", tmp)

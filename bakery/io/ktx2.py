@@ -118,8 +118,8 @@ FORMATS_BY_VK: dict[int, Format] = {f.vk: f for f in FORMATS.values()}
 
 #: Short names accepted by the CLI.
 FORMAT_ALIASES = {
-    "rgba16f": "R16G16B16A16_SFLOAT", "rgba32f": "R32G32B32A32_SFLOAT", "rg11b10f": "B10G11R11_UFLOAT_PACK32",
-    "rgb9e5": "E5B9G9R9_UFLOAT_PACK32", "rg16f": "R16G16_SFLOAT", "r8": "R8_UNORM", "rg8": "R8G8_UNORM",
+    "rgba16f": "R16G16B16A16_SFLOAT", "rgba32f": "R32G32B32A32_SFLOAT", "b10g11r11-ufloat": "B10G11R11_UFLOAT_PACK32",
+    "e5b9g9r9-ufloat": "E5B9G9R9_UFLOAT_PACK32", "rg16f": "R16G16_SFLOAT", "r8": "R8_UNORM", "rg8": "R8G8_UNORM",
     "rgba8": "R8G8B8A8_UNORM", "rgba8-srgb": "R8G8B8A8_SRGB", "r16": "R16_UNORM", "rg16": "R16G16_UNORM",
     "rgba16": "R16G16B16A16_UNORM",
 }
@@ -307,7 +307,7 @@ def fit_channels(a: np.ndarray, channels: int) -> np.ndarray:
 def encode_texels(a: np.ndarray, fmt: Format, *, counts: dict[str, int] | None = None) -> bytes:
     """Texel bytes (little-endian) of float32 ``(..., C)`` data in ``fmt``, with clamping counted into
     ``counts["clamped"]``."""
-    from bakery.io.color import linear_to_srgb
+    from bakery.color import linear_to_srgb
 
     a = fit_channels(np.asarray(a, dtype=np.float32), fmt.channels)
     clamped = 0
@@ -339,7 +339,7 @@ def encode_texels(a: np.ndarray, fmt: Format, *, counts: dict[str, int] | None =
 
 def decode_texels(buf: bytes | memoryview, fmt: Format, shape: tuple[int, ...]) -> np.ndarray:
     """Float32 ``shape + (C,)`` from texel bytes (inverse of :func:`encode_texels`)."""
-    from bakery.io.color import srgb_to_linear
+    from bakery.color import srgb_to_linear
 
     n = int(np.prod(shape))
     if fmt.kind == "unorm":
@@ -432,7 +432,7 @@ def encode_ktx2(levels: list[np.ndarray], fmt: Format | str, *, cubemap: bool,
     writer_keys : bool
         Add "KTXorientation" = "rd" and "KTXwriter" = "bakery <version>" (default), unless given.
     """
-    from bakery import __version__
+    from bakery._version import __version__
 
     fmt = get_format(fmt) if isinstance(fmt, str | int) else fmt
     if not levels:

@@ -47,21 +47,26 @@ def write_json(path: str | os.PathLike, data: Any) -> Path:
     return path
 
 
+#: The ending of every manifest file name.
+MANIFEST_SUFFIX = ".bakery.json"
+
+
 def manifest_path(output: str | os.PathLike) -> Path:
-    """The manifest that belongs to an output file: ``name.ext`` -> ``name.ext.json``."""
-    output = Path(output)
-    return output.with_name(output.name + ".json")
+    """The manifest that belongs to an output file: ``NAME.ext`` -> ``NAME.bakery.json`` (a face pattern's
+    ``{face}`` / ``{index}`` becomes ``cube``)."""
+    output = Path(str(output).replace("{face}", "cube").replace("{index}", "cube"))
+    return output.with_name(output.stem + MANIFEST_SUFFIX)
 
 
 def write_manifest(output: str | os.PathLike, *, bake: str, inputs: dict[str, str | os.PathLike],
                    params: dict[str, Any], outputs: list[str | os.PathLike],
                    extra: dict[str, Any] | None = None) -> Path:
-    """Write ``<output>.json`` describing one bake.
+    """Write :func:`manifest_path` of ``output``, describing one bake.
 
     Input paths are stored by name only (relative paths would vary with the working folder); their content
     hashes identify them.
     """
-    from bakery import __version__
+    from bakery._version import __version__
 
     out_dir = Path(output).parent
     data = {

@@ -1,6 +1,6 @@
 """Normal maps: from height maps, back to height maps, blending, mip chains, encodings.
 
-Pure array-in, array-out functions; files are read and written by :mod:`bakery.normals.bakes`.
+Pure array-in, array-out functions; files are read and written by :mod:`bakery.bakes.normals`.
 """
 
 from bakery.mips import mip_count, mip_size

@@ -6,7 +6,7 @@ vertically... more plainly, with the strength given physically::
 
     s_x = D / (W_phys / W_texels)        s_y = D / (H_phys / H_texels)
 
-where D is the physical depth that the full height range (0 .. 1 in bakery's units: 0 .. 65535 in a 16-bit
+where D is the physical relief that the full height range (0 .. 1 in bakery's units: 0 .. 65535 in a 16-bit
 file) stands for, and W_phys x H_phys the physical size of the texture, all in one unit of the user's choice.
 x runs right (u) and y runs up (v, toward the top image row): the OpenGL / glTF 2.0 convention.
 
@@ -35,10 +35,10 @@ from bakery.normals.kernels import DEFAULT_KERNEL, Kernel, check_edges, edge_ind
 
 #: Default relief when no strength is given: the full height range is 1/32 of the texture's width deep.
 #: A choice of ours (docs/normals.md), independent of resolution.
-DEFAULT_DEPTH_RATIO = 1.0 / 32.0
+DEFAULT_RELIEF_RATIO = 1.0 / 32.0
 
 
-def strength_from_size(shape: tuple[int, int], depth: float, width: float,
+def strength_from_size(shape: tuple[int, int], relief: float, width: float,
                        height: float | None = None) -> tuple[float, float]:
     """Strengths ``(s_x, s_y)`` from physical sizes (Blinn 1978 with derivatives in texels).
 
@@ -46,30 +46,30 @@ def strength_from_size(shape: tuple[int, int], depth: float, width: float,
     ----------
     shape : (rows, cols)
         Texture size in texels.
-    depth : float
-        Physical depth that the full height range (0 .. 1) stands for.
+    relief : float
+        Physical relief that the full height range (0 .. 1) stands for.
     width : float
-        Physical width of the texture (along u), in the unit of ``depth``.
+        Physical width of the texture (along u), in the unit of ``relief``.
     height : float, optional
         Physical height of the texture (along v). Default: square texels, ``width * rows / cols``.
 
     Returns
     -------
     (s_x, s_y) : tuple of float
-        ``s_x = depth * cols / width``, ``s_y = depth * rows / height``.
+        ``s_x = relief * cols / width``, ``s_y = relief * rows / height``.
 
     Examples
     --------
-    >>> strength_from_size((512, 1024), depth=0.05, width=2.0)
+    >>> strength_from_size((512, 1024), relief=0.05, width=2.0)
     (25.6, 25.6)
     """
     rows, cols = shape
-    for name, v in (("depth", depth), ("width", width), ("height", height)):
+    for name, v in (("relief", relief), ("width", width), ("height", height)):
         if v is not None and not (math.isfinite(v) and v > 0):
             raise BakeryError(f"physical {name} must be a positive number; got {v!r}")
     if height is None:
         height = width * rows / cols
-    return depth * cols / width, depth * rows / height
+    return relief * cols / width, relief * rows / height
 
 
 def _strengths(strength: float | tuple[float, float]) -> tuple[float, float]:

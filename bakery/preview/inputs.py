@@ -72,7 +72,7 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
         :func:`bakery.normals.normal_from_height` (the ``bakery normal`` defaults: Scharr derivatives, wrapping
         edges).
     strength : float, optional
-        Strength of that bake (texels per height unit); default as ``bakery normal``: depth = width / 32.
+        Strength of that bake (texels per height unit); default as ``bakery normal``: bits = width / 32.
     roughness : float or path
         Perceptual roughness in [0, 1], or a single-channel map of it (data, never colour-converted).
     exponent : path, optional
@@ -93,7 +93,7 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
     if exponent is not None and isinstance(roughness, str | os.PathLike):
         raise BakeryError("give a roughness map or an exponent map, not both")
     if height is not None:
-        from bakery.normals.from_height import DEFAULT_DEPTH_RATIO, normal_from_height, strength_from_size
+        from bakery.normals.from_height import DEFAULT_RELIEF_RATIO, normal_from_height, strength_from_size
 
         path = Path(height)
         px = _read(path, max_pixels=max_pixels)
@@ -102,7 +102,7 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
             raise BakeryError("a height map needs one channel (or three equal ones); this one has colour", path)
         h = px[..., 0]
         if strength is None:
-            s = strength_from_size(h.shape, DEFAULT_DEPTH_RATIO, 1.0)
+            s = strength_from_size(h.shape, DEFAULT_RELIEF_RATIO, 1.0)
         elif not (np.isfinite(strength) and strength != 0):
             raise BakeryError(f"--strength must be a non-zero number; got {strength}")
         else:
@@ -111,7 +111,7 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
     elif strength is not None:
         raise BakeryError("--strength applies to a height map (--height)")
     if normal is not None:
-        from bakery.normals.bakes import read_normals  # decodes, warns about and renormalizes non-unit vectors
+        from bakery.bakes.normals import read_normals  # decodes, warns about and renormalizes non-unit vectors
 
         normals, _ = read_normals(Path(normal), green)
     if exponent is not None:

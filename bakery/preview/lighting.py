@@ -216,3 +216,22 @@ def default_lighting():
     from bakery.samples import sky_panorama
 
     return lighting_from_panorama(sky_panorama(1024, sun_azimuth_deg=145.0))
+
+
+def choose_lighting(env: Path | None, *, specular: Path | None = None, diffuse: Path | None = None,
+              lut: Path | None = None):
+    """The lighting of a preview: baked files (``specular`` + ``diffuse`` [+ ``lut``]), a panorama ``env``, or
+    the built-in sky."""
+    from bakery.preview.lighting import default_lighting, lighting_from_baked, lighting_from_file
+
+    if specular is not None or diffuse is not None:
+        if env is not None:
+            raise BakeryError("give either a panorama (--env) or baked lighting (--specular, --diffuse), not both")
+        if specular is None or diffuse is None:
+            raise BakeryError("baked lighting needs both --specular (the KTX2 chain) and --diffuse (the SH JSON)")
+        return lighting_from_baked(specular, diffuse, lut)
+    if lut is not None:
+        raise BakeryError("--lut goes with baked lighting (--specular, --diffuse)")
+    if env is None:
+        return default_lighting()
+    return lighting_from_file(env)

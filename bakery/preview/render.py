@@ -644,7 +644,7 @@ def tonemap_reinhard(radiance: np.ndarray, *, exposure: float = 0.0, white: floa
 
 def display(radiance: np.ndarray, *, exposure: float = 0.0, white: float | None = None) -> np.ndarray:
     """Tone-mapped and sRGB-encoded (IEC 61966-2-1) values in [0, 1], float32, ready for an 8-bit file."""
-    from bakery.io.color import linear_to_srgb
+    from bakery.color import linear_to_srgb
 
     return linear_to_srgb(tonemap_reinhard(radiance, exposure=exposure, white=white))
 

@@ -2,7 +2,7 @@
 
 A sheet is an HTML page plus one or more PNG grids. Each map gets a card: a thumbnail of the map itself, a lit
 preview where the kind of map allows one (:mod:`bakery.preview.render`), its name, size, channels and bit
-depth, the kind :mod:`bakery.classify` sees in it, and the findings of :mod:`bakery.inspect` (warnings and
+bits, the kind :mod:`bakery.classify` sees in it, and the findings of :mod:`bakery.inspect` (warnings and
 errors stand out). The page needs no server and no network: thumbnails are plain PNG files in a folder beside
 it (``NAME_files/``), referenced by relative links, and the page carries its own styles.
 
@@ -48,7 +48,7 @@ class SheetEntry:
     name : str
         The map's path relative to the sheet's folder of maps (forward slashes).
     width, height, channels : int
-    depth : str
+    bits : str
         ``u8``, ``u16``, ``f16`` or ``f32`` (empty when the file could not be read).
     kind : str
         What :func:`bakery.classify.map_kind` sees (or ``"unreadable"``).
@@ -66,7 +66,7 @@ class SheetEntry:
     width: int = 0
     height: int = 0
     channels: int = 0
-    depth: str = ""
+    bits: str = ""
     kind: str = "unreadable"
     findings: list[Finding] = field(default_factory=list)
     thumbnail: np.ndarray | None = None
@@ -124,7 +124,7 @@ def _fit(img: np.ndarray, size: int) -> np.ndarray:
     return out.reshape(nh, nw, -1)
 
 
-def thumbnail(pixels: np.ndarray, kind: str, *, depth: str, size: int = 160) -> np.ndarray:
+def thumbnail(pixels: np.ndarray, kind: str, *, bits: str, size: int = 160) -> np.ndarray:
     """Display values (sRGB-encoded, [0, 1], float32, RGB) of a map fitted in a ``size`` box.
 
     Parameters
@@ -133,7 +133,7 @@ def thumbnail(pixels: np.ndarray, kind: str, *, depth: str, size: int = 160) -> 
         As read by :func:`bakery.io.read_image` with ``color="data"``.
     kind : str
         From :func:`bakery.classify.map_kind`.
-    depth : {"u8", "u16", "f16", "f32"}
+    bits : {"8", "16", "half", "float"}
     size : int
     """
     from bakery.preview.render import auto_exposure, display
@@ -141,7 +141,7 @@ def thumbnail(pixels: np.ndarray, kind: str, *, depth: str, size: int = 160) -> 
     px = np.nan_to_num(np.asarray(pixels, dtype=np.float32), nan=0.0, posinf=0.0, neginf=0.0)
     small = _fit(px, size)
     c = small.shape[2]
-    is_float = depth in ("f16", "f32")
+    is_float = bits in ("half", "float")
     if kind == "environment":
         rgb = small[..., :3] if c >= 3 else np.repeat(small[..., :1], 3, axis=2)
         return display(rgb, exposure=auto_exposure(rgb))
@@ -161,7 +161,7 @@ def thumbnail(pixels: np.ndarray, kind: str, *, depth: str, size: int = 160) -> 
 
             return show(rgb, exposure=auto_exposure(rgb))
         if is_float and kind == "color":
-            from bakery.io.color import linear_to_srgb
+            from bakery.color import linear_to_srgb
 
             rgb = linear_to_srgb(np.clip(rgb, 0, 1))
     return np.clip(rgb, 0, 1).astype(np.float32)
@@ -171,7 +171,7 @@ def _to_u8(img: np.ndarray) -> np.ndarray:
     return np.rint(np.clip(img, 0, 1) * 255).astype(np.uint8)
 
 
-#: A function that makes the lit preview of one map: (pixels, kind, depth, name) -> (image or None, note).
+#: A function that makes the lit preview of one map: (pixels, kind, bits, name) -> (image or None, note).
 PreviewFn = Callable[[np.ndarray, str, str, str], tuple[np.ndarray | None, str]]
 
 
@@ -181,17 +181,17 @@ HEIGHT_WORDS = ("height", "disp", "bump")
 EXPONENT_WORDS = ("exponent", "shin")
 
 
-def material_for(pixels: np.ndarray, kind: str, depth: str, name: str):
+def material_for(pixels: np.ndarray, kind: str, bits: str, name: str):
     """The material a map is previewed as, and a note saying how; ``(None, reason)`` when there is none.
 
     - normal maps: read as Y-up (bakery's and glTF's convention), so a Y-down map shows its inverted relief;
     - colour maps: the base colour (8/16-bit files decoded from sRGB, IEC 61966-2-1);
     - single-channel maps say what they hold by name only: ``rough`` -> roughness; ``height``, ``disp``,
-      ``bump`` -> normals baked in memory (:func:`bakery.normals.normal_from_height`, depth = width / 32 as
+      ``bump`` -> normals baked in memory (:func:`bakery.normals.normal_from_height`, bits = width / 32 as
       ``bakery normal`` assumes); float maps named ``exponent`` or ``shin`` -> roughness through
       :func:`bakery.roughness.roughness_from_exponent`.
     """
-    from bakery.io.color import srgb_to_linear
+    from bakery.color import srgb_to_linear
     from bakery.preview.render import Material
 
     px = np.asarray(pixels, dtype=np.float32)
@@ -203,7 +203,7 @@ def material_for(pixels: np.ndarray, kind: str, depth: str, name: str):
         return Material(normals=n.astype(np.float32), roughness=0.35), "lit: normal map read as Y-up"
     if kind == "color" and px.shape[2] >= 3:
         rgb = px[..., :3]
-        rgb = srgb_to_linear(rgb) if depth in ("u8", "u16") else np.clip(rgb, 0, None)
+        rgb = srgb_to_linear(rgb) if bits in ("8", "16") else np.clip(rgb, 0, None)
         return Material(base_color=np.minimum(rgb, 1), roughness=0.5), "lit: base colour"
     if kind in ("height", "data"):
         g = px[..., 0]
@@ -211,10 +211,10 @@ def material_for(pixels: np.ndarray, kind: str, depth: str, name: str):
             # a dark base colour so the specular reflection, where roughness shows, dominates
             return Material(roughness=g, base_color=(0.04, 0.04, 0.04)), "lit: roughness map (dark base)"
         if any(w in stem for w in HEIGHT_WORDS):
-            from bakery.normals.from_height import DEFAULT_DEPTH_RATIO, normal_from_height, strength_from_size
+            from bakery.normals.from_height import DEFAULT_RELIEF_RATIO, normal_from_height, strength_from_size
 
-            n = normal_from_height(g, strength=strength_from_size(g.shape, DEFAULT_DEPTH_RATIO, 1.0))
-            return Material(normals=n, roughness=0.35), "lit: normals baked from the heights (depth = width/32)"
+            n = normal_from_height(g, strength=strength_from_size(g.shape, DEFAULT_RELIEF_RATIO, 1.0))
+            return Material(normals=n, roughness=0.35), "lit: normals baked from the heights (bits = width/32)"
         if kind == "data" and any(w in stem for w in EXPONENT_WORDS) and g.min() >= 0:
             from bakery.roughness import roughness_from_exponent
 
@@ -230,7 +230,7 @@ def lit_previews(lighting, *, size: int = 160, supersample: int = 2) -> PreviewF
     in memory at a small size (face 64², five levels), with automatic exposure."""
     from bakery.preview.render import Material, preview_image
 
-    def fn(pixels: np.ndarray, kind: str, depth: str, name: str):
+    def fn(pixels: np.ndarray, kind: str, bits: str, name: str):
         if kind == "environment":
             from bakery.preview.lighting import lighting_from_panorama
 
@@ -241,7 +241,7 @@ def lit_previews(lighting, *, size: int = 160, supersample: int = 2) -> PreviewF
             ball = Material(roughness=0.15, metallic=1.0, base_color=(0.95, 0.95, 0.95))
             img, _ = preview_image(ball, own, size=size, views="ball", supersample=supersample, exposure=None)
             return img, "lit by itself: metal ball, roughness 0.15"
-        material, note = material_for(pixels, kind, depth, name)
+        material, note = material_for(pixels, kind, bits, name)
         if material is None:
             return None, note
         img, _ = preview_image(material, lighting, size=size, views="ball", supersample=supersample)
@@ -265,15 +265,15 @@ def make_entry(path: str | os.PathLike, root: str | os.PathLike | None = None, *
         return SheetEntry(name, findings=[Finding("unreadable", "error", msg, "fix or remove the file")],
                           preview_note="no preview: the file could not be read")
     px = img.pixels
-    kind, findings = inspect_pixels(px, depth=img.depth)
-    entry = SheetEntry(name, px.shape[1], px.shape[0], px.shape[2], img.depth, kind, findings,
-                       thumbnail(px, kind, depth=img.depth, size=thumb))
+    kind, findings = inspect_pixels(px, bits=img.bits)
+    entry = SheetEntry(name, px.shape[1], px.shape[0], px.shape[2], img.bits, kind, findings,
+                       thumbnail(px, kind, bits=img.bits, size=thumb))
     if preview is None:
         entry.preview_note = "previews were not requested"
     elif not np.all(np.isfinite(px)):
         entry.preview_note = "no preview: the map holds NaN or Inf"
     else:
-        entry.preview, entry.preview_note = preview(px, kind, img.depth, name)
+        entry.preview, entry.preview_note = preview(px, kind, img.bits, name)
     return entry
 
 
@@ -358,7 +358,7 @@ def sheet_html(entries: Sequence[SheetEntry], *, title: str, thumbs: Sequence[tu
         parts.append("</div>")
         parts.append(f'<div class="name">{esc(e.name)}</div>')
         if e.width:
-            parts.append(f'<div class="meta">{e.width}×{e.height}, {e.channels} channel(s), {esc(e.depth)}, '
+            parts.append(f'<div class="meta">{e.width}×{e.height}, {e.channels} channel(s), {esc(e.bits)}, '
                          f"{esc(e.kind)}</div>")
         if e.findings:
             parts.append("<ul>")
@@ -424,7 +424,7 @@ def sheet_grid(entries: Sequence[SheetEntry], *, thumb: int = 160, columns: int 
             ty = y0 + thumb + 14
             width = 2 * thumb + pad
             _text(canvas, e.name, x0, ty, (235, 235, 235), width)
-            meta = f"{e.width}x{e.height} {e.channels}ch {e.depth} {e.kind}" if e.width else e.kind
+            meta = f"{e.width}x{e.height} {e.channels}ch {e.bits} {e.kind}" if e.width else e.kind
             _text(canvas, meta, x0, ty + 14, (170, 170, 170), width)
             probs = e.problems
             if probs:
@@ -497,3 +497,49 @@ def write_sheet(entries: Sequence[SheetEntry], out_html: str | os.PathLike, *, t
     finally:
         shutil.rmtree(work, ignore_errors=True)
     return [folder, *grid_paths, out]
+
+
+def collect_maps(sources: list[Path], output: Path, *, recursive: bool = True) -> list[tuple[Path, Path]]:
+    """(map, folder its name is relative to) for every map in ``sources`` (folders and files), leaving out the
+    sheet's own thumbnails and grid pictures."""
+    import re
+
+    own_folder = sheet_paths(output, 1)[0]
+    own_grid = re.compile(re.escape(output.stem) + r"(-\d+)?\.png")
+
+    def own(p: Path) -> bool:
+        return p.parent.resolve() == output.parent.resolve() and own_grid.fullmatch(p.name) is not None
+
+    files: list[tuple[Path, Path]] = []
+    for src in sources:
+        if src.is_dir():
+            files += [(p, src) for p in find_maps(src, recursive=recursive, exclude=[own_folder]) if not own(p)]
+        elif src.is_file():
+            files.append((src, src.parent))
+        else:
+            raise BakeryError("no such file or folder", src)
+    if not files:
+        raise BakeryError("no maps found (looked for .png, .tif, .tiff, .exr, .hdr, .jpg)", sources[0])
+    return files
+
+
+def make_sheet(files: list[tuple[Path, Path]], output: Path, *, source: str = "", thumb: int = 160,
+               columns: int = 4, lit: bool = True, env: Path | None = None, title: str = "bakery contact sheet",
+               progress=None) -> list[Path]:
+    """The work of ``bakery sheet`` (also run after a batch): ``files`` holds (map, folder its card name is
+    relative to) pairs, see :func:`collect_maps`."""
+    from bakery.preview.lighting import choose_lighting
+
+    if output.suffix.lower() not in (".html", ".htm"):
+        raise BakeryError("output must end in .html or .htm", output)
+    fn = lit_previews(choose_lighting(env), size=thumb) if lit else None
+    many_roots = len({root for _, root in files}) > 1
+    entries = []
+    for i, (path, root) in enumerate(files):
+        e = make_entry(path, root, thumb=thumb, preview=fn)
+        if progress is not None:
+            progress((i + 1) / len(files), path.name)
+        if many_roots:
+            e.name = f"{root.name}/{e.name}"
+        entries.append(e)
+    return write_sheet(entries, output, title=title, source=source, columns=columns, thumb=thumb)

@@ -2,7 +2,7 @@
 
 - :mod:`bakery.roughness.convert`: exponent / gloss / smoothness <-> perceptual roughness, GGX alpha, Beckmann m.
 - :mod:`bakery.roughness.antialias`: roughness mip chains widened by the normal spread lost in mipmapping.
-- :mod:`bakery.roughness.bakes`: the ``roughness`` and ``antialias`` bakes (files in, files out).
+- :mod:`bakery.bakes.roughness`: the ``roughness`` and ``antialias`` bakes (files in, files out).
 """
 
 from bakery.roughness.antialias import roughness_mips

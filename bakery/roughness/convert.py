@@ -9,7 +9,7 @@ name            domain      meaning
 ==============  ==========  ======================================================================
 exponent        [0, inf]    specular exponent n of the source model (Blinn-Phong or Phong)
 gloss-linear    [0, 1]      n = lo + g (hi - lo)                       (``exponent_range=(lo, hi)``)
-gloss-exp       [0, 1]      n = base ** (g k)                         (``gloss_base``, ``gloss_scale``)
+gloss-exp       [0, 1]      n = lo (hi / lo) ** g                      (``exponent_range=(lo, hi)``)
 smoothness      [0, 1]      s = 1 - r, r the perceptual roughness
 roughness       [0, 1]      perceptual roughness r = sqrt(alpha) (Burley 2012)
 alpha           [0, 1]      GGX (Trowbridge-Reitz) width alpha
@@ -213,8 +213,6 @@ class _Plan:
     model: str
     rule: str
     exponent_range: tuple[float, float] | None
-    gloss_base: float | None
-    gloss_scale: float | None
 
     def decode(self, x: np.ndarray) -> tuple[str, np.ndarray]:
         """Stored values -> ("exponent", Blinn-Phong n) or (lobe, alpha)."""
@@ -227,7 +225,9 @@ class _Plan:
             n = x * one(hi - lo)
             n += one(lo)
         elif name == "gloss-exp":
-            n = np.exp2(x * one(self.gloss_scale * math.log2(self.gloss_base)))
+            lo, hi = self.exponent_range
+            n = np.exp2(x * one(math.log2(hi / lo)))
+            n *= one(lo)
         elif name == "smoothness":
             r = one(1.0) - x
             return "ggx", np.multiply(r, r, out=r)
@@ -254,9 +254,11 @@ class _Plan:
                 n -= one(lo)
                 n *= one(1.0 / (hi - lo))
                 return n
-            with np.errstate(divide="ignore"):  # gloss-exp
+            lo, hi = self.exponent_range  # gloss-exp
+            n *= one(1.0 / lo)
+            with np.errstate(divide="ignore"):
                 g = np.log2(n, out=n)
-            g *= one(1.0 / (self.gloss_scale * math.log2(self.gloss_base)))
+            g *= one(1.0 / math.log2(hi / lo))
             return g
         if kind != target.lobe:
             n = v if kind == "exponent" else self._exponent(v, kind)
@@ -293,30 +295,25 @@ class _Plan:
         out[...] = self.run(x)
 
 
-def _plan(source: str, target: str, model: str, rule: str, exponent_range, gloss_base, gloss_scale) -> _Plan:
+def _plan(source: str, target: str, model: str, rule: str, exponent_range) -> _Plan:
     _choice("source quantity", source, QUANTITIES)
     _choice("target quantity", target, QUANTITIES)
     _choice("model", model, MODELS)
     _choice("rule", rule, RULES)
     used = {source, target}
-    if "gloss-linear" in used:
+    for gloss in ("gloss-linear", "gloss-exp"):
+        if gloss not in used:
+            continue
         if exponent_range is None:
-            raise BakeryError("gloss-linear needs the exponent range it maps [0, 1] to: exponent_range=(lo, hi) "
-                              "(--exponent-range LO HI)")
+            raise BakeryError(f"{gloss} needs the exponent range it maps [0, 1] to: exponent_range=(lo, hi) "
+                              "(--exponent-range LO,HI)")
         lo, hi = (float(v) for v in exponent_range)
-        if not (math.isfinite(lo) and math.isfinite(hi) and 0.0 <= lo < hi):
-            raise BakeryError(f"exponent range must satisfy 0 <= lo < hi; got ({lo:g}, {hi:g})")
+        low_ok = lo > 0.0 if gloss == "gloss-exp" else lo >= 0.0
+        if not (math.isfinite(lo) and math.isfinite(hi) and low_ok and lo < hi):
+            rule_text = "0 < lo < hi" if gloss == "gloss-exp" else "0 <= lo < hi"
+            raise BakeryError(f"{gloss}: the exponent range must satisfy {rule_text}; got ({lo:g}, {hi:g})")
         exponent_range = (lo, hi)
-    if "gloss-exp" in used:
-        if gloss_base is None or gloss_scale is None:
-            raise BakeryError("gloss-exp (n = base ** (g * k)) needs both constants: gloss_base and gloss_scale "
-                              "(--gloss-base B --gloss-scale K)")
-        gloss_base, gloss_scale = float(gloss_base), float(gloss_scale)
-        if not (math.isfinite(gloss_base) and gloss_base > 1.0):
-            raise BakeryError(f"gloss base must be a number greater than 1; got {gloss_base:g}")
-        if not (math.isfinite(gloss_scale) and gloss_scale > 0.0):
-            raise BakeryError(f"gloss scale must be a positive number; got {gloss_scale:g}")
-    return _Plan(QUANTITIES[source], QUANTITIES[target], model, rule, exponent_range, gloss_base, gloss_scale)
+    return _Plan(QUANTITIES[source], QUANTITIES[target], model, rule, exponent_range)
 
 
 # ------------------------------------------------------------------------------------------------ checks
@@ -380,8 +377,6 @@ def convert_specular(
     model: str = "blinn-phong",
     rule: str = "peak",
     exponent_range: tuple[float, float] | None = None,
-    gloss_base: float | None = None,
-    gloss_scale: float | None = None,
     clamp: bool = False,
 ) -> np.ndarray:
     """Convert any stored highlight quantity into any other (see the module notes for the quantities).
@@ -398,9 +393,8 @@ def convert_specular(
     rule : {"peak", "width"}
         How an exponent lobe and a microfacet lobe are matched (peak heights or half-maximum angles).
     exponent_range : (lo, hi), optional
-        Needed when either side is ``gloss-linear``.
-    gloss_base, gloss_scale : float, optional
-        Needed when either side is ``gloss-exp`` (n = base ** (g * scale)).
+        The exponents gloss 0 and 1 stand for; needed when either side is ``gloss-linear`` (n = lo + g (hi - lo))
+        or ``gloss-exp`` (n = lo (hi / lo) ** g, lo > 0).
     clamp : bool
         Values outside the source's range (and NaN) raise :class:`BakeryError` with their count; with
         ``clamp=True`` they are clipped into range (NaN becomes the roughest value) with a warning instead.
@@ -417,7 +411,7 @@ def convert_specular(
     >>> convert_specular(np.array([8.0]), source="exponent", target="alpha").round(6)
     array([0.447214])
     """
-    plan = _plan(source, target, model, rule, exponent_range, gloss_base, gloss_scale)
+    plan = _plan(source, target, model, rule, exponent_range)
     x = _float_array(values, f"{source} values")
     shape = x.shape
     x = np.ascontiguousarray(x)
@@ -440,13 +434,11 @@ def convert_specular(
 def roughness_from_exponent(
     exponent,
     *,
-    encoding: str = "exponent",
+    source: str = "exponent",
     target: str = "roughness",
     model: str = "blinn-phong",
     rule: str = "peak",
     exponent_range: tuple[float, float] | None = None,
-    gloss_base: float | None = None,
-    gloss_scale: float | None = None,
     clamp: bool = False,
 ) -> np.ndarray:
     """Roughness from a specular-exponent (gloss) map.
@@ -454,8 +446,8 @@ def roughness_from_exponent(
     Parameters
     ----------
     exponent : array_like
-        The stored map: raw exponents in [0, inf] (``encoding="exponent"``), or gloss / smoothness in [0, 1].
-    encoding : {"exponent", "gloss-linear", "gloss-exp", "smoothness"}
+        The stored map: raw exponents in [0, inf] (``source="exponent"``), or gloss / smoothness in [0, 1].
+    source : {"exponent", "gloss-linear", "gloss-exp", "smoothness"}
         How the map stores the exponent (see :func:`convert_specular` for the constants each needs).
     target : {"roughness", "alpha", "beckmann"}
         Perceptual roughness r (default), GGX alpha = r^2, or Beckmann m.
@@ -464,7 +456,7 @@ def roughness_from_exponent(
     rule : {"peak", "width"}
         ``peak`` (default): alpha = sqrt(2/(n + 2)) (Walter et al. 2007), the lobes' peak heights agree.
         ``width``: the half-maximum angles agree (closed form, see the module notes).
-    exponent_range, gloss_base, gloss_scale, clamp
+    exponent_range, clamp
         As in :func:`convert_specular`.
 
     Returns
@@ -478,23 +470,20 @@ def roughness_from_exponent(
     >>> roughness_from_exponent(np.array([1.0, 32.0, 8192.0], np.float32), target="roughness").round(6)
     array([0.903602, 0.492479, 0.124992], dtype=float32)
     """
-    _choice("encoding", encoding, ("exponent", "gloss-linear", "gloss-exp", "smoothness"))
+    _choice("source", source, ("exponent", "gloss-linear", "gloss-exp", "smoothness"))
     _choice("target", target, ("roughness", "alpha", "beckmann"))
-    return convert_specular(exponent, source=encoding, target=target, model=model, rule=rule,
-                            exponent_range=exponent_range, gloss_base=gloss_base, gloss_scale=gloss_scale,
-                            clamp=clamp)
+    return convert_specular(exponent, source=source, target=target, model=model, rule=rule,
+                            exponent_range=exponent_range, clamp=clamp)
 
 
 def exponent_from_roughness(
     roughness,
     *,
-    kind: str = "roughness",
-    encoding: str = "exponent",
+    source: str = "roughness",
+    target: str = "exponent",
     model: str = "blinn-phong",
     rule: str = "peak",
     exponent_range: tuple[float, float] | None = None,
-    gloss_base: float | None = None,
-    gloss_scale: float | None = None,
     clamp: bool = False,
 ) -> np.ndarray:
     """The inverse of :func:`roughness_from_exponent`: specular exponents (or gloss) from roughness.
@@ -502,23 +491,22 @@ def exponent_from_roughness(
     Parameters
     ----------
     roughness : array_like
-        Values of ``kind``.
-    kind : {"roughness", "alpha", "beckmann", "smoothness"}
+        Values of ``source``.
+    source : {"roughness", "alpha", "beckmann", "smoothness"}
         What the input holds: perceptual roughness r (default), GGX alpha, Beckmann m, or smoothness 1 - r.
-    encoding : {"exponent", "gloss-linear", "gloss-exp"}
+    target : {"exponent", "gloss-linear", "gloss-exp"}
         What to return: raw exponents (inf for a perfect mirror, 0 where the lobe is too wide for the rule),
         or gloss in the given encoding (not clipped to [0, 1]).
-    model, rule, exponent_range, gloss_base, gloss_scale, clamp
+    model, rule, exponent_range, clamp
         As in :func:`roughness_from_exponent`.
 
     Examples
     --------
     >>> import numpy as np
-    >>> exponent_from_roughness(np.array([0.668740], np.float32), kind="roughness").round(3)
+    >>> exponent_from_roughness(np.array([0.668740], np.float32), source="roughness").round(3)
     array([8.], dtype=float32)
     """
-    _choice("kind", kind, ("roughness", "alpha", "beckmann", "smoothness"))
-    _choice("encoding", encoding, ("exponent", "gloss-linear", "gloss-exp"))
-    return convert_specular(roughness, source=kind, target=encoding, model=model, rule=rule,
-                            exponent_range=exponent_range, gloss_base=gloss_base, gloss_scale=gloss_scale,
-                            clamp=clamp)
+    _choice("source", source, ("roughness", "alpha", "beckmann", "smoothness"))
+    _choice("target", target, ("exponent", "gloss-linear", "gloss-exp"))
+    return convert_specular(roughness, source=source, target=target, model=model, rule=rule,
+                            exponent_range=exponent_range, clamp=clamp)

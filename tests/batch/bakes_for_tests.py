@@ -11,19 +11,20 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from bakery.bakes import Bake, params_to_dict, register
+from bakery.bakes.params import Params, param
 
 
 @dataclass(frozen=True)
-class InvertParams:
+class InvertParams(Params):
     """``out = gain * (1 - in)``; ``delay`` seconds of sleep make jobs slow enough to interrupt; a non-zero
     ``crash`` ends the worker process abruptly with that exit status (as a segfault or the OOM killer would)."""
 
-    gain: float = 1.0
-    delay: float = 0.0
-    crash: int = 0
+    gain: float = param(1.0, "Gain.")
+    delay: float = param(0.0, "Seconds of sleep.", low=0.0)
+    crash: int = param(0, "Exit status of an abrupt end (0: none).")
 
 
-def _invert(inputs: dict[str, Path], output: Path, params: InvertParams) -> list[Path]:
+def _invert(inputs: dict[str, Path], output: Path, params: InvertParams, progress=None) -> list[Path]:
     from bakery.io import read_image, write_image, write_manifest
 
     img = read_image(inputs["source"])
@@ -31,19 +32,19 @@ def _invert(inputs: dict[str, Path], output: Path, params: InvertParams) -> list
         time.sleep(params.delay)
     if params.crash:
         os._exit(params.crash)
-    write_image(output, params.gain * (1.0 - img.pixels), depth=img.depth if img.depth != "f32" else None)
+    write_image(output, params.gain * (1.0 - img.pixels), bits=img.bits if img.bits != "float" else None)
     m = write_manifest(output, bake="test-invert", inputs=inputs, params=params_to_dict(params), outputs=[output])
     return [output, m]
 
 
 @dataclass(frozen=True)
-class MixParams:
+class MixParams(Params):
     """``out = (1 - w) * base + w * detail``, times ``mask`` when given."""
 
-    weight: float = 0.5
+    weight: float = param(0.5, "Weight of the detail.")
 
 
-def _mix(inputs: dict[str, Path], output: Path, params: MixParams) -> list[Path]:
+def _mix(inputs: dict[str, Path], output: Path, params: MixParams, progress=None) -> list[Path]:
     from bakery.io import read_image, write_image, write_manifest
 
     base = read_image(inputs["base"])
@@ -51,42 +52,53 @@ def _mix(inputs: dict[str, Path], output: Path, params: MixParams) -> list[Path]
     out = (1 - params.weight) * base.pixels + params.weight * detail
     if "mask" in inputs:
         out = out * read_image(inputs["mask"]).pixels
-    write_image(output, out, depth=base.depth)
+    write_image(output, out, bits=base.bits)
     m = write_manifest(output, bake="test-mix", inputs=inputs, params=params_to_dict(params), outputs=[output])
     return [output, m]
 
 
-INVERT = register(Bake("test-invert", "1 - x (batch tests)", ("source",), InvertParams, _invert))
+def _image_and_manifest(inputs: dict[str, Path], output: Path, params) -> list[Path]:
+    from bakery.io.manifest import manifest_path
+
+    return [output, manifest_path(output)]
+
+
+def _just(inputs: dict[str, Path], output: Path, params) -> list[Path]:
+    return [output]
+
+
+INVERT = register(Bake("test-invert", "1 - x (batch tests)", ("source",), InvertParams, _image_and_manifest,
+                        _invert))
 MIX = register(Bake("test-mix", "weighted mix of two maps (batch tests)", ("base", "detail", "mask?"), MixParams,
-                    _mix))
+                    _image_and_manifest, _mix))
 
 
 @dataclass(frozen=True)
-class RampParams:
+class RampParams(Params):
     """A horizontal ramp of ``size`` texels from 0 to 1."""
 
-    size: int = 8
+    size: int = param(8, "Texels.", low=2)
 
 
-def _ramp(inputs: dict[str, Path], output: Path, params: RampParams) -> list[Path]:
+def _ramp(inputs: dict[str, Path], output: Path, params: RampParams, progress=None) -> list[Path]:
     import numpy as np
 
     from bakery.io import write_image, write_manifest
 
-    write_image(output, np.tile(np.linspace(0, 1, params.size, dtype=np.float32), (2, 1)), depth="u16")
+    write_image(output, np.tile(np.linspace(0, 1, params.size, dtype=np.float32), (2, 1)), bits="16")
     m = write_manifest(output, bake="test-ramp", inputs={}, params=params_to_dict(params), outputs=[output])
     return [output, m]
 
 
-RAMP = register(Bake("test-ramp", "a ramp, no inputs (batch tests)", (), RampParams, _ramp))
+RAMP = register(Bake("test-ramp", "a ramp, no inputs (batch tests)", (), RampParams, _image_and_manifest, _ramp))
 
 
 @dataclass(frozen=True)
-class ProbeParams:
+class ProbeParams(Params):
     """No parameters: the ``test-probe`` bake records the thread settings of the process that runs it."""
 
 
-def _probe(inputs: dict[str, Path], output: Path, params: ProbeParams) -> list[Path]:
+def _probe(inputs: dict[str, Path], output: Path, params: ProbeParams, progress=None) -> list[Path]:
     import cv2
     import OpenEXR
 
@@ -99,4 +111,4 @@ def _probe(inputs: dict[str, Path], output: Path, params: ProbeParams) -> list[P
     return [write_json(output, data)]
 
 
-PROBE = register(Bake("test-probe", "thread settings of a worker (batch tests)", (), ProbeParams, _probe))
+PROBE = register(Bake("test-probe", "thread settings of a worker (batch tests)", (), ProbeParams, _just, _probe))

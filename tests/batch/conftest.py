@@ -44,10 +44,10 @@ def write_library(root: Path, materials=MATERIALS, size: int = 16) -> dict[str, 
         name = Path(m).name
         rng = np.random.default_rng(100 + i)
         files[f"{name}_height"] = write_image(folder / f"{name}_height.png",
-                                              rng.random((size, size), dtype=np.float32), depth="u16")
+                                              rng.random((size, size), dtype=np.float32), bits="16")
         if name != "metal":
             files[f"{name}_detail"] = write_image(folder / f"{name}_detail.png",
-                                                  rng.random((size, size), dtype=np.float32), depth="u16")
+                                                  rng.random((size, size), dtype=np.float32), bits="16")
     return files
 
 

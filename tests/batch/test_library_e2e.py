@@ -21,31 +21,33 @@ from tests.batch.conftest import outputs
 ROOT = Path(__file__).resolve().parents[2]
 
 
+COMMANDS = {"normal": ["normal"], "roughness": ["roughness"], "blend": ["blend"], "antialias": ["antialias"],
+            "env-convert": ["env", "convert"], "env-diffuse": ["env", "diffuse"], "env-specular": ["env", "specular"],
+            "env-lut": ["env", "lut"]}
+
+
 def _cli_args(job, src: Path, out: Path) -> list[str]:
-    """The command line that makes the same output as one batch job of samples/library.toml."""
-    i = {role: str(src / v["path"]) for role, v in job.inputs.items()}
-    o = str(out / job.output)
-    p = job.params
-    if job.bake == "normal":
-        return ["normal", i["height"], "-o", o, "--strength", str(p["strength"]), "--kernel", p["kernel"]]
-    if job.bake == "roughness":
-        bits = {"u8": "8", "u16": "16", "f16": "half", "f32": "float"}[p["depth"]]
-        return ["roughness", i["map"], "-o", o, "--bits", bits]
-    if job.bake == "blend":
-        return ["blend", i["base"], i["detail"], "-o", o, "--detail-strength", str(p["detail_strength"])]
-    if job.bake == "antialias":
-        if "roughness" in i:
-            return ["antialias", i["normal"], i["roughness"], "-o", o]
-        return ["antialias", i["normal"], "-o", o, "--roughness", str(p["roughness"])]
-    if job.bake == "env-convert":
-        return ["env", "convert", i["source"], "-o", o, "--size", str(p["size"])]
-    if job.bake == "env-diffuse":
-        return ["env", "diffuse", i["source"], "-o", o, "--size", str(p["size"]), "--method", p["method"]]
-    if job.bake == "env-specular":
-        return ["env", "specular", i["env"], "-o", o, "--size", str(p["size"])]
-    if job.bake == "env-lut":
-        return ["env", "lut", "-o", o, "--size", str(p["size"])]
-    raise AssertionError(f"no command line for {job.bake}")
+    """The command line that makes the same output as one batch job of samples/library.toml: the job's
+    parameters, each as the option of the same name (one declaration per parameter)."""
+    from bakery.bakes import get_bake
+    from bakery.bakes.params import specs
+
+    bake = get_bake(job.bake)
+    args = list(COMMANDS[job.bake])
+    args += [str(src / job.inputs[r]["path"]) for r in bake.required_inputs]
+    args += [str(src / job.inputs[r]["path"]) for r in bake.optional_inputs if r in job.inputs]
+    args += ["-o", str(out / job.output)]
+    for spec in specs(bake.params):
+        v = job.params[spec.name]
+        if v == spec.default or (v is None and spec.default is None):
+            continue
+        if isinstance(v, bool):
+            args.append(f"--{spec.option}" if v else f"--no-{spec.option}")
+        elif isinstance(v, list):
+            args += [f"--{spec.option}", ",".join(map(str, v))]
+        else:
+            args += [f"--{spec.option}", str(v)]
+    return args
 
 
 def test_sample_library_batch_equals_the_cli(tmp_path):
@@ -72,7 +74,7 @@ def test_sample_library_batch_equals_the_cli(tmp_path):
     assert written == set(got)
     for job in plan.jobs:
         stem = job.output.rsplit(".", 1)[0]
-        assert job.output + ".json" in got
+        assert job.output.rsplit(".", 1)[0] + ".bakery.json" in got
         assert job.output in got or any(k.startswith(stem + ".mip") for k in got)
     # byte-identical to the bakes run one by one from the command line
     cli_out = tmp_path / "cli"
@@ -88,7 +90,7 @@ def test_sample_library_batch_equals_the_cli(tmp_path):
     src = tmp_path / "library" / "stone" / "cobble_height.png"
     from bakery.io import read_image
 
-    write_image(src, 1.0 - read_image(src).pixels, depth="u16")
+    write_image(src, 1.0 - read_image(src).pixels, bits="16")
     rep = run(recipe, jobs=1)
     assert [j.output for j in rep.jobs if j.status == "ran"] == ["stone/cobble_normal.png"]
     # change one rule parameter: only that rule's jobs

@@ -36,8 +36,8 @@ def test_library_files(tmp_path):
     assert "mosaic_normal" in files and "mosaic_roughness" not in files
     n = read_image(files["tile_normal"]).pixels * 2 - 1
     assert np.allclose(np.linalg.norm(n, axis=-1), 1, atol=0.02)  # unit vectors up to 8-bit rounding
-    assert read_image(files["oak_height"]).depth == "u16"
-    assert read_image(files["oak_exponent"]).depth == "f16"
+    assert read_image(files["oak_height"]).bits == "16"
+    assert read_image(files["oak_exponent"]).bits == "half"
     sky = read_image(files["sky"])
     assert sky.pixels.shape == (32, 64, 3) and sky.pixels.max() > 100
 

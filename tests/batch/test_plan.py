@@ -68,8 +68,7 @@ def test_parameter_precedence(library):
     # a folder file is never a source, and its own mistakes name it
     assert all("bakery-folder" not in rel for j in plan.jobs for rel in j.inputs.values())
     (lib / "wood" / "bakery-folder.toml").write_text("[rule.inv]\ngain = 'high'\n")
-    with pytest.raises(BakeryError, match=r"lib/wood/bakery-folder.toml: \[rule.inv\]: parameter 'gain': "
-                                          "expected a number"):
+    with pytest.raises(BakeryError, match=r"lib/wood/bakery-folder.toml: \[rule.inv\]: gain must be a number"):
         _plan(library)
     (lib / "wood" / "bakery-folder.toml").write_text("[rule.nope]\ngain = 1\n")
     with pytest.raises(BakeryError, match=r"\[rule.nope\]: the recipe has no rule 'nope'; its rules are: inv, mix"):

@@ -71,7 +71,7 @@ def _recipe(tmp_path, text):
 
 
 @pytest.mark.parametrize("change,message", [
-    (("gain = 0.9", "gain = 'x'"), r"\[defaults.test-invert\]: parameter 'gain': expected a number"),
+    (("gain = 0.9", "gain = 'x'"), r"\[defaults.test-invert\]: gain must be a number"),
     (("[defaults.test-invert]", "[defaults.nope]"), r"\[defaults.nope\]: unknown bake 'nope'"),
     (('bake = "test-invert"', 'bake = "nope"'), r"rule 'inv': key 'bake': unknown bake 'nope'"),
     (('output = "{dir}/{m}_inv.png"', 'output = "../{m}_inv.png"'), r"rule 'inv': key 'output': .*'\.\.'"),

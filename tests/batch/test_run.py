@@ -32,7 +32,7 @@ def test_batch_equals_one_by_one_and_is_incremental(library, tmp_path, monkeypat
     got = outputs(out)
     # the plan's outputs (plus their manifests) are exactly the files written
     planned = {j.output for j in rep.jobs if j.status == "ran"}
-    assert set(got) == planned | {p + ".json" for p in planned}
+    assert set(got) == planned | {p.rsplit(".", 1)[0] + ".bakery.json" for p in planned}
     # byte-identical to the same bakes called one at a time (what the command line calls)
     lib, ref = tmp_path / "lib", tmp_path / "ref"
     for job in rep.jobs:
@@ -46,9 +46,9 @@ def test_batch_equals_one_by_one_and_is_incremental(library, tmp_path, monkeypat
     data = json.loads((out / ".bakery" / "report.json").read_text())
     j0 = data["jobs"][1]
     assert j0["inputs"]["source"]["digest"].startswith("sha256:") and j0["seconds"] > 0
-    assert j0["outputs"] == ["stone/stone_inv.png", "stone/stone_inv.png.json"]
+    assert j0["outputs"] == ["stone/stone_inv.bakery.json", "stone/stone_inv.png"]
     assert data["counts"] == {"ran": 7, "skipped": 1, "failed": 0, "planned": 0}
-    assert "seconds" not in (out / "stone/stone_inv.png.json").read_text()
+    assert "seconds" not in (out / "stone/stone_inv.bakery.json").read_text()
 
     # no change: nothing runs
     rep = run(library, jobs=1)
@@ -59,7 +59,7 @@ def test_batch_equals_one_by_one_and_is_incremental(library, tmp_path, monkeypat
     os.utime(src, ns=(1, 1))
     assert run(library, jobs=1).ran == 0
     # touch one source: only its jobs run
-    write_image(src, np.full((16, 16), 0.25, np.float32), depth="u16")
+    write_image(src, np.full((16, 16), 0.25, np.float32), bits="16")
     rep = run(library, jobs=1)
     ran = sorted(j.output for j in rep.jobs if j.status == "ran")
     assert ran == ["stone/stone_inv.png", "stone/stone_mix.png"]
@@ -218,7 +218,7 @@ def test_report_carries_the_inspect_findings_of_the_outputs(library, tmp_path):
     # a height map whose output is not a power of two in size: inspect says so (an info finding)
     (tmp_path / "lib" / "odd").mkdir()
     write_image(tmp_path / "lib" / "odd" / "odd_height.png",
-                np.random.default_rng(5).random((24, 40), dtype=np.float32), depth="u16")
+                np.random.default_rng(5).random((24, 40), dtype=np.float32), bits="16")
     rep = run(library, jobs=1)
     out = tmp_path / "out"
     seen = 0
@@ -229,7 +229,7 @@ def test_report_carries_the_inspect_findings_of_the_outputs(library, tmp_path):
         for rel in job.outputs:
             if rel.endswith(".png"):
                 img = read_image(out / rel)
-                kind, found = inspect_pixels(img.pixels, depth=img.depth)
+                kind, found = inspect_pixels(img.pixels, bits=img.bits)
                 expected += [{"file": rel, "kind": kind, **f.as_dict()} for f in found]
         assert job.findings == expected
         seen += len(expected)

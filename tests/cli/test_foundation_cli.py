@@ -35,7 +35,7 @@ def test_each_help(cmd):
 
 def test_info_describes_a_map(tmp_path):
     h = np.linspace(0, 1, 64 * 32, dtype=np.float32).reshape(32, 64)
-    path = write_image(tmp_path / "h.png", h, depth="u16")
+    path = write_image(tmp_path / "h.png", h, bits="16")
     r = runner.invoke(app, ["info", str(path)])
     assert r.exit_code == 0, r.output
     assert "PNG" in r.output and "64 x 32" in r.output and "16-bit integer" in r.output
@@ -46,7 +46,7 @@ def test_info_counts_nan_and_inf(tmp_path):
     d = np.ones((4, 8, 3), np.float32)
     d[0, 0] = np.nan
     d[1, 1, 0] = np.inf
-    path = write_image(tmp_path / "bad.exr", d, depth="f32")
+    path = write_image(tmp_path / "bad.exr", d, bits="float")
     r = runner.invoke(app, ["info", str(path)])
     assert r.exit_code == 0 and "NaN: 3  Inf: 1" in r.output
 

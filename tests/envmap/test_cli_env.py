@@ -26,7 +26,7 @@ def pano(tmp_path):
     d = S.equirect_directions(128, 64, dtype=np.float64)
     img = np.stack([2 + d[..., 0], 2 + d[..., 1], 2 + d[..., 2]], -1).astype(np.float32)
     img[20, 70] = 1.0e5  # a small sun, above the half-float range
-    return write_image(tmp_path / "pano.exr", img, depth="f32")
+    return write_image(tmp_path / "pano.exr", img, bits="float")
 
 
 @pytest.mark.parametrize("args", [["env", "--help"], ["env", "convert", "--help"],
@@ -39,12 +39,12 @@ def test_help(args):
 def test_convert_through_every_layout(tmp_path, pano):
     steps = [
         (pano, tmp_path / "a_{face}.exr", []),
-        (tmp_path / "a_{face}.exr", tmp_path / "b.exr", ["--layout", "hcross"]),
-        (tmp_path / "b.exr", tmp_path / "c.exr", ["--layout", "vcross", "--bits", "float"]),
-        (tmp_path / "c.exr", tmp_path / "d.tif", ["--layout", "strip"]),
-        (tmp_path / "d.tif", tmp_path / "e.exr", ["--layout", "column", "--bits", "float"]),
-        (tmp_path / "e.exr", tmp_path / "f.ktx2", ["--ktx-format", "rgba32f"]),
-        (tmp_path / "f.ktx2", tmp_path / "g.exr", ["--layout", "equirect", "--width", "128", "--bits",
+        (tmp_path / "a_{face}.exr", tmp_path / "b.exr", ["--output-layout", "cross-wide"]),
+        (tmp_path / "b.exr", tmp_path / "c.exr", ["--output-layout", "cross-tall", "--bits", "float"]),
+        (tmp_path / "c.exr", tmp_path / "d.tif", ["--output-layout", "row"]),
+        (tmp_path / "d.tif", tmp_path / "e.exr", ["--output-layout", "stack", "--bits", "float"]),
+        (tmp_path / "e.exr", tmp_path / "f.ktx2", ["--ktx2-format", "rgba32f"]),
+        (tmp_path / "f.ktx2", tmp_path / "g.exr", ["--output-layout", "equirect", "--width", "128", "--bits",
                                                    "float"]),
     ]
     for src, dst, extra in steps:
@@ -59,14 +59,14 @@ def test_convert_through_every_layout(tmp_path, pano):
     smooth[14:28, 62:78] = False  # around the sun, which spreads over its neighbours
     rel = np.abs(back - orig) / orig
     assert rel[smooth].max() < 0.03  # half-float faces and two resamplings on a 32-texel cube
-    man = json.loads((tmp_path / "f.ktx2.json").read_text())
+    man = json.loads((tmp_path / "f.bakery.json").read_text())
     assert man["bake"] == "env-convert" and man["output"]["levels"] == 6
-    assert json.loads((tmp_path / "a_cube.exr.json").read_text())["outputs"][0] == "a_px.exr"
+    assert json.loads((tmp_path / "a_cube.bakery.json").read_text())["outputs"][0] == "a_x+.exr"
 
 
 def test_convert_is_deterministic(tmp_path, pano):
     for name in ("x.ktx2", "y.ktx2"):
-        assert run("env", "convert", pano, "-o", tmp_path / name, "--size", "16").exit_code == 0
+        assert run("env", "convert", pano, "-o", tmp_path / name, "--face-size", "16").exit_code == 0
     assert (tmp_path / "x.ktx2").read_bytes() == (tmp_path / "y.ktx2").read_bytes()
 
 
@@ -80,7 +80,7 @@ def test_half_float_range_is_clamped_with_a_count(tmp_path, pano):
 
 
 def test_rotate_and_exposure(tmp_path, pano):
-    r = run("env", "convert", pano, "-o", tmp_path / "r.exr", "--rotate", "90", "--exposure", "1", "--bits",
+    r = run("env", "convert", pano, "-o", tmp_path / "r.exr", "--rotation", "90", "--exposure", "1", "--bits",
             "float")
     assert r.exit_code == 0
     out = read_image(tmp_path / "r.exr").pixels
@@ -88,22 +88,22 @@ def test_rotate_and_exposure(tmp_path, pano):
 
 
 def test_diffuse_outputs(tmp_path, pano):
-    r = run("env", "diffuse", pano, "-o", tmp_path / "irr.json", "--size", "8")
+    r = run("env", "diffuse", pano, "-o", tmp_path / "irr.json", "--face-size", "8")
     assert r.exit_code == 0, r.output
     data = json.loads((tmp_path / "irr.json").read_text())
     assert len(data["irradiance_sh"]) == 9 and len(data["irradiance_sh"][0]) == 3
     np.testing.assert_allclose(np.array(data["reflected_sh"]) * np.pi, data["irradiance_sh"])
     tex = read_ktx2(tmp_path / "irr.ktx2")
     assert tex.cubemap and tex.width == 8
-    assert (tmp_path / "irr_pz.exr").exists() and (tmp_path / "irr.json.json").exists()
-    r = run("env", "diffuse", pano, "-o", tmp_path / "ex.json", "--size", "8", "--method", "exact",
+    assert (tmp_path / "irr.z+.exr").exists() and (tmp_path / "irr.bakery.json").exists()
+    r = run("env", "diffuse", pano, "-o", tmp_path / "ex.json", "--face-size", "8", "--method", "exact",
             "--units", "irradiance")
     assert r.exit_code == 0, r.output
     assert read_ktx2(tmp_path / "ex.ktx2").levels[0].min() >= 0
 
 
 def test_info_on_ktx2(tmp_path, pano):
-    run("env", "convert", pano, "-o", tmp_path / "c.ktx2", "--size", "8")
+    run("env", "convert", pano, "-o", tmp_path / "c.ktx2", "--face-size", "8")
     r = run("info", tmp_path / "c.ktx2")
     assert r.exit_code == 0
     for text in ("KTX2", "cubemap", "R16G16B16A16_SFLOAT (97)", "8 x 8 per face", "levels:   4"):
@@ -122,11 +122,11 @@ def test_bad_aspect(tmp_path):
 
 
 def test_faces_of_different_sizes(tmp_path):
-    for i, tok in enumerate(("px", "nx", "py", "ny", "pz", "nz")):
+    for i, tok in enumerate(("x+", "x-", "y+", "y-", "z+", "z-")):
         n = 8 if i != 3 else 16
         write_image(tmp_path / f"f_{tok}.exr", np.ones((n, n, 3), np.float32))
     _fails(run("env", "convert", tmp_path / "f_{face}.exr", "-o", tmp_path / "o.exr"),
-           "f_ny.exr: faces differ")
+           "f_y-.exr: faces differ")
     _fails(run("env", "convert", tmp_path / "g_{face}.exr", "-o", tmp_path / "o.exr"), "file not found")
 
 
@@ -134,7 +134,7 @@ def test_nan_and_negative_radiance(tmp_path):
     img = np.ones((32, 64, 3), np.float32)
     img[3, 4, 1] = np.nan
     img[5, 6, 0] = -2
-    p = write_image(tmp_path / "bad.exr", img, depth="f32")
+    p = write_image(tmp_path / "bad.exr", img, bits="float")
     _fails(run("env", "convert", p, "-o", tmp_path / "o.exr"), "1 NaN/Inf sample(s) and 1 negative")
     assert not (tmp_path / "o.exr").exists()
     r = run("env", "convert", p, "-o", tmp_path / "o.exr", "--repair")
@@ -142,7 +142,7 @@ def test_nan_and_negative_radiance(tmp_path):
 
 
 def test_truncated_ktx2(tmp_path, pano):
-    run("env", "convert", pano, "-o", tmp_path / "c.ktx2", "--size", "8")
+    run("env", "convert", pano, "-o", tmp_path / "c.ktx2", "--face-size", "8")
     data = (tmp_path / "c.ktx2").read_bytes()
     (tmp_path / "t.ktx2").write_bytes(data[: len(data) // 2])
     _fails(run("env", "convert", tmp_path / "t.ktx2", "-o", tmp_path / "o.exr"),
@@ -153,16 +153,17 @@ def test_truncated_ktx2(tmp_path, pano):
 def test_output_problems(tmp_path, pano):
     _fails(run("env", "convert", pano, "-o", tmp_path / "nope" / "o.exr"), "output folder does not exist")
     _fails(run("env", "convert", pano, "-o", pano), "output path is also an input")
-    _fails(run("env", "convert", pano, "-o", tmp_path / "o.exr", "--ktx-format", "bc7"),
+    _fails(run("env", "convert", pano, "-o", tmp_path / "o.exr", "--ktx2-format", "bc7"),
            "unknown KTX2 format")
     _fails(run("env", "diffuse", pano, "-o", tmp_path / "o.exr"), "must be a .json file")
     _fails(run("env", "convert", pano, "-o", tmp_path / "o.exr", "--width", "33"), "width must be even")
-    _fails(run("env", "convert", pano, "-o", tmp_path / "o.ktx2", "--width", "64"), "use --size")
-    _fails(run("env", "convert", pano, "-o", tmp_path / "o.exr", "--size", "64"), "use --width")
+    _fails(run("env", "convert", pano, "-o", tmp_path / "o.ktx2", "--width", "64"), "use --face-size")
+    _fails(run("env", "convert", pano, "-o", tmp_path / "o.exr", "--face-size", "64"), "use --width")
 
 
 def test_panorama_as_2d_ktx2_with_mips(tmp_path, pano):
-    r = run("env", "convert", pano, "-o", tmp_path / "p.ktx2", "--layout", "equirect", "--ktx-format", "rgba32f")
+    r = run("env", "convert", pano, "-o", tmp_path / "p.ktx2", "--output-layout", "equirect",
+            "--ktx2-format", "rgba32f")
     assert r.exit_code == 0, r.output
     tex = read_ktx2(tmp_path / "p.ktx2")
     assert not tex.cubemap and [lv.shape[:2] for lv in tex.levels][:3] == [(64, 128), (32, 64), (16, 32)]

@@ -1,4 +1,4 @@
-"""Cube layouts inside single images (bakery.envmap.layouts): detection, split/assemble, seamless joins.
+"""Cube layouts inside single images (bakery.io.layouts): detection, split/assemble, seamless joins.
 
 Orientation: the Vulkan cube-map face selection table with bakery's handedness flip (bakery.sphere); the
 cross arrangement is bakery's own, documented in docs/envmaps.md.
@@ -8,12 +8,12 @@ import numpy as np
 import pytest
 
 from bakery import sphere as S
-from bakery.envmap import layouts as L
 from bakery.errors import BakeryError
+from bakery.io import layouts as L
 
 
-@pytest.mark.parametrize("w, h, name", [(512, 256, "equirect"), (256, 192, "hcross"), (192, 256, "vcross"),
-                                        (384, 64, "strip"), (64, 384, "column")])
+@pytest.mark.parametrize("w, h, name", [(512, 256, "equirect"), (256, 192, "cross-wide"), (192, 256, "cross-tall"),
+                                        (384, 64, "row"), (64, 384, "stack")])
 def test_detect_layout(w, h, name):
     assert L.detect_layout(w, h) == name
 
@@ -35,10 +35,10 @@ def test_split_assemble_round_trip(layout):
 
 def test_wrong_cross_size_is_refused():
     with pytest.raises(BakeryError, match="4N x 3N"):
-        L.split(np.zeros((30, 41, 3), np.float32), "hcross", where="x.exr")
+        L.split(np.zeros((30, 41, 3), np.float32), "cross-wide", where="x.exr")
 
 
-@pytest.mark.parametrize("layout", ["hcross", "vcross"])
+@pytest.mark.parametrize("layout", ["cross-wide", "cross-tall"])
 def test_crosses_join_without_seams(layout):
     # a smooth field sampled at texel centres: across every edge shared inside the cross, neighbouring
     # pixels differ about as much as neighbours inside a face (no jumps, no flipped faces)
@@ -58,5 +58,5 @@ def test_crosses_join_without_seams(layout):
 def test_vcross_back_face_is_turned():
     faces = np.zeros((6, 4, 4, 1), np.float32)
     faces[5, 0, 0] = 1  # top-left texel of -Z
-    img = L.assemble(faces, "vcross")
+    img = L.assemble(faces, "cross-tall")
     assert img[15, 7, 0] == 1  # ends bottom-right of its cell (rows 12..15, columns 4..7)

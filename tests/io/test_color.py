@@ -3,7 +3,7 @@
 
 import numpy as np
 
-from bakery.io.color import linear_to_srgb, srgb_to_linear
+from bakery.color import linear_to_srgb, srgb_to_linear
 
 
 def test_worked_values():

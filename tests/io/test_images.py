@@ -21,9 +21,9 @@ from bakery.io.images import quantize
 RNG = np.random.default_rng(1234)
 
 
-def _ints(shape, depth):
-    top = 255 if depth == "u8" else 65535
-    return RNG.integers(0, top + 1, size=shape, dtype=np.uint8 if depth == "u8" else np.uint16)
+def _ints(shape, bits):
+    top = 255 if bits == "8" else 65535
+    return RNG.integers(0, top + 1, size=shape, dtype=np.uint8 if bits == "8" else np.uint16)
 
 
 def _to_cv(a):
@@ -36,44 +36,44 @@ def _to_cv(a):
 # ----------------------------------------------------------------------------------- PNG, bit exact
 
 
-@pytest.mark.parametrize("depth", ["u8", "u16"])
+@pytest.mark.parametrize("bits", ["8", "16"])
 @pytest.mark.parametrize("channels", [1, 3, 4])
-def test_png_written_by_bakery_read_by_opencv(tmp_path, depth, channels):
-    ints = _ints((7, 9, channels), depth)
-    top = 255 if depth == "u8" else 65535
-    path = write_image(tmp_path / "a.png", ints.astype(np.float32) / top, depth=depth)
+def test_png_written_by_bakery_read_by_opencv(tmp_path, bits, channels):
+    ints = _ints((7, 9, channels), bits)
+    top = 255 if bits == "8" else 65535
+    path = write_image(tmp_path / "a.png", ints.astype(np.float32) / top, bits=bits)
     ref = cv2.imread(str(path), cv2.IMREAD_UNCHANGED)
     ref = ref[:, :, None] if ref.ndim == 2 else _to_cv(ref)
     assert ref.dtype == ints.dtype
     np.testing.assert_array_equal(ref, ints)
 
 
-@pytest.mark.parametrize("depth", ["u8", "u16"])
+@pytest.mark.parametrize("bits", ["8", "16"])
 @pytest.mark.parametrize("channels", [1, 3, 4])
-def test_png_written_by_opencv_read_by_bakery(tmp_path, depth, channels):
-    ints = _ints((5, 6, channels), depth)
+def test_png_written_by_opencv_read_by_bakery(tmp_path, bits, channels):
+    ints = _ints((5, 6, channels), bits)
     path = tmp_path / "b.png"
     assert cv2.imwrite(str(path), _to_cv(ints[:, :, 0] if channels == 1 else ints))
     img = read_image(path)
-    assert img.depth == depth and img.format == "png" and img.pixels.dtype == np.float32
-    top = 255 if depth == "u8" else 65535
-    np.testing.assert_array_equal(quantize(img.pixels, depth), ints)
+    assert img.bits == bits and img.format == "png" and img.pixels.dtype == np.float32
+    top = 255 if bits == "8" else 65535
+    np.testing.assert_array_equal(quantize(img.pixels, bits), ints)
     np.testing.assert_array_equal(np.rint(img.pixels * top).astype(np.int64), ints.astype(np.int64))
 
 
 # ----------------------------------------------------------------------------------- TIFF
 
 
-@pytest.mark.parametrize("depth", ["u8", "u16", "f32"])
+@pytest.mark.parametrize("bits", ["8", "16", "float"])
 @pytest.mark.parametrize("channels", [1, 3, 4])
-def test_tiff_round_trips_with_tifffile(tmp_path, depth, channels):
-    if depth == "f32":
+def test_tiff_round_trips_with_tifffile(tmp_path, bits, channels):
+    if bits == "float":
         data = RNG.normal(0, 100, size=(6, 5, channels)).astype(np.float32)
         values = data
     else:
-        data = _ints((6, 5, channels), depth)
-        values = data.astype(np.float32) / (255 if depth == "u8" else 65535)
-    path = write_image(tmp_path / "a.tif", values, depth=depth)
+        data = _ints((6, 5, channels), bits)
+        values = data.astype(np.float32) / (255 if bits == "8" else 65535)
+    path = write_image(tmp_path / "a.tif", values, bits=bits)
     ref = tifffile.imread(path)
     np.testing.assert_array_equal(ref.reshape(data.shape), data)
     # and the other way round
@@ -81,23 +81,23 @@ def test_tiff_round_trips_with_tifffile(tmp_path, depth, channels):
     tifffile.imwrite(other, data[:, :, 0] if channels == 1 else data,
                      photometric="minisblack" if channels == 1 else "rgb")
     img = read_image(other)
-    assert img.depth == depth
-    if depth == "f32":
+    assert img.bits == bits
+    if bits == "float":
         np.testing.assert_array_equal(img.pixels, data)
     else:
-        np.testing.assert_array_equal(quantize(img.pixels, depth), data)
+        np.testing.assert_array_equal(quantize(img.pixels, bits), data)
 
 
 # ----------------------------------------------------------------------------------- OpenEXR
 
 
-@pytest.mark.parametrize("depth", ["f16", "f32"])
+@pytest.mark.parametrize("bits", ["half", "float"])
 @pytest.mark.parametrize("channels", [1, 2, 3, 4])
-def test_exr_round_trips_with_openexr(tmp_path, depth, channels):
-    dtype = np.float16 if depth == "f16" else np.float32
+def test_exr_round_trips_with_openexr(tmp_path, bits, channels):
+    dtype = np.float16 if bits == "half" else np.float32
     data = (np.minimum(RNG.lognormal(0, 3, size=(4, 6, channels)), 6e4) * RNG.choice([-1, 1], size=(4, 6, channels)))
     data = data.astype(dtype)  # values representable at the file's precision
-    path = write_image(tmp_path / "a.exr", data.astype(np.float32), depth=depth)
+    path = write_image(tmp_path / "a.exr", data.astype(np.float32), bits=bits)
     with OpenEXR.File(str(path), separate_channels=True) as f:
         chans = {k: np.array(v.pixels) for k, v in f.channels().items()}
     names = {1: ["Y"], 2: ["R", "G"], 3: ["R", "G", "B"], 4: ["R", "G", "B", "A"]}[channels]
@@ -106,7 +106,7 @@ def test_exr_round_trips_with_openexr(tmp_path, depth, channels):
         assert chans[n].dtype == dtype
         np.testing.assert_array_equal(chans[n], data[:, :, i])
     img = read_image(path)
-    assert img.depth == depth and img.pixels.dtype == np.float32
+    assert img.bits == bits and img.pixels.dtype == np.float32
     np.testing.assert_array_equal(img.pixels, data.astype(np.float32))
 
 
@@ -117,14 +117,14 @@ def test_exr_written_by_openexr_read_by_bakery(tmp_path):
     with OpenEXR.File(header, {"RGBA": np.ascontiguousarray(rgba)}) as f:
         f.write(str(path))
     img = read_image(path)
-    assert img.depth == "f32"
+    assert img.bits == "float"
     np.testing.assert_array_equal(img.pixels, rgba)
 
 
 def test_exr_half_precision_of_float_data(tmp_path):
     """float32 written as half keeps 11 significant bits: relative error <= 2**-11 (IEEE 754-2008 binary16)."""
     data = RNG.uniform(0.001, 60000, size=(8, 8, 3)).astype(np.float32)
-    img = read_image(write_image(tmp_path / "h.exr", data, depth="f16"))
+    img = read_image(write_image(tmp_path / "h.exr", data, bits="half"))
     assert np.max(np.abs(img.pixels - data) / data) <= 2.0**-11
 
 
@@ -164,7 +164,7 @@ def test_hdr_float_round_trip_within_rgbe_precision(tmp_path):
     2**(e-8), and the encoder truncates, so the error is below 2**-7 of the pixel's max."""
     data = RNG.lognormal(0, 2, size=(16, 32, 3)).astype(np.float32)
     img = read_image(write_image(tmp_path / "r.hdr", data))
-    assert img.pixels.dtype == np.float32 and img.depth == "f32"
+    assert img.pixels.dtype == np.float32 and img.bits == "float"
     err = np.abs(img.pixels - data).max(axis=2) / data.max(axis=2)
     assert err.max() < 2.0**-7
     # an independent reader (OpenCV) agrees with ours exactly
@@ -181,8 +181,8 @@ def test_jpeg_read_matches_opencv(tmp_path):
     cv2.imwrite(str(path), rgb[:, :, ::-1], [cv2.IMWRITE_JPEG_QUALITY, 95])
     ref = cv2.imread(str(path), cv2.IMREAD_UNCHANGED)[:, :, ::-1]
     img = read_image(path)
-    assert img.depth == "u8" and img.format == "jpeg"
-    np.testing.assert_array_equal(quantize(img.pixels, "u8"), ref)
+    assert img.bits == "8" and img.format == "jpeg"
+    np.testing.assert_array_equal(quantize(img.pixels, "8"), ref)
 
 
 def test_srgb_option_decodes_colour_but_not_alpha(tmp_path):
@@ -198,7 +198,7 @@ def test_srgb_option_decodes_colour_but_not_alpha(tmp_path):
 
 def test_srgb_write_then_read_is_identity_at_8_bit(tmp_path):
     levels = np.arange(256, dtype=np.float32) / 255
-    from bakery.io.color import srgb_to_linear
+    from bakery.color import srgb_to_linear
 
     lin = srgb_to_linear(levels).reshape(16, 16, 1)
     path = write_image(tmp_path / "s.png", lin, color="srgb")
@@ -224,7 +224,7 @@ def test_corrupt_files_raise_one_line_errors(tmp_path, name):
     assert name in msg and "\n" not in msg
 
 
-@pytest.mark.parametrize("suffix,kwargs", [(".png", {"depth": "u16"}), (".exr", {}), (".tif", {}),
+@pytest.mark.parametrize("suffix,kwargs", [(".png", {"bits": "16"}), (".exr", {}), (".tif", {}),
                                            (".hdr", {}), (".jpg", None)])
 def test_truncated_files_raise(tmp_path, suffix, kwargs):
     data = RNG.random((64, 64, 3)).astype(np.float32)
@@ -253,7 +253,7 @@ def test_nan_and_inf_are_refused_with_a_count(tmp_path):
     data = np.ones((4, 4, 3), np.float32)
     data[0, 0, 0] = np.nan
     data[1, 1, 1] = np.inf
-    path = write_image(tmp_path / "bad.exr", data, depth="f32")
+    path = write_image(tmp_path / "bad.exr", data, bits="float")
     with pytest.raises(BakeryError, match=r"bad\.exr: 2 sample\(s\) are NaN or Inf"):
         read_image(path)
     assert np.isnan(read_image(path, allow_nonfinite=True).pixels[0, 0, 0])
@@ -285,9 +285,9 @@ def test_png_header_claiming_huge_size_is_refused(tmp_path):
         read_image(path)
 
 
-def test_write_refuses_bad_depth_and_channels(tmp_path):
-    with pytest.raises(BakeryError, match="cannot hold f32"):
-        write_image(tmp_path / "a.png", np.zeros((2, 2), np.float32), depth="f32")
+def test_write_refuses_bad_bits_and_channels(tmp_path):
+    with pytest.raises(BakeryError, match="cannot hold float"):
+        write_image(tmp_path / "a.png", np.zeros((2, 2), np.float32), bits="float")
     with pytest.raises(BakeryError, match="cannot hold 2 channels"):
         write_image(tmp_path / "a.png", np.zeros((2, 2, 2), np.float32))
     with pytest.raises(BakeryError, match="negative"):
@@ -309,5 +309,5 @@ def test_half_output_clamps_out_of_range_values_with_a_counted_warning(tmp_path)
 
     data = np.array([[[1e5, 2.0, -7e4]]], np.float32)
     with pytest.warns(BakeryWarning, match="2 sample"):
-        path = write_image(tmp_path / "sun.exr", data, depth="f16")
+        path = write_image(tmp_path / "sun.exr", data, bits="half")
     np.testing.assert_array_equal(read_image(path).pixels[0, 0], [65504.0, 2.0, -65504.0])

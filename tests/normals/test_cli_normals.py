@@ -9,10 +9,10 @@ import pytest
 from typer.testing import CliRunner
 
 from bakery.bakes import run_bake
+from bakery.bakes.normals import NormalParams
 from bakery.cli import app
 from bakery.io import read_image, write_image
 from bakery.normals import normal_from_height
-from bakery.normals.bakes import NormalParams
 
 runner = CliRunner()
 COMMANDS = ["normal", "height", "blend", "normal-mips", "normal-fix"]
@@ -29,7 +29,7 @@ def smooth_height(n=32, m=48):
 
 @pytest.fixture
 def height_png(tmp_path):
-    return write_image(tmp_path / "h.png", smooth_height(), depth="u16")
+    return write_image(tmp_path / "h.png", smooth_height(), bits="16")
 
 
 @pytest.mark.parametrize("cmd", COMMANDS)
@@ -44,18 +44,18 @@ def test_help_of_installed_entry_point():
     assert out.returncode == 0 and "--kernel" in out.stdout
 
 
-def test_normal_defaults_follow_input_depth(tmp_path, height_png):
+def test_normal_defaults_follow_input_bits(tmp_path, height_png):
     r = bake("normal", height_png, "-o", tmp_path / "n.png")
     assert r.exit_code == 0, r.output
     img = read_image(tmp_path / "n.png")
-    assert img.depth == "u16" and img.channels == 3
-    man = json.loads((tmp_path / "n.png.json").read_text())
+    assert img.bits == "16" and img.channels == 3
+    man = json.loads((tmp_path / "n.bakery.json").read_text())
     assert man["bake"] == "normal" and man["conventions"]["y"] == "up"
-    # default strength: depth = width / 32 -> s = 48 / 32 texels per unit
+    # default strength: bits = width / 32 -> s = 48 / 32 texels per unit
     assert man["strength_used"]["x"] == pytest.approx(1.5)
-    write_image(tmp_path / "h8.png", smooth_height(), depth="u8")
+    write_image(tmp_path / "h8.png", smooth_height(), bits="8")
     assert bake("normal", tmp_path / "h8.png", "-o", tmp_path / "n8.png").exit_code == 0
-    assert read_image(tmp_path / "n8.png").depth == "u8"
+    assert read_image(tmp_path / "n8.png").bits == "8"
 
 
 def test_cli_matches_core_and_run_bake(tmp_path, height_png):
@@ -65,7 +65,7 @@ def test_cli_matches_core_and_run_bake(tmp_path, height_png):
     run_bake("normal", {"height": height_png}, tmp_path / "b.png",
              NormalParams(strength=4.0, kernel="sobel", y="down"))
     assert (tmp_path / "a.png").read_bytes() == (tmp_path / "b.png").read_bytes()
-    ma, mb = (json.loads((tmp_path / f"{k}.png.json").read_text()) for k in "ab")
+    ma, mb = (json.loads((tmp_path / f"{k}.bakery.json").read_text()) for k in "ab")
     assert ma.pop("outputs") == ["a.png"] and mb.pop("outputs") == ["b.png"]
     assert ma == mb
     # and the file holds the core's normals, Y-down applied before quantisation
@@ -77,21 +77,21 @@ def test_cli_matches_core_and_run_bake(tmp_path, height_png):
 
 
 def test_physical_strength_options(tmp_path, height_png):
-    r = bake("normal", height_png, "-o", tmp_path / "n.exr", "--depth", "0.05", "--size", "2x1")
+    r = bake("normal", height_png, "-o", tmp_path / "n.exr", "--relief", "0.05", "--span", "2x1")
     assert r.exit_code == 0, r.output
-    man = json.loads((tmp_path / "n.exr.json").read_text())
+    man = json.loads((tmp_path / "n.bakery.json").read_text())
     used = man["strength_used"]
     assert (used["x"], used["y"]) == pytest.approx((0.05 * 48 / 2, 0.05 * 32 / 1))
-    assert read_image(tmp_path / "n.exr").depth == "f16"
-    r = bake("normal", height_png, "-o", tmp_path / "x.png", "--strength", "2", "--depth", "0.1")
+    assert read_image(tmp_path / "n.exr").bits == "half"
+    r = bake("normal", height_png, "-o", tmp_path / "x.png", "--strength", "2", "--relief", "0.1")
     assert r.exit_code == 2 and "not both" in r.output
-    assert bake("normal", height_png, "-o", tmp_path / "x.png", "--size", "2xfoo").exit_code == 2
+    assert bake("normal", height_png, "-o", tmp_path / "x.png", "--span", "2xfoo").exit_code == 2
     assert not (tmp_path / "x.png").exists()
 
 
 def test_colour_photo_needs_a_channel(tmp_path):
     rng = np.random.default_rng(0)
-    photo = write_image(tmp_path / "photo.png", rng.random((16, 16, 3), dtype=np.float32), depth="u8")
+    photo = write_image(tmp_path / "photo.png", rng.random((16, 16, 3), dtype=np.float32), bits="8")
     r = bake("normal", photo, "-o", tmp_path / "n.png")
     assert r.exit_code == 2
     assert "photo.png" in r.output and "colour channels differ" in r.output and "--channel" in r.output
@@ -100,12 +100,12 @@ def test_colour_photo_needs_a_channel(tmp_path):
     assert bake("normal", photo, "-o", tmp_path / "l.png", "--channel", "luminance").exit_code == 0
     # equal colour channels are read as gray
     gray = np.repeat(smooth_height()[:, :, None], 3, axis=2)
-    write_image(tmp_path / "g3.png", gray, depth="u8")
+    write_image(tmp_path / "g3.png", gray, bits="8")
     assert bake("normal", tmp_path / "g3.png", "-o", tmp_path / "g.png").exit_code == 0
 
 
 def test_constant_height_warns_flat(tmp_path):
-    write_image(tmp_path / "c.png", np.full((8, 8), 0.5, np.float32), depth="u8")
+    write_image(tmp_path / "c.png", np.full((8, 8), 0.5, np.float32), bits="8")
     r = bake("normal", tmp_path / "c.png", "-o", tmp_path / "n.png")
     assert r.exit_code == 0
     assert "warning:" in r.stderr and "constant" in r.stderr and "flat" in r.stderr
@@ -116,7 +116,7 @@ def test_constant_height_warns_flat(tmp_path):
 def test_non_unit_normals_warn_in_height_and_blend(tmp_path):
     v = np.zeros((16, 16, 3), np.float32)
     v[..., 2] = 0.6  # length 0.6
-    write_image(tmp_path / "short.png", v * 0.5 + 0.5, depth="u8")
+    write_image(tmp_path / "short.png", v * 0.5 + 0.5, bits="8")
     r = bake("height", tmp_path / "short.png", "-o", tmp_path / "h.png")
     assert r.exit_code == 0
     assert "short.png is not unit length" in r.stderr and "renormalized" in r.stderr
@@ -131,10 +131,10 @@ def test_bad_files_exit_2_and_leave_nothing(tmp_path, height_png):
         ["normal", tmp_path / "bad.png", "-o", tmp_path / "o.png"],
         ["normal", height_png, "-o", height_png],
         ["normal", height_png, "-o", tmp_path / "o.jpg"],
-        ["normal", height_png, "-o", tmp_path / "o.png", "--xy"],
+        ["normal", height_png, "-o", tmp_path / "o.png", "--channels", "2"],
         ["normal", height_png, "-o", tmp_path / "nofolder" / "o.png"],
         ["height", height_png, "-o", tmp_path / "o.png"],
-        ["normal-fix", height_png, "-o", tmp_path / "o.png", "--flip-green"],
+        ["normal-fix", height_png, "-o", tmp_path / "o.png", "--flip-y"],
     ]
     before = height_png.read_bytes()
     for args in cases:
@@ -157,23 +157,23 @@ def test_height_round_trip_and_manifest(tmp_path, height_png):
     assert bake("height", tmp_path / "d.png", "-o", tmp_path / "hd.png", "--strength", "8", "--y",
                 "down").exit_code == 0
     assert np.abs(read_image(tmp_path / "hd.png").pixels[..., 0] - back).max() <= 2 / 65535
-    fit = json.loads((tmp_path / "h.png.json").read_text())["fit"]
+    fit = json.loads((tmp_path / "h.bakery.json").read_text())["fit"]
     assert fit["scale"] == 1.0
     assert np.abs((back - fit["offset"]) - (h - h.mean())).max() < 2e-3  # stored = z + offset
 
 
 def test_xy_output_and_fix_command(tmp_path, height_png):
-    assert bake("normal", height_png, "-o", tmp_path / "xy.tif", "--xy").exit_code == 0
+    assert bake("normal", height_png, "-o", tmp_path / "xy.tif", "--channels", "2").exit_code == 0
     assert read_image(tmp_path / "xy.tif").channels == 2
     assert bake("normal", height_png, "-o", tmp_path / "n8.png", "--bits", "8").exit_code == 0
     # flip green exactly (g' = 255 - g), 8 -> 16-bit exactly (v * 257), 3 -> 2 -> 3 channels
-    assert bake("normal-fix", tmp_path / "n8.png", "-o", tmp_path / "f.png", "--flip-green").exit_code == 0
+    assert bake("normal-fix", tmp_path / "n8.png", "-o", tmp_path / "f.png", "--flip-y").exit_code == 0
     a = np.rint(read_image(tmp_path / "n8.png").pixels * 255)
     b = np.rint(read_image(tmp_path / "f.png").pixels * 255)
     assert np.array_equal(b[..., 1], 255 - a[..., 1]) and np.array_equal(b[..., ::2], a[..., ::2])
     assert bake("normal-fix", tmp_path / "n8.png", "-o", tmp_path / "w.png", "--bits", "16").exit_code == 0
     w = read_image(tmp_path / "w.png")
-    assert w.depth == "u16" and np.array_equal(np.rint(w.pixels * 65535), a * 257)
+    assert w.bits == "16" and np.array_equal(np.rint(w.pixels * 65535), a * 257)
     assert bake("normal-fix", tmp_path / "n8.png", "-o", tmp_path / "two.exr", "--channels", "2").exit_code == 0
     assert bake("normal-fix", tmp_path / "two.exr", "-o", tmp_path / "three.exr", "--channels", "3").exit_code == 0
     three = read_image(tmp_path / "three.exr").pixels * 2 - 1
@@ -185,11 +185,11 @@ def test_mips_command(tmp_path, height_png):
     assert bake("normal", height_png, "-o", tmp_path / "n.png").exit_code == 0
     r = bake("normal-mips", tmp_path / "n.png", "-o", tmp_path / "m.png")
     assert r.exit_code == 0, r.output
-    sizes = [read_image(tmp_path / (f"m.mip{i}.png" if i else "m.png")).pixels.shape[:2] for i in range(6)]
+    sizes = [read_image(tmp_path / (f"m.mip{i:02d}.png" if i else "m.png")).pixels.shape[:2] for i in range(6)]
     assert sizes == [(32, 48), (16, 24), (8, 12), (4, 6), (2, 3), (1, 1)]
-    length = read_image(tmp_path / "m.length.mip3.png")
-    assert length.channels == 1 and length.depth == "u16" and length.pixels.max() <= 1.0
-    man = json.loads((tmp_path / "m.png.json").read_text())
+    length = read_image(tmp_path / "m.length.mip03.png")
+    assert length.channels == 1 and length.bits == "16" and length.pixels.max() <= 1.0
+    man = json.loads((tmp_path / "m.bakery.json").read_text())
     assert [lv["size"] for lv in man["levels"]][:2] == [[48, 32], [24, 16]]
     assert man["levels"][0]["mean_length"] == 1.0
 
@@ -198,13 +198,13 @@ def test_blend_command(tmp_path, height_png):
     assert bake("normal", height_png, "-o", tmp_path / "n.png").exit_code == 0
     flat = np.zeros((32, 48, 3), np.float32)
     flat[..., 2] = 1
-    write_image(tmp_path / "flat.png", flat * 0.5 + 0.5, depth="u16")
+    write_image(tmp_path / "flat.png", flat * 0.5 + 0.5, bits="16")
     r = bake("blend", tmp_path / "flat.png", tmp_path / "n.png", "-o", tmp_path / "b.png")
     assert r.exit_code == 0, r.output
     a = read_image(tmp_path / "n.png").pixels
     b = read_image(tmp_path / "b.png").pixels
     assert np.abs(a - b).max() <= 1.5 / 65535  # reoriented over a flat base returns the detail
-    write_image(tmp_path / "small.png", flat[:8, :8] * 0.5 + 0.5, depth="u16")
+    write_image(tmp_path / "small.png", flat[:8, :8] * 0.5 + 0.5, bits="16")
     r = bake("blend", tmp_path / "n.png", tmp_path / "small.png", "-o", tmp_path / "c.png")
     assert r.exit_code == 2 and "must match" in r.output
 
@@ -220,24 +220,24 @@ def test_mips_as_ktx2(tmp_path, height_png):
     tex = read_ktx2(tmp_path / "m.ktx2")
     assert tex.format.name == "R16G16B16A16_UNORM" and len(tex.levels) == 6 and not tex.cubemap
     for i, lv in enumerate(tex.levels):
-        loose = read_image(tmp_path / (f"m.mip{i}.png" if i else "m.png")).pixels
+        loose = read_image(tmp_path / (f"m.mip{i:02d}.png" if i else "m.png")).pixels
         assert np.array_equal(np.rint(lv[:, :, :3] * 65535), np.rint(loose * 65535)) and np.all(lv[:, :, 3] == 1)
     lengths = read_ktx2(tmp_path / "m.length.ktx2")
     assert lengths.format.name == "R16_UNORM"
     assert np.array_equal(np.rint(lengths.levels[2] * 65535),
-                          np.rint(read_image(tmp_path / "m.length.mip2.png").pixels * 65535))
+                          np.rint(read_image(tmp_path / "m.length.mip02.png").pixels * 65535))
 
 
 def test_named_channels_of_gray_alpha_and_rgba(tmp_path):
     h = smooth_height()
     la = np.stack([h, 1 - h], axis=-1)
-    write_image(tmp_path / "la.tif", la, depth="u16")
+    write_image(tmp_path / "la.tif", la, bits="16")
     assert bake("normal", tmp_path / "la.tif", "-o", tmp_path / "a.png", "--channel", "a").exit_code == 0
     assert bake("normal", tmp_path / "la.tif", "-o", tmp_path / "g.png").exit_code == 0  # gray + alpha: gray
     a = read_image(tmp_path / "a.png").pixels
     g = read_image(tmp_path / "g.png").pixels
     assert np.abs(a[..., :2] - (1 - g[..., :2])).max() <= 1.01 / 65535  # inverted relief: x, y negated
-    write_image(tmp_path / "rgb.png", np.stack([h, h * 0.5, h * 0.25], -1), depth="u16")
+    write_image(tmp_path / "rgb.png", np.stack([h, h * 0.5, h * 0.25], -1), bits="16")
     r = bake("normal", tmp_path / "rgb.png", "-o", tmp_path / "x.png", "--channel", "a")
     assert r.exit_code == 2 and "no A channel" in r.output
     r = bake("normal", tmp_path / "rgb.png", "-o", tmp_path / "x.hdr")
@@ -245,13 +245,13 @@ def test_named_channels_of_gray_alpha_and_rgba(tmp_path):
 
 
 def test_recipe_values_match_the_command_line(tmp_path, height_png):
-    # A recipe's `bits = 16`, `size = 2` and the CLI's `--bits 16 --size 2` are the same job: same bytes.
+    # A recipe's `bits = 16`, `span = 2` and the CLI's `--bits 16 --span 2` are the same job: same bytes.
     from bakery.bakes import get_bake, params_from_mapping
 
-    params = params_from_mapping(get_bake("normal"), {"bits": 16, "size": 2, "depth": 0.1}, "recipe.toml")
+    params = params_from_mapping(get_bake("normal"), {"bits": 16, "span": 2, "relief": 0.1}, "recipe.toml")
     run_bake("normal", {"height": height_png}, tmp_path / "r.png", params)
-    assert bake("normal", height_png, "-o", tmp_path / "c.png", "--bits", "16", "--size", "2",
-                "--depth", "0.1").exit_code == 0
+    assert bake("normal", height_png, "-o", tmp_path / "c.png", "--bits", "16", "--span", "2",
+                "--relief", "0.1").exit_code == 0
     assert (tmp_path / "r.png").read_bytes() == (tmp_path / "c.png").read_bytes()
-    mr, mc = (json.loads((tmp_path / f"{k}.png.json").read_text()) for k in "rc")
+    mr, mc = (json.loads((tmp_path / f"{k}.bakery.json").read_text()) for k in "rc")
     assert mr["params"] == mc["params"]

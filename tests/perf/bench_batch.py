@@ -42,7 +42,7 @@ def make_library(folder: Path, size: int, count: int) -> None:
         h = np.roll(base[name], shift=(37 * (i // len(kinds)), 53 * (i // len(kinds))), axis=(0, 1))
         sub = folder / f"set{i // 12}"
         sub.mkdir(parents=True, exist_ok=True)
-        write_image(sub / f"{name}{i}_height.png", h, depth="u16")
+        write_image(sub / f"{name}{i}_height.png", h, bits="16")
 
 
 def _plain_work(args: tuple[str, int]) -> float:

@@ -64,10 +64,10 @@ def bench_core(n: int, repeat: int) -> None:
 
 def bench_end_to_end(n: int, repeat: int, folder: Path) -> None:
     from bakery.bakes import run_bake
+    from bakery.bakes.normals import NormalParams
     from bakery.io import read_image, write_image
-    from bakery.normals.bakes import NormalParams
 
-    src = write_image(folder / "h.png", height_field(n), depth="u16")
+    src = write_image(folder / "h.png", height_field(n), bits="16")
     out = folder / "n.png"
     params = NormalParams(strength=16.0)
     run_bake("normal", {"height": src}, out, params)
@@ -92,7 +92,7 @@ CHILD = """
 import sys, resource
 sys.path.insert(0, {root!r})
 from bakery.bakes import run_bake
-from bakery.normals.bakes import NormalParams
+from bakery.bakes.normals import NormalParams
 run_bake("normal", {{"height": {src!r}}}, {out!r}, NormalParams(strength=16.0))
 print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
 """
@@ -101,7 +101,7 @@ print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
 def bench_memory(n: int, folder: Path) -> None:
     from bakery.io import write_image
 
-    src = write_image(folder / f"h{n}.png", height_field(n), depth="u16")
+    src = write_image(folder / f"h{n}.png", height_field(n), bits="16")
     out = folder / f"n{n}.png"
     env = dict(os.environ, BAKERY_MAX_PIXELS=str(n * n))
     t0 = time.perf_counter()

@@ -18,7 +18,7 @@ def test_batch_writes_a_contact_sheet(tmp_path):
     lib.mkdir(parents=True)
     y, x = np.mgrid[0:32, 0:32] * (2 * np.pi / 32)
     write_image(lib / "rock_height.png", (0.5 + 0.25 * np.sin(x) * np.sin(y))[..., None].astype(np.float32),
-                depth="u16")
+                bits="16")
     recipe = tmp_path / "library.toml"
     recipe.write_text('source = "lib"\noutput = "out"\n\n[[rule]]\nname = "normals"\nbake = "normal"\n'
                       'match = "**/{material}_height.png"\noutput = "{dir}/{material}_normal.png"\n')

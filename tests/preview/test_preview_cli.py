@@ -22,9 +22,9 @@ def maps(tmp_path):
     rows, cols = np.mgrid[0:32, 0:32] * (2 * np.pi / 32)
     n = np.stack([np.cos(cols) * 0.4, np.sin(rows) * 0.4, np.ones((32, 32))], -1)
     n /= np.linalg.norm(n, axis=-1, keepdims=True)
-    write_image(tmp_path / "n.png", (n * 0.5 + 0.5).astype(np.float32), depth="u8")
-    write_image(tmp_path / "r.png", np.full((32, 32, 1), 0.3, np.float32), depth="u8")
-    write_image(tmp_path / "c.png", np.full((32, 32, 3), 0.5, np.float32), depth="u8")
+    write_image(tmp_path / "n.png", (n * 0.5 + 0.5).astype(np.float32), bits="8")
+    write_image(tmp_path / "r.png", np.full((32, 32, 1), 0.3, np.float32), bits="8")
+    write_image(tmp_path / "c.png", np.full((32, 32, 3), 0.5, np.float32), bits="8")
     return tmp_path
 
 
@@ -41,7 +41,7 @@ def test_preview_png(maps):
                             "--supersample", "1"])
     assert r.exit_code == 0, r.output
     img = read_image(out)
-    assert img.pixels.shape == (48, 96, 3) and img.depth == "u8"
+    assert img.pixels.shape == (48, 96, 3) and img.bits == "8"
     assert img.pixels.std() > 0.02
 
 
@@ -55,7 +55,7 @@ def test_preview_options_change_the_picture(maps):
 
     base = run()
     assert base.shape == (32, 32, 3)
-    for extra in (["--env-rotation", "90"], ["--yaw", "40"], ["--green", "down"], ["--exposure", "auto"]):
+    for extra in (["--rotation", "90"], ["--yaw", "40"], ["--y", "down"], ["--exposure", "auto"]):
         assert np.abs(run(*extra) - base).mean() > 1 / 255, extra
 
 
@@ -89,7 +89,7 @@ def test_bad_input_exits_2_and_writes_nothing(maps, monkeypatch, args, message):
 
 
 def test_environment_must_be_a_panorama(maps):
-    write_image(maps / "sq.exr", np.ones((16, 16, 3), np.float32) * 2, depth="f16")
+    write_image(maps / "sq.exr", np.ones((16, 16, 3), np.float32) * 2, bits="half")
     r = runner.invoke(app, ["preview", "-o", str(maps / "o.png"), "--env", str(maps / "sq.exr"), "--size", "16"])
     assert r.exit_code == 2 and "equirectangular" in r.output
     assert not (maps / "o.png").exists()
@@ -144,9 +144,9 @@ def test_sources_are_baked_in_memory(tmp_path):
     # references.md §1); exponents 1, 32, 8192 -> perceptual roughness 0.903602, 0.492479, 0.124992
     # (Walter et al. 2007: alpha = sqrt(2/(n + 2)), r = sqrt(alpha); references.md §5).
     ramp = np.tile(np.arange(16, dtype=np.float32), (8, 1))[..., None]
-    write_image(tmp_path / "h.exr", ramp, depth="f32")
+    write_image(tmp_path / "h.exr", ramp, bits="float")
     exps = np.array([[1.0, 32.0, 8192.0]], np.float32)[..., None]
-    write_image(tmp_path / "e.exr", exps, depth="f32")
+    write_image(tmp_path / "e.exr", exps, bits="float")
     m = load_material(height=tmp_path / "h.exr", strength=1.0, exponent=tmp_path / "e.exr")
     np.testing.assert_allclose(m.normals[4, 8], [-0.707107, 0.0, 0.707107], atol=1e-5)
     np.testing.assert_allclose(m.roughness[0], [0.903602, 0.492479, 0.124992], atol=1e-5)
@@ -169,10 +169,10 @@ def baked_sky(tmp_path_factory):
     from bakery.samples import sky_panorama
 
     d = tmp_path_factory.mktemp("baked")
-    sky = write_image(d / "sky.exr", sky_panorama(256), depth="f32")
+    sky = write_image(d / "sky.exr", sky_panorama(256), bits="float")
     spec, diff, lut = get_bake("env-specular"), get_bake("env-diffuse"), get_bake("env-lut")
-    run_bake("env-specular", {"env": sky}, d / "chain.ktx2", spec.params(size=32, levels=6, quality="draft"))
-    run_bake("env-diffuse", {"source": sky}, d / "diffuse.json", diff.params(size=8))
+    run_bake("env-specular", {"environment": sky}, d / "chain.ktx2", spec.params(face_size=32, levels=6, quality="draft"))
+    run_bake("env-diffuse", {"environment": sky}, d / "diffuse.json", diff.params(face_size=8))
     run_bake("env-lut", {}, d / "lut.png", lut.params(size=32))
     run_bake("env-lut", {}, d / "lut_up.exr", lut.params(size=32, roughness_grows="up"))
     return d

@@ -53,13 +53,13 @@ def _bump_normals(size=32, flip=False):
 def maps(tmp_path) -> Path:
     d = tmp_path / "maps"
     (d / "sub").mkdir(parents=True)
-    write_image(d / "rock_normal.png", _bump_normals(), depth="u8")
-    write_image(d / "sub" / "rock normal & dx.png", _bump_normals(flip=True), depth="u8")
-    write_image(d / "rock_rough.png", np.linspace(0, 1, 32 * 32, dtype=np.float32).reshape(32, 32, 1), depth="u8")
+    write_image(d / "rock_normal.png", _bump_normals(), bits="8")
+    write_image(d / "sub" / "rock normal & dx.png", _bump_normals(flip=True), bits="8")
+    write_image(d / "rock_rough.png", np.linspace(0, 1, 32 * 32, dtype=np.float32).reshape(32, 32, 1), bits="8")
     rng = np.random.default_rng(3)
-    write_image(d / "albedo.png", rng.random((32, 32, 3), dtype=np.float32), depth="u8")
+    write_image(d / "albedo.png", rng.random((32, 32, 3), dtype=np.float32), bits="8")
     sky = np.ones((16, 32, 3), np.float32) * 2.0
-    write_image(d / "sky.exr", sky, depth="f16")
+    write_image(d / "sky.exr", sky, bits="half")
     (d / "broken.png").write_bytes(b"\x89PNG\r\n\x1a\nnope")
     (d / "notes.txt").write_text("not a map")
     (d / ".hidden.png").write_bytes(b"")
@@ -80,7 +80,7 @@ def test_entries_carry_kind_size_findings_and_previews(maps, lighting):
     fn = lit_previews(lighting, size=32, supersample=1)
     entries = {e.name: e for e in (make_entry(p, maps, thumb=48, preview=fn) for p in find_maps(maps))}
     n = entries["rock_normal.png"]
-    assert (n.kind, n.width, n.height, n.channels, n.depth) == ("normal", 32, 32, 3, "u8")
+    assert (n.kind, n.width, n.height, n.channels, n.bits) == ("normal", 32, 32, 3, "8")
     assert n.preview is not None and n.preview.shape == (32, 32, 3)
     assert n.thumbnail.shape == (48, 48, 3)
     # the Y-down map is flagged by bakery.inspect and the flag reaches the card
@@ -100,22 +100,22 @@ def test_entries_carry_kind_size_findings_and_previews(maps, lighting):
 def test_material_for_reads_normals_as_y_up():
     # Encoding n·0.5 + 0.5 (references.md §1, glTF 2.0 normalTexture): (0.65, 0.70, 0.933013) is (0.3, 0.4, 0.866)
     px = np.broadcast_to(np.array([0.65, 0.70, 0.933013], np.float32), (4, 4, 3))
-    mat, note = material_for(px, "normal", "u8", "n.png")
+    mat, note = material_for(px, "normal", "8", "n.png")
     np.testing.assert_allclose(mat.normals[0, 0], [0.3, 0.4, 0.866025], atol=1e-4)
     assert "Y-up" in note
 
 
 def test_single_channel_maps_are_previewed_by_name():
-    # heights: normals baked with depth = width/32 (bakery normal's default), n = normalize(−s ∂h/∂x, ..., 1)
+    # heights: normals baked with bits = width/32 (bakery normal's default), n = normalize(−s ∂h/∂x, ..., 1)
     # (Blinn 1978) with s = 64/32 = 2 for a ramp rising 0.01 per texel; exponents: 32 -> r = 0.492479
     # (Walter et al. 2007 peak rule, references.md §5)
     ramp = np.tile(np.arange(64, dtype=np.float32) * 0.01, (16, 1))[..., None]
-    mat, note = material_for(ramp, "height", "u16", "wall_height.png")
+    mat, note = material_for(ramp, "height", "16", "wall_height.png")
     np.testing.assert_allclose(mat.normals[8, 30], np.array([-0.02, 0, 1]) / np.hypot(0.02, 1), atol=1e-5)
     assert "baked from the heights" in note
-    mat, note = material_for(np.full((4, 4, 1), 32.0, np.float32), "data", "f16", "wall_exponent.exr")
+    mat, note = material_for(np.full((4, 4, 1), 32.0, np.float32), "data", "half", "wall_exponent.exr")
     np.testing.assert_allclose(mat.roughness, 0.492479, atol=1e-5)
-    mat, note = material_for(ramp, "height", "u16", "wall_mask.png")
+    mat, note = material_for(ramp, "height", "16", "wall_mask.png")
     assert mat is None and "rough, height or exponent" in note
 
 

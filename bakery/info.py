@@ -9,8 +9,8 @@ import numpy as np
 from bakery.classify import guess_kind
 from bakery.io.images import read_image
 
-DEPTH_NAMES = {"u8": "8-bit integer", "u16": "16-bit integer", "f16": "16-bit float (half)",
-               "f32": "32-bit float"}
+BITS_NAMES = {"8": "8-bit integer", "16": "16-bit integer", "half": "16-bit float (half)",
+               "float": "32-bit float"}
 
 
 def describe(path: Path, *, max_pixels: int | None = None) -> list[str]:
@@ -27,7 +27,7 @@ def describe(path: Path, *, max_pixels: int | None = None) -> list[str]:
         f"  format:   {img.format.upper()}",
         f"  size:     {w} x {h}",
         f"  channels: {c} ({_channel_names(c)})",
-        f"  depth:    {DEPTH_NAMES[img.depth]}" + (" (stored as RGBE)" if img.format == "hdr" else ""),
+        f"  bits:    {BITS_NAMES[img.bits]}" + (" (stored as RGBE)" if img.format == "hdr" else ""),
     ]
     names = _channel_names(c).split(", ")
     for ch in range(c):

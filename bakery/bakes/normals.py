@@ -12,16 +12,12 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
-from bakery.bakes import Bake, bake_threads, params_to_dict, register
+from bakery.bakes import Bake, Progress, bake_threads, level_path, params_to_dict, register
+from bakery.bakes.params import Bits, Edges, Params, YConvention, bits_param, edges_param, param, parse_numbers, y_param
 from bakery.errors import BakeryError, BakeryWarning
 
 KernelName = Literal["scharr", "sobel", "prewitt", "central"]
-Edges = Literal["wrap", "clamp", "mirror"]
-YConv = Literal["up", "down"]
-Bits = Literal["8", "16", "half", "float"] | Literal[8, 16]  # recipes may write bits = 16
-Channel = Literal["r", "g", "b", "a", "luminance"]
 
-BITS_TO_DEPTH = {"8": "u8", "16": "u16", "half": "f16", "float": "f32"}
 ENCODING = "rgb = n * 0.5 + 0.5; integers round to nearest, ties to even"
 #: ITU-R BT.709 luma weights, used for ``channel="luminance"`` on the stored (not linearised) values.
 LUMA_709 = (0.2126, 0.7152, 0.0722)
@@ -30,39 +26,27 @@ LUMA_709 = (0.2126, 0.7152, 0.0722)
 # ------------------------------------------------------------------------------------------- shared pieces
 
 
-def _tidy(params) -> None:
-    """Normalise recipe spellings so a recipe and a command line give the same manifest: ``bits = 16`` ->
-    ``"16"``, ``size = 2`` -> ``(2.0,)``."""
-    bits = getattr(params, "bits", None)
-    if bits is not None:
-        object.__setattr__(params, "bits", str(bits))
-    size = getattr(params, "size", ())
-    if not isinstance(size, tuple):
-        object.__setattr__(params, "size", tuple(size) if isinstance(size, list) else (float(size),))
-
-
 def _conventions(y: str) -> dict:
     return {"y": y, "y_meaning": "+Y up (OpenGL-style, glTF 2.0)" if y == "up" else
             "+Y down (DirectX-style): green stores -n.y", "encoding": ENCODING}
 
 
-def output_depth(output: Path, bits: str | None, input_depth: str) -> str:
+def output_bits(output: Path, bits: str | None, input_bits: str) -> str:
     """Sample type of an output: ``bits`` if given, else the input's when the format can hold it, else the
     nearest the format holds (16-bit PNG/TIFF for float input, half EXR for integer input)."""
     from bakery.io.images import WRITABLE, image_format
 
     fmt = image_format(output, writing=True)
     if bits is not None:
-        depth = BITS_TO_DEPTH[bits]
-        if depth not in WRITABLE[fmt]:
+        if bits not in WRITABLE[fmt]:
             raise BakeryError(f"{fmt.upper()} files cannot hold {bits}-bit samples" if bits in ("8", "16") else
                               f"{fmt.upper()} files cannot hold {bits} floats", output)
-        return depth
-    if input_depth in WRITABLE[fmt]:
-        return input_depth
+        return bits
+    if input_bits in WRITABLE[fmt]:
+        return input_bits
     if fmt in ("png", "tiff"):
-        return "u16"
-    return "f32" if input_depth == "f32" and "f32" in WRITABLE[fmt] else WRITABLE[fmt][0]
+        return "16"
+    return "float" if input_bits == "float" and "float" in WRITABLE[fmt] else WRITABLE[fmt][0]
 
 
 def check_output(output: Path) -> str:
@@ -75,22 +59,22 @@ def check_output(output: Path) -> str:
     return fmt
 
 
-def resolve_strength(shape: tuple[int, int], strength: float | None, depth: float | None,
-                     size: tuple[float, ...]) -> tuple[float, float]:
-    """``(s_x, s_y)`` from either a plain factor or physical sizes (default: depth = width / 32)."""
-    from bakery.normals.from_height import DEFAULT_DEPTH_RATIO, strength_from_size
+def resolve_strength(shape: tuple[int, int], strength: float | None, relief: float | None,
+                     span: tuple[float, ...]) -> tuple[float, float]:
+    """``(s_x, s_y)`` from either a plain factor or physical sizes (default: relief = width / 32)."""
+    from bakery.normals.from_height import DEFAULT_RELIEF_RATIO, strength_from_size
 
     if strength is not None:
-        if depth is not None or size:
-            raise BakeryError("give either a plain strength or a physical depth and size, not both")
+        if relief is not None or span:
+            raise BakeryError("give either a plain strength or a physical relief and span, not both")
         return float(strength), float(strength)
-    if len(size) not in (0, 1, 2):
-        raise BakeryError(f"size is the texture's physical width, or width and height; got {list(size)}")
-    width = size[0] if size else 1.0
-    tall = size[1] if len(size) == 2 else None
-    if depth is None:
-        depth = DEFAULT_DEPTH_RATIO * width
-    return strength_from_size(shape, depth, width, tall)
+    if len(span) not in (0, 1, 2):
+        raise BakeryError(f"span is the texture's physical width, or width and height; got {list(span)}")
+    width = span[0] if span else 1.0
+    tall = span[1] if len(span) == 2 else None
+    if relief is None:
+        relief = DEFAULT_RELIEF_RATIO * width
+    return strength_from_size(shape, relief, width, tall)
 
 
 def read_height(path: Path, channel: str | None = None, stretch: bool = False):
@@ -101,10 +85,9 @@ def read_height(path: Path, channel: str | None = None, stretch: bool = False):
     """
     import numpy as np
 
-    from bakery.cli._common import max_pixels_from_env
     from bakery.io.images import read_image
 
-    img = read_image(path, max_pixels=max_pixels_from_env())
+    img = read_image(path)
     px = img.pixels
     c = px.shape[2]
     names = {"r": 0, "g": 1, "b": 2, "a": 3}  # RGB(A) order
@@ -136,54 +119,81 @@ def read_height(path: Path, channel: str | None = None, stretch: bool = False):
     elif stretch:
         h -= np.float32(lo)
         h *= np.float32(1.0 / (hi - lo))
-    return h, img.depth, (lo, hi)
+    return h, img.bits, (lo, hi)
 
 
 def read_normals(path: Path, y: str):
     """Unit normals (H, W, 3) (+Y up) from a file, its sample type and channel count; warns (naming the file)
     and renormalizes when the stored vectors are not unit length."""
-    from bakery.cli._common import max_pixels_from_env
     from bakery.io.images import read_image
     from bakery.normals.encode import decode_normals, unit_normals
 
-    img = read_image(path, max_pixels=max_pixels_from_env())
+    img = read_image(path)
     if img.channels == 1:
         raise BakeryError("has one channel: a normal map needs 2 (XY), 3 (RGB) or 4 (RGBA)", path)
     n = decode_normals(img.pixels, y=y)
     return unit_normals(n, what=str(path)), img
 
 
-def write_normals(path: Path, n, *, y: str, channels: int, depth: str) -> Path:
+def write_normals(path: Path, n, *, y: str, channels: int, bits: str) -> Path:
     from bakery.io.images import write_image
     from bakery.normals.encode import encode_normals
 
-    return write_image(path, encode_normals(n, y=y, channels=channels), depth=depth)
+    return write_image(path, encode_normals(n, y=y, channels=channels), bits=bits)
 
 
 # ------------------------------------------------------------------------------------------------- normal
 
+STRENGTH = param(None, "Plain strength factor s in n = normalize(-s dh/dx, -s dh/dy, 1), derivatives per texel; "
+                 "instead of --relief/--span.", low=0.0)
+RELIEF = param(None, "Physical relief the full height range stands for (0..65535 in a 16-bit file), in the unit "
+               "of --span. Default: 1/32 of the width.", unit="span unit", low=0.0, low_open=True)
+SPAN = param((), "Physical size the texture covers: WIDTH or WIDTHxHEIGHT, in the unit of --relief. Default 1 "
+             "(square texels).", unit="span unit", low=0.0, low_open=True, parse=parse_numbers,
+             metavar="W[xH]")
+KERNEL = param("scharr", "Derivative kernel (Scharr 2000, Sobel in Duda & Hart 1973, Prewitt 1970, central "
+               "differences).")
+
+
+def check_strength(p) -> None:
+    if p.strength is not None and (p.relief is not None or p.span):
+        raise BakeryError("give either --strength or a physical --relief and --span, not both")
+    if len(p.span) > 2:
+        raise BakeryError(f"span is the texture's physical width, or width and height; got {list(p.span)}")
+
 
 @dataclass(frozen=True)
-class NormalParams:
+class NormalParams(Params):
     """Parameters of the ``normal`` bake (height map -> normal map). See docs/normals.md."""
 
-    strength: float | None = None
-    depth: float | None = None
-    size: tuple[float, ...] | float = ()
-    kernel: KernelName = "scharr"
-    blur: float = 0.0
-    edges: Edges = "wrap"
-    y: YConv = "up"
-    channels: Literal[2, 3] = 3
-    bits: Bits | None = None
-    channel: Channel | None = None
-    stretch: bool = False
+    strength: float | None = STRENGTH
+    relief: float | None = RELIEF
+    span: tuple[float, ...] = SPAN
+    kernel: KernelName = KERNEL
+    blur: float = param(0.0, "Gaussian pre-blur of the heights, standard deviation in texels (0.5-1 hides "
+                        "8-bit terraces).", unit="texels", low=0.0, high=256.0)
+    edges: Edges = edges_param()
+    y: YConvention = y_param()
+    channels: Literal[2, 3] = param(3, "Channels written: 3 (XYZ) or 2 (XY; readers rebuild Z; .tif or .exr).")
+    bits: Bits | None = bits_param()
+    channel: Literal["r", "g", "b", "a", "luminance"] | None = param(
+        None, "Which channel of a colour file holds the heights (luminance: BT.709 weights); default: gray "
+        "files, or colour files with equal channels.")
+    stretch: bool = param(False, "Use the data's min..max as the full height range instead of the file's "
+                          "nominal range.")
 
-    def __post_init__(self) -> None:
-        _tidy(self)
+    def check(self) -> None:
+        check_strength(self)
 
 
-def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams) -> list[Path]:
+def one_output(inputs: dict[str, Path], output: Path, p) -> list[Path]:
+    """The files of a bake that writes one image and its manifest."""
+    from bakery.io.manifest import manifest_path
+
+    return [output, manifest_path(output)]
+
+
+def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress: Progress) -> list[Path]:
     import numpy as np
 
     from bakery.io.images import INTEGER_MAX, quantize, write_image
@@ -193,15 +203,15 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams) -> list[P
 
     check_output(output)
     src = inputs["height"]
-    h, in_depth, (lo, hi) = read_height(src, p.channel, p.stretch)
+    h, in_bits, (lo, hi) = read_height(src, p.channel, p.stretch)
     rows, cols = h.shape
-    sx, sy = resolve_strength(h.shape, p.strength, p.depth, p.size)
-    depth = output_depth(output, p.bits, in_depth)
+    sx, sy = resolve_strength(h.shape, p.strength, p.relief, p.span)
+    bits = output_bits(output, p.bits, in_bits)
     if p.channels == 2 and output.suffix.lower() == ".png":
         raise BakeryError("PNG files cannot hold 2 channels; write the XY map as .tif or .exr", output)
     opts = dict(strength=(sx, sy), kernel=p.kernel, blur=p.blur, edges=p.edges)
-    if depth in INTEGER_MAX:  # encode strip by strip into the integer image: no full float copy
-        q = np.empty((rows, cols, p.channels), np.uint8 if depth == "u8" else np.uint16)
+    if bits in INTEGER_MAX:  # encode strip by strip into the integer image: no full float copy
+        q = np.empty((rows, cols, p.channels), np.uint8 if bits == "8" else np.uint16)
         scratch = {}
 
         def finish(r0: int, r1: int, block: np.ndarray) -> None:
@@ -212,7 +222,7 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams) -> list[P
             if buf is None or buf.shape[0] < r1 - r0:
                 buf = scratch[key] = np.empty(block.shape[:2] + (p.channels,), np.float32)
             e = encode_normals(block, y=p.y, channels=p.channels, out=buf[: r1 - r0])
-            q[r0:r1] = quantize(e, depth)
+            q[r0:r1] = quantize(e, bits)
 
         blocks: dict[int, np.ndarray] = {}
 
@@ -231,12 +241,12 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams) -> list[P
     else:
         n = normal_from_height(h, threads=bake_threads(), **opts)
         del h
-        write_image(output, encode_normals(n, y=p.y, channels=p.channels), depth=depth)
+        write_image(output, encode_normals(n, y=p.y, channels=p.channels), bits=bits)
     extra = {"conventions": _conventions(p.y),
              "strength_used": {"x": sx, "y": sy,
                                "formula": "n = normalize(-s_x dh/dx, -s_y dh/dy, 1), derivatives per texel"},
              "height_range": {"nominal": [0.0, 1.0], "data": [lo, hi], "stretched": p.stretch},
-             "sample_type": depth}
+             "sample_type": bits}
     manifest = write_manifest(output, bake="normal", inputs={"height": src}, params=params_to_dict(p),
                               outputs=[output], extra=extra)
     return [output, manifest]
@@ -246,22 +256,23 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams) -> list[P
 
 
 @dataclass(frozen=True)
-class HeightParams:
+class HeightParams(Params):
     """Parameters of the ``height`` bake (normal map -> height map)."""
 
-    strength: float | None = None
-    depth: float | None = None
-    size: tuple[float, ...] | float = ()
-    kernel: KernelName = "scharr"
-    edges: Edges = "wrap"
-    y: YConv = "up"
-    bits: Bits | None = None
+    strength: float | None = STRENGTH
+    relief: float | None = RELIEF
+    span: tuple[float, ...] = SPAN
+    kernel: KernelName = param("scharr", "The kernel the map was made with (tiling maps).")
+    edges: Edges = param("wrap", "wrap: the map tiles (Frankot-Chellappa 1988); clamp or mirror: it does not "
+                         "(least-squares Poisson solve).")
+    y: YConvention = y_param()
+    bits: Bits | None = bits_param()
 
-    def __post_init__(self) -> None:
-        _tidy(self)
+    def check(self) -> None:
+        check_strength(self)
 
 
-def run_height(inputs: dict[str, Path], output: Path, p: HeightParams) -> list[Path]:
+def run_height(inputs: dict[str, Path], output: Path, p: HeightParams, progress: Progress) -> list[Path]:
     from bakery.io.images import INTEGER_MAX, write_image
     from bakery.io.manifest import write_manifest
     from bakery.normals.integrate import fit_height, height_from_normal
@@ -269,22 +280,22 @@ def run_height(inputs: dict[str, Path], output: Path, p: HeightParams) -> list[P
     check_output(output)
     src = inputs["normal"]
     n, img = read_normals(src, p.y)
-    sx, sy = resolve_strength(n.shape[:2], p.strength, p.depth, p.size)
-    depth = output_depth(output, p.bits, img.depth)
+    sx, sy = resolve_strength(n.shape[:2], p.strength, p.relief, p.span)
+    bits = output_bits(output, p.bits, img.bits)
     z = height_from_normal(n, strength=(sx, sy), kernel=p.kernel, edges=p.edges)
-    h, offset, scale = fit_height(z, unit_range=depth in INTEGER_MAX)
+    h, offset, scale = fit_height(z, unit_range=bits in INTEGER_MAX)
     if scale != 1.0:
         warnings.warn(f"{output}: the relief spans {1 / scale:.4g} times the full height range; scaled by "
                       f"{scale:.4g} to fit (use this strength times {1 / scale:.4g} to get the same normals, "
                       "or write float .exr/.tif)", BakeryWarning, stacklevel=2)
-    write_image(output, h, depth=depth)
+    write_image(output, h, bits=bits)
     extra = {"conventions": _conventions(p.y),
              "method": "Frankot-Chellappa 1988 (FFT)" if p.edges == "wrap" else
              "least-squares Poisson, Neumann borders (DCT; Simchony, Chellappa & Shao 1990)",
              "strength_used": {"x": sx, "y": sy},
              "fit": {"offset": offset, "scale": scale,
                      "meaning": "stored = (integrated height + offset) * scale, integrated height has mean 0"},
-             "sample_type": depth}
+             "sample_type": bits}
     manifest = write_manifest(output, bake="height", inputs={"normal": src}, params=params_to_dict(p),
                               outputs=[output], extra=extra)
     return [output, manifest]
@@ -294,20 +305,19 @@ def run_height(inputs: dict[str, Path], output: Path, p: HeightParams) -> list[P
 
 
 @dataclass(frozen=True)
-class BlendParams:
+class BlendParams(Params):
     """Parameters of the ``blend`` bake (detail normal map over a base normal map)."""
 
-    method: Literal["reoriented", "whiteout", "derivative", "linear"] = "reoriented"
-    detail_strength: float = 1.0
-    y: YConv = "up"
-    channels: Literal[2, 3] | None = None
-    bits: Bits | None = None
+    method: Literal["reoriented", "whiteout", "derivative", "linear"] = param(
+        "reoriented", "reoriented (Barre-Brisebois & Hill 2012), whiteout, derivative (slopes add) or linear.")
+    detail_strength: float = param(1.0, "Scales the detail's x and y before blending.", low=0.0, high=100.0)
+    y: YConvention = y_param("Green-channel convention of both inputs and the output: up (OpenGL-style, "
+                             "glTF 2.0) or down (DirectX-style).")
+    channels: Literal[2, 3] | None = param(None, "Channels written: 3 or 2 (XY); default: the base's.")
+    bits: Bits | None = bits_param()
 
-    def __post_init__(self) -> None:
-        _tidy(self)
 
-
-def run_blend(inputs: dict[str, Path], output: Path, p: BlendParams) -> list[Path]:
+def run_blend(inputs: dict[str, Path], output: Path, p: BlendParams, progress: Progress) -> list[Path]:
     from bakery.io.manifest import write_manifest
     from bakery.normals.blend import blend_normals
 
@@ -318,12 +328,12 @@ def run_blend(inputs: dict[str, Path], output: Path, p: BlendParams) -> list[Pat
         raise BakeryError(f"detail is {detail.shape[1]}x{detail.shape[0]} but the base is "
                           f"{base.shape[1]}x{base.shape[0]}; they must match", inputs["detail"])
     channels = p.channels or (2 if bimg.channels == 2 else 3)
-    depth = output_depth(output, p.bits, bimg.depth)
+    bits = output_bits(output, p.bits, bimg.bits)
     r = blend_normals(base, detail, method=p.method, detail_strength=p.detail_strength)
-    write_normals(output, r, y=p.y, channels=channels, depth=depth)
+    write_normals(output, r, y=p.y, channels=channels, bits=bits)
     manifest = write_manifest(output, bake="blend", inputs={"base": inputs["base"], "detail": inputs["detail"]},
                               params=params_to_dict(p), outputs=[output],
-                              extra={"conventions": _conventions(p.y), "sample_type": depth})
+                              extra={"conventions": _conventions(p.y), "sample_type": bits})
     return [output, manifest]
 
 
@@ -331,25 +341,38 @@ def run_blend(inputs: dict[str, Path], output: Path, p: BlendParams) -> list[Pat
 
 
 @dataclass(frozen=True)
-class MipsParams:
+class MipsParams(Params):
     """Parameters of the ``normal-mips`` bake (a normal map's mip chain + averaged-normal lengths)."""
 
-    levels: int | None = None
-    y: YConv = "up"
-    bits: Bits | None = None
-    lengths: bool = True
-
-    def __post_init__(self) -> None:
-        _tidy(self)
+    levels: int | None = param(None, "Levels including level 0. Default: down to 1x1.", low=1, high=16)
+    y: YConvention = y_param("Green-channel convention of the input and outputs: up (OpenGL-style, glTF 2.0) "
+                             "or down (DirectX-style).")
+    bits: Bits | None = bits_param()
+    lengths: bool = param(True, "Also write each level's averaged-normal length (for specular anti-aliasing).")
 
 
 def mip_paths(output: Path, levels: int) -> tuple[list[Path], list[Path]]:
-    """Level files ``name.mip1.ext`` .. and length files ``name.length.mip1.ext`` .. beside ``output``
+    """Level files ``name.mip01.ext`` .. and length files ``name.length.mip01.ext`` .. beside ``output``
     (level 0 is ``output`` itself; its length is 1)."""
-    stem, ext = output.stem, output.suffix
-    lv = [output] + [output.with_name(f"{stem}.mip{i}{ext}") for i in range(1, levels)]
-    ln = [output.with_name(f"{stem}.length.mip{i}{ext}") for i in range(1, levels)]
+    lv = [level_path(output, i) for i in range(levels)]
+    ln = [level_path(output, i, tag="length") for i in range(1, levels)]
     return lv, ln
+
+
+def mips_outputs(inputs: dict[str, Path], output: Path, p: MipsParams) -> list[Path]:
+    from bakery.io.images import image_size
+    from bakery.io.manifest import manifest_path
+    from bakery.mips import level_count
+
+    w, h = image_size(inputs["normal"])
+    count = level_count(w, h, p.levels)
+    if output.suffix.lower() == ".ktx2":
+        files = [output] + ([output.with_name(f"{output.stem}.length.ktx2")] if p.lengths else [])
+    else:
+        check_output(output)
+        levels, lengths = mip_paths(output, count)
+        files = levels + (lengths if p.lengths else [])
+    return files + [manifest_path(output)]
 
 
 #: KTX2 formats for normal-map mip chains: (bits, channels) -> VkFormat name. KTX2 has no 3-channel formats
@@ -358,10 +381,9 @@ KTX2_NORMAL_FORMATS = {("8", 3): "R8G8B8A8_UNORM", ("8", 2): "R8G8_UNORM", ("16"
                        ("16", 2): "R16G16_UNORM", ("half", 3): "R16G16B16A16_SFLOAT",
                        ("half", 2): "R16G16_SFLOAT", ("float", 3): "R32G32B32A32_SFLOAT",
                        ("float", 2): "R32G32B32A32_SFLOAT"}
-DEPTH_TO_BITS = {v: k for k, v in BITS_TO_DEPTH.items()}
 
 
-def run_mips(inputs: dict[str, Path], output: Path, p: MipsParams) -> list[Path]:
+def run_mips(inputs: dict[str, Path], output: Path, p: MipsParams, progress: Progress) -> list[Path]:
     from bakery.io.manifest import write_manifest
     from bakery.normals.encode import encode_normals
     from bakery.normals.mips import normal_mips
@@ -374,7 +396,7 @@ def run_mips(inputs: dict[str, Path], output: Path, p: MipsParams) -> list[Path]
     if ktx2:
         from bakery.io.ktx2 import write_ktx2
 
-        bits = p.bits or ("16" if img.depth == "u16" else "8" if img.depth == "u8" else "half")
+        bits = p.bits or ("16" if img.bits == "16" else "8" if img.bits == "8" else "half")
         fmt = KTX2_NORMAL_FORMATS[(bits, channels)]
         note = {"bakeryNormalMap": f"{ENCODING}; +Y {p.y}; level data = renormalized averages"}
         written.append(write_ktx2(output, [encode_normals(u, y=p.y, channels=channels) for u, _ in chain],
@@ -386,22 +408,22 @@ def run_mips(inputs: dict[str, Path], output: Path, p: MipsParams) -> list[Path]
             written.append(write_ktx2(lpath, [ln[:, :, None] for _, ln in chain], "R16_UNORM", cubemap=False,
                                       key_values={"bakeryNormalMap": "length of the averaged unit normal"}))
             length_names = [lpath.name] * len(chain)
-        depth = fmt
+        bits = fmt
     else:
         from bakery.io.images import write_image
 
         fmt_name = check_output(output)
-        depth = output_depth(output, p.bits, img.depth)
+        bits = output_bits(output, p.bits, img.bits)
         levels, lengths = mip_paths(output, len(chain))
-        len_depth = {"png": "u16", "tiff": "u16", "exr": "f32"}.get(fmt_name, "f32")
+        len_bits = {"png": "16", "tiff": "16", "exr": "float"}.get(fmt_name, "float")
         for path, (unit, _) in zip(levels, chain, strict=True):
-            written.append(write_normals(path, unit, y=p.y, channels=channels, depth=depth))
+            written.append(write_normals(path, unit, y=p.y, channels=channels, bits=bits))
         if p.lengths:
             for path, (_, length) in zip(lengths, chain[1:], strict=True):
-                written.append(write_image(path, length, depth=len_depth))
+                written.append(write_image(path, length, bits=len_bits))
         names = [lv.name for lv in levels]
         length_names = [None] + ([ln.name for ln in lengths] if p.lengths else [None] * len(lengths))
-    extra = {"conventions": _conventions(p.y), "sample_type": depth,
+    extra = {"conventions": _conventions(p.y), "sample_type": bits,
              "filter": "area-weighted box over each texel's footprint, vectors averaged then renormalized",
              "levels": [{"level": i, "size": [int(u.shape[1]), int(u.shape[0])], "normals": names[i],
                          "length": length_names[i], "mean_length": float(ln.mean(dtype="float64"))}
@@ -416,36 +438,33 @@ def run_mips(inputs: dict[str, Path], output: Path, p: MipsParams) -> list[Path]
 
 
 @dataclass(frozen=True)
-class FixParams:
+class FixParams(Params):
     """Parameters of the ``normal-fix`` bake: small repairs of an existing normal map."""
 
-    flip_y: bool = False
-    renormalize: bool = False
-    channels: Literal[2, 3] | None = None
-    bits: Bits | None = None
-
-    def __post_init__(self) -> None:
-        _tidy(self)
+    flip_y: bool = param(False, "Switch between Y-up and Y-down (g' = 1 - g).")
+    renormalize: bool = param(False, "Make every vector unit length.")
+    channels: Literal[2, 3] | None = param(None, "Channels written: 2 (XY; Z rebuilt by readers) or 3 (XYZ); "
+                                           "default: the input's.")
+    bits: Bits | None = bits_param()
 
 
-def run_fix(inputs: dict[str, Path], output: Path, p: FixParams) -> list[Path]:
+def run_fix(inputs: dict[str, Path], output: Path, p: FixParams, progress: Progress) -> list[Path]:
     import numpy as np
 
-    from bakery.cli._common import max_pixels_from_env
     from bakery.io.images import read_image, write_image
     from bakery.io.manifest import write_manifest
     from bakery.normals.encode import decode_normals, encode_normals, normalize
 
     check_output(output)
     src = inputs["normal"]
-    img = read_image(src, max_pixels=max_pixels_from_env())
+    img = read_image(src)
     if img.channels == 1:
         raise BakeryError("has one channel: a normal map needs 2 (XY), 3 (RGB) or 4 (RGBA)", src)
     c_in = 2 if img.channels == 2 else 3
     channels = p.channels or c_in
-    depth = output_depth(output, p.bits, img.depth)
-    if not (p.flip_y or p.renormalize or channels != c_in or depth != img.depth):
-        raise BakeryError("nothing to do: ask for --flip-green, --renormalize, --channels or --bits")
+    bits = output_bits(output, p.bits, img.bits)
+    if not (p.flip_y or p.renormalize or channels != c_in or bits != img.bits):
+        raise BakeryError("nothing to do: ask for --flip-y, --renormalize, --channels or --bits")
     px = img.pixels
     alpha = px[:, :, 3:4] if img.channels == 4 else None
     if alpha is not None and channels == 2:
@@ -464,19 +483,19 @@ def run_fix(inputs: dict[str, Path], output: Path, p: FixParams) -> list[Path]:
             np.subtract(np.float32(1.0), enc[:, :, 1], out=enc[:, :, 1])
     if alpha is not None:
         enc = np.concatenate([enc, alpha], axis=2)
-    write_image(output, enc, depth=depth)
+    write_image(output, enc, bits=bits)
     manifest = write_manifest(output, bake="normal-fix", inputs={"normal": src}, params=params_to_dict(p),
-                              outputs=[output], extra={"encoding": ENCODING, "sample_type": depth})
+                              outputs=[output], extra={"encoding": ENCODING, "sample_type": bits})
     return [output, manifest]
 
 
 register(Bake("normal", "height map -> tangent-space normal map (Blinn 1978)", ("height",), NormalParams,
-              run_normal))
+              one_output, run_normal))
 register(Bake("height", "normal map -> height map (Frankot-Chellappa 1988 / Poisson)", ("normal",), HeightParams,
-              run_height))
+              one_output, run_height))
 register(Bake("blend", "detail normal map over a base (reoriented, whiteout, derivative, linear)", ("base", "detail"),
-              BlendParams, run_blend))
-register(Bake("normal-mips", "normal-map mip chain with averaged-normal lengths", ("normal",), MipsParams,
-              run_mips))
+              BlendParams, one_output, run_blend))
+register(Bake("normal-mips", "normal-map mip chain with averaged-normal lengths (image files or one KTX2)",
+              ("normal",), MipsParams, mips_outputs, run_mips))
 register(Bake("normal-fix", "flip green, renormalize, 2 <-> 3 channels, 8 <-> 16-bit", ("normal",), FixParams,
-              run_fix))
+              one_output, run_fix))

@@ -1,4 +1,4 @@
-"""Cubemap layouts inside single images: crosses, strips, columns (pure array functions).
+"""Cubemap layouts inside single images: crosses, rows, stacks (pure array functions).
 
 A cubemap in memory is float32 ``(6, N, N, C)``, faces +X, -X, +Y, -Y, +Z, -Z, each oriented by the Vulkan
 face selection table with bakery's handedness flip (:mod:`bakery.sphere`): every face is the view from inside
@@ -6,23 +6,23 @@ the sphere, the right way round, with +Y up on the four side faces.
 
 Single-image layouts (face size N):
 
-``hcross`` (4N x 3N)::
+``cross-wide`` (4N x 3N)::
 
         .   +Y   .    .
        -X   +Z   +X   -Z
         .   -Y   .    .
 
-``vcross`` (3N x 4N)::
+``cross-tall`` (3N x 4N)::
 
         .   +Y   .
        -X   +Z   +X
         .   -Y   .
         .   -Z   .        (-Z turned by 180 degrees so that it joins -Y)
 
-``strip`` (6N x N): +X -X +Y -Y +Z -Z left to right. ``column`` (N x 6N): the same top to bottom.
+``row`` (6N x N): +X -X +Y -Y +Z -Z left to right. ``stack`` (N x 6N): the same top to bottom.
 ``equirect`` (2N x N): a panorama, not a cube layout (see :mod:`bakery.sphere`).
 
-Every face in the crosses joins its neighbours without a seam: the middle row of ``hcross`` reads like the
+Every face in the crosses joins its neighbours without a seam: the middle row of ``cross-wide`` reads like the
 middle band of a panorama (-X, front, +X, back), +Y sits above the front face and -Y below it.
 Unused cells of a cross are written as zero.
 """
@@ -36,34 +36,34 @@ from bakery.errors import BakeryError
 #: Layouts of a single image, with (columns, rows) in face units.
 IMAGE_LAYOUTS: dict[str, tuple[int, int]] = {
     "equirect": (2, 1),
-    "hcross": (4, 3),
-    "vcross": (3, 4),
-    "strip": (6, 1),
-    "column": (1, 6),
+    "cross-wide": (4, 3),
+    "cross-tall": (3, 4),
+    "row": (6, 1),
+    "stack": (1, 6),
 }
-CUBE_IMAGE_LAYOUTS = ("hcross", "vcross", "strip", "column")
+CUBE_IMAGE_LAYOUTS = ("cross-wide", "cross-tall", "row", "stack")
 
 #: (face, column, row, quarter turns counter-clockwise applied when placing the face)
 _CELLS: dict[str, tuple[tuple[int, int, int, int], ...]] = {
-    "hcross": ((0, 2, 1, 0), (1, 0, 1, 0), (2, 1, 0, 0), (3, 1, 2, 0), (4, 1, 1, 0), (5, 3, 1, 0)),
-    "vcross": ((0, 2, 1, 0), (1, 0, 1, 0), (2, 1, 0, 0), (3, 1, 2, 0), (4, 1, 1, 0), (5, 1, 3, 2)),
-    "strip": tuple((f, f, 0, 0) for f in range(6)),
-    "column": tuple((f, 0, f, 0) for f in range(6)),
+    "cross-wide": ((0, 2, 1, 0), (1, 0, 1, 0), (2, 1, 0, 0), (3, 1, 2, 0), (4, 1, 1, 0), (5, 3, 1, 0)),
+    "cross-tall": ((0, 2, 1, 0), (1, 0, 1, 0), (2, 1, 0, 0), (3, 1, 2, 0), (4, 1, 1, 0), (5, 1, 3, 2)),
+    "row": tuple((f, f, 0, 0) for f in range(6)),
+    "stack": tuple((f, 0, f, 0) for f in range(6)),
 }
 
 #: Names of the faces in file-name patterns (``{face}``), in storage order.
-FACE_TOKENS = ("px", "nx", "py", "ny", "pz", "nz")
+FACE_TOKENS = ("x+", "x-", "y+", "y-", "z+", "z-")
 
 
 def detect_layout(width: int, height: int, *, where: object = None) -> str:
-    """The layout of a single image from its aspect ratio: 2:1 equirect, 4:3 hcross, 3:4 vcross, 6:1 strip,
-    1:6 column. Raises :class:`BakeryError` for anything else."""
+    """The layout of a single image from its aspect ratio: 2:1 equirect, 4:3 cross-wide, 3:4 cross-tall, 6:1 row,
+    1:6 stack. Raises :class:`BakeryError` for anything else."""
     for name, (cols, rows) in IMAGE_LAYOUTS.items():
         if width * rows == height * cols and width % cols == 0:
             return name
     raise BakeryError(
         f"image is {width}x{height}: its aspect ratio is not 2:1 (panorama), 4:3 or 3:4 (cross), 6:1 or 1:6 "
-        "(strip, column); give the layout with --layout if it is one of these", where)
+        "(row, stack); name its layout with --input-layout if it is one of these", where)
 
 
 def face_size(width: int, height: int, layout: str, *, where: object = None) -> int:
@@ -76,7 +76,7 @@ def face_size(width: int, height: int, layout: str, *, where: object = None) -> 
 
 
 def split(image: np.ndarray, layout: str, *, where: object = None) -> np.ndarray:
-    """Six faces ``(6, N, N, C)`` from a cross, strip or column image ``(H, W, C)``."""
+    """Six faces ``(6, N, N, C)`` from a cross, row or stack image ``(H, W, C)``."""
     if layout not in _CELLS:
         raise ValueError(f"not a cube layout: {layout!r}")
     h, w = image.shape[:2]
@@ -89,7 +89,7 @@ def split(image: np.ndarray, layout: str, *, where: object = None) -> np.ndarray
 
 
 def assemble(faces: np.ndarray, layout: str) -> np.ndarray:
-    """A cross, strip or column image ``(H, W, C)`` from faces ``(6, N, N, C)``; empty cells are zero."""
+    """A cross, row or stack image ``(H, W, C)`` from faces ``(6, N, N, C)``; empty cells are zero."""
     if layout not in _CELLS:
         raise ValueError(f"not a cube layout: {layout!r}")
     n, c = faces.shape[1], faces.shape[3]

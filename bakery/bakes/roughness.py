@@ -10,20 +10,20 @@ import math
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Literal
+from typing import TYPE_CHECKING, Literal
 
-import numpy as np
-
-from bakery.bakes import Bake, params_to_dict, register
+from bakery.bakes import Bake, Progress, level_path, params_to_dict, register
+from bakery.bakes.params import Bits, Channel, Params, bits_param, channel_param, loose_param, param, parse_numbers
 from bakery.errors import BakeryError, BakeryWarning
 
+if TYPE_CHECKING:
+    import numpy as np
+
 Quantity = Literal["exponent", "gloss-linear", "gloss-exp", "smoothness", "roughness", "alpha", "beckmann"]
-Channel = Literal["R", "G", "B", "A"]
-Depth = Literal["u8", "u16", "f16", "f32"]
-CHANNELS = ("R", "G", "B", "A")
+CHANNELS = ("r", "g", "b", "a")
 
 #: glTF 2.0, material.pbrMetallicRoughness.metallicRoughnessTexture: roughness in G, metalness in B, linear.
-GLTF_ROUGHNESS_CHANNEL = "G"
+GLTF_ROUGHNESS_CHANNEL = "g"
 
 
 # ------------------------------------------------------------------------------------------------ helpers
@@ -31,46 +31,50 @@ GLTF_ROUGHNESS_CHANNEL = "G"
 
 def pick_channel(pixels: np.ndarray, channel: str | None, path: Path, what: str) -> np.ndarray:
     """One channel (H, W) of an image: the named one, or the only one / the grey value of equal R, G, B."""
+    import numpy as np
+
     c = pixels.shape[2]
     if channel is not None:
         i = CHANNELS.index(channel)
         if i >= c:
-            raise BakeryError(f"{what} has {c} channel(s); it has no {channel} channel", path)
+            raise BakeryError(f"{what} has {c} channel(s); it has no {channel.upper()} channel", path)
         return pixels[:, :, i]
     if c <= 2:  # grey, or grey + alpha
         return pixels[:, :, 0]
     if np.array_equal(pixels[:, :, 0], pixels[:, :, 1]) and np.array_equal(pixels[:, :, 1], pixels[:, :, 2]):
         return pixels[:, :, 0]
     raise BakeryError(f"{what} holds different values in R, G and B; say which channel to read "
-                      "(--channel R|G|B|A)", path)
+                      "(--channel r|g|b|a)", path)
 
 
-def output_depth(out: Path, requested: str | None, source_depth: str, *, bounded: bool) -> str:
+def output_bits(out: Path, requested: str | None, source_bits: str, *, bounded: bool) -> str:
     """The output sample type: the requested one, else the source's when the format holds it, else the
     nearest the format holds. Unbounded values (exponents, Beckmann m) need float samples."""
     from bakery.io.images import WRITABLE, image_format
 
     fmt = image_format(out, writing=True)
     if requested is not None:
-        depth = requested
-        if depth not in WRITABLE[fmt]:
-            raise BakeryError(f"{fmt.upper()} files cannot hold {depth} samples; use one of "
+        bits = requested
+        if bits not in WRITABLE[fmt]:
+            raise BakeryError(f"{fmt.upper()} files cannot hold {bits} samples; use one of "
                               f"{', '.join(WRITABLE[fmt])}", out)
-    elif source_depth in WRITABLE[fmt]:
-        depth = source_depth
-    elif source_depth in ("f16", "f32"):  # float source, format without that float: keep the most precision
-        depth = "f32" if "f32" in WRITABLE[fmt] else "u16"
+    elif source_bits in WRITABLE[fmt]:
+        bits = source_bits
+    elif source_bits in ("half", "float"):  # float source, format without that float: keep the most precision
+        bits = "float" if "float" in WRITABLE[fmt] else "16"
     else:  # integer source into a float-only format
-        depth = "f16" if "f16" in WRITABLE[fmt] else "f32"
-    if not bounded and depth in ("u8", "u16"):
+        bits = "half" if "half" in WRITABLE[fmt] else "float"
+    if not bounded and bits in ("8", "16"):
         raise BakeryError("exponents and Beckmann widths are unbounded and need a float file (.exr or .tif "
                           "with --bits float)", out)
-    return depth
+    return bits
 
 
-def clip_for_integers(values: np.ndarray, depth: str, path: Path, what: str) -> np.ndarray:
+def clip_for_integers(values: np.ndarray, bits: str, path: Path, what: str) -> np.ndarray:
     """Integer files hold [0, 1]: clip, and warn with a count when anything was outside."""
-    if depth not in ("u8", "u16"):
+    import numpy as np
+
+    if bits not in ("8", "16"):
         return values
     outside = int(np.count_nonzero((values < 0) | (values > 1)))
     if outside:
@@ -87,7 +91,7 @@ def _reraise(exc: BakeryError, path: Path) -> BakeryError:
 
 
 @dataclass(frozen=True)
-class RoughnessParams:
+class RoughnessParams(Params):
     """Parameters of the ``roughness`` bake (see :func:`bakery.roughness.convert.convert_specular`).
 
     ``source`` None means "exponent" for float files; integer files hold [0, 1] and must be told their mapping.
@@ -95,45 +99,63 @@ class RoughnessParams:
     replaced (glTF 2.0 metallic-roughness textures keep roughness in G and metalness in B).
     """
 
-    source: Quantity | None = None
-    target: Quantity = "roughness"
-    model: Literal["blinn-phong", "phong"] = "blinn-phong"
-    rule: Literal["peak", "width"] = "peak"
-    exponent_range: tuple[float, float] | None = None
-    gloss_base: float | None = None
-    gloss_scale: float | None = None
-    clamp: bool = False
-    channel: Channel | None = None
-    depth: Depth | None = None
-    pack_channel: Channel = GLTF_ROUGHNESS_CHANNEL
+    source: Quantity | None = param(
+        None, "What the input map holds: exponent (default for float files), gloss-linear, gloss-exp, "
+        "smoothness, roughness, alpha or beckmann. 8/16-bit files must be told.")
+    target: Quantity = param(
+        "roughness", "What to write: roughness (perceptual, r = sqrt(alpha)), alpha (GGX), beckmann (m), "
+        "smoothness, or back to exponent / gloss-linear / gloss-exp.")
+    model: Literal["blinn-phong", "phong"] = param(
+        "blinn-phong", "Lobe of the exponent: blinn-phong (about the half vector) or phong (about the mirror "
+        "direction, counted as a 4x smaller Blinn-Phong exponent).")
+    rule: Literal["peak", "width"] = param(
+        "peak", "Match the lobes' peak heights (alpha = sqrt(2/(n+2)), Walter et al. 2007) or their "
+        "half-maximum angles.")
+    exponent_range: tuple[float, float] | None = param(
+        None, "LO,HI: the exponents gloss 0 and 1 stand for; gloss-linear: n = LO + g (HI - LO); gloss-exp: "
+        "n = LO (HI/LO)^g.", low=0.0, parse=parse_numbers, metavar="LO,HI")
+    clamp: bool = param(False, "Clip out-of-range input values (NaN -> roughest) with a warning instead of "
+                        "stopping.")
+    channel: Channel | None = channel_param()
+    bits: Bits | None = bits_param()
+    pack_channel: Channel = param(GLTF_ROUGHNESS_CHANNEL, "Channel of the --pack image that receives the result "
+                                  "(glTF 2.0 metallic-roughness: g).")
 
 
-INTEGER_HINT = ("--from gloss-linear --exponent-range LO HI, --from gloss-exp --gloss-base B --gloss-scale K, "
-                "--from smoothness or --from roughness")
+INTEGER_HINT = ("--source gloss-linear --exponent-range LO,HI, --source gloss-exp --exponent-range LO,HI, "
+                "--source smoothness or --source roughness")
 
 
-def _source_quantity(params: RoughnessParams, depth: str, path: Path) -> str:
+def _source_quantity(params: RoughnessParams, bits: str, path: Path) -> str:
     if params.source is not None:
-        if params.source in ("exponent", "beckmann") and depth in ("u8", "u16"):
-            bits = 8 if depth == "u8" else 16
+        if params.source in ("exponent", "beckmann") and bits in ("8", "16"):
+            bits = 8 if bits == "8" else 16
             raise BakeryError(
                 f"an {bits}-bit file holds values in [0, 1], not raw {params.source} values; for stored integers "
-                f"0..{2**bits - 1} use --from gloss-linear --exponent-range 0 {2**bits - 1}", path)
+                f"0..{2**bits - 1} use --source gloss-linear --exponent-range 0,{2**bits - 1}", path)
         return params.source
-    if depth in ("u8", "u16"):
-        bits = 8 if depth == "u8" else 16
+    if bits in ("8", "16"):
+        bits = 8 if bits == "8" else 16
         raise BakeryError(f"an {bits}-bit map does not say how it encodes exponents; give its mapping: "
                           f"{INTEGER_HINT}", path)
     return "exponent"
 
 
-def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams) -> list[Path]:
+def one_output(inputs: dict[str, Path], output: Path, p) -> list[Path]:
+    from bakery.io.manifest import manifest_path
+
+    return [output, manifest_path(output)]
+
+
+def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams, progress: Progress) -> list[Path]:
+    import numpy as np
+
     from bakery.io import read_image, write_image, write_manifest
     from bakery.roughness.convert import QUANTITIES, convert_specular
 
-    src_path = inputs["map"]
+    src_path = inputs["specular"]
     img = read_image(src_path, allow_nonfinite=True)
-    source = _source_quantity(params, img.depth, src_path)
+    source = _source_quantity(params, img.bits, src_path)
     values = pick_channel(img.pixels, params.channel, src_path, "the map")
     target = QUANTITIES[params.target]
     pack = inputs.get("pack")
@@ -149,16 +171,15 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
                               "(glTF 2.0: roughness in G, metalness in B)", pack)
         if CHANNELS.index(params.pack_channel) >= packed.channels:
             raise BakeryError(f"image to pack into has no {params.pack_channel} channel", pack)
-    depth = output_depth(output, params.depth, packed.depth if packed is not None else img.depth,
+    bits = output_bits(output, params.bits, packed.bits if packed is not None else img.bits,
                          bounded=math.isfinite(target.high))
     try:
         result = convert_specular(values, source=source, target=params.target, model=params.model,
-                                  rule=params.rule, exponent_range=params.exponent_range,
-                                  gloss_base=params.gloss_base, gloss_scale=params.gloss_scale, clamp=params.clamp)
+                                  rule=params.rule, exponent_range=params.exponent_range, clamp=params.clamp)
     except BakeryError as exc:
         raise _reraise(exc, src_path) from None
-    result = clip_for_integers(result, depth, output, params.target)
-    if depth == "f16":
+    result = clip_for_integers(result, bits, output, params.target)
+    if bits == "half":
         big = int(np.count_nonzero(result > 65504.0))
         if big:
             warnings.warn(f"{output}: {big} value(s) above 65504 (the largest half float) stored as 65504; "
@@ -169,7 +190,7 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
         pixels[:, :, CHANNELS.index(params.pack_channel)] = result
     else:
         pixels = result
-    write_image(output, pixels, depth=depth)  # data, never sRGB-encoded
+    write_image(output, pixels, bits=bits)  # data, never sRGB-encoded
     p = params_to_dict(params)
     p["source"] = source
     conventions = {
@@ -178,7 +199,8 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
         "roughness": "perceptual roughness r; GGX alpha = r^2 (Burley 2012)",
     }
     if packed is not None:
-        conventions["packing"] = f"roughness in {params.pack_channel} of {pack.name} (glTF 2.0 metallicRoughness)"
+        conventions["packing"] = (f"roughness in {params.pack_channel.upper()} of {pack.name} "
+                                  "(glTF 2.0 metallicRoughness)")
     manifest = write_manifest(output, bake="roughness", inputs=inputs, params=p, outputs=[output],
                               extra={"conventions": conventions})
     return [output, manifest]
@@ -187,8 +209,9 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
 register(Bake(
     name="roughness",
     summary="specular-exponent, gloss or smoothness map -> roughness (or back)",
-    inputs=("map", "pack?"),
+    inputs=("specular", "pack?"),
     params=RoughnessParams,
+    outputs=one_output,
     run=run_roughness,
 ))
 
@@ -197,37 +220,59 @@ register(Bake(
 
 
 @dataclass(frozen=True)
-class AntialiasParams:
+class AntialiasParams(Params):
     """Parameters of the ``antialias`` bake (see :func:`bakery.roughness.antialias.roughness_mips`).
 
-    ``roughness`` is a constant perceptual roughness used when no roughness map is given. ``ktx2`` also writes
-    ``NAME.ktx2`` when the output names loose image files. ``channel`` picks the roughness map's channel.
+    ``roughness`` is a constant perceptual roughness used when no roughness map is given. ``loose`` also writes
+    every level as an image file when the output is ``NAME.ktx2``. ``channel`` picks the roughness map's channel.
     """
 
-    roughness: float | None = None
-    method: Literal["vmf", "toksvig"] = "vmf"
-    lobe: Literal["ggx", "beckmann"] = "ggx"
-    levels: int | None = None
-    ktx2: bool = False
-    channel: Channel | None = None
-    depth: Depth | None = None
+    roughness: float | None = param(None, "Constant perceptual roughness when no roughness map is given.",
+                                    low=0.0, high=1.0)
+    method: Literal["vmf", "toksvig"] = param(
+        "vmf", "Normal spread from the averaged normal length |Na|: vmf (von Mises-Fisher fit, Banerjee et al. "
+        "2005) or toksvig (Toksvig 2005).")
+    lobe: Literal["ggx", "beckmann"] = param(
+        "ggx", "Distribution the roughness drives in the renderer (sets how spread adds to alpha^2).")
+    levels: int | None = param(None, "Number of mip levels (default: the full chain to 1x1).", low=1, high=16)
+    loose: bool = loose_param()
+    channel: Channel | None = channel_param("Channel of the roughness map to read (g for a glTF "
+                                            "metallic-roughness map); default: the only one, or equal r, g, b.")
+    bits: Bits | None = bits_param("Samples of the levels: 8, 16, half, float (default: follows the roughness "
+                                   "map, else 16).")
 
 
-KTX2_FORMATS = {"u8": "R8_UNORM", "u16": "R16_UNORM"}
+KTX2_FORMATS = {"8": "R8_UNORM", "16": "R16_UNORM"}
 
 
-def level_paths(output: Path, count: int) -> list[Path]:
-    """``NAME.png`` -> ``NAME.mip00.png``, ``NAME.mip01.png``, ...; ``NAME.ktx2`` -> itself."""
+def level_paths(output: Path, count: int, loose: bool = False) -> list[Path]:
+    """``NAME.png`` -> ``NAME.png`` (level 0), ``NAME.mip01.png``, ...; ``NAME.ktx2`` -> itself, plus
+    ``NAME.png``, ``NAME.mip01.png`` ... with ``loose``."""
     if output.suffix.lower() == ".ktx2":
-        return [output]
-    return [output.with_name(f"{output.stem}.mip{k:02d}{output.suffix}") for k in range(count)]
+        image = output.with_suffix(".png")
+        return [output] + ([level_path(image, k) for k in range(count)] if loose else [])
+    return [level_path(output, k) for k in range(count)]
 
 
-def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams) -> list[Path]:
+def antialias_outputs(inputs: dict[str, Path], output: Path, params: AntialiasParams) -> list[Path]:
+    from bakery.io.images import image_size
+    from bakery.io.manifest import manifest_path
+    from bakery.mips import level_count
+
+    w, h = image_size(inputs["normal"])
+    if params.loose and output.suffix.lower() != ".ktx2":
+        raise BakeryError("--loose goes with a .ktx2 output (an image output already writes every level as a "
+                          "file)", output)
+    return level_paths(output, level_count(w, h, params.levels), params.loose) + [manifest_path(output)]
+
+
+def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams, progress: Progress) -> list[Path]:
     import contextlib
 
+    import numpy as np
+
+    from bakery.bakes.normals import read_normals
     from bakery.io import atomic_output, check_distinct, read_image, write_image, write_manifest
-    from bakery.normals.bakes import read_normals
     from bakery.roughness.antialias import roughness_mips
 
     normal_path = inputs["normal"]
@@ -238,7 +283,7 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
     if rough_path is not None and params.roughness is not None:
         raise BakeryError("give either a roughness map or --roughness, not both", rough_path)
     normals, _ = read_normals(normal_path, "up")  # the Y convention does not change lengths of averages
-    source_depth = "u16"
+    source_bits = "16"
     if rough_path is not None:
         rough_img = read_image(rough_path)
         if rough_img.pixels.shape[:2] != normals.shape[:2]:
@@ -250,40 +295,35 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
         if outside:
             raise BakeryError(f"{outside} roughness value(s) outside [0, 1]; perceptual roughness maps hold "
                               "[0, 1]", rough_path)
-        source_depth = rough_img.depth
+        source_bits = rough_img.bits
     else:
         base = float(params.roughness)
-        if not 0.0 <= base <= 1.0:
-            raise BakeryError(f"--roughness must lie in [0, 1]; got {base:g}")
-    ktx2_only = output.suffix.lower() == ".ktx2"
-    if ktx2_only:
-        depth = params.depth or ("u8" if source_depth == "u8" else "u16")
-        if depth not in KTX2_FORMATS:
+    ktx2 = output.suffix.lower() == ".ktx2"
+    if ktx2:
+        bits = params.bits or ("8" if source_bits == "8" else "16")
+        if bits not in KTX2_FORMATS:
             raise BakeryError("KTX2 roughness chains are stored as R8_UNORM or R16_UNORM; use --bits 8 or 16",
                               output)
     else:
-        depth = output_depth(output, params.depth, source_depth, bounded=True)
+        bits = output_bits(output, params.bits, source_bits, bounded=True)
     try:
         chain = roughness_mips(normals, base, levels=params.levels, method=params.method, lobe=params.lobe)
     except BakeryError as exc:
         raise _reraise(exc, normal_path) from None
-    paths = level_paths(output, len(chain))
-    ktx2_path = output if ktx2_only else (output.with_suffix(".ktx2") if params.ktx2 else None)
-    if ktx2_path is not None and ktx2_path not in paths:
-        paths.append(ktx2_path)
+    paths = level_paths(output, len(chain), params.loose)
     check_distinct(paths, [p for p in (normal_path, rough_path) if p is not None])
+    images = paths[1:] if ktx2 else paths
     describe = (f"perceptual roughness r (GGX alpha = r^2, Burley 2012); level k adds the normal spread under its "
                 f"footprint: alpha^2 = mean(alpha_0^2) + c * v(|Na|), method {params.method}, lobe {params.lobe}")
     with contextlib.ExitStack() as stack:  # every file renamed into place only after all were written
-        if not ktx2_only:
-            for level, path in zip(chain, paths, strict=False):
-                tmp = stack.enter_context(atomic_output(path))
-                write_image(tmp, level, depth=depth)
-        if ktx2_path is not None:
+        for level, path in zip(chain, images, strict=False):
+            tmp = stack.enter_context(atomic_output(path))
+            write_image(tmp, level, bits=bits)
+        if ktx2:
             from bakery.io.ktx2 import write_ktx2
 
-            tmp = stack.enter_context(atomic_output(ktx2_path))
-            fmt = KTX2_FORMATS[depth if depth in KTX2_FORMATS else "u16"]
+            tmp = stack.enter_context(atomic_output(output))
+            fmt = KTX2_FORMATS[bits if bits in KTX2_FORMATS else "16"]
             write_ktx2(tmp, [lv[:, :, None] for lv in chain], fmt, cubemap=False,
                        key_values={"bakery.roughness": describe})
     conventions = {"roughness": describe, "transfer": "linear",
@@ -299,5 +339,6 @@ register(Bake(
     summary="normal map (+ roughness) -> roughness mip chain widened by the normal spread of each level",
     inputs=("normal", "roughness?"),
     params=AntialiasParams,
+    outputs=antialias_outputs,
     run=run_antialias,
 ))

@@ -1,0 +1,269 @@
+"""Environment-map bakes for the registry (:mod:`bakery.bakes`): ``env-convert`` and ``env-diffuse``.
+
+Each bake reads with :mod:`bakery.io.envfiles`, calls the pure functions of :mod:`bakery.envmap`, writes its
+outputs atomically and a JSON manifest. The CLI (``bakery env ...``) and the batch runner both run them
+through :func:`bakery.bakes.run_bake`, so a command line and a recipe give identical outputs.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Literal
+
+from bakery.bakes import Bake, Progress, bake_threads, params_to_dict, register
+from bakery.bakes.params import Bits, Params, bits_param, ktx2_format_param, param
+from bakery.errors import BakeryError
+
+Layout = Literal["equirect", "cross-wide", "cross-tall", "row", "stack", "files", "ktx2"]
+ImageLayout = Literal["equirect", "cross-wide", "cross-tall", "row", "stack"]
+Filter = Literal["auto", "area", "bilinear"]
+
+#: The help of every input layout option (env convert, diffuse, specular).
+INPUT_LAYOUT = param(None, "Layout of a single input image: equirect (2:1), cross-wide (4:3), cross-tall (3:4), "
+                     "row (6:1), stack (1:6). Default: from its aspect ratio.")
+REPAIR = param(False, "Set NaN/Inf and negative input values to 0 (counted) instead of refusing the input.")
+
+CONVENTIONS = {
+    "directions": "right-handed, +Y up",
+    "equirect": "centre of the image looks along -Z, top row +Y, +X a quarter width right of the centre",
+    "cube_faces": "+X, -X, +Y, -Y, +Z, -Z; Vulkan cube map face selection table; table z = -(bakery z)",
+    "values": "linear radiance",
+}
+
+
+#: Key/value entries bakery adds to KTX2 environment maps (besides KTXorientation and KTXwriter).
+KTX_KEYS = {"bakery.cubemap": "faces +X,-X,+Y,-Y,+Z,-Z by the Vulkan face selection table; right-handed "
+                              "+Y-up directions map to it with z negated, so face +Z looks toward -Z (the "
+                              "panorama centre)"}
+
+
+@dataclass(frozen=True)
+class ConvertParams(Params):
+    """Parameters of ``env-convert``. An output pattern holding {face} writes six files, a .ktx2 output a
+    cubemap (or a panorama with ``output_layout = "equirect"``), any other image the output layout."""
+
+    input_layout: ImageLayout | None = INPUT_LAYOUT
+    output_layout: Layout | None = param(
+        None, "Layout of the output: equirect, cross-wide, cross-tall, row, stack; files and ktx2 follow from "
+        "the output path ({face} pattern, .ktx2). Default: the input's single-image layout, else cross-wide; "
+        "equirect with a .ktx2 output writes a 2D panorama.")
+    face_size: int | None = param(None, "Output cube face edge in texels. Default: the input face size, or "
+                                  "panorama width / 4.", unit="texels", low=1, high=16384)
+    width: int | None = param(None, "Output panorama width in texels, even. Default: the input width, or 4 x "
+                              "the face size.", unit="texels", low=2, high=32768)
+    rotation: float = param(0.0, "Turn the environment about the vertical axis; positive moves the panorama "
+                            "content to the right.", unit="degrees", low=-3600.0, high=3600.0)
+    exposure: float = param(0.0, "Exposure change (values x 2^EV).", unit="EV", low=-64.0, high=64.0)
+    filter: Filter = param("auto", "auto: area-weighted (energy-keeping) when shrinking, bilinear otherwise.")
+    bits: Bits | None = bits_param("Image samples: 8, 16 (PNG, TIFF), half, float (EXR; float also TIFF). "
+                                   "Default follows the input (float input -> half-float EXR).")
+    ktx2_format: str | None = ktx2_format_param(None)
+    mips: bool = param(True, "Write the mip chain into .ktx2 outputs.")
+    repair: bool = REPAIR
+
+    def check(self) -> None:
+        if self.width is not None and self.width % 2:
+            raise BakeryError(f"width must be even; got {self.width}")
+        if self.ktx2_format is not None:
+            from bakery.io.ktx2 import get_format
+
+            get_format(self.ktx2_format)
+
+
+def _input_files(env_paths: list[Path], role: str) -> dict[str, Path]:
+    if len(env_paths) == 1:
+        return {role: env_paths[0]}
+    from bakery.io.layouts import FACE_TOKENS
+
+    return {f"{role}:{tok}": p for tok, p in zip(FACE_TOKENS, env_paths, strict=True)}
+
+
+def environment_files(path: Path) -> list[Path]:
+    """The files one environment output path stands for: six for a {face} pattern, else itself."""
+    from bakery.io.envfiles import face_paths, is_face_pattern
+
+    return face_paths(path) if is_face_pattern(path) else [path]
+
+
+def convert_outputs(inputs: dict[str, Path], output: Path, params: ConvertParams) -> list[Path]:
+    from bakery.io.manifest import manifest_path
+
+    return environment_files(output) + [manifest_path(output)]
+
+
+def output_kind(output: Path, layout: str | None, input_layout: str) -> tuple[str, str | None]:
+    """("cube" | "equirect", layout for write_environment) of an output path."""
+    from bakery.io.envfiles import layout_of_path
+
+    pl = layout_of_path(output)
+    if pl == "files":
+        if layout not in (None, "files"):
+            raise BakeryError(f"an output pattern with {{face}} writes six faces, not {layout!r}", output)
+        return "cube", None
+    if pl == "ktx2":
+        if layout in (None, "ktx2"):
+            return "cube", None
+        if layout == "equirect":
+            return "equirect", "equirect"
+        raise BakeryError(f"a .ktx2 output holds a cubemap or a panorama (--output-layout equirect), not {layout!r}",
+                          output)
+    if layout in ("files", "ktx2"):
+        raise BakeryError(f"layout {layout!r} needs an output path with {{face}} or .ktx2", output)
+    lay = layout or (input_layout if input_layout not in ("files", "ktx2") else "cross-wide")
+    return ("equirect" if lay == "equirect" else "cube"), lay
+
+
+def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, progress: Progress) -> list[Path]:
+    import numpy as np
+
+    from bakery.envmap.sample import cube_mip_chain, equirect_mip_chain, resample
+    from bakery.io.envfiles import read_environment, write_environment
+    from bakery.io.manifest import write_manifest
+
+    src = inputs["environment"]
+    env = read_environment(src, layout=params.input_layout, repair=params.repair)
+    kind, lay = output_kind(output, params.output_layout, env.layout)
+    if kind == "cube" and params.width is not None:
+        raise BakeryError("--width sets a panorama's width; this output is a cubemap: use --face-size", output)
+    if kind == "equirect" and params.face_size is not None:
+        raise BakeryError("--face-size sets a cube face; this output is a panorama: use --width", output)
+    if env.kind == "cube":
+        n_in = env.pixels.shape[1]
+        w_in = 4 * n_in
+    else:
+        w_in = env.pixels.shape[1]
+        n_in = max(1, w_in // 4)
+    size = params.face_size or n_in
+    width = params.width or w_in
+    target = size if kind == "cube" else width
+    pixels = resample(env.pixels, env.kind, kind, target, rotation_deg=params.rotation, filter=params.filter)
+    if params.exposure:  # colour channels only, never alpha
+        pixels = pixels.copy()
+        nc = 3 if pixels.shape[-1] >= 3 else 1
+        pixels[..., :nc] *= np.float32(2.0 ** params.exposure)
+    mips = None
+    if output.suffix.lower() == ".ktx2" and params.mips:
+        mips = (cube_mip_chain(pixels) if kind == "cube" else equirect_mip_chain(pixels))[1:]
+    written = write_environment(output, pixels, kind, layout=lay, bits=params.bits,
+                                source_bits=env.bits, ktx_format=params.ktx2_format, mips=mips,
+                                key_values=KTX_KEYS if output.suffix.lower() == ".ktx2" else None)
+    man = write_manifest(output, bake="env-convert",
+                         inputs=_input_files(env.paths, "environment"),
+                         params=params_to_dict(params), outputs=written,
+                         extra={"conventions": CONVENTIONS, "output": {
+                             "kind": kind, "layout": lay or ("ktx2" if output.suffix.lower() == ".ktx2"
+                                                             else "files"),
+                             "size": int(target), "levels": 1 + len(mips or [])}})
+    return written + [man]
+
+
+register(Bake("env-convert", "convert an environment map between panorama, cube layouts and KTX2",
+              ("environment",), ConvertParams, convert_outputs, run_convert, output_suffix=".exr"))
+
+
+Method = Literal["sh", "exact"]
+Window = Literal["none", "hann"]
+Units = Literal["reflected", "irradiance"]
+
+
+@dataclass(frozen=True)
+class DiffuseParams(Params):
+    """Parameters of ``env-diffuse``: SH9 coefficients (JSON) and an irradiance cubemap beside them."""
+
+    face_size: int = param(32, "Face edge of the irradiance cubemap.", unit="texels", low=1, high=1024)
+    method: Method = param("sh", "Cubemap from the 9 SH coefficients (sh) or from the exact cosine convolution "
+                           "(exact: right for sharp lights such as a sun).")
+    window: Window = param("none", "Window the SH coefficients against ringing (hann: weights 1, 0.75, 0.25 "
+                           "for l = 0, 1, 2; Blackman & Tukey 1958). The JSON keeps both.")
+    units: Units = param("reflected", "Cubemap values: reflected = E/pi, the radiance a white Lambertian "
+                         "surface reflects; irradiance = E.")
+    ktx2_format: str = ktx2_format_param("rgba16f")
+    input_layout: ImageLayout | None = INPUT_LAYOUT
+    repair: bool = REPAIR
+
+    def check(self) -> None:
+        from bakery.io.ktx2 import get_format
+
+        get_format(self.ktx2_format)
+
+
+def diffuse_outputs(output: Path) -> tuple[Path, Path]:
+    """The cubemap outputs beside the JSON: ``NAME.ktx2`` and the pattern ``NAME.{face}.exr``."""
+    return output.with_suffix(".ktx2"), output.with_name(output.stem + ".{face}.exr")
+
+
+def diffuse_files(inputs: dict[str, Path], output: Path, params: DiffuseParams) -> list[Path]:
+    from bakery.io.envfiles import face_paths
+    from bakery.io.manifest import manifest_path
+
+    if output.suffix.lower() != ".json":
+        raise BakeryError("the diffuse output must be a .json file (the cubemap is written beside it)",
+                          output)
+    ktx_path, faces_pattern = diffuse_outputs(output)
+    return [output, ktx_path, *face_paths(faces_pattern), manifest_path(output)]
+
+
+def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, progress: Progress) -> list[Path]:
+    import numpy as np
+
+    from bakery import sphere
+    from bakery.envmap import irradiance as irr
+    from bakery.io.atomic import check_distinct
+    from bakery.io.envfiles import face_paths, read_environment, write_environment
+    from bakery.io.manifest import write_json, write_manifest
+
+    if output.suffix.lower() != ".json":
+        raise BakeryError("the diffuse output must be a .json file (the cubemap is written beside it)",
+                          output)
+    ktx_path, faces_pattern = diffuse_outputs(output)
+    src = inputs["environment"]
+    env = read_environment(src, layout=params.input_layout, repair=params.repair)
+    check_distinct([ktx_path, *face_paths(faces_pattern)], env.paths)
+    px = env.pixels[..., :3] if env.pixels.shape[-1] >= 3 else env.pixels
+    radiance = irr.project_sh(px, env.kind, threads=bake_threads())
+    plain = irr.irradiance_coefficients(radiance)
+    windowed = irr.irradiance_coefficients(radiance, window=params.window)
+    if params.method == "sh":
+        cube = irr.irradiance_cube_sh(windowed, params.face_size)
+    else:
+        cube = irr.irradiance_exact(px, env.kind, sphere.cube_directions(params.face_size, dtype=np.float64)
+                                    ).astype(np.float32)
+    if params.units == "reflected":
+        cube = cube / np.float32(np.pi)
+    negative = int(np.count_nonzero(cube < 0))
+    cube = np.maximum(cube, np.float32(0))  # SH9 can ring below zero behind strong lights
+    names = ["L00", "L1-1", "L10", "L11", "L2-2", "L2-1", "L20", "L21", "L22"]
+    data = {
+        "basis": "real orthonormal spherical harmonics, l <= 2 (Ramamoorthi & Hanrahan 2001), evaluated on "
+                 "bakery directions (x, y, z): right-handed, +Y up; Y00 = 0.282095, Y1-1 = 0.488603 y, "
+                 "Y10 = 0.488603 z, Y11 = 0.488603 x, Y2-2 = 1.092548 xy, Y2-1 = 1.092548 yz, "
+                 "Y20 = 0.315392 (3z^2 - 1), Y21 = 1.092548 xz, Y22 = 0.546274 (x^2 - y^2)",
+        "order": names,
+        "channels": ["R", "G", "B"][: px.shape[-1]] if px.shape[-1] > 1 else ["Y"],
+        "radiance_sh": radiance.tolist(),
+        "irradiance_sh": windowed.tolist(),
+        "reflected_sh": (windowed / np.pi).tolist(),
+        "irradiance_sh_unwindowed": plain.tolist(),
+        "window": params.window,
+        "window_weights": irr.window_weights(params.window).tolist(),
+        "usage": "E(n) = sum_i irradiance_sh[i] * Y_i(n) is the irradiance on a surface with normal n; "
+                 "reflected_sh = irradiance_sh / pi gives the radiance a white Lambertian surface reflects "
+                 "(multiply by albedo)",
+        "cubemap": {"size": params.face_size, "method": params.method,
+                    "units": "E/pi (reflected radiance)" if params.units == "reflected" else "E (irradiance)",
+                    "clamped_negative_texels": negative},
+        "conventions": CONVENTIONS,
+    }
+    json_path = write_json(output, data)
+    written = [json_path]
+    written += write_environment(ktx_path, cube, "cube", ktx_format=params.ktx2_format,
+                                 key_values={**KTX_KEYS, "bakery.units": data["cubemap"]["units"]})
+    written += write_environment(faces_pattern, cube, "cube", bits="half")
+    man = write_manifest(output, bake="env-diffuse", inputs=_input_files(env.paths, "environment"),
+                         params=params_to_dict(params), outputs=written, extra={"conventions": CONVENTIONS})
+    return written + [man]
+
+
+register(Bake("env-diffuse", "diffuse irradiance: SH9 coefficients (JSON) and a small irradiance cubemap",
+              ("environment",), DiffuseParams, diffuse_files, run_diffuse, output_suffix=".json"))
