@@ -43,7 +43,7 @@ class SpecularParams(Params):
                                                        "docs/envlight.md).")
     ktx2_format: str = ktx2_format_param("rgba16f", "Texel format of the KTX2 chain: rgba16f, rgba32f, "
                                          "b10g11r11-ufloat, e5b9g9r9-ufloat.")
-    loose: bool = loose_param("every level's six faces (NAME.mipKK.FACE.exr)")
+    loose: bool = loose_param("every level's six faces as OpenEXR files (NAME.mip00.x+.exr ... NAME.mip08.z-.exr)")
     input_layout: ImageLayout | None = INPUT_LAYOUT
 
     def check(self) -> None:

@@ -272,6 +272,5 @@ def ktx2_format_param(default: str | None = None, help: str = KTX2_FORMAT_HELP) 
     return param(default, help)
 
 
-def loose_param(what: str = "every mip level") -> Any:
-    return param(False, f"With a .ktx2 output, also write {what} as loose image files beside it "
-                        "(NAME.mip01.ext ...).")
+def loose_param(what: str = "every mip level as an image file (NAME.png, NAME.mip01.png ...)") -> Any:
+    return param(False, f"With a .ktx2 output, also write {what} beside it.")

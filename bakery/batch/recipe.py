@@ -402,58 +402,6 @@ def load_folder_file(path: Path, recipe: Recipe, shown: str) -> FolderSettings:
 # ---------------------------------------------------------------------------------------------- reference
 
 
-def describe_bakes() -> list[str]:
-    """What a recipe can use: every registered bake with its input roles and parameters (recipe spelling,
-    default, accepted values)."""
-    import dataclasses
-    import typing
-
-    from bakery.bakes import all_bakes
-
-    lines = []
-    for bake in all_bakes().values():
-        lines.append(f"{bake.name}: {bake.summary}")
-        roles = ", ".join(f"{r[:-1]} (optional)" if r.endswith("?") else r for r in bake.inputs)
-        lines.append(f"  inputs: {roles or 'none (a rule without match makes one job)'}")
-        hints = typing.get_type_hints(bake.params)
-        for f in dataclasses.fields(bake.params):
-            default = f.default if f.default is not dataclasses.MISSING else "(required)"
-            lines.append(f"  {f.name.replace('_', '-')} = {_toml(default)}  ({_type_text(hints[f.name])})")
-    return lines
-
-
-def _toml(value: Any) -> str:
-    if value is None:
-        return "(unset)"
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, str):
-        return f'"{value}"'
-    if isinstance(value, tuple):
-        return "[" + ", ".join(_toml(v) for v in value) + "]"
-    if hasattr(value, "value"):  # Enum
-        return _toml(value.value)
-    return repr(value)
-
-
-def _type_text(hint: Any) -> str:
-    import types
-    import typing
-
-    origin, args = typing.get_origin(hint), typing.get_args(hint)
-    if origin in (typing.Union, types.UnionType):
-        parts = [_type_text(a) for a in args if a is not type(None)]
-        return " or ".join(dict.fromkeys(parts))
-    if origin is typing.Literal:
-        return "one of " + ", ".join(_toml(a) for a in args)
-    if origin is tuple:
-        return "list of " + (_type_text(args[0]) if args else "values") + "s"
-    names = {bool: "true/false", int: "whole number", float: "number", str: "text"}
-    if isinstance(hint, type) and hasattr(hint, "__members__"):  # Enum
-        return "one of " + ", ".join(_toml(m.value) for m in hint)
-    return names.get(hint, getattr(hint, "__name__", str(hint)))
-
-
 def _bake_values(name: str, values: Any, where: str) -> dict[str, Any]:
     """A table of parameters for the bake ``name``, checked against its parameter dataclass."""
     from bakery.bakes import get_bake, params_from_mapping

@@ -52,7 +52,7 @@ def batch(
     from bakery.errors import BakeryError
 
     if list_bakes:
-        from bakery.batch.recipe import describe_bakes
+        from bakery.bakes.reference import describe_bakes
 
         for line in describe_bakes():
             echo(line)
