@@ -10,8 +10,13 @@ from __future__ import annotations
 import os
 
 
-class BakeryError(Exception):
-    """A problem with the user's input: the message is one line, names the file and says what is wrong."""
+class BakeryError(ValueError):
+    """A problem with the user's input: the message is one line, names the file and says what is wrong.
+
+    The one exception family of bakery: pure functions (normals, roughness, environment maps, microfacet
+    terms) raise it for values they cannot take, readers for bad files, bakes for bad parameters. It is a
+    :class:`ValueError`, so callers that catch bad values the Python way catch it too.
+    """
 
     def __init__(self, message: str, path: str | os.PathLike | None = None):
         self.path = None if path is None else os.fspath(path)

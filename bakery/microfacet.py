@@ -41,6 +41,8 @@ from collections.abc import Callable
 
 import numpy as np
 
+from bakery.errors import BakeryError
+
 __all__ = [
     "LOBES",
     "alpha_from_perceptual",
@@ -218,7 +220,7 @@ def ndf(lobe: str, cos_h, param):
     try:
         fn, _ = LOBES[lobe]
     except KeyError:
-        raise ValueError(f"lobe must be one of {', '.join(map(repr, LOBES))}; got {lobe!r}") from None
+        raise BakeryError(f"lobe must be one of {', '.join(map(repr, LOBES))}; got {lobe!r}") from None
     return fn(cos_h, param)
 
 
@@ -324,7 +326,7 @@ def _lambda(lobe: str):
     try:
         return _LAMBDAS[lobe]
     except KeyError:
-        raise ValueError(f"Smith masking is defined here for {', '.join(map(repr, _LAMBDAS))}; "
+        raise BakeryError(f"Smith masking is defined here for {', '.join(map(repr, _LAMBDAS))}; "
                          f"got {lobe!r}") from None
 
 

@@ -43,6 +43,7 @@ import math
 
 import numpy as np
 
+from bakery.errors import BakeryError
 from bakery.microfacet import g2_smith_correlated
 
 __all__ = ["brdf_lut", "split_sum_terms"]
@@ -77,9 +78,9 @@ def split_sum_terms(nov, roughness, *, order: tuple[int, int] = DEFAULT_ORDER) -
     nov, rough = np.broadcast_arrays(np.asarray(nov, dtype=np.float64),
                                      np.asarray(roughness, dtype=np.float64))
     if np.any(~np.isfinite(nov)) or np.any((nov <= 0) | (nov > 1)):
-        raise ValueError("n·v must lie in (0, 1]")
+        raise BakeryError("n·v must lie in (0, 1]")
     if np.any(~np.isfinite(rough)) or np.any((rough < 0) | (rough > 1)):
-        raise ValueError("roughness must lie in [0, 1]")
+        raise BakeryError("roughness must lie in [0, 1]")
     nu, nphi = order
     x, wx = np.polynomial.legendre.leggauss(nu)
     phi = (np.arange(nphi) + 0.5) * (math.pi / nphi)
@@ -137,9 +138,9 @@ def brdf_lut(size: int = 128, *, height: int | None = None, roughness_grows: str
     """
     height = size if height is None else height
     if size < 1 or height < 1:
-        raise ValueError("table size must be at least 1")
+        raise BakeryError("table size must be at least 1")
     if roughness_grows not in ("down", "up"):
-        raise ValueError(f"roughness_grows must be 'down' or 'up'; got {roughness_grows!r}")
+        raise BakeryError(f"roughness_grows must be 'down' or 'up'; got {roughness_grows!r}")
     nov = (np.arange(size) + 0.5) / size
     r = (np.arange(height) + 0.5) / height
     lut = split_sum_terms(nov[None, :], r[:, None], order=order).astype(np.float32)

@@ -36,6 +36,7 @@ import math
 import numpy as np
 
 from bakery import sphere
+from bakery.errors import BakeryError
 
 _MAX_MAP = 32000  # cv2.remap needs every dimension of source and maps below 32767
 
@@ -48,7 +49,7 @@ def _cv2():
 
 def _check_cube(cube: np.ndarray) -> None:
     if cube.ndim != 4 or cube.shape[0] != 6 or cube.shape[1] != cube.shape[2]:
-        raise ValueError(f"a cubemap must be (6, N, N, C); got {cube.shape}")
+        raise BakeryError(f"a cubemap must be (6, N, N, C); got {cube.shape}")
 
 
 def _remap(src: np.ndarray, x: np.ndarray, y: np.ndarray) -> np.ndarray:
@@ -209,7 +210,7 @@ def reduce_cube(cube: np.ndarray, factor: int = 2) -> np.ndarray:
     _check_cube(cube)
     n = cube.shape[1]
     if n % factor:
-        raise ValueError(f"face size {n} is not divisible by {factor}")
+        raise BakeryError(f"face size {n} is not divisible by {factor}")
     m = n // factor
     w = sphere.cube_texel_solid_angles(n, dtype=np.float64)
     wsum = w.reshape(m, factor, m, factor).sum(axis=(1, 3))
@@ -224,7 +225,7 @@ def reduce_equirect(img: np.ndarray, fy: int = 2, fx: int | None = None) -> np.n
     fx = fy if fx is None else fx
     h, w, c = img.shape
     if h % fy or w % fx:
-        raise ValueError(f"panorama {w}x{h} is not divisible by {fx}x{fy}")
+        raise BakeryError(f"panorama {w}x{h} is not divisible by {fx}x{fy}")
     rw = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)
     den = rw.reshape(h // fy, fy).sum(axis=1)
     acc = np.zeros((h // fy, w // fx, c), dtype=np.float32)
@@ -665,12 +666,12 @@ def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_d
     ndarray, float32: ``(6, size, size, C)`` or ``(size // 2, size, C)``.
     """
     if filter not in FILTERS:
-        raise ValueError(f"filter must be one of {FILTERS}; got {filter!r}")
+        raise BakeryError(f"filter must be one of {FILTERS}; got {filter!r}")
     src = np.asarray(src, dtype=np.float32)
     if kind == "cube":
         _check_cube(src)
     if dst_kind == "equirect" and (size < 2 or size % 2):
-        raise ValueError(f"panorama width must be even and >= 2; got {size}")
+        raise BakeryError(f"panorama width must be even and >= 2; got {size}")
     same = (kind == dst_kind == "cube" and src.shape[1] == size) or (
         kind == dst_kind == "equirect" and src.shape[:2] == (size // 2, size))
     if same and not rotation_deg:

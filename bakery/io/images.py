@@ -158,7 +158,7 @@ def read_image(
         nc = 3 if pixels.shape[2] >= 3 else 1
         pixels[:, :, :nc] = srgb_to_linear(pixels[:, :, :nc])
     elif color not in ("data", "srgb"):
-        raise ValueError(f"color must be 'data' or 'srgb'; got {color!r}")
+        raise BakeryError(f"color must be 'data' or 'srgb'; got {color!r}")
     return Image(np.ascontiguousarray(pixels), bits, fmt, path)
 
 
@@ -409,7 +409,7 @@ def write_image(
     stored = _INTEGER_DTYPES.get(np.asarray(pixels).dtype)
     if stored is not None:  # already quantised: written exactly as given
         if bits not in (None, stored) or color != "data":
-            raise ValueError(f"{stored} pixels are written as stored; got bits={bits!r}, color={color!r}")
+            raise BakeryError(f"{stored} pixels are written as stored; got bits={bits!r}, color={color!r}")
         bits = stored
     bits = bits or DEFAULT_BITS[fmt]
     if bits not in WRITABLE[fmt]:

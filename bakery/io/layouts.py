@@ -78,7 +78,7 @@ def face_size(width: int, height: int, layout: str, *, where: object = None) -> 
 def split(image: np.ndarray, layout: str, *, where: object = None) -> np.ndarray:
     """Six faces ``(6, N, N, C)`` from a cross, row or stack image ``(H, W, C)``."""
     if layout not in _CELLS:
-        raise ValueError(f"not a cube layout: {layout!r}")
+        raise BakeryError(f"not a cube layout: {layout!r}")
     h, w = image.shape[:2]
     n = face_size(w, h, layout, where=where)
     faces = np.empty((6, n, n, image.shape[2]), dtype=np.float32)
@@ -91,7 +91,7 @@ def split(image: np.ndarray, layout: str, *, where: object = None) -> np.ndarray
 def assemble(faces: np.ndarray, layout: str) -> np.ndarray:
     """A cross, row or stack image ``(H, W, C)`` from faces ``(6, N, N, C)``; empty cells are zero."""
     if layout not in _CELLS:
-        raise ValueError(f"not a cube layout: {layout!r}")
+        raise BakeryError(f"not a cube layout: {layout!r}")
     n, c = faces.shape[1], faces.shape[3]
     cols, rows = IMAGE_LAYOUTS[layout]
     out = np.zeros((rows * n, cols * n, c), dtype=np.float32)

@@ -171,7 +171,8 @@ def baked_sky(tmp_path_factory):
     d = tmp_path_factory.mktemp("baked")
     sky = write_image(d / "sky.exr", sky_panorama(256), bits="float")
     spec, diff, lut = get_bake("env-specular"), get_bake("env-diffuse"), get_bake("env-lut")
-    run_bake("env-specular", {"environment": sky}, d / "chain.ktx2", spec.params(face_size=32, levels=6, quality="draft"))
+    run_bake("env-specular", {"environment": sky}, d / "chain.ktx2",
+             spec.params(face_size=32, levels=6, quality="draft"))
     run_bake("env-diffuse", {"environment": sky}, d / "diffuse.json", diff.params(face_size=8))
     run_bake("env-lut", {}, d / "lut.png", lut.params(size=32))
     run_bake("env-lut", {}, d / "lut_up.exr", lut.params(size=32, roughness_grows="up"))
