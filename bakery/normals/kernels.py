@@ -8,7 +8,7 @@ gives a response of exactly 1; all four are exact on quadratics.
 name      smoothing part        source
 ========  ====================  ===================================================================
 central   [1]                   central difference, e.g. Abramowitz & Stegun 1964, eq. 25.3.6
-sobel     [1, 2, 1] / 4         Sobel & Feldman 1968 (Sobel operator; overall 1/8)
+sobel     [1, 2, 1] / 4         Duda & Hart 1973 (the Sobel operator; overall 1/8)
 scharr    [3, 10, 3] / 16       Scharr 2000, PhD thesis, Heidelberg (overall 1/32)
 prewitt   [1, 1, 1] / 3         Prewitt 1970, "Object enhancement and extraction" (overall 1/6)
 ========  ====================  ===================================================================
@@ -27,7 +27,7 @@ Edge modes, named after how the texture will be sampled:
 References
 ----------
 .. [1] M. Abramowitz, I. A. Stegun, "Handbook of Mathematical Functions", 1964, eq. 25.3.6.
-.. [2] I. Sobel, G. Feldman, "A 3x3 isotropic gradient operator for image processing", 1968 (talk at SAIL).
+.. [2] R. O. Duda, P. E. Hart, "Pattern Classification and Scene Analysis", Wiley, 1973 (the Sobel operator).
 .. [3] H. Scharr, "Optimale Operatoren in der Digitalen Bildverarbeitung", PhD thesis, Heidelberg, 2000.
 .. [4] J. M. S. Prewitt, "Object enhancement and extraction", in Picture Processing and Psychopictorics, 1970.
 """
@@ -58,7 +58,7 @@ class Kernel:
 
 KERNELS: dict[str, Kernel] = {
     "central": Kernel("central", (0.0, 1.0, 0.0), "central difference (Abramowitz & Stegun 1964, 25.3.6)"),
-    "sobel": Kernel("sobel", (0.25, 0.5, 0.25), "Sobel & Feldman 1968"),
+    "sobel": Kernel("sobel", (0.25, 0.5, 0.25), "Duda & Hart 1973"),
     "scharr": Kernel("scharr", (3 / 16, 10 / 16, 3 / 16), "Scharr 2000"),
     "prewitt": Kernel("prewitt", (1 / 3, 1 / 3, 1 / 3), "Prewitt 1970"),
 }

@@ -1,6 +1,6 @@
 """The pinned baseline for the specular prefilter benchmark: per-texel GGX importance sampling as listed in
-Karis 2013 ("Real Shading in Unreal Engine 4", SIGGRAPH course "Physically Based Shading in Theory and
-Practice", function PrefilterEnvMap): N = V = R, 1024 Hammersley samples, no source mip filtering, one
+Karis 2013 (SIGGRAPH course notes, "Physically Based Shading in Theory and
+Practice"; the importance-sampled prefilter): N = V = R, 1024 Hammersley samples, no source mip filtering, one
 bilinear lookup per sample, n·l weighting. Vectorised over texels and samples (numpy + cv2.remap).
 """
 
@@ -29,7 +29,7 @@ def _lookup(env: np.ndarray, d: np.ndarray) -> np.ndarray:
 
 def karis_prefilter(env: np.ndarray, dirs: np.ndarray, alpha: float, *, samples: int = 1024,
                     batch: int = 256) -> np.ndarray:
-    """PrefilterEnvMap of Karis 2013 at each direction of ``dirs`` (..., 3); returns (..., C) float32."""
+    """The importance-sampled prefilter of Karis 2013 at each direction of ``dirs`` (..., 3); returns (..., C) float32."""
     env = np.ascontiguousarray(env, dtype=np.float32)
     n = dirs.reshape(-1, 3).astype(np.float32)
     xi = hammersley(samples)
