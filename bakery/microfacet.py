@@ -25,8 +25,8 @@ References
 .. [4] Schlick, C. (1994). An inexpensive BRDF model for physically-based rendering. Computer Graphics Forum
    13(3), 233-246. Eq. 15.
 .. [5] Blinn, J. F. (1977). Models of light reflection for computer synthesized pictures. SIGGRAPH '77.
-.. [6] Karis, B. (2013). SIGGRAPH course notes, "Physically Based Shading in Theory
-and Practice". (split sum, Hammersley sampling of GGX, prefilter weight n·l with v = n).
+.. [6] Karis, B. (2013). SIGGRAPH course notes, "Physically Based Shading in Theory and
+   Practice". (split sum, Hammersley sampling of GGX, prefilter weight n·l with v = n).
 .. [7] Burley, B. (2012). Physically-based shading at Disney. SIGGRAPH course "Practical Physically Based
    Shading in Film and Game Production" (alpha = r²).
 

@@ -8,7 +8,8 @@ Smith masking-shadowing (Heitz 2014) and Schlick's Fresnel F = F0 + (1 − F0) F
     A(n·v, r) = ∫ f(v, l)/F · (1 − Fc) (n·l) dl,    B(n·v, r) = ∫ f(v, l)/F · Fc (n·l) dl.
 
 Written over half vectors h drawn from D(h)(n·h) (dl = 4 (v·h) dh), the integrand is
-``G2(v, l) (v·h) / ((n·h)(n·v))`` times (1 − Fc) or Fc (Karis 2013: the split-sum table integral, sampled by importance).
+``G2(v, l) (v·h) / ((n·h)(n·v))`` times (1 − Fc) or Fc (Karis 2013: the split-sum table
+integral).
 
 Integration here is deterministic, not Monte Carlo: for each azimuth φ of h, the polar angle runs from 0 to
 the cut where n·l = 0, which has the closed form ``θ_cut = ½ atan2(n·v, −sin θv cos φ)`` (with v in the x-z
@@ -27,8 +28,8 @@ channel is stored; docs/envlight.md gives the formula.
 
 References
 ----------
-.. [1] Karis, B. (2013). SIGGRAPH course notes, "Physically Based Shading in Theory
-and Practice".
+.. [1] Karis, B. (2013). SIGGRAPH course notes, "Physically Based Shading in Theory and
+   Practice".
 .. [2] Heitz, E. (2014). Understanding the masking-shadowing function in microfacet-based BRDFs. JCGT 3(2).
 .. [3] Schlick, C. (1994). An inexpensive BRDF model for physically-based rendering. CGF 13(3).
 .. [4] Walter, B. et al. (2007). Microfacet models for refraction through rough surfaces. EGSR.

@@ -39,8 +39,8 @@ exposure from the log-average luminance and key 0.18 (ibid., eqs. 1-2), then sRG
 
 References
 ----------
-.. [1] Karis, B. (2013). SIGGRAPH course notes, "Physically Based Shading in Theory
-and Practice". (split-sum approximation).
+.. [1] Karis, B. (2013). SIGGRAPH course notes, "Physically Based Shading in Theory and
+   Practice". (split-sum approximation).
 .. [2] Ramamoorthi, R., Hanrahan, P. (2001). An efficient representation for irradiance environment maps.
    SIGGRAPH 2001 (eqs. 3 and 7; basis constants 0.282095, 0.488603, 1.092548, 0.315392, 0.546274).
 .. [3] The Khronos Group. glTF 2.0 Specification, appendix B "BRDF Implementation" (F0 = 0.04 for
