@@ -29,7 +29,8 @@ def _lookup(env: np.ndarray, d: np.ndarray) -> np.ndarray:
 
 def karis_prefilter(env: np.ndarray, dirs: np.ndarray, alpha: float, *, samples: int = 1024,
                     batch: int = 256) -> np.ndarray:
-    """The importance-sampled prefilter of Karis 2013 at each direction of ``dirs`` (..., 3); returns (..., C) float32."""
+    """The importance-sampled prefilter of Karis 2013 at each direction of ``dirs`` (..., 3); returns (..., C)
+    float32."""
     env = np.ascontiguousarray(env, dtype=np.float32)
     n = dirs.reshape(-1, 3).astype(np.float32)
     xi = hammersley(samples)
