@@ -1,7 +1,8 @@
 """Reference inputs for the preview tests, built independently of the project's own environment bakes.
 
 - :func:`split_sum_table`: the split-sum terms A, B (Karis 2013, SIGGRAPH course notes, the split-sum table
-  integral) by a deterministic quadrature instead of Hammersley points: half vectors from GGX sampling (Walter et al. 2007, eq. 35) at Gauss-Legendre nodes in u1 and midpoint nodes in the azimuth, the
+  integral) by a deterministic quadrature instead of Hammersley points: half vectors from GGX sampling
+  (Walter et al. 2007, eq. 35) at Gauss-Legendre nodes in u1 and midpoint nodes in the azimuth, the
   integrand G2·(v·h)/((n·h)(n·v)) times (1 − Fc) and Fc, Fc = (1 − v·h)^5 (Schlick 1994), height-correlated
   Smith G2 (Heitz 2014, eq. 99) written out here from its formula.
 - :func:`brute_prefilter`: P(n) = Σ L(l) w Ω / Σ w Ω over every source texel, w = max(n·l, 0) D(h),
