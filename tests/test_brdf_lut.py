@@ -1,7 +1,8 @@
 """The split-sum BRDF table against an independent scipy quadrature and the published check values.
 
 Sources: Karis 2013 (split sum; SIGGRAPH course notes, "Physically Based Shading in Theory and Practice");
-Heitz 2014 (JCGT 3(2), eq. 99, height-correlated Smith G2); Schlick 1994 (eq. 15); GGX D from Walter et al. 2007 (eq. 33).
+Heitz 2014 (JCGT 3(2), eq. 99, height-correlated Smith G2);
+Schlick 1994 (eq. 15); GGX D from Walter et al. 2007 (eq. 33).
 """
 
 from __future__ import annotations
