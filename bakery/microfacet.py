@@ -45,11 +45,13 @@ from bakery.errors import BakeryError
 
 __all__ = [
     "LOBES",
+    "alpha_from_exponent",
     "alpha_from_perceptual",
     "cook_torrance",
     "d_beckmann",
     "d_blinn_phong",
     "d_ggx",
+    "exponent_from_alpha",
     "fresnel_schlick",
     "g1_smith",
     "g2_smith_correlated",
@@ -62,6 +64,7 @@ __all__ = [
     "prefilter_weight_inplace",
     "radical_inverse",
     "sample_ggx_half",
+    "schlick_weight",
     "vis_smith_correlated",
 ]
 
@@ -108,6 +111,32 @@ def perceptual_from_alpha(alpha):
     :func:`alpha_from_perceptual`."""
     dt = _dtype(alpha)
     return _out(np.sqrt(np.maximum(_as(alpha, dt), 0)))
+
+
+def alpha_from_exponent(n: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
+    """Microfacet width from a Blinn-Phong exponent by the peak-matching map alpha = sqrt(2 / (n + 2))
+    (Walter et al. 2007, their Phong-Beckmann correspondence; used for GGX alike). The peaks agree:
+    (n + 2)/(2 pi) = 1/(pi alpha^2).
+
+    ``n`` is a float array in [0, inf] (inf gives 0); the result has its dtype, written into ``out`` when given
+    (which may be ``n`` itself).
+
+    >>> import numpy as np
+    >>> alpha_from_exponent(np.array([8.0, 32.0])).round(6)
+    array([0.447214, 0.242536])
+    """
+    one = n.dtype.type
+    out = np.add(n, one(2.0), out=out)
+    np.divide(one(2.0), out, out=out)
+    return np.sqrt(out, out=out)
+
+
+def exponent_from_alpha(a: np.ndarray) -> np.ndarray:
+    """Inverse of :func:`alpha_from_exponent`: n = 2/alpha^2 - 2, 0 for alpha >= 1, inf for alpha = 0."""
+    with np.errstate(divide="ignore"):
+        out = np.divide(a.dtype.type(2.0), a * a)
+    out -= a.dtype.type(2.0)
+    return np.maximum(out, a.dtype.type(0.0), out=out)
 
 
 # ------------------------------------------------------------------------------------- distributions
@@ -391,10 +420,16 @@ def fresnel_schlick(cos_d, f0, f90=1.0):
         Reflectance at grazing incidence (1 in Schlick's paper).
     """
     dt = _dtype(cos_d, f0, f90)
-    c = np.clip(_as(cos_d, dt), 0, 1)
-    m = 1 - c
+    return _out(_as(f0, dt) + (_as(f90, dt) - _as(f0, dt)) * schlick_weight(_as(cos_d, dt)))
+
+
+def schlick_weight(cos_d):
+    """The Fresnel weight of Schlick's approximation, Fc = (1 − cos θd)⁵ (Schlick 1994, eq. 15), cos_d clipped
+    to [0, 1]: F = F0 + (F90 − F0) Fc."""
+    dt = _dtype(cos_d)
+    m = 1 - np.clip(_as(cos_d, dt), 0, 1)
     m2 = m * m
-    return _out(_as(f0, dt) + (_as(f90, dt) - _as(f0, dt)) * (m2 * m2 * m))
+    return _out(m2 * m2 * m)
 
 
 def cook_torrance(cos_l, cos_v, cos_h, cos_d, alpha, f0, *, lobe: str = "ggx"):

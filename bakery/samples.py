@@ -21,6 +21,8 @@ from pathlib import Path
 
 import numpy as np
 
+from bakery.microfacet import alpha_from_exponent
+
 
 def tiling_noise(shape: tuple[int, int], *, scale: float, seed: int, octaves: int = 4) -> np.ndarray:
     """Smooth, seamlessly tiling noise in about [-1, 1]: white noise filtered in the Fourier domain.
@@ -333,9 +335,8 @@ def library(folder: str | Path, *, size: int = 256, sky_width: int = 512,
         files[f"{name}_normal"] = write_image(folder / group / f"{name}_normal.png",
                                               _slope_normals(h, 0.05 * size), bits="8")
         if name != "mosaic":
-            # perceptual roughness r = (2 / (n + 2))^(1/4), i.e. n = 2/alpha^2 - 2 with alpha = r^2 (Walter et al.
-            # 2007, Microfacet Models for Refraction, sec. 5.2, from memory; Burley 2012 for alpha = r^2)
-            r = (2.0 / (exponent + 2.0)) ** 0.25
+            # perceptual roughness r = sqrt(alpha) (Burley 2012) of the peak-matching alpha (Walter et al. 2007)
+            r = np.sqrt(alpha_from_exponent(exponent.astype(np.float64)))
             files[f"{name}_roughness"] = write_image(folder / group / f"{name}_roughness.png", r, bits="8")
     (folder / "details").mkdir(parents=True, exist_ok=True)
     crackle = material_height("dimples", size, seed=99) * 0.3 + 0.02 * tiling_noise((size, size), scale=2.0, seed=98)

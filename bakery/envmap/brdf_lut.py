@@ -45,7 +45,7 @@ import math
 import numpy as np
 
 from bakery.errors import BakeryError
-from bakery.microfacet import g2_smith_correlated
+from bakery.microfacet import g2_smith_correlated, schlick_weight
 
 __all__ = ["brdf_lut", "split_sum_terms"]
 
@@ -114,7 +114,7 @@ def split_sum_terms(nov, roughness, *, order: tuple[int, int] = DEFAULT_ORDER) -
         nol = 2 * voh * ct - c_v
         g = g2_smith_correlated(c_v, np.maximum(nol, 0), al) * voh / (ct * c_v)
         g = np.where(nol > 0, g, 0.0)
-        fc = (1 - np.clip(voh, 0, 1)) ** 5
+        fc = schlick_weight(voh)
         w = (tcut * 0.5) * wx[None, None, :] * 2 * (1 - t) / nphi
         out[sl, 0] = np.sum(w * g * (1 - fc), axis=(1, 2))
         out[sl, 1] = np.sum(w * g * fc, axis=(1, 2))

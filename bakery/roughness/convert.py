@@ -67,7 +67,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from bakery.errors import BakeryError, BakeryWarning
-from bakery.microfacet import alpha_from_perceptual, perceptual_from_alpha
+from bakery.microfacet import alpha_from_exponent, alpha_from_perceptual, exponent_from_alpha, perceptual_from_alpha
 
 __all__ = [
     "MODELS",
@@ -142,18 +142,13 @@ def half_maximum_tan2(exponent):
 
 
 def _alpha_peak(n: np.ndarray) -> np.ndarray:
-    """Walter et al. 2007: alpha = sqrt(2 / (n + 2)), GGX and Beckmann alike."""
-    out = n + n.dtype.type(2.0)
-    np.divide(n.dtype.type(2.0), out, out=out)
-    return np.sqrt(out, out=out)
+    """The peak rule (Walter et al. 2007): :func:`bakery.microfacet.alpha_from_exponent`."""
+    return alpha_from_exponent(n, out=np.empty_like(n))
 
 
 def _exponent_peak(a: np.ndarray) -> np.ndarray:
-    """Inverse of :func:`_alpha_peak`: n = 2/alpha^2 - 2, 0 for alpha >= 1, inf for alpha = 0."""
-    with np.errstate(divide="ignore"):
-        out = np.divide(a.dtype.type(2.0), a * a)
-    out -= a.dtype.type(2.0)
-    return np.maximum(out, a.dtype.type(0.0), out=out)
+    """The peak rule's inverse: :func:`bakery.microfacet.exponent_from_alpha`."""
+    return exponent_from_alpha(a)
 
 
 def _alpha_width(n: np.ndarray, lobe: str) -> np.ndarray:
