@@ -52,10 +52,13 @@ def _check_cube(cube: np.ndarray) -> None:
         raise BakeryError(f"a cubemap must be (6, N, N, C); got {cube.shape}")
 
 
-def _remap(src: np.ndarray, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+def remap_bilinear(src: np.ndarray, x: np.ndarray, y: np.ndarray, *, wrap: bool = False) -> np.ndarray:
     """Bilinear lookups of float32 ``(h, w, C)`` at pixel coordinates (x, y) (texel centres at integers),
-    clamped at the source border. ``x``, ``y`` may have any shape; returns ``x.shape + (C,)``."""
+    clamped at the source border (``wrap``: continued periodically). ``x``, ``y`` may have any shape; returns
+    ``x.shape + (C,)``. Any number of points and channels: the lookups run in tiles that OpenCV's ``remap``
+    accepts (every dimension below 32767, at most 4 channels)."""
     cv2 = _cv2()
+    border = cv2.BORDER_WRAP if wrap else cv2.BORDER_REPLICATE
     shape = x.shape
     n = x.size
     c = src.shape[2]
@@ -71,14 +74,14 @@ def _remap(src: np.ndarray, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     x = x.reshape(rows, cols)
     y = y.reshape(rows, cols)
     if c <= 4 and rows <= _MAX_MAP:  # one call, no copies
-        out = cv2.remap(src, x, y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+        out = cv2.remap(src, x, y, cv2.INTER_LINEAR, borderMode=border)
         return out.reshape(rows * cols, c)[:n].reshape(shape + (c,))
     out = np.empty((rows, cols, c), dtype=np.float32)
     for r0 in range(0, rows, _MAX_MAP):
         r1 = min(rows, r0 + _MAX_MAP)
         for c0 in range(0, c, 4):  # OpenCV handles up to 4 channels per call
             part = cv2.remap(np.ascontiguousarray(src[:, :, c0:c0 + 4]), x[r0:r1], y[r0:r1],
-                             cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+                             cv2.INTER_LINEAR, borderMode=border)
             out[r0:r1, :, c0:c0 + 4] = part.reshape(r1 - r0, cols, -1)
     return out.reshape(rows * cols, c)[:n].reshape(shape + (c,))
 
@@ -126,7 +129,7 @@ def sample_equirect_uv(img: np.ndarray, u: np.ndarray, v: np.ndarray, *, wrapped
     x += np.float32(0.5)  # +1 for the border, -0.5 for texel centres
     y = np.asarray(v, dtype=np.float32) * np.float32(h)
     y += np.float32(0.5)
-    return _remap(pad_equirect(np.asarray(img, dtype=np.float32)), x, y)
+    return remap_bilinear(pad_equirect(np.asarray(img, dtype=np.float32)), x, y)
 
 
 _ATLAS = ((0, 0), (0, 1), (0, 2), (1, 0), (1, 1), (1, 2))  # (row, col) of each face in a 2 x 3 atlas
@@ -162,7 +165,7 @@ def pad_cube(cube: np.ndarray) -> np.ndarray:
     cols = np.array([_ATLAS[k][1] for k in range(6)])[face]
     x = np.clip(ss * n - 0.5, 0, n - 1) + cols * n
     y = np.clip(tt * n - 0.5, 0, n - 1) + rows * n
-    vals = _remap(atlas, x.astype(np.float32), y.astype(np.float32))
+    vals = remap_bilinear(atlas, x.astype(np.float32), y.astype(np.float32))
     out = np.zeros((6, n + 2, n + 2, cube.shape[3]), dtype=np.float32)
     out[:, 1:-1, 1:-1] = cube
     out[f, np.tile(ri, 6), np.tile(rj, 6)] = vals
@@ -198,7 +201,7 @@ def _sample_atlas(atlas: np.ndarray, n: int, face: np.ndarray, s: np.ndarray, t:
     cols = np.array([q for _, q in _ATLAS], dtype=np.float32)[face]
     x = s * np.float32(n) + np.float32(0.5) + cols * np.float32(m)
     y = t * np.float32(n) + np.float32(0.5) + rows * np.float32(m)
-    return _remap(atlas, x, y)
+    return remap_bilinear(atlas, x, y)
 
 
 # ----------------------------------------------------------------------------------- exact reduction
@@ -706,7 +709,7 @@ def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_d
         h, w = src.shape[:2]
         x, y = cube_equirect_uv(size, rotation_deg, scale=(w, h), offset=0.5)
         padded = pad_equirect(src, rows_filter=lambda out: _row_box_filter(src, dst_angle, out=out))
-        return _remap(padded, x, y)
+        return remap_bilinear(padded, x, y)
     if kind == "equirect":
         src = _row_box_filter(src, dst_angle, dst_width=size if dst_kind == "equirect" else None)
     if kind == dst_kind == "equirect":

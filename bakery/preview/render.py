@@ -83,7 +83,6 @@ DIELECTRIC_F0 = 0.04
 #: Luminance weights of linear Rec. 709 / sRGB primaries (ITU-R BT.709-6).
 LUMA = np.array([0.2126, 0.7152, 0.0722], dtype=np.float32)
 
-_CHUNK = 4096  # point lists are shaped (n / _CHUNK, _CHUNK) for cv2.remap (every side must be < 32767)
 
 
 # ------------------------------------------------------------------------------------------ inputs
@@ -267,23 +266,11 @@ class Render:
 
 def _remap_points(img: np.ndarray, x: np.ndarray, y: np.ndarray, *, wrap: bool) -> np.ndarray:
     """Bilinear samples of ``img`` (H, W, C) at pixel coordinates (x, y) (centres at integers): (P, C)."""
-    import cv2
+    from bakery.envmap.sample import remap_bilinear
 
-    p = x.shape[0]
-    c = img.shape[2]
-    if p == 0:
-        return np.zeros((0, c), np.float32)
-    rows = -(-p // _CHUNK)
-    pad = rows * _CHUNK - p
-    mx = np.pad(x.astype(np.float32, copy=False), (0, pad)).reshape(rows, _CHUNK)
-    my = np.pad(y.astype(np.float32, copy=False), (0, pad)).reshape(rows, _CHUNK)
-    border = cv2.BORDER_WRAP if wrap else cv2.BORDER_REPLICATE
-    out = np.empty((rows, _CHUNK, c), np.float32)
-    for c0 in range(0, c, 4):  # cv2.remap takes at most 4 channels
-        part = np.ascontiguousarray(img[..., c0:c0 + 4])
-        r = cv2.remap(part, mx, my, cv2.INTER_LINEAR, borderMode=border)
-        out[..., c0:c0 + 4] = r.reshape(rows, _CHUNK, -1)
-    return out.reshape(-1, c)[:p]
+    if x.shape[0] == 0:
+        return np.zeros((0, img.shape[2]), np.float32)
+    return remap_bilinear(img, x, y, wrap=wrap)
 
 
 class _Texture:
