@@ -28,9 +28,8 @@ from collections.abc import Callable
 from typing import Any, Literal
 
 from bakery.errors import BakeryError
+from bakery.types import Bits  # noqa: F401 (the sample type of every bake; recipes may write bits = 16)
 
-#: Output sample type: 8- or 16-bit integers, half or single floats. Recipes may write ``bits = 16``.
-Bits = Literal["8", "16", "half", "float"]
 #: Green-channel convention of a normal map file: +Y up (OpenGL-style, glTF 2.0) or down (DirectX-style).
 YConvention = Literal["up", "down"]
 #: How a texture continues past its borders.

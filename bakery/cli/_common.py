@@ -10,7 +10,6 @@ import sys
 import time
 import warnings
 from collections.abc import Callable
-from enum import StrEnum
 from pathlib import Path
 from typing import Any, TypeVar
 
@@ -21,21 +20,6 @@ from bakery.errors import BakeryError, BakeryWarning
 STATE = {"debug": False, "quiet": False}
 
 
-class BitsOpt(StrEnum):
-    """Output sample type, the same ``--bits`` option in every command that writes images."""
-
-    b8 = "8"
-    b16 = "16"
-    half = "half"
-    float = "float"
-
-
-#: ``--bits`` value -> the sample type name of :mod:`bakery.io.images` ("8", "16", "half", "float").
-BITS_TO_DEPTH = {"8": "8", "16": "16", "half": "half", "float": "float"}
-
-
-def bits_to_bits(bits: BitsOpt | None) -> str | None:
-    return None if bits is None else BITS_TO_DEPTH[bits.value]
 T = TypeVar("T")
 
 

@@ -34,8 +34,8 @@ import numpy as np
 from bakery.color import linear_to_srgb, srgb_to_linear
 from bakery.errors import BakeryError, BakeryWarning
 from bakery.io.atomic import atomic_output
+from bakery.types import Bits
 
-Bits = Literal["8", "16", "half", "float"]
 Color = Literal["data", "srgb"]
 
 #: Largest image (in pixels) read by default: 16384 x 16384. Override with ``max_pixels=`` or the
