@@ -1,4 +1,4 @@
-"""From files and option values to the renderer's plain inputs (:class:`~bakery.preview.render.Material`).
+"""From files and option values to the renderer's plain inputs (:class:`~bakery.preview.shading.Material`).
 
 The I/O edge of the preview: reads maps with :func:`bakery.io.read_image`, applies the file conventions
 (normal-map green channel, sRGB colour), and checks values, so :mod:`bakery.preview.render` only sees arrays.
@@ -59,7 +59,7 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
                   roughness: float | str | os.PathLike = 0.5, exponent: str | os.PathLike | None = None,
                   base_color: float | tuple[float, float, float] | str | os.PathLike = 0.5,
                   metallic: float = 0.0, max_pixels: int | None = None):
-    """Build a :class:`~bakery.preview.render.Material` from files and values.
+    """Build a :class:`~bakery.preview.shading.Material` from files and values.
 
     Parameters
     ----------
@@ -85,7 +85,7 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
     max_pixels : int, optional
         Passed to :func:`bakery.io.read_image`.
     """
-    from bakery.preview.render import Material
+    from bakery.preview.shading import Material
 
     normals = None
     if normal is not None and height is not None:

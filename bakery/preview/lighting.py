@@ -2,7 +2,7 @@
 
 A thin layer: the specular prefiltered chain comes from :func:`bakery.envmap.specular.prefilter_specular`, the
 split-sum table from :func:`bakery.envmap.brdf_lut.brdf_lut`, the SH9 radiance coefficients from
-:func:`bakery.envmap.irradiance.project_sh` (Ramamoorthi & Hanrahan 2001); :class:`~bakery.preview.render.Lighting`
+:func:`bakery.envmap.irradiance.project_sh` (Ramamoorthi & Hanrahan 2001); :class:`~bakery.preview.shading.Lighting`
 holds them.
 
 The chain is made with fewer levels than a full mip chain (face 128², six levels, perceptual roughness linear
@@ -41,7 +41,7 @@ def lighting_from_panorama(panorama: np.ndarray, *, face: int = PREVIEW_FACE, le
     from bakery.bakes import bake_threads
     from bakery.envmap.irradiance import project_sh
     from bakery.envmap.specular import prefilter_specular
-    from bakery.preview.render import Lighting
+    from bakery.preview.shading import Lighting
 
     pano = np.asarray(panorama, dtype=np.float32)
     if pano.ndim != 3 or pano.shape[2] < 3 or pano.shape[1] != 2 * pano.shape[0]:
@@ -198,7 +198,7 @@ def lighting_from_baked(specular: str | os.PathLike, diffuse: str | os.PathLike,
                         lut: str | os.PathLike | None = None):
     """Lighting from baked files: a prefiltered KTX2 cube chain, the diffuse JSON with radiance SH9
     coefficients, and optionally a BRDF table (default: made in memory, 64²)."""
-    from bakery.preview.render import Lighting
+    from bakery.preview.shading import Lighting
 
     levels, rough = read_specular_chain(specular)
     sh = read_radiance_sh(diffuse)

@@ -136,7 +136,7 @@ def thumbnail(pixels: np.ndarray, kind: str, *, bits: str, size: int = 160) -> n
     bits : {"8", "16", "half", "float"}
     size : int
     """
-    from bakery.preview.render import auto_exposure, display
+    from bakery.preview.tonemap import auto_exposure, display
 
     px = np.nan_to_num(np.asarray(pixels, dtype=np.float32), nan=0.0, posinf=0.0, neginf=0.0)
     small = _fit(px, size)
@@ -157,7 +157,7 @@ def thumbnail(pixels: np.ndarray, kind: str, *, bits: str, size: int = 160) -> n
     else:
         rgb = small[..., :3]
         if is_float and kind == "color" and rgb.max() > 1:
-            from bakery.preview.render import display as show
+            from bakery.preview.tonemap import display as show
 
             return show(rgb, exposure=auto_exposure(rgb))
         if is_float and kind == "color":
@@ -192,7 +192,7 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str):
       :func:`bakery.roughness.roughness_from_exponent`.
     """
     from bakery.color import srgb_to_linear
-    from bakery.preview.render import Material
+    from bakery.preview.shading import Material
 
     px = np.asarray(pixels, dtype=np.float32)
     stem = Path(name).stem.lower()
@@ -228,7 +228,8 @@ def lit_previews(lighting, *, size: int = 160, supersample: int = 2) -> PreviewF
     """A :data:`PreviewFn` rendering the ball of :func:`material_for` under ``lighting``. An equirect HDR
     environment is shown instead on a polished metal ball (roughness 0.15) lit by itself, its lighting baked
     in memory at a small size (face 64², five levels), with automatic exposure."""
-    from bakery.preview.render import Material, preview_image
+    from bakery.preview.render import preview_image
+    from bakery.preview.shading import Material
 
     def fn(pixels: np.ndarray, kind: str, bits: str, name: str):
         if kind == "environment":

@@ -18,7 +18,8 @@ from timing import best  # noqa: E402  (tests/perf/timing.py, beside this script
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from bakery.preview.lighting import default_lighting  # noqa: E402
-from bakery.preview.render import Material, preview_image, render_ball, render_tile  # noqa: E402
+from bakery.preview.render import preview_image, render_ball, render_tile  # noqa: E402
+from bakery.preview.shading import Material  # noqa: E402
 from bakery.samples import paving_exponent, paving_height  # noqa: E402
 
 

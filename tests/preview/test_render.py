@@ -13,18 +13,9 @@ import pytest
 
 from bakery.errors import BakeryError
 from bakery.inspect import green_convention
-from bakery.preview.render import (
-    Lighting,
-    Material,
-    auto_exposure,
-    display,
-    irradiance_sh,
-    preview_image,
-    render_ball,
-    render_tile,
-    tonemap_reinhard,
-    turntable_frames,
-)
+from bakery.preview.render import preview_image, render_ball, render_tile, turntable_frames
+from bakery.preview.shading import Lighting, Material, irradiance_sh
+from bakery.preview.tonemap import auto_exposure, display, tonemap_reinhard
 from tests.preview import envtools
 
 SH_CONST = 2 * math.sqrt(math.pi)  # L_00 of a constant radiance 1: ∫ 0.282095 dω = 4π · 0.282095

@@ -15,7 +15,7 @@ import pytest
 
 from bakery.errors import BakeryError
 from bakery.io import write_image
-from bakery.preview.render import Lighting
+from bakery.preview.shading import Lighting
 from bakery.preview.sheet import (
     find_maps,
     lit_previews,
