@@ -48,7 +48,7 @@ def preview(
     height: Annotated[Path | None, typer.Option(help="Height map instead of --normal: normals are baked from "
                                                 "it in memory (as `bakery normal` does).", dir_okay=False)] = None,
     strength: Annotated[float | None, typer.Option(help="Strength of the --height bake, texels per height unit "
-                                                   "[default: bits = width / 32].", show_default=False)] = None,
+                                                   "[default: relief = width / 32].", show_default=False)] = None,
     roughness: Annotated[str, typer.Option(help="Perceptual roughness: a number in [0, 1] or a roughness "
                                            "map.")] = "0.5",
     exponent: Annotated[Path | None, typer.Option(help="Specular-exponent map instead of a roughness map, "

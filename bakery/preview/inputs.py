@@ -72,7 +72,7 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
         :func:`bakery.normals.normal_from_height` (the ``bakery normal`` defaults: Scharr derivatives, wrapping
         edges).
     strength : float, optional
-        Strength of that bake (texels per height unit); default as ``bakery normal``: bits = width / 32.
+        Strength of that bake (texels per height unit); default as ``bakery normal``: relief = width / 32.
     roughness : float or path
         Perceptual roughness in [0, 1], or a single-channel map of it (data, never colour-converted).
     exponent : path, optional

@@ -187,7 +187,7 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str):
     - normal maps: read as Y-up (bakery's and glTF's convention), so a Y-down map shows its inverted relief;
     - colour maps: the base colour (8/16-bit files decoded from sRGB, IEC 61966-2-1);
     - single-channel maps say what they hold by name only: ``rough`` -> roughness; ``height``, ``disp``,
-      ``bump`` -> normals baked in memory (:func:`bakery.normals.normal_from_height`, bits = width / 32 as
+      ``bump`` -> normals baked in memory (:func:`bakery.normals.normal_from_height`, relief = width / 32 as
       ``bakery normal`` assumes); float maps named ``exponent`` or ``shin`` -> roughness through
       :func:`bakery.roughness.roughness_from_exponent`.
     """
@@ -214,7 +214,7 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str):
             from bakery.normals.from_height import DEFAULT_RELIEF_RATIO, normal_from_height, strength_from_size
 
             n = normal_from_height(g, strength=strength_from_size(g.shape, DEFAULT_RELIEF_RATIO, 1.0))
-            return Material(normals=n, roughness=0.35), "lit: normals baked from the heights (bits = width/32)"
+            return Material(normals=n, roughness=0.35), "lit: normals baked from the heights (relief = width/32)"
         if kind == "data" and any(w in stem for w in EXPONENT_WORDS) and g.min() >= 0:
             from bakery.roughness import roughness_from_exponent
 

@@ -51,7 +51,7 @@ def test_normal_defaults_follow_input_bits(tmp_path, height_png):
     assert img.bits == "16" and img.channels == 3
     man = json.loads((tmp_path / "n.bakery.json").read_text())
     assert man["bake"] == "normal" and man["conventions"]["y"] == "up"
-    # default strength: bits = width / 32 -> s = 48 / 32 texels per unit
+    # default strength: relief = width / 32 -> s = 48 / 32 texels per unit
     assert man["strength_used"]["x"] == pytest.approx(1.5)
     write_image(tmp_path / "h8.png", smooth_height(), bits="8")
     assert bake("normal", tmp_path / "h8.png", "-o", tmp_path / "n8.png").exit_code == 0

@@ -106,7 +106,7 @@ def test_material_for_reads_normals_as_y_up():
 
 
 def test_single_channel_maps_are_previewed_by_name():
-    # heights: normals baked with bits = width/32 (bakery normal's default), n = normalize(−s ∂h/∂x, ..., 1)
+    # heights: normals baked with relief = width/32 (bakery normal's default), n = normalize(−s ∂h/∂x, ..., 1)
     # (Blinn 1978) with s = 64/32 = 2 for a ramp rising 0.01 per texel; exponents: 32 -> r = 0.492479
     # (Walter et al. 2007 peak rule, references.md §5)
     ramp = np.tile(np.arange(64, dtype=np.float32) * 0.01, (16, 1))[..., None]
