@@ -18,6 +18,12 @@ from bakery.cli._common import STATE
 
 # Arguments are described by their help text; typer's type labels (``<list[Path]>``) say nothing to users.
 typer.core.TyperArgument.display_type = lambda self, ctx: ""
+_OPTION_LABELS = {"<str>": "TEXT", "<path>": "PATH", "<file>": "FILE", "<float>": "NUMBER", "<int>": "INTEGER",
+                  "<float range>": "NUMBER", "<int range>": "INTEGER", "<bool>": "", "<list[str]>": "PATTERN",
+                  "<dir>": "FOLDER", "<float,float>": "X Y"}
+_option_type = typer.core.TyperOption.display_type
+typer.core.TyperOption.display_type = lambda self, ctx: (
+    _OPTION_LABELS.get(label, label) if isinstance(label := _option_type(self, ctx), str) else label)
 
 app = typer.Typer(
     name="bakery",
