@@ -14,7 +14,7 @@ from bakery.cli._common import command, echo
 @app.command("demo")
 @command
 def demo(
-    out: Annotated[Path, typer.Option("-o", "--out", help="Folder for the demo inputs and outputs.",
+    out: Annotated[Path, typer.Option("-o", "--output", help="Folder for the demo inputs and outputs.",
                                       file_okay=False)] = Path("demo-out"),
     size: Annotated[int, typer.Option(help="Edge length in texels of the generated texture maps.",
                                       min=16, max=4096)] = 256,
