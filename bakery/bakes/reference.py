@@ -75,6 +75,8 @@ def reference_markdown() -> str:
            "`[defaults.BAKE]` or a folder file) of the same name; `-` and `_` are alike in recipes. Every command "
            "also takes its inputs and `-o/--output` (a file, or a folder ending in `/`).", ""]
     for bake in all_bakes().values():
+        if not bake.run.__module__.startswith("bakery.bakes."):
+            continue
         out += [f"## `{bake.name}`: {bake.summary}", ""]
         roles = ", ".join(f"`{r[:-1]}` (optional)" if r.endswith("?") else f"`{r}`" for r in bake.inputs)
         out += [f"Command: `{BAKE_COMMANDS.get(bake.name, '(none)')}`. Inputs: {roles or 'none'}.", ""]
