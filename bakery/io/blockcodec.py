@@ -163,13 +163,17 @@ def quantize(values: np.ndarray, codec: Codec) -> tuple[np.ndarray, int]:
         np.clip(v[:, :, :3], 0.0, 65504.0, out=rgba[:, :, :3], casting="unsafe")
         rgba[:, :, 3] = 1.0
         return pad_to_blocks(rgba), clamped
-    clamped = int(np.count_nonzero((v < 0) | (v > 1)))
     sc = codec.surface_channels
-    out = np.empty(v.shape[:2] + (sc,), np.uint8)
     k = min(c, sc)
-    tmp = np.clip(v[:, :, :k], 0.0, 1.0)
+    tmp = np.empty(v.shape[:2] + (k,), np.float32)
+    np.copyto(tmp, v[:, :, :k])
+    clamped = 0
+    if tmp.size and (tmp.min() < 0 or tmp.max() > 1):  # count only when something is out of range
+        clamped = int(np.count_nonzero((tmp < 0) | (tmp > 1)))
+        np.clip(tmp, 0.0, 1.0, out=tmp)
     tmp *= np.float32(255.0)
     np.rint(tmp, out=tmp)
+    out = np.empty(v.shape[:2] + (sc,), np.uint8)
     out[:, :, :k] = tmp
     if sc == 4 and k < 4:
         out[:, :, k:] = 255
