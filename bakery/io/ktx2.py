@@ -1,9 +1,12 @@
-"""KTX 2.0 textures: 2D textures and cubemaps with mip levels, uncompressed formats.
+"""KTX 2.0 textures: 2D textures and cubemaps with mip levels, uncompressed and BCn block-compressed formats,
+optionally Zstandard-supercompressed.
 
 Follows the Khronos KTX File Format Specification, version 2.0 [1]_ (identifier, header, index, level index,
-Data Format Descriptor, key/value data, alignment and level order) with the basic Data Format Descriptor block
-of the Khronos Data Format Specification 1.3/1.4 [2]_. Supercompression, array textures and 3D textures are
-not written, and are refused on reading with a clear message.
+Data Format Descriptor, key/value data, alignment and level order, the Zstandard supercompression scheme 2)
+with the basic Data Format Descriptor block of the Khronos Data Format Specification 1.3/1.4 [2]_. Array
+textures, 3D textures and other supercompression schemes are not written, and are refused on reading with a
+clear message; so are files whose DFD does not describe their vkFormat, and level data that lies in the
+header, overlaps, or is misaligned.
 
 In memory a texture is a list of levels, level 0 (largest) first. A 2D level is float32 ``(H, W, C)``, a
 cubemap level float32 ``(6, N, N, C)`` with faces in the order +X, -X, +Y, -Y, +Z, -Z (see
@@ -27,7 +30,16 @@ R16G16B16A16_SFLOAT            97     4    default for HDR; |v| <= 65504
 R32G32B32A32_SFLOAT            109    4    masters
 B10G11R11_UFLOAT_PACK32        122    3    v in [0, 65024] (R, G), [0, 64512] (B)
 E5B9G9R9_UFLOAT_PACK32         123    3    v in [0, 65408]
+BC1_RGB_UNORM_BLOCK ("bc1")    131    3    4x4 blocks of 8 bytes; ``_SRGB`` 132 ("bc1-srgb")
+BC3_UNORM_BLOCK ("bc3")        137    4    16-byte blocks, RGBA; ``_SRGB`` 138 ("bc3-srgb")
+BC4_UNORM_BLOCK ("bc4")        139    1    8-byte blocks: roughness, height, masks
+BC5_UNORM_BLOCK ("bc5")        141    2    16-byte blocks: normal-map XY
+BC6H_UFLOAT_BLOCK ("bc6h")     143    3    16-byte blocks, HDR in [0, 65504]
+BC7_UNORM_BLOCK ("bc7")        145    4    16-byte blocks; ``_SRGB`` 146 ("bc7-srgb")
 =============================  =====  ===  ===============================================
+
+Block formats are encoded by :mod:`bakery.io.blockcodec`; :mod:`bakery.io.texcompress` builds mips from
+float data and reports the compression error.
 
 Out-of-range values are clamped with one :class:`~bakery.errors.BakeryWarning` that counts them; NaN/Inf are
 refused (callers check inputs before).

@@ -118,12 +118,35 @@ def size_table(threads: int, folder: Path, size: int) -> None:
                 print(f"| {label} | {fmt} | {z or '-'} | {n:,} | {base / n:.2f}x smaller | {dt:.2f} s |")
 
 
+def quality_table(threads: int, size: int) -> None:
+    """The quality knob: figures and encode times per profile (level 0 only, full report)."""
+    from tests.io.texgen import hdr_sky
+
+    cases = [("bc7", photo_like(size, 2), "color"), ("bc7-srgb", photo_like(size, 2), "color"),
+             ("bc6h", hdr_sky(size, 3), "hdr"), ("bc5", fbm_normals(size, 1), "normal")]
+    print(f"\n| format | quality | level 0 ({size}^2) | encode time |")
+    print("|---|---|---|---|")
+    for fmt, src, kind in cases:
+        for q in B.QUALITIES:
+            t = best(lambda: T.compress_ktx2(src, fmt, kind=kind, quality=q, mips=False, threads=threads,  # noqa: B023
+                                             report=False), 2)
+            lv = T.compress_ktx2(src, fmt, kind=kind, quality=q, mips=False, report_texels=None).report["levels"][0]
+            if kind == "normal":
+                fig = f"mean {lv['mean_deg']:.2f} deg, p99 {lv['p99_deg']:.2f} deg"
+            elif kind == "hdr":
+                fig = f"{lv['log2_rmse_stops']:.4f} stops, median {100 * lv['median_rel_error']:.2f} %"
+            else:
+                fig = f"PSNR R/G/B {'/'.join(f'{v:.2f}' for v in lv['psnr_db'][:3])} dB"
+            print(f"| {fmt} | {q} | {fig} | {t:.3f} s |")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--size", type=int, default=4096)
     ap.add_argument("--threads", type=int, default=2)
     ap.add_argument("--rounds", type=int, default=3)
     ap.add_argument("--table-size", type=int, default=1024)
+    ap.add_argument("--knob-size", type=int, default=512)
     ap.add_argument("--sizes-only", action="store_true")
     ap.add_argument("--cases", default="bc5,bc7", help="comma-separated: bc5, bc7")
     args = ap.parse_args()
@@ -141,6 +164,8 @@ def main() -> None:
             del col
         if args.table_size:
             size_table(args.threads, folder, args.table_size)
+        if args.knob_size:
+            quality_table(args.threads, args.knob_size)
 
 
 if __name__ == "__main__":
