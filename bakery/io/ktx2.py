@@ -173,7 +173,6 @@ SHORT_NAMES = {v: k for k, v in FORMAT_ALIASES.items()}
 
 #: Supercompression schemes (KTX 2.0 spec, section 3.4 supercompressionScheme): written and read here.
 SCHEME_NONE, SCHEME_ZSTD = 0, 2
-ZSTD_DEFAULT_LEVEL = 18
 
 
 def get_format(name: str | int) -> Format:
@@ -377,7 +376,7 @@ def check_block_channels(channels: int, fmt: Format, where: str | os.PathLike | 
                           "for colour)", where)
 
 
-def encode_blocks(a: np.ndarray, fmt: Format, *, quality: str = "balanced", threads: int | None = None,
+def encode_blocks(a: np.ndarray, fmt: Format, *, quality: str = "fast", threads: int | None = None,
                   counts: dict[str, int] | None = None) -> bytes:
     """Block bytes of a float32 2D ``(H, W, C)`` or cubemap ``(6, N, N, C)`` level (faces one after another,
     KTX 2.0 spec section 3.12), sRGB-encoded first for the ``_SRGB`` formats."""
@@ -636,7 +635,7 @@ def check_levels(levels: list[np.ndarray], cubemap: bool) -> tuple[int, int]:
     return int(w), int(h)
 
 
-def encode_levels(levels: list[np.ndarray], fmt: Format, *, quality: str = "balanced",
+def encode_levels(levels: list[np.ndarray], fmt: Format, *, quality: str = "fast",
                   threads: int | None = None, counts: dict[str, int] | None = None) -> list[bytes]:
     """The bytes of each level (level 0 first) before supercompression."""
     if fmt.block is not None:
@@ -644,7 +643,7 @@ def encode_levels(levels: list[np.ndarray], fmt: Format, *, quality: str = "bala
     return [encode_texels(lv, fmt, counts=counts) for lv in levels]
 
 
-def zstd_levels(payloads: list[bytes], level: int = ZSTD_DEFAULT_LEVEL) -> list[bytes]:
+def zstd_levels(payloads: list[bytes], level: int) -> list[bytes]:
     """Each level deflated on its own with Zstandard (KTX 2.0 spec, "Zstandard" supercompression scheme)."""
     import imagecodecs
 
@@ -693,7 +692,7 @@ def assemble_ktx2(payloads: list[bytes], fmt: Format, width: int, height: int, *
 
 def encode_ktx2(levels: list[np.ndarray], fmt: Format | str, *, cubemap: bool,
                 key_values: dict[str, bytes | str] | None = None, writer_keys: bool = True,
-                quality: str = "balanced", zstd: int | None = None, threads: int | None = None
+                quality: str = "fast", zstd: int | None = None, threads: int | None = None
                 ) -> tuple[bytes, int]:
     """The bytes of a KTX2 file holding ``levels``, and the number of clamped samples.
 
@@ -744,7 +743,7 @@ def warn_clamped(path: str | os.PathLike, fmt: Format, counts: dict[str, int], s
 
 
 def write_ktx2(path: str | os.PathLike, levels: list[np.ndarray], fmt: Format | str = "R16G16B16A16_SFLOAT",
-               *, cubemap: bool, key_values: dict[str, bytes | str] | None = None, quality: str = "balanced",
+               *, cubemap: bool, key_values: dict[str, bytes | str] | None = None, quality: str = "fast",
                zstd: int | None = None, threads: int | None = None) -> Path:
     """Write a KTX2 file atomically (see :func:`encode_ktx2`); warn with a count when values were clamped
     to the format's range. For block compression with a quality report, see

@@ -149,7 +149,7 @@ def _report(fmt: K.Format, kind: str, levels: list[np.ndarray], payloads: list[b
 
 
 def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *, kind: str | None = None,
-                  cubemap: bool = False, mips: bool | int = True, quality: str = "balanced",
+                  cubemap: bool = False, mips: bool | int = True, quality: str = "fast",
                   zstd: int | None = None, threads: int | None = None,
                   key_values: dict[str, bytes | str] | None = None, report: bool = True,
                   report_texels: int | None = REPORT_TEXELS,

@@ -100,6 +100,8 @@ def size_table(threads: int, folder: Path, size: int) -> None:
     spec = prefilter_specular(sky_panorama(512), 128, quality="draft").levels
     cases = [
         (f"normal map {size}^2 (demo paving)", normal, "normal", ["rgba8", "rg8", "bc5"], False),
+        (f"normal map {size}^2 (fBm detail)", fbm_normals(size, 1), "normal", ["rg8", "bc5"], False),
+        (f"colour {size}^2 (photo-like)", photo_like(size, 2), "color", ["rgba8-srgb", "bc7-srgb"], False),
         (f"roughness {size}^2 (demo paving)", rough, "data", ["r8", "bc4"], False),
         ("specular chain, 128^2 cube (demo sky)", spec, "hdr", ["rgba16f", "bc6h"], True),
     ]
@@ -108,10 +110,10 @@ def size_table(threads: int, folder: Path, size: int) -> None:
     for label, src, kind, fmts, cube in cases:
         base = None
         for fmt in fmts:
-            for z in (None, 18):
+            for z in (None, 5, 18):
                 t = time.perf_counter()
                 res = T.write_compressed_ktx2(folder / "s.ktx2", src, fmt, kind=kind, cubemap=cube, threads=threads,
-                                              zstd=z, report=False, quality="balanced")
+                                              zstd=z, report=False, quality="fast")
                 dt = time.perf_counter() - t
                 n = os.path.getsize(res.path)
                 base = base or n
