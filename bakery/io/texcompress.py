@@ -31,7 +31,7 @@ from bakery.io import ktx2 as K
 
 KINDS = ("color", "data", "normal", "hdr")
 #: Texels per level read by the quality report before it samples rows of blocks (common practice).
-REPORT_TEXELS = 1 << 16
+REPORT_TEXELS = 1 << 15
 #: Key/value entry of a BC5 normal map (keys outside the "KTX" namespace, KTX 2.0 spec section 3.11).
 NORMAL_KEY = "bakery.normal"
 NORMAL_XY_VALUE = "xy; z reconstructed as sqrt(1 - x^2 - y^2)"

@@ -302,7 +302,7 @@ def test_bc5_fbm_normal_map_angular_error():
     # 256^2 periodic fBm normal map, BC5 fast, level 0; decoded independently (texture2ddecoder), z rebuilt
     # as sqrt(1 - x^2 - y^2) (glTF 2.0 normalTexture convention, XY in [-1, 1]). Measured: mean 1.286 deg.
     nm = fbm_normals(256, 1)
-    res = T.compress_ktx2(nm, "bc5", quality="fast")
+    res = T.compress_ktx2(nm, "bc5", quality="fast", report_texels=None)
     plain, _ = K.encode_ktx2([res.levels[0][..., :2]], "bc5", cubemap=False)
     off, length, _ = struct.unpack_from("<3Q", plain, 80)
     xy = t2d_decode(plain[off:off + length], "bc5", 256, 256) * 2 - 1
@@ -318,7 +318,7 @@ def test_bc5_fbm_normal_map_angular_error():
 def test_bc7_fast_photo_like_psnr():
     # 256^2 photo-like linear image, BC7 (linear) fast, level 0 through texture2ddecoder. Measured: 40.65 dB (RGB).
     src = photo_like(256, 2)
-    res = T.compress_ktx2(src, "bc7", quality="fast")
+    res = T.compress_ktx2(src, "bc7", quality="fast", report_texels=None)
     plain, _ = K.encode_ktx2([res.levels[0]], "bc7", cubemap=False, quality="fast")
     off, length, _ = struct.unpack_from("<3Q", plain, 80)
     dec = t2d_decode(plain[off:off + length], "bc7", 256, 256)
@@ -336,7 +336,7 @@ def test_bc6h_fast_hdr_stops():
     # 256^2 HDR sky (12 stops), BC6H fast, read back through bakery's reader (texture2ddecoder has no float
     # output). Measured: 0.0371 stops log2 RMSE, median relative error 1.67 %.
     src = hdr_sky(256, 3)
-    res = T.compress_ktx2(src, "bc6h", quality="fast", mips=False)
+    res = T.compress_ktx2(src, "bc6h", quality="fast", mips=False, report_texels=None)
     dec = K.decode_ktx2(res.data).levels[0]
     floor = 2.0 ** -14
     d = np.log2(np.maximum(dec, floor)) - np.log2(np.maximum(src, floor))
