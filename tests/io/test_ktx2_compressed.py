@@ -258,8 +258,7 @@ def test_refuses_corrupt_zstd_level():
 
 def _fuzz(count, seed):
     rng = np.random.default_rng(seed)
-    files = [_bc_file(n, z) for n in ("bc1", "bc3", "bc4", "bc5", "bc6h", "bc7", "bc7-srgb")
-             for z in (None, 5)]
+    files = [_bc_file(n, z) for n in BLOCK_FORMATS for z in (None, 5)]
     outcomes = {"refused": 0, "read": 0}
     for _ in range(count):
         raw = bytearray(files[rng.integers(len(files))])
@@ -343,6 +342,16 @@ def test_bc6h_fast_hdr_stops():
     stops = float(np.sqrt(np.mean(d.astype(np.float64) ** 2)))
     assert 0.033 < stops < 0.041
     assert res.report["levels"][0]["log2_rmse_stops"] == pytest.approx(stops, abs=1e-4)
+
+
+def test_report_for_uncompressed_formats():
+    # the report also measures plain formats: 8-bit quantisation of [0, 1] data gives about
+    # 10 log10(12 * 255^2) = 58.9 dB (uniform rounding error of half a step); rgba16f of HDR a tiny error
+    res = T.compress_ktx2(fbm(64, 1), "r8", mips=False)
+    assert res.report["levels"][0]["psnr_db"][0] == pytest.approx(10 * np.log10(12 * 255 ** 2), abs=0.3)
+    assert res.report["encoder"] is None and res.summary.startswith("r8: 1 level(s)")
+    rep = T.compress_ktx2(hdr_sky(32, 1), "rgba16f", mips=False).report["levels"][0]
+    assert rep["log2_rmse_stops"] < 2 ** -11  # half floats keep 11 significant bits
 
 
 def test_report_is_json_and_samples_large_levels():
