@@ -530,7 +530,7 @@ def dfd_bytes(fmt: Format) -> bytes:
     """The Data Format Descriptor: dfdTotalSize then one basic descriptor block (ref. [2]).
 
     Supercompressed files carry the same descriptor: the KTX 2.0 specification's section "DFD for
-    Supercompressed Data" (document revision 5 text) keeps ``bytesPlane0`` of the pre-deflation data; earlier
+    Supercompressed Data" (document revision 5 draft text) keeps ``bytesPlane0`` of the pre-deflation data; earlier
     revisions asked for 0, and the reader accepts both.
     """
     samples = dfd_samples(fmt)

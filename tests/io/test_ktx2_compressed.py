@@ -2,7 +2,7 @@
 
 Sources: Khronos "KTX File Format Specification, version 2.0" (header 3.4, level index 3.9, DFD 3.10,
 key/value data 3.11, levelImages and mipPadding 3.12, "Supercompression Schemes" / Zstandard, "DFD for
-Supercompressed Data" in the document revision 5 text, whose note says earlier revisions required
+Supercompressed Data" in the document revision 5 (draft) text, whose note says earlier revisions required
 bytesPlane = 0); Khronos "Data Format Specification 1.3", section 5 (basic descriptor block) and section 5.6
 (colorModel values KHR_DF_MODEL_BC1A 128 .. BC7 134); Vulkan 1.3 specification, VkFormat enumeration (BC
 formats 131-146). Independent decoders: texture2ddecoder 1.0.6 (blocks), zstandard 0.25.0 (levels).
@@ -100,7 +100,7 @@ def test_zstd_levels_inflate_to_the_uncompressed_level_bytes(name):
     assert raw == raw0 == len0
     inflated = zstandard.ZstdDecompressor().decompress(packed[off:off + length], max_output_size=raw)
     assert inflated == plain[off0:off0 + len0]
-    # the DFD keeps bytesPlane0 of the pre-deflation data (spec revision 5 rule)
+    # the DFD keeps bytesPlane0 of the pre-deflation data (spec document revision 5 draft rule)
     dfd_off = struct.unpack_from("<I", packed, 48)[0]
     assert packed[dfd_off + 20] == K.get_format(name).texel_bytes
 
