@@ -1,9 +1,12 @@
-"""KTX 2.0 textures: 2D textures and cubemaps with mip levels, uncompressed formats.
+"""KTX 2.0 textures: 2D textures and cubemaps with mip levels, uncompressed and BCn block-compressed formats,
+optionally Zstandard-supercompressed.
 
 Follows the Khronos KTX File Format Specification, version 2.0 [1]_ (identifier, header, index, level index,
-Data Format Descriptor, key/value data, alignment and level order) with the basic Data Format Descriptor block
-of the Khronos Data Format Specification 1.3/1.4 [2]_. Supercompression, array textures and 3D textures are
-not written, and are refused on reading with a clear message.
+Data Format Descriptor, key/value data, alignment and level order, the Zstandard supercompression scheme 2)
+with the basic Data Format Descriptor block of the Khronos Data Format Specification 1.3/1.4 [2]_. Array
+textures, 3D textures and other supercompression schemes are not written, and are refused on reading with a
+clear message; so are files whose DFD does not describe their vkFormat, and level data that lies in the
+header, overlaps, or is misaligned.
 
 In memory a texture is a list of levels, level 0 (largest) first. A 2D level is float32 ``(H, W, C)``, a
 cubemap level float32 ``(6, N, N, C)`` with faces in the order +X, -X, +Y, -Y, +Z, -Z (see
@@ -27,7 +30,16 @@ R16G16B16A16_SFLOAT            97     4    default for HDR; |v| <= 65504
 R32G32B32A32_SFLOAT            109    4    masters
 B10G11R11_UFLOAT_PACK32        122    3    v in [0, 65024] (R, G), [0, 64512] (B)
 E5B9G9R9_UFLOAT_PACK32         123    3    v in [0, 65408]
+BC1_RGB_UNORM_BLOCK ("bc1")    131    3    4x4 blocks of 8 bytes; ``_SRGB`` 132 ("bc1-srgb")
+BC3_UNORM_BLOCK ("bc3")        137    4    16-byte blocks, RGBA; ``_SRGB`` 138 ("bc3-srgb")
+BC4_UNORM_BLOCK ("bc4")        139    1    8-byte blocks: roughness, height, masks
+BC5_UNORM_BLOCK ("bc5")        141    2    16-byte blocks: normal-map XY
+BC6H_UFLOAT_BLOCK ("bc6h")     143    3    16-byte blocks, HDR in [0, 65504]
+BC7_UNORM_BLOCK ("bc7")        145    4    16-byte blocks; ``_SRGB`` 146 ("bc7-srgb")
 =============================  =====  ===  ===============================================
+
+Block formats are encoded by :mod:`bakery.io.blockcodec`; :mod:`bakery.io.texcompress` builds mips from
+float data and reports the compression error.
 
 Out-of-range values are clamped with one :class:`~bakery.errors.BakeryWarning` that counts them; NaN/Inf are
 refused (callers check inputs before).
@@ -69,6 +81,9 @@ KHR_DF_TRANSFER_SRGB = 2
 KHR_DF_VERSION = 2
 Q_LINEAR, Q_EXPONENT, Q_SIGNED, Q_FLOAT = 0x1, 0x2, 0x4, 0x8  # the top nibble of sample word 0
 CH_R, CH_G, CH_B, CH_A = 0, 1, 2, 15
+#: colorModel of the block formats (Data Format spec section 5.6, "KHR_DF_MODEL_BC1A" .. "KHR_DF_MODEL_BC7")
+BLOCK_MODELS = {"bc1": 128, "bc3": 130, "bc4": 131, "bc5": 132, "bc6h": 133, "bc7": 134}
+U32_MAX = 0xFFFFFFFF
 F32_ONE, F32_MINUS_ONE = 0x3F800000, 0xBF800000
 
 HALF_MAX = 65504.0
@@ -83,22 +98,40 @@ class Format:
     name: str
     vk: int
     channels: int
-    kind: str  # "unorm", "sfloat", "b10g11r11", "e5b9g9r9"
-    bits: int  # bits per component (unorm/sfloat); 32 for the packed formats
+    kind: str  # "unorm", "sfloat", "b10g11r11", "e5b9g9r9", "block"
+    bits: int  # bits per component (unorm/sfloat); 32 for the packed formats; 8 for blocks
     srgb: bool = False
+    block: str | None = None  # block codec name (bakery.io.blockcodec.CODECS) for block-compressed formats
+
+    @property
+    def block_compressed(self) -> bool:
+        return self.block is not None
 
     @property
     def texel_bytes(self) -> int:
+        """Bytes of one texel block (one texel for uncompressed formats, 4x4 texels for BCn)."""
+        if self.block is not None:
+            return BLOCK_BYTES[self.block]
         return 4 if self.kind in ("b10g11r11", "e5b9g9r9") else self.channels * self.bits // 8
 
     @property
     def type_size(self) -> int:
+        # KTX 2.0 spec section 3.5 (typeSize): 1 for block-compressed formats
+        if self.block is not None:
+            return 1
         return 4 if self.kind in ("b10g11r11", "e5b9g9r9") else self.bits // 8
 
     @property
     def is_float(self) -> bool:
-        return self.kind != "unorm"
+        return self.kind not in ("unorm", "block") or self.block == "bc6h"
 
+    @property
+    def short_name(self) -> str:
+        """The user-facing name (``"bc7-srgb"``, ``"rgba16f"``), or the Vulkan name where none exists."""
+        return SHORT_NAMES.get(self.name, self.name)
+
+
+BLOCK_BYTES = {"bc1": 8, "bc3": 16, "bc4": 8, "bc5": 16, "bc6h": 16, "bc7": 16}
 
 FORMATS: dict[str, Format] = {f.name: f for f in (
     Format("R8_UNORM", 9, 1, "unorm", 8),
@@ -113,16 +146,33 @@ FORMATS: dict[str, Format] = {f.name: f for f in (
     Format("R32G32B32A32_SFLOAT", 109, 4, "sfloat", 32),
     Format("B10G11R11_UFLOAT_PACK32", 122, 3, "b10g11r11", 32),
     Format("E5B9G9R9_UFLOAT_PACK32", 123, 3, "e5b9g9r9", 32),
+    # block-compressed (Vulkan spec, VkFormat enumeration; 4x4 blocks)
+    Format("BC1_RGB_UNORM_BLOCK", 131, 3, "block", 8, block="bc1"),
+    Format("BC1_RGB_SRGB_BLOCK", 132, 3, "block", 8, srgb=True, block="bc1"),
+    Format("BC3_UNORM_BLOCK", 137, 4, "block", 8, block="bc3"),
+    Format("BC3_SRGB_BLOCK", 138, 4, "block", 8, srgb=True, block="bc3"),
+    Format("BC4_UNORM_BLOCK", 139, 1, "block", 8, block="bc4"),
+    Format("BC5_UNORM_BLOCK", 141, 2, "block", 8, block="bc5"),
+    Format("BC6H_UFLOAT_BLOCK", 143, 3, "block", 8, block="bc6h"),
+    Format("BC7_UNORM_BLOCK", 145, 4, "block", 8, block="bc7"),
+    Format("BC7_SRGB_BLOCK", 146, 4, "block", 8, srgb=True, block="bc7"),
 )}
 FORMATS_BY_VK: dict[int, Format] = {f.vk: f for f in FORMATS.values()}
 
-#: Short names accepted by the CLI.
+#: Short names accepted by the CLI: what the file stores, lowercase.
 FORMAT_ALIASES = {
     "rgba16f": "R16G16B16A16_SFLOAT", "rgba32f": "R32G32B32A32_SFLOAT", "b10g11r11-ufloat": "B10G11R11_UFLOAT_PACK32",
     "e5b9g9r9-ufloat": "E5B9G9R9_UFLOAT_PACK32", "rg16f": "R16G16_SFLOAT", "r8": "R8_UNORM", "rg8": "R8G8_UNORM",
     "rgba8": "R8G8B8A8_UNORM", "rgba8-srgb": "R8G8B8A8_SRGB", "r16": "R16_UNORM", "rg16": "R16G16_UNORM",
     "rgba16": "R16G16B16A16_UNORM",
+    "bc1": "BC1_RGB_UNORM_BLOCK", "bc1-srgb": "BC1_RGB_SRGB_BLOCK", "bc3": "BC3_UNORM_BLOCK",
+    "bc3-srgb": "BC3_SRGB_BLOCK", "bc4": "BC4_UNORM_BLOCK", "bc5": "BC5_UNORM_BLOCK", "bc6h": "BC6H_UFLOAT_BLOCK",
+    "bc7": "BC7_UNORM_BLOCK", "bc7-srgb": "BC7_SRGB_BLOCK",
 }
+SHORT_NAMES = {v: k for k, v in FORMAT_ALIASES.items()}
+
+#: Supercompression schemes (KTX 2.0 spec, section 3.4 supercompressionScheme): written and read here.
+SCHEME_NONE, SCHEME_ZSTD = 0, 2
 
 
 def get_format(name: str | int) -> Format:
@@ -151,12 +201,25 @@ class Ktx2Texture:
     cubemap : bool
     key_values : dict of str to bytes
         Key/value data as stored (values include their terminating NUL where the writer put one).
+    supercompression : int
+        The file's supercompressionScheme (0 none, 2 Zstandard).
     """
 
     levels: list[np.ndarray]
     format: Format
     cubemap: bool
     key_values: dict[str, bytes] = field(default_factory=dict)
+    supercompression: int = 0
+
+    @property
+    def block_compressed(self) -> bool:
+        """True when the file held GPU blocks (BCn), decoded here to float32."""
+        return self.format.block_compressed
+
+    @property
+    def supercompressed(self) -> bool:
+        """True when the levels were Zstandard-deflated in the file (supercompressionScheme 2)."""
+        return self.supercompression != SCHEME_NONE
 
     @property
     def width(self) -> int:
@@ -304,9 +367,72 @@ def fit_channels(a: np.ndarray, channels: int) -> np.ndarray:
     return np.concatenate([a, np.zeros(a.shape[:-1] + (channels - c,), a.dtype)], axis=-1)
 
 
+def check_block_channels(channels: int, fmt: Format, where: str | os.PathLike | None = None) -> None:
+    """BC4 stores one channel and BC5 two: refuse data with more (a colour map does not fit)."""
+    if fmt.block in ("bc4", "bc5") and channels > fmt.channels:
+        what = "one channel (roughness, height, a mask)" if fmt.block == "bc4" else \
+            "two channels (the XY of a tangent-space normal map)"
+        raise BakeryError(f"{fmt.short_name} stores {what}; got {channels}-channel data (use bc7 or bc7-srgb "
+                          "for colour)", where)
+
+
+def encode_blocks(a: np.ndarray, fmt: Format, *, quality: str = "fast", threads: int | None = None,
+                  counts: dict[str, int] | None = None) -> bytes:
+    """Block bytes of a float32 2D ``(H, W, C)`` or cubemap ``(6, N, N, C)`` level (faces one after another,
+    KTX 2.0 spec section 3.12), sRGB-encoded first for the ``_SRGB`` formats."""
+    from bakery.color import linear_to_srgb
+    from bakery.io import blockcodec
+
+    codec = blockcodec.CODECS[fmt.block]
+    a = np.asarray(a, dtype=np.float32)
+    check_block_channels(a.shape[-1], fmt)
+    a = fit_channels(a, fmt.channels)
+    if fmt.srgb:
+        a = a.copy()
+        a[..., :3] = linear_to_srgb(np.clip(a[..., :3], 0.0, 1.0))
+    faces = a if a.ndim == 4 else a[None]
+    out = []
+    clamped = 0
+    for face in faces:
+        data, c = blockcodec.encode_level(face, codec, quality=quality, threads=threads)
+        out.append(data)
+        clamped += c
+    if counts is not None:
+        counts["clamped"] = counts.get("clamped", 0) + clamped
+        if codec.hdr:
+            counts["negative"] = counts.get("negative", 0) + int(np.count_nonzero(a < 0))
+    return b"".join(out)
+
+
+def decode_blocks(buf: bytes | memoryview, fmt: Format, shape: tuple[int, ...]) -> np.ndarray:
+    """Float32 ``shape + (C,)`` from block bytes (inverse of :func:`encode_blocks`, up to the compression)."""
+    from bakery.color import srgb_to_linear
+    from bakery.io import blockcodec
+
+    codec = blockcodec.CODECS[fmt.block]
+    h, w = shape[-2:]
+    n = blockcodec.level_bytes(codec, w, h)
+    faces = [blockcodec.decode_level(memoryview(buf)[i * n:(i + 1) * n], codec, w, h)
+             for i in range(shape[0] if len(shape) == 3 else 1)]
+    out = np.stack(faces) if len(shape) == 3 else faces[0]
+    if fmt.srgb:
+        out[..., :3] = srgb_to_linear(out[..., :3])
+    return out
+
+
+def level_byte_length(fmt: Format, shape: tuple[int, ...]) -> int:
+    """Bytes of one level of ``shape`` (``(H, W)`` or ``(6, N, N)``) before supercompression."""
+    h, w = shape[-2:]
+    faces = shape[0] if len(shape) == 3 else 1
+    if fmt.block is not None:
+        bx, by = -(-w // 4), -(-h // 4)
+        return faces * bx * by * fmt.texel_bytes
+    return faces * h * w * fmt.texel_bytes
+
+
 def encode_texels(a: np.ndarray, fmt: Format, *, counts: dict[str, int] | None = None) -> bytes:
-    """Texel bytes (little-endian) of float32 ``(..., C)`` data in ``fmt``, with clamping counted into
-    ``counts["clamped"]``."""
+    """Texel bytes (little-endian) of float32 ``(..., C)`` data in an uncompressed ``fmt``, with clamping
+    counted into ``counts["clamped"]``."""
     from bakery.color import linear_to_srgb
 
     a = fit_channels(np.asarray(a, dtype=np.float32), fmt.channels)
@@ -357,10 +483,30 @@ def decode_texels(buf: bytes | memoryview, fmt: Format, shape: tuple[int, ...]) 
     return out.reshape(shape + (3,))
 
 
-def dfd_bytes(fmt: Format) -> bytes:
-    """The Data Format Descriptor: dfdTotalSize then one basic descriptor block (ref. [2])."""
-    samples: list[tuple[int, int, int, int, int, int]] = []  # (offset, bits, channel, qualifiers, lo, hi)
-    if fmt.kind == "unorm":
+def dfd_samples(fmt: Format) -> list[tuple[int, int, int, int, int, int]]:
+    """The DFD samples of ``fmt``: (bitOffset, bitLength, channelId, qualifiers, sampleLower, sampleUpper)."""
+    samples: list[tuple[int, int, int, int, int, int]] = []
+    if fmt.block is not None:
+        # Data Format spec 1.3, section 5.6 (one 64- or 128-bit sample per block part) and the KTX 2.0 spec's
+        # rule that an sRGB format's alpha sample is LINEAR. Channel ids: BC1A_COLOR 0, BC3 COLOR 0 / ALPHA 15,
+        # BC4 DATA 0, BC5 RED 0 / GREEN 1, BC6H COLOR 0, BC7 COLOR 0. UNORM bounds 0 .. UINT32_MAX; BC6H
+        # unsigned float bounds 0.0 .. 1.0 (float bits; from memory, matching the Khronos example descriptors).
+        b = fmt.block
+        if b == "bc1":
+            samples.append((0, 64, 0, 0, 0, U32_MAX))
+        elif b == "bc3":
+            samples.append((0, 64, CH_A, Q_LINEAR if fmt.srgb else 0, 0, U32_MAX))
+            samples.append((64, 64, 0, 0, 0, U32_MAX))
+        elif b == "bc4":
+            samples.append((0, 64, 0, 0, 0, U32_MAX))
+        elif b == "bc5":
+            samples.append((0, 64, CH_R, 0, 0, U32_MAX))
+            samples.append((64, 64, CH_G, 0, 0, U32_MAX))
+        elif b == "bc6h":
+            samples.append((0, 128, 0, Q_FLOAT, 0, F32_ONE))
+        else:
+            samples.append((0, 128, 0, 0, 0, U32_MAX))
+    elif fmt.kind == "unorm":
         ids = {1: [CH_R], 2: [CH_R, CH_G], 4: [CH_R, CH_G, CH_B, CH_A]}[fmt.channels]
         top = (1 << fmt.bits) - 1
         for i, ch in enumerate(ids):
@@ -377,20 +523,72 @@ def dfd_bytes(fmt: Format) -> bytes:
         for off, ch in ((0, CH_R), (9, CH_G), (18, CH_B)):
             samples.append((off, 9, ch, 0, 0, 8448))
             samples.append((27, 5, ch, Q_EXPONENT, 15, 31))
+    return samples
+
+
+def dfd_bytes(fmt: Format) -> bytes:
+    """The Data Format Descriptor: dfdTotalSize then one basic descriptor block (ref. [2]).
+
+    Supercompressed files carry the same descriptor: the KTX 2.0 specification's section "DFD for
+    Supercompressed Data" (document revision 5 draft text) keeps ``bytesPlane0`` of the pre-deflation data; earlier
+    revisions asked for 0, and the reader accepts both.
+    """
+    samples = dfd_samples(fmt)
     block_size = 24 + 16 * len(samples)
     transfer = KHR_DF_TRANSFER_SRGB if fmt.srgb else KHR_DF_TRANSFER_LINEAR
+    model = BLOCK_MODELS[fmt.block] if fmt.block else KHR_DF_MODEL_RGBSDA
+    dims = 3 if fmt.block else 0  # texel block 4x4x1x1 (or 1x1x1x1), stored minus one
     out = bytearray()
     out += struct.pack("<I", 4 + block_size)
     out += struct.pack("<I", 0)  # vendorId 0 (Khronos), descriptorType 0 (basic)
     out += struct.pack("<HH", KHR_DF_VERSION, block_size)
-    out += struct.pack("<BBBB", KHR_DF_MODEL_RGBSDA, KHR_DF_PRIMARIES_BT709, transfer, 0)
-    out += struct.pack("<BBBB", 0, 0, 0, 0)  # texel block 1x1x1x1 (stored minus one)
+    out += struct.pack("<BBBB", model, KHR_DF_PRIMARIES_BT709, transfer, 0)
+    out += struct.pack("<BBBB", dims, dims, 0, 0)
     out += struct.pack("<8B", fmt.texel_bytes, 0, 0, 0, 0, 0, 0, 0)
     for off, bits, ch, q, lo, hi in samples:
         out += struct.pack("<I", off | ((bits - 1) << 16) | (ch << 24) | (q << 28))
         out += struct.pack("<I", 0)  # sample position 0,0,0,0
         out += struct.pack("<II", lo, hi)
     return bytes(out)
+
+
+def check_dfd(data: bytes | memoryview, off: int, length: int, fmt: Format, supercompressed: bool,
+              where: str | os.PathLike | None = None) -> None:
+    """Refuse a DFD that is malformed or does not describe ``fmt`` (KTX 2.0 spec section 3.10: the DFD must
+    match vkFormat): colour model, transfer function, texel block size, bytesPlane0 (0 also accepted for
+    supercompressed data, the rule of earlier revisions), and every sample's offset, length, channel and
+    qualifiers. Primaries, flags and sample bounds are not checked."""
+    def bad(why: str) -> BakeryError:
+        return BakeryError(f"KTX2 Data Format Descriptor is invalid for {fmt.name}: {why}", where)
+
+    if length < 4 + 24:
+        raise bad(f"{length} bytes, a basic descriptor block needs at least 28")
+    (total,) = struct.unpack_from("<I", data, off)
+    if total != length:
+        raise bad(f"dfdTotalSize {total} but dfdByteLength {length}")
+    vendor_type, version, block_size = struct.unpack_from("<IHH", data, off + 4)
+    if vendor_type != 0 or version != KHR_DF_VERSION:
+        raise bad("not a Khronos basic descriptor block, version 2")
+    if block_size < 24 or (block_size - 24) % 16 or 4 + block_size > length:
+        raise bad(f"descriptorBlockSize {block_size}")
+    model, _, transfer, _ = struct.unpack_from("<4B", data, off + 12)
+    dims = tuple(struct.unpack_from("<4B", data, off + 16))
+    planes = tuple(struct.unpack_from("<8B", data, off + 20))
+    want = dfd_bytes(fmt)
+    w_model, _, w_transfer, _ = struct.unpack_from("<4B", want, 12)
+    if model != w_model:
+        raise bad(f"colorModel {model}, expected {w_model}")
+    if transfer != w_transfer:
+        raise bad(f"transferFunction {transfer}, expected {w_transfer} "
+                  f"({'sRGB' if w_transfer == KHR_DF_TRANSFER_SRGB else 'linear'})")
+    if dims != tuple(want[16:20]):
+        raise bad(f"texelBlockDimension {dims}")
+    if planes[1:] != (0,) * 7 or not (planes[0] == fmt.texel_bytes or (supercompressed and planes[0] == 0)):
+        raise bad(f"bytesPlane {planes}")
+    samples = [struct.unpack_from("<I", data, off + 28 + 16 * i)[0] for i in range((block_size - 24) // 16)]
+    w_samples = [struct.unpack_from("<I", want, 28 + 16 * i)[0] for i in range((len(want) - 28) // 16)]
+    if samples != w_samples:
+        raise bad(f"{len(samples)} sample(s) that do not match the format's channels")
 
 
 def kv_bytes(key_values: dict[str, bytes | str]) -> bytes:
@@ -414,27 +612,8 @@ def mip_count(size: int) -> int:
     return int(size).bit_length()
 
 
-def encode_ktx2(levels: list[np.ndarray], fmt: Format | str, *, cubemap: bool,
-                key_values: dict[str, bytes | str] | None = None, writer_keys: bool = True
-                ) -> tuple[bytes, int]:
-    """The bytes of a KTX2 file holding ``levels``, and the number of clamped samples.
-
-    Parameters
-    ----------
-    levels : list of ndarray
-        Level 0 first, each half the size of the one before (rounded down, at least 1).
-        2D: ``(H, W, C)``; cubemap: ``(6, N, N, C)``. Channels are fitted to the format
-        (:func:`fit_channels`).
-    fmt : Format or str
-    cubemap : bool
-    key_values : dict, optional
-        Extra key/value entries (str values are stored NUL-terminated, bytes as given).
-    writer_keys : bool
-        Add "KTXorientation" = "rd" and "KTXwriter" = "bakery <version>" (default), unless given.
-    """
-    from bakery._version import __version__
-
-    fmt = get_format(fmt) if isinstance(fmt, str | int) else fmt
+def check_levels(levels: list[np.ndarray], cubemap: bool) -> tuple[int, int]:
+    """(width, height) of level 0 after checking the chain's shapes (each level half the one before)."""
     if not levels:
         raise ValueError("a KTX2 texture needs at least one level")
     first = levels[0]
@@ -453,18 +632,46 @@ def encode_ktx2(levels: list[np.ndarray], fmt: Format | str, *, cubemap: bool,
             raise ValueError(f"level {i} is {lv.shape}; expected size {want}")
     if len(levels) > mip_count(max(h, w)):
         raise ValueError("more levels than a full mip chain")
+    return int(w), int(h)
+
+
+def encode_levels(levels: list[np.ndarray], fmt: Format, *, quality: str = "fast",
+                  threads: int | None = None, counts: dict[str, int] | None = None) -> list[bytes]:
+    """The bytes of each level (level 0 first) before supercompression."""
+    if fmt.block is not None:
+        return [encode_blocks(lv, fmt, quality=quality, threads=threads, counts=counts) for lv in levels]
+    return [encode_texels(lv, fmt, counts=counts) for lv in levels]
+
+
+def zstd_levels(payloads: list[bytes], level: int) -> list[bytes]:
+    """Each level deflated on its own with Zstandard (KTX 2.0 spec, "Zstandard" supercompression scheme)."""
+    import imagecodecs
+
+    if not 1 <= int(level) <= 22:
+        raise BakeryError(f"zstd level must be 1 to 22; got {level}")
+    return [bytes(imagecodecs.zstd_encode(p, level=int(level))) for p in payloads]
+
+
+def assemble_ktx2(payloads: list[bytes], fmt: Format, width: int, height: int, *, cubemap: bool,
+                  key_values: dict[str, bytes | str] | None = None, writer_keys: bool = True,
+                  zstd: int | None = None) -> bytes:
+    """A KTX2 file from level bytes (level 0 first). With ``zstd`` (a Zstandard level, 1-22) every level is
+    deflated on its own, supercompressionScheme is 2, the level index records the compressed and the
+    uncompressed byte lengths, and levels are not padded (alignment 1; KTX 2.0 spec section 3.12 "mipPadding"
+    applies to uncompressed schemes only)."""
+    from bakery._version import __version__
+
     kv: dict[str, bytes | str] = (
         {"KTXorientation": "rd", "KTXwriter": f"bakery {__version__}"} if writer_keys else {})
     kv.update(key_values or {})
     dfd = dfd_bytes(fmt)
     kvd = kv_bytes(kv)
-    n = len(levels)
+    n = len(payloads)
     dfd_off = HEADER_SIZE + LEVEL_INDEX_ENTRY * n
     kvd_off = dfd_off + len(dfd)
     pos = kvd_off + len(kvd)
-    align = math.lcm(fmt.texel_bytes, 4)
-    counts: dict[str, int] = {}
-    payload = [encode_texels(lv, fmt, counts=counts) for lv in levels]
+    stored = payloads if zstd is None else zstd_levels(payloads, zstd)
+    align = math.lcm(fmt.texel_bytes, 4) if zstd is None else 1
     offsets = [0] * n
     body = bytearray()
     for i in reversed(range(n)):  # smallest level first in the file
@@ -472,20 +679,75 @@ def encode_ktx2(levels: list[np.ndarray], fmt: Format | str, *, cubemap: bool,
         body += b"\0" * pad
         pos += pad
         offsets[i] = pos
-        body += payload[i]
-        pos += len(payload[i])
+        body += stored[i]
+        pos += len(stored[i])
+    scheme = SCHEME_NONE if zstd is None else SCHEME_ZSTD
     head = bytearray(IDENTIFIER)
-    head += struct.pack("<9I", fmt.vk, fmt.type_size, w, h, 0, 0, 6 if cubemap else 1, n, 0)
+    head += struct.pack("<9I", fmt.vk, fmt.type_size, width, height, 0, 0, 6 if cubemap else 1, n, scheme)
     head += struct.pack("<4I2Q", dfd_off, len(dfd), kvd_off if kvd else 0, len(kvd), 0, 0)
     for i in range(n):
-        head += struct.pack("<3Q", offsets[i], len(payload[i]), len(payload[i]))
-    return bytes(head) + dfd + kvd + bytes(body), counts.get("clamped", 0)
+        head += struct.pack("<3Q", offsets[i], len(stored[i]), len(payloads[i]))
+    return bytes(head) + dfd + kvd + bytes(body)
+
+
+def encode_ktx2(levels: list[np.ndarray], fmt: Format | str, *, cubemap: bool,
+                key_values: dict[str, bytes | str] | None = None, writer_keys: bool = True,
+                quality: str = "fast", zstd: int | None = None, threads: int | None = None
+                ) -> tuple[bytes, int]:
+    """The bytes of a KTX2 file holding ``levels``, and the number of clamped samples.
+
+    Parameters
+    ----------
+    levels : list of ndarray
+        Level 0 first, each half the size of the one before (rounded down, at least 1).
+        2D: ``(H, W, C)``; cubemap: ``(6, N, N, C)``. Channels are fitted to the format
+        (:func:`fit_channels`; BC4 and BC5 refuse more channels than they store).
+    fmt : Format or str
+    cubemap : bool
+    key_values : dict, optional
+        Extra key/value entries (str values are stored NUL-terminated, bytes as given).
+    writer_keys : bool
+        Add "KTXorientation" = "rd" and "KTXwriter" = "bakery <version>" (default), unless given.
+    quality : {"fast", "balanced", "best"}
+        Block encoder profile (block-compressed formats only; see :mod:`bakery.io.blockcodec`).
+    zstd : int, optional
+        Zstandard level (1-22) for supercompression; None writes levels as they are.
+    threads : int, optional
+        Block encoder threads (None: one per core). The bytes do not depend on it.
+    """
+    fmt = get_format(fmt) if isinstance(fmt, str | int) else fmt
+    w, h = check_levels(levels, cubemap)
+    counts: dict[str, int] = {}
+    payloads = encode_levels(levels, fmt, quality=quality, threads=threads, counts=counts)
+    data = assemble_ktx2(payloads, fmt, w, h, cubemap=cubemap, key_values=key_values, writer_keys=writer_keys,
+                         zstd=zstd)
+    return data, counts.get("clamped", 0)
+
+
+def warn_clamped(path: str | os.PathLike, fmt: Format, counts: dict[str, int], stacklevel: int = 3) -> None:
+    """One :class:`BakeryWarning` counting the samples that were clamped to the format's range."""
+    clamped = counts.get("clamped", 0)
+    if not clamped:
+        return
+    if fmt.block == "bc6h":
+        neg = counts.get("negative", 0)
+        warnings.warn(f"{path}: {clamped} sample(s) outside the range of bc6h (0 .. 65504) were clamped"
+                      f"{f', {neg} of them negative (BC6H unsigned stores none)' if neg else ''}",
+                      BakeryWarning, stacklevel=stacklevel)
+    elif fmt.block is not None:
+        warnings.warn(f"{path}: {clamped} sample(s) outside [0, 1] were clamped for {fmt.short_name}",
+                      BakeryWarning, stacklevel=stacklevel)
+    else:
+        warnings.warn(f"{path}: {clamped} sample(s) outside the range of {fmt.name} were clamped; "
+                      "use R32G32B32A32_SFLOAT (rgba32f) to keep them", BakeryWarning, stacklevel=stacklevel)
 
 
 def write_ktx2(path: str | os.PathLike, levels: list[np.ndarray], fmt: Format | str = "R16G16B16A16_SFLOAT",
-               *, cubemap: bool, key_values: dict[str, bytes | str] | None = None) -> Path:
+               *, cubemap: bool, key_values: dict[str, bytes | str] | None = None, quality: str = "fast",
+               zstd: int | None = None, threads: int | None = None) -> Path:
     """Write a KTX2 file atomically (see :func:`encode_ktx2`); warn with a count when values were clamped
-    to the format's range."""
+    to the format's range. For block compression with a quality report, see
+    :func:`bakery.io.texcompress.write_compressed_ktx2`."""
     from bakery.io.atomic import atomic_output
 
     path = Path(path)
@@ -493,10 +755,13 @@ def write_ktx2(path: str | os.PathLike, levels: list[np.ndarray], fmt: Format | 
     for lv in levels:
         if not np.all(np.isfinite(lv)):
             raise BakeryError("cannot store NaN or Inf values in a KTX2 texture", path)
-    data, clamped = encode_ktx2(levels, fmt, cubemap=cubemap, key_values=key_values)
-    if clamped:
-        warnings.warn(f"{path}: {clamped} sample(s) outside the range of {fmt.name} were clamped; "
-                      "use R32G32B32A32_SFLOAT (rgba32f) to keep them", BakeryWarning, stacklevel=2)
+    if fmt.block is not None:
+        check_block_channels(levels[0].shape[-1], fmt, path)
+    w, h = check_levels(levels, cubemap)
+    counts: dict[str, int] = {}
+    payloads = encode_levels(levels, fmt, quality=quality, threads=threads, counts=counts)
+    data = assemble_ktx2(payloads, fmt, w, h, cubemap=cubemap, key_values=key_values, zstd=zstd)
+    warn_clamped(path, fmt, counts)
     with atomic_output(path) as tmp:
         tmp.write_bytes(data)
     return path
@@ -552,16 +817,59 @@ def parse_key_values(data: bytes | memoryview, off: int, length: int,
     return out
 
 
+def check_level_placement(hd: Ktx2Header, fmt: Format, where: str | os.PathLike | None = None) -> None:
+    """Refuse level data that the KTX 2.0 spec forbids: levels that start inside the header, index, DFD,
+    key/value or supercompression data (section 3: the level array follows them), that overlap, that are not
+    aligned to lcm(texel block size, 4) without supercompression (section 3.12), or whose
+    uncompressedByteLength differs from byteLength without supercompression (section 3.9)."""
+    n = max(hd.levels, 1)
+    meta_end = HEADER_SIZE + LEVEL_INDEX_ENTRY * n
+    for off, length in (hd.dfd, hd.kvd, hd.sgd):
+        if length:
+            meta_end = max(meta_end, off + length)
+    align = math.lcm(fmt.texel_bytes, 4)
+    spans = []
+    for i, (off, length, raw) in enumerate(hd.level_index[:n]):
+        if off < meta_end:
+            raise BakeryError(f"KTX2 level {i} data at byte {off} lies inside the header and metadata "
+                              f"(which end at byte {meta_end})", where)
+        if hd.supercompression == SCHEME_NONE:
+            if off % align:
+                raise BakeryError(f"KTX2 level {i} at byte {off} is not aligned to {align} bytes", where)
+            if raw != length:
+                raise BakeryError(f"KTX2 level {i}: uncompressedByteLength {raw} differs from byteLength "
+                                  f"{length} without supercompression", where)
+        spans.append((off, off + length, i))
+    spans.sort()
+    for (_, end0, i0), (start1, _, i1) in zip(spans, spans[1:], strict=False):
+        if start1 < end0:
+            raise BakeryError(f"KTX2 levels {i0} and {i1} overlap", where)
+
+
+def _inflate(data: bytes | memoryview, off: int, length: int, want: int, level: int,
+             where: str | os.PathLike | None) -> bytes:
+    import imagecodecs
+
+    try:
+        out = imagecodecs.zstd_decode(bytes(memoryview(data)[off:off + length]), out=bytearray(want))
+    except Exception as exc:  # imagecodecs raises its own error types for corrupt frames
+        raise BakeryError(f"KTX2 level {level}: Zstandard data is corrupt ({exc})", where) from None
+    if len(out) != want:
+        raise BakeryError(f"KTX2 level {level} inflates to {len(out)} bytes; it needs {want}", where)
+    return bytes(out)
+
+
 def decode_ktx2(data: bytes | memoryview, where: str | os.PathLike | None = None) -> Ktx2Texture:
-    """Decode KTX2 bytes written in one of :data:`FORMATS` (2D or cubemap, no supercompression)."""
+    """Decode KTX2 bytes written in one of :data:`FORMATS` (2D or cubemap; no supercompression or Zstandard).
+    Block-compressed levels are decoded to float32 (``imagecodecs.bcn_decode``)."""
     hd = parse_header(data, where)
     fmt = FORMATS_BY_VK.get(hd.vk_format)
     if fmt is None:
         raise BakeryError(f"KTX2 vkFormat {hd.vk_format} is not supported; supported: "
                           + ", ".join(f"{f.name} ({f.vk})" for f in FORMATS.values()), where)
-    if hd.supercompression:
-        raise BakeryError(f"supercompressed KTX2 files (scheme {hd.supercompression}) are not supported",
-                          where)
+    if hd.supercompression not in (SCHEME_NONE, SCHEME_ZSTD):
+        raise BakeryError(f"KTX2 supercompression scheme {hd.supercompression} is not supported (only none "
+                          "and Zstandard, scheme 2)", where)
     if hd.depth:
         raise BakeryError("3D KTX2 textures are not supported", where)
     if hd.layers:
@@ -580,17 +888,31 @@ def decode_ktx2(data: bytes | memoryview, where: str | os.PathLike | None = None
                           "texture", where)
     if hd.type_size != fmt.type_size:
         raise BakeryError(f"KTX2 header is inconsistent: typeSize {hd.type_size} for {fmt.name}", where)
+    if hd.width > 16384 or hd.height > 16384:
+        raise BakeryError(f"KTX2 texture is {hd.width}x{hd.height}; at most 16384 per side is read", where)
+    check_dfd(data, *hd.dfd, fmt, hd.supercompression != SCHEME_NONE, where)
+    check_level_placement(hd, fmt, where)
     levels = []
-    for i, (off, length, _) in enumerate(hd.level_index[: max(hd.levels, 1)]):
+    for i, (off, length, raw) in enumerate(hd.level_index[: max(hd.levels, 1)]):
         h, w = max(1, hd.height >> i), max(1, hd.width >> i)
         shape = (6, h, w) if cube else (h, w)
-        want = int(np.prod(shape)) * fmt.texel_bytes
-        if length != want:
-            raise BakeryError(f"KTX2 level {i} holds {length} bytes; a {w}x{h}"
-                              f"{' cubemap' if cube else ''} level of {fmt.name} needs {want}", where)
-        levels.append(decode_texels(memoryview(data)[off:off + length], fmt, shape))
+        want = level_byte_length(fmt, shape)
+        if hd.supercompression == SCHEME_ZSTD:
+            if raw != want:
+                raise BakeryError(f"KTX2 level {i}: uncompressedByteLength {raw}; a {w}x{h}"
+                                  f"{' cubemap' if cube else ''} level of {fmt.name} needs {want}", where)
+            buf: bytes | memoryview = _inflate(data, off, length, want, i, where)
+        else:
+            if length != want:
+                raise BakeryError(f"KTX2 level {i} holds {length} bytes; a {w}x{h}"
+                                  f"{' cubemap' if cube else ''} level of {fmt.name} needs {want}", where)
+            buf = memoryview(data)[off:off + length]
+        if fmt.block is not None:
+            levels.append(decode_blocks(buf, fmt, shape))
+        else:
+            levels.append(decode_texels(buf, fmt, shape))
     kv = parse_key_values(data, *hd.kvd, where) if hd.kvd[1] else {}
-    return Ktx2Texture(levels, fmt, cube, kv)
+    return Ktx2Texture(levels, fmt, cube, kv, supercompression=hd.supercompression)
 
 
 def read_ktx2_header(path: str | os.PathLike) -> Ktx2Header:
