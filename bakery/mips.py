@@ -134,12 +134,13 @@ def _tables() -> tuple[np.ndarray, np.ndarray]:
 def _decode(src, dst, i0, i1, table, srgb, alpha, box, stats):
     """Rows ``i0 <= i < i1`` of ``dst``: ``src`` (as stored) decoded to linear and premultiplied by alpha
     (channel C-1 when ``alpha``); with ``box`` each dst texel is the mean of a 2x2 block of src. ``stats``
-    gets the smallest and largest stored value seen (NaN propagates)."""
+    gets the smallest and largest stored value seen, and 1 in ``stats[2]`` if a NaN was seen."""
     C = src.shape[2]
     nc = C - 1 if alpha else C
     n = TABLE_SIZE
     lo = stats[0]
     hi = stats[1]
+    nan = False
     step = 2 if box else 1
     wgt = np.float32(0.25) if box else np.float32(1.0)
     for i in range(i0, i1):
@@ -152,10 +153,14 @@ def _decode(src, dst, i0, i1, table, srgb, alpha, box, stats):
                     if alpha:
                         a = src[i * step + di, j * step + dj, C - 1]
                         dst[i, j, C - 1] += a * wgt
+                        if a != a:
+                            nan = True
                         lo = min(lo, a)
                         hi = max(hi, a)
                     for ch in range(nc):
                         v = src[i * step + di, j * step + dj, ch]
+                        if v != v:
+                            nan = True
                         lo = min(lo, v)
                         hi = max(hi, v)
                         if srgb:
@@ -166,6 +171,8 @@ def _decode(src, dst, i0, i1, table, srgb, alpha, box, stats):
                         dst[i, j, ch] += v * a * wgt
     stats[0] = lo
     stats[1] = hi
+    if nan:
+        stats[2] = 1.0
 
 
 def _encode(src, dst, i0, i1, table, srgb, alpha, kscale):
@@ -345,13 +352,13 @@ def color_mips(
     first = np.empty(((h // 2, w // 2) if fused else (h, w)) + (C,), np.float32)
 
     def decode(i0, i1):
-        stats = np.array([np.inf, -np.inf], np.float32)
+        stats = np.array([np.inf, -np.inf, 0.0], np.float32)
         k["decode"](img, first, i0, i1, dec, srgb, alpha, fused, stats)
         return stats
 
     stats = np.array(_rows_parallel(decode, first.shape[0], nthreads))
     lo, hi = float(stats[:, 0].min()), float(stats[:, 1].max())
-    if not (np.isfinite(lo) and np.isfinite(hi)):
+    if stats[:, 2].any() or not (np.isfinite(lo) and np.isfinite(hi)):
         raise BakeryError("colour map has NaN or infinite values")
     if (srgb or alpha) and (lo < 0.0 or hi > 1.0):
         warnings.warn(f"colour map values run from {lo:g} to {hi:g}, outside [0, 1]: clipped", BakeryWarning,
