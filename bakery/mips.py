@@ -77,9 +77,36 @@ COLOR_KERNELS: dict[str, tuple[float, str]] = {
 #: by Kaiser's design formula, from memory).
 KAISER_BETA = 4.0
 
-#: Intervals of the tables that carry the sRGB curves (linear interpolation; decode within 2e-7 of the
-#: IEC 61966-2-1 formula, encode within 1e-6: tests/test_mips.py).
-TABLE_SIZE = 4096
+#: Degree of the polynomials that carry the sRGB curves (decode within 7.6e-7 of the IEC 61966-2-1 formula,
+#: encode within 3.2e-7, in float32: tests/test_mips.py). Polynomials, unlike tables, run 16 lanes at a time.
+SRGB_DEGREE = 8
+
+
+def _srgb_polynomials() -> np.ndarray:
+    """Power-basis coefficients (constant first) in ``t`` of the two sRGB curve branches, fitted by Chebyshev
+    interpolation in float64 (common practice), and the affine maps to t, as a float32 (4, 10) array:
+
+    - decode: for ``C > 0.04045``, ``((C + 0.055)/1.055)^2.4 = z^9.6`` with ``z = ((C + 0.055)/1.055)^(1/4)``
+      (two square roots), z in [z0, 1];
+    - encode: for ``L > 0.0031308``, ``1.055 L^(1/2.4) - 0.055`` with ``z = L^(1/8)`` (three square roots).
+
+    In these variables the curves are smooth far from their branch point at 0, so degree 8 reaches float32.
+    Rows: decode coefficients, decode (mid, scale), encode coefficients, encode (mid, scale); t = (z - mid) * scale.
+    """
+    from numpy.polynomial import chebyshev
+
+    def fit(f, lo):
+        t = np.cos(np.pi * (np.arange(400) + 0.5) / 400)
+        return chebyshev.cheb2poly(chebyshev.chebfit(t, f(lo + (t + 1) / 2 * (1 - lo)), SRGB_DEGREE)), lo
+
+    dec, dlo = fit(lambda z: z ** 9.6, ((0.04045 + 0.055) / 1.055) ** 0.25)
+    enc, elo = fit(lambda z: 1.055 * z ** (8 / 2.4) - 0.055, 0.0031308 ** 0.125)
+    out = np.zeros((4, SRGB_DEGREE + 2))
+    out[0, :SRGB_DEGREE + 1] = dec
+    out[1, :2] = ((dlo + 1) / 2, 2 / (1 - dlo))
+    out[2, :SRGB_DEGREE + 1] = enc
+    out[3, :2] = ((elo + 1) / 2, 2 / (1 - elo))
+    return out.astype(np.float32)
 
 
 def _kernel_weights(name: str, x: np.ndarray) -> np.ndarray:
@@ -121,82 +148,123 @@ def _resample_axis(a: np.ndarray, axis: int, m: int, name: str, edges: str) -> n
     return np.moveaxis(out, 0, axis)
 
 
-def _tables() -> tuple[np.ndarray, np.ndarray]:
-    """sRGB decode table over [0, 1] and encode table over sqrt(linear) in [0, 1] (the encode curve is steep
-    near 0; in sqrt(linear) it is gentle), from the IEC 61966-2-1 formulas in float64."""
-    c = np.linspace(0.0, 1.0, TABLE_SIZE + 1)
-    dec = np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
-    lin = c * c
-    enc = np.where(lin <= 0.0031308, 12.92 * lin, 1.055 * lin ** (1 / 2.4) - 0.055)
-    return dec.astype(np.float32), enc.astype(np.float32)
+def _horner8(p, t):
+    """p[0] + p[1] t + ... + p[8] t^8, written out (a loop here kept the caller from vectorising)."""
+    v = p[8] * t + p[7]
+    v = v * t + p[6]
+    v = v * t + p[5]
+    v = v * t + p[4]
+    v = v * t + p[3]
+    v = v * t + p[2]
+    v = v * t + p[1]
+    return v * t + p[0]
 
 
-def _decode(src, dst, i0, i1, table, srgb, alpha, box, stats):
-    """Rows ``i0 <= i < i1`` of ``dst``: ``src`` (as stored) decoded to linear and premultiplied by alpha
-    (channel C-1 when ``alpha``); with ``box`` each dst texel is the mean of a 2x2 block of src. ``stats``
-    gets the smallest and largest stored value seen, and 1 in ``stats[2]`` if a NaN was seen."""
-    C = src.shape[2]
-    nc = C - 1 if alpha else C
-    n = TABLE_SIZE
+def _decode_flat(x, out, poly, srgb, alpha_mask):
+    """``out[k]`` = stored value ``x[k]`` decoded to linear (sRGB, IEC 61966-2-1) unless ``k`` is an alpha
+    position (``k & alpha_mask == alpha_mask``, C = 2 or 4; alpha_mask = -1 for none) or ``srgb`` is off.
+    Stored values are clipped to [0, 1] first."""
+    if not srgb:
+        out[:] = x
+        return
+    p = (poly[0, 0], poly[0, 1], poly[0, 2], poly[0, 3], poly[0, 4], poly[0, 5], poly[0, 6], poly[0, 7],
+         poly[0, 8])
+    mid = poly[1, 0]
+    sc = poly[1, 1]
+    for k in range(x.size):
+        c = x[k]
+        c = c if c > np.float32(0.0) else np.float32(0.0)  # selects, not min/max: these vectorise
+        c = c if c < np.float32(1.0) else np.float32(1.0)
+        z = np.sqrt(np.sqrt((c + np.float32(0.055)) * np.float32(1.0 / 1.055)))
+        v = _horner8(p, (z - mid) * sc)
+        v = v if c > np.float32(0.04045) else c * np.float32(1.0 / 12.92)
+        out[k] = x[k] if (k & alpha_mask) == alpha_mask else v
+
+
+def _encode_flat(x, out, inv, poly, srgb, alpha_mask, kscale):
+    """Premultiplied linear ``x`` -> stored ``out`` (flat; C channels, alpha last when alpha_mask >= 0; ``inv``
+    holds 1/alpha of each value's texel): colour times 1/alpha, clipped to [0, 1] and
+    sRGB-encoded (linear: clipped below at 0), alpha times ``kscale`` clipped to [0, 1]."""
+    p = (poly[2, 0], poly[2, 1], poly[2, 2], poly[2, 3], poly[2, 4], poly[2, 5], poly[2, 6], poly[2, 7],
+         poly[2, 8])
+    mid = poly[3, 0]
+    sc = poly[3, 1]
+    for k in range(x.size):
+        c = x[k]
+        v = c * inv[k] if alpha_mask >= 0 else c
+        v = v if v > np.float32(0.0) else np.float32(0.0)
+        if srgb:
+            v = v if v < np.float32(1.0) else np.float32(1.0)
+            z = np.sqrt(np.sqrt(np.sqrt(v)))
+            e = _horner8(p, (z - mid) * sc)
+            v = e if v > np.float32(0.0031308) else v * np.float32(12.92)
+        if (k & alpha_mask) == alpha_mask:
+            v = c * kscale
+            v = v if v > np.float32(0.0) else np.float32(0.0)
+            v = v if v < np.float32(1.0) else np.float32(1.0)
+        out[k] = v
+
+
+def _stats_flat(x, stats):
+    """Smallest and largest value of ``x`` into stats[0], stats[1]; stats[2] = 1 if a NaN is seen."""
     lo = stats[0]
     hi = stats[1]
-    nan = False
-    step = 2 if box else 1
-    wgt = np.float32(0.25) if box else np.float32(1.0)
-    for i in range(i0, i1):
-        for j in range(dst.shape[1]):
-            for ch in range(C):
-                dst[i, j, ch] = 0.0
-            for di in range(step):
-                for dj in range(step):
-                    a = np.float32(1.0)
-                    if alpha:
-                        a = src[i * step + di, j * step + dj, C - 1]
-                        dst[i, j, C - 1] += a * wgt
-                        if a != a:
-                            nan = True
-                        lo = min(lo, a)
-                        hi = max(hi, a)
-                    for ch in range(nc):
-                        v = src[i * step + di, j * step + dj, ch]
-                        if v != v:
-                            nan = True
-                        lo = min(lo, v)
-                        hi = max(hi, v)
-                        if srgb:
-                            p = min(max(v, np.float32(0.0)), np.float32(1.0)) * n
-                            k = min(int(p), n - 1)
-                            f = p - k
-                            v = table[k] + f * (table[k + 1] - table[k])
-                        dst[i, j, ch] += v * a * wgt
+    nan = 0
+    for k in range(x.size):
+        v = x[k]
+        lo = v if v < lo else lo
+        hi = v if v > hi else hi
+        nan += 1 if v != v else 0
     stats[0] = lo
     stats[1] = hi
     if nan:
         stats[2] = 1.0
 
 
-def _encode(src, dst, i0, i1, table, srgb, alpha, kscale):
-    """Rows ``i0 <= i < i1``: premultiplied linear ``src`` -> straight stored ``dst``: colour divided by alpha
-    (0 where alpha is 0), encoded to sRGB and clipped to [0, 1] (linear: negatives clipped to 0), alpha
-    times ``kscale`` clipped to [0, 1]."""
+def _decode_rows(src, dst, i0, i1, poly, srgb, alpha_mask, box, buf, stats):
+    """Rows ``i0 <= i < i1`` of ``dst``: stored ``src`` decoded and premultiplied by alpha; with ``box`` each
+    dst texel is the mean of a 2x2 block (even sizes). ``buf``: scratch for two decoded source rows."""
+    W = src.shape[1]
     C = src.shape[2]
-    nc = C - 1 if alpha else C
-    n = TABLE_SIZE
+    q = np.float32(0.25)
+    rows = 2 if box else 1
     for i in range(i0, i1):
-        for j in range(src.shape[1]):
-            inv = np.float32(1.0)
-            if alpha:
+        flat = src[rows * i:rows * i + rows].reshape(-1)
+        _stats_flat(flat, stats)
+        _decode_flat(flat, buf[:rows * W * C], poly, srgb, alpha_mask)
+        b = buf[:rows * W * C].reshape(rows, W, C)
+        if box:
+            for j in range(dst.shape[1]):
+                x = 2 * j
+                if alpha_mask >= 0:
+                    a0 = b[0, x, C - 1]
+                    a1 = b[0, x + 1, C - 1]
+                    a2 = b[1, x, C - 1]
+                    a3 = b[1, x + 1, C - 1]
+                    for ch in range(C - 1):
+                        dst[i, j, ch] = q * (b[0, x, ch] * a0 + b[0, x + 1, ch] * a1 + b[1, x, ch] * a2
+                                             + b[1, x + 1, ch] * a3)
+                    dst[i, j, C - 1] = q * (a0 + a1 + a2 + a3)
+                else:
+                    for ch in range(C):
+                        dst[i, j, ch] = q * (b[0, x, ch] + b[0, x + 1, ch] + b[1, x, ch] + b[1, x + 1, ch])
+        else:
+            for j in range(W):
+                a = b[0, j, C - 1] if alpha_mask >= 0 else np.float32(1.0)
+                for ch in range(C):
+                    dst[i, j, ch] = b[0, j, ch] * a if (alpha_mask < 0 or ch < C - 1) else b[0, j, ch]
+
+
+def _encode_rows(src, dst, i0, i1, poly, srgb, alpha_mask, kscale, inv):
+    C = src.shape[2]
+    for i in range(i0, i1):
+        if alpha_mask >= 0:
+            for j in range(src.shape[1]):
                 a = src[i, j, C - 1]
-                inv = np.float32(1.0) / a if a > 0 else np.float32(0.0)
-                dst[i, j, C - 1] = min(max(a * kscale, np.float32(0.0)), np.float32(1.0))
-            for ch in range(nc):
-                v = max(src[i, j, ch] * inv, np.float32(0.0))
-                if srgb:
-                    p = np.sqrt(min(v, np.float32(1.0))) * n
-                    k = min(int(p), n - 1)
-                    f = p - k
-                    v = table[k] + f * (table[k + 1] - table[k])
-                dst[i, j, ch] = v
+                r = np.float32(1.0) / a if a > 0 else np.float32(0.0)
+                for ch in range(C):
+                    inv[j * C + ch] = r
+        _encode_flat(src[i].reshape(-1), dst[i].reshape(-1), inv, poly, srgb, alpha_mask, kscale)
 
 
 _COLOR_KERNELS: dict | None = None
@@ -204,18 +272,24 @@ _COLOR_KERNELS: dict | None = None
 
 def _compiled() -> dict:
     """The per-texel passes of :func:`color_mips`, compiled by numba on first use (numba is imported here: a
-    plain numpy decode of a 4096^2 RGBA map took longer than the whole target, tests/perf/bench_mips.py)."""
-    global _COLOR_KERNELS
+    plain numpy sRGB decode of a 4096^2 RGBA map took longer than the whole target, tests/perf/bench_mips.py)."""
+    global _COLOR_KERNELS, _decode_flat, _encode_flat, _stats_flat, _horner8
     if _COLOR_KERNELS is None:
         from numba import njit
 
+        fast = {"nsz", "arcp", "contract", "afn", "reassoc"}  # no nnan / ninf: NaN checks must stay
+
         def jit(fn):
             try:
-                return njit(nogil=True, cache=True, error_model="numpy")(fn)
+                return njit(nogil=True, cache=True, error_model="numpy", fastmath=fast)(fn)
             except RuntimeError:  # no writable cache location
-                return njit(nogil=True, error_model="numpy")(fn)
+                return njit(nogil=True, error_model="numpy", fastmath=fast)(fn)
 
-        _COLOR_KERNELS = {"decode": jit(_decode), "encode": jit(_encode), "tables": _tables()}
+        # callees first: a jitted function binds the globals it calls when it is compiled
+        _horner8 = njit(inline="always")(_horner8)
+        _decode_flat, _encode_flat, _stats_flat = jit(_decode_flat), jit(_encode_flat), jit(_stats_flat)
+        _COLOR_KERNELS = {"decode": jit(_decode_rows), "encode": jit(_encode_rows), "poly": _srgb_polynomials(),
+                          "decode_flat": _decode_flat, "encode_flat": _encode_flat}
     return _COLOR_KERNELS
 
 
@@ -342,8 +416,9 @@ def color_mips(
     levels = level_count(w, h, levels)
     nthreads = max(1, threads or min(8, os.cpu_count() or 1))
     k = _compiled()
-    dec, enc = k["tables"]
+    poly = k["poly"]
     srgb = transfer == "srgb"
+    amask = C - 1 if alpha else -1
     out = [img]
     if levels == 1:
         return out
@@ -353,7 +428,7 @@ def color_mips(
 
     def decode(i0, i1):
         stats = np.array([np.inf, -np.inf, 0.0], np.float32)
-        k["decode"](img, first, i0, i1, dec, srgb, alpha, fused, stats)
+        k["decode"](img, first, i0, i1, poly, srgb, amask, fused, np.empty(2 * w * C, np.float32), stats)
         return stats
 
     stats = np.array(_rows_parallel(decode, first.shape[0], nthreads))
@@ -375,7 +450,7 @@ def color_mips(
                 r = cv2.resize(a, (mw, mh), interpolation=cv2.INTER_AREA)
                 return r.reshape(mh, mw, C)
             return downsample(a)
-        return _resample_axis(_resample_axis(a, 0, mh, kernel, edges), 1, mw, kernel, edges)
+        return np.ascontiguousarray(_resample_axis(_resample_axis(a, 0, mh, kernel, edges), 1, mw, kernel, edges))
 
     cur = first if fused else reduce(first)
     for level in range(1, levels):
@@ -384,6 +459,7 @@ def color_mips(
         ks = 1.0 if target is None else _coverage_scale(cur[:, :, C - 1], target, cut)
         stored = np.empty_like(cur)
         _rows_parallel(lambda i0, i1, cur=cur, stored=stored, ks=ks: k["encode"](
-            cur, stored, i0, i1, enc, srgb, alpha, np.float32(ks)), cur.shape[0], nthreads)
+            cur, stored, i0, i1, poly, srgb, amask, np.float32(ks), np.empty(cur.shape[1] * C, np.float32)),
+            cur.shape[0], nthreads)
         out.append(stored)
     return out
