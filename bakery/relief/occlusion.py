@@ -23,9 +23,13 @@ the minor axis, one sample per texel of the major axis (heights interpolated lin
 across the line). The horizon of a sample is the steepest line to any earlier sample; it touches the upper
 convex hull of the earlier samples, and that hull is kept on a stack (Andrew's monotone chain), so a line of
 n samples costs O(n) whatever its relief. Each texel takes the horizon of the line sample nearest to it (at most
-half a texel across the line). With no distance limit, horizons are exact for the sampled lines and reach one
-map period back (the sweep starts one period before the map, through the edge mode: the tiling repeat, the
-clamped edge, or the mirror image). With ``max_distance`` the horizon is a hard cutoff: occluders farther away
+half a texel across the line). Line slopes are whole numbers of texels per map period, so with ``wrap`` a line
+closes on itself after whole periods: it is walked as one loop, from its highest sample when the loop is at most
+:data:`WALK_LINES` periods long (then the horizons are exactly those of the endless tiling: nothing before the
+highest sample rises above the line to it), else in stretches of that many periods, each after one period of
+warm-up; horizons see at least one map period back, and a 2x2 tiled map gives the 2x2 tile of the result.
+With ``clamp`` or ``mirror`` each line starts one map period beyond the border (the edge texel repeated, or the
+mirror image). With ``max_distance`` the horizon is a hard cutoff: occluders farther away
 are ignored (those samples are searched one by one, O(n * distance)).
 
 Units. Heights are in height units; ``strength = (s_x, s_y)`` is that of :func:`bakery.normals.normal_from_height`

@@ -21,7 +21,7 @@ from bakery.relief import curvature_maps, occlusion_from_height  # noqa: E402
 from bakery.relief.examples import leaf_card  # noqa: E402
 from bakery.samples import paving_height  # noqa: E402
 
-PANEL = 192
+PANEL = 160
 
 
 def label(img: np.ndarray, text: str, size: int = PANEL) -> np.ndarray:
@@ -51,12 +51,12 @@ def relief_images() -> None:
     h = paving_height(size)
     s = size / 32.0  # the normal bake's default strength: the full range is 1/32 of the width deep
     ao, bent = occlusion_from_height(h, strength=s, directions=16, bent_normals=True)
-    m = curvature_maps(h, strength=s, scale=1.0)
+    m = curvature_maps(h, strength=s, scale=2.0)
     write("derived_relief.png", [
         label(h, "height (paving stones)"),
         label(ao, "occlusion, 16 azimuths"),
         label(bent * 0.5 + 0.5, "bent normals (+Y up)"),
-        label(m.encoded, "curvature, 0.5 = flat"),
+        label(m.encoded, "curvature (2 texels)"),
         label(m.cavity, "cavity"),
     ])
 
@@ -73,12 +73,13 @@ def over_grey(rgba: np.ndarray, cutoff: float | None) -> np.ndarray:
 def mip_images() -> None:
     card = leaf_card(256)
     plain = color_mips(card)
-    kept = color_mips(card, alpha_cutoff=0.5)
+    cut = 0.75
+    kept = color_mips(card, alpha_cutoff=cut)
     levels = [2, 3, 4, 5]
-    top = [label(over_grey(card, 0.5), "leaf card, level 0", 160)]
-    top += [label(over_grey(plain[i], 0.5), f"level {i}, plain", 160) for i in levels]
+    top = [label(over_grey(card, cut), "level 0, alpha >= 0.75", 160)]
+    top += [label(over_grey(plain[i], cut), f"level {i}, plain", 160) for i in levels]
     bottom = [label(over_grey(card, None), "level 0, blended", 160)]
-    bottom += [label(over_grey(kept[i], 0.5), f"level {i}, coverage kept", 160) for i in levels]
+    bottom += [label(over_grey(kept[i], cut), f"level {i}, coverage kept", 160) for i in levels]
     import cv2
 
     grid = np.concatenate([np.concatenate(top, axis=1), np.concatenate(bottom, axis=1)], axis=0)
