@@ -47,6 +47,8 @@ References
    723-731, 2010 (horizons along lines through a convex hull kept on a stack).
 .. [3] A. M. Andrew, "Another efficient algorithm for convex hulls in two dimensions", Information Processing
    Letters 9(5), 216-219, 1979 (monotone chain).
+.. [4] M. Abramowitz, I. A. Stegun, "Handbook of Mathematical Functions", 1964, eq. 4.4.49 (the arctangent
+   polynomial of the integral pass).
 """
 
 from __future__ import annotations
