@@ -1,0 +1,516 @@
+"""Ambient occlusion (and bent normals) of a height field, from exact horizons along lines.
+
+The occlusion of a texel is the cosine-weighted fraction of its sky that the relief does not hide:
+
+    A = (1/pi) * integral over the upper hemisphere of V(w) * max(0, n . w) dw
+
+with n the texel's normal (the normal map's, same derivative kernel and strength) and V(w) = 1 where the ray
+leaves the height field. Directions below the horizontal plane are never sky (far enough away, every tiling or
+clamped height field rises above them). In polar coordinates about the vertical axis (azimuth psi, angle theta
+from the vertical) a height field hides exactly the rays below the horizon of each azimuth, so V is 1 for
+``theta < pi/2 - alpha(psi)`` and the integral over theta has a closed form: the slice integral of Jimenez, Wu,
+Pesce & Jarabo (2016, eq. 10, with the view vector the vertical axis, where it is exact). With
+``t = tan(alpha)``, ``u = 1 / (1 + t^2)`` and ``n_psi = n . (cos psi, sin psi, 0)``:
+
+    I(psi) = 1/2 * [ n_z * u + n_psi * (pi/2 - atan(t) - t * u) ],   t >= max(0, -n_psi / n_z)
+
+(the bound keeps the arc inside the normal's hemisphere), and ``A = (2/N) * sum of I(psi_k)`` over ``N``
+azimuths ``psi_k = 2 pi k / N``. A flat texel has t = 0 everywhere and A = 1. The cosine-weighted mean
+unoccluded direction (the bent normal) has a closed form per azimuth too (module code, :func:`_bent_terms`).
+
+Horizons (Timonen & Westerholm 2010): for each azimuth the map is swept along parallel lines, one per texel of
+the minor axis, one sample per texel of the major axis (heights interpolated linearly between the two texels
+across the line). The horizon of a sample is the steepest line to any earlier sample; it touches the upper
+convex hull of the earlier samples, and that hull is kept on a stack (Andrew's monotone chain), so a line of
+n samples costs O(n) whatever its relief. Each texel takes the horizon of the line sample nearest to it (at most
+half a texel across the line). Line slopes are whole numbers of texels per map period, so with ``wrap`` a line
+closes on itself after whole periods: it is walked as one loop, from its highest sample when the loop is at most
+:data:`WALK_LINES` periods long (then the horizons are exactly those of the endless tiling: nothing before the
+highest sample rises above the line to it), else in stretches of that many periods, each after one period of
+warm-up; horizons see at least one map period back, and a 2x2 tiled map gives the 2x2 tile of the result.
+With ``clamp`` or ``mirror`` each line starts one map period beyond the border (the edge texel repeated, or the
+mirror image). With ``max_distance`` the horizon is a hard cutoff: occluders farther away
+are ignored (those samples are searched one by one, O(n * distance)).
+
+Units. Heights are in height units; ``strength = (s_x, s_y)`` is that of :func:`bakery.normals.normal_from_height`
+(texels per height unit, :func:`bakery.normals.strength_from_size` from physical sizes), so the relief the
+occlusion sees is the relief the normal map shows. One texel is ``1/s_x`` height units wide and ``1/s_y`` tall.
+
+Bent normals are unit vectors in the normal map's tangent space: +X right (u), +Y up (v, toward the top row),
++Z out of the surface.
+
+References
+----------
+.. [1] J. Jimenez, X. Wu, A. Pesce, A. Jarabo, "Practical Realtime Strategies for Accurate Indirect Occlusion",
+   Activision technical report ATVI-TR-16-01, 2016, eq. 10 (slice integral) and section 5 (bent normals).
+.. [2] V. Timonen, J. Westerholm, "Scalable Height Field Self-Shadowing", Computer Graphics Forum 29(2),
+   723-731, 2010 (horizons along lines through a convex hull kept on a stack).
+.. [3] A. M. Andrew, "Another efficient algorithm for convex hulls in two dimensions", Information Processing
+   Letters 9(5), 216-219, 1979 (monotone chain).
+.. [4] M. Abramowitz, I. A. Stegun, "Handbook of Mathematical Functions", 1964, eq. 4.4.49 (the arctangent
+   polynomial of the integral pass).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import threading
+import warnings
+from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
+
+import numpy as np
+
+from bakery.errors import BakeryError, BakeryWarning
+from bakery.normals.kernels import DEFAULT_KERNEL, check_edges, edge_index
+
+
+def _atan(t):
+    """arctan(t) for t >= 0: Abramowitz & Stegun (1964) eq. 4.4.49 on [0, 1] (|error| <= 2e-8), and
+    pi/2 - arctan(1/t) above."""
+    x = min(t, 1.0 / t)
+    x2 = x * x
+    p = 0.0028662257
+    p = p * x2 - 0.0161657367
+    p = p * x2 + 0.0429096138
+    p = p * x2 - 0.0752896400
+    p = p * x2 + 0.1065626393
+    p = p * x2 - 0.1420889944
+    p = p * x2 + 0.1999355085
+    p = p * x2 - 0.3333314528
+    a = x * (1.0 + p * x2)
+    return a if t <= 1.0 else 0.5 * math.pi - a
+
+
+def _gather(acc, bent, T, nx, ny, nz, i0, i1, cpsi, spsi, want_bent):
+    """Adds I(psi) of rows ``i0 <= i < i1`` for the horizon tangents ``T`` (module docstring); with
+    ``want_bent`` also the bent-normal integrals. A plain pass over contiguous planes (vectorised)."""
+    W = T.shape[1]
+    for i in range(i0, i1):
+        for j in range(W):
+            npsi = nx[i, j] * cpsi + ny[i, j] * spsi
+            z = nz[i, j]
+            t = max(T[i, j], 0.0, -npsi / z)
+            u = 1.0 / (1.0 + t * t)
+            acc[i, j] += 0.5 * (z * u + npsi * (0.5 * math.pi - _atan(t) - t * u))
+        if want_bent:
+            for j in range(W):
+                npsi = nx[i, j] * cpsi + ny[i, j] * spsi
+                z = nz[i, j]
+                t = max(T[i, j], 0.0, -npsi / z)
+                u = 1.0 / (1.0 + t * t)
+                bz, bd = _bent_terms(t, u, z, npsi)
+                bent[i, j, 0] += bd * cpsi
+                bent[i, j, 1] += bd * spsi
+                bent[i, j, 2] += bz
+
+
+def _sweep(A, T, r0, r1, nwarm, nout, colk, flk, fk, rowfold, rowbase, nmin, wrap, reach, inv_len,
+           stack_k, stack_y, tops):
+    """Lines ``r0 <= r < r1`` (at most ``len(tops)`` of them, neighbours), all advanced one step at a time so
+    the samples of a step sit side by side in memory. Each line: ``nwarm`` warm-up samples before the map
+    (through the edge mode), then ``nout`` samples on it. reach = 0: each sample's horizon by the
+    monotone-chain hull of the samples before it; reach > 0: the steepest of the ``reach`` samples before.
+    Each texel gets the horizon tangent (rise over run, can be negative) of the line sample nearest to it,
+    written into ``T``."""
+    nl = r1 - r0
+    for l in range(nl):
+        tops[l] = -1
+    for k in range(nwarm + nout):
+        c = colk[k]
+        f = fk[k]
+        g = 1.0 - f
+        base = r0 + flk[k] + rowbase
+        near = 1 if f >= 0.5 else 0
+        for l in range(nl):
+            m = base + l
+            y = g * A[rowfold[m], c] + f * A[rowfold[m + 1], c]
+            t = 0.0
+            if reach == 0:
+                top = tops[l]
+                while top >= 1:
+                    k1 = stack_k[l, top]
+                    y1 = stack_y[l, top]
+                    k0 = stack_k[l, top - 1]
+                    y0 = stack_y[l, top - 1]
+                    if (y1 - y0) * (k - k0) <= (y - y0) * (k1 - k0):
+                        top -= 1
+                    else:
+                        break
+                if k >= nwarm:
+                    t = (stack_y[l, top] - y) / (k - stack_k[l, top]) * inv_len
+                top += 1
+                stack_k[l, top] = k
+                stack_y[l, top] = y
+                tops[l] = top
+            else:
+                stack_y[l, k] = y
+                if k >= nwarm:
+                    best = -1e30
+                    for j in range(max(0, k - reach), k):
+                        v = (stack_y[l, j] - y) / (k - j)
+                        if v > best:
+                            best = v
+                    t = best * inv_len
+            if k >= nwarm:
+                raw = m - rowbase + near
+                if wrap or 0 <= raw < nmin:
+                    T[rowfold[raw + rowbase], c] = t
+
+
+def _shear(A, B, r0, r1, flm, fk, colk, nmin):
+    """Wrap edges: ``B[r, k]`` = sample k of line r, ``(1 - f) A[r + fl, col] + f A[r + fl + 1, col]`` (rows
+    modulo ``nmin``): the lines of one azimuth as contiguous rows. Blocks of 256 steps keep the rows of ``A``
+    that a block of lines reads in the cache."""
+    nk = B.shape[1]
+    for kb in range(0, nk, 256):
+        for r in range(r0, r1):
+            for k in range(kb, min(nk, kb + 256)):
+                m0 = r + flm[k]
+                if m0 >= nmin:
+                    m0 -= nmin
+                m1 = m0 + 1
+                if m1 == nmin:
+                    m1 = 0
+                f = fk[k]
+                B[r, k] = (1.0 - f) * A[m0, colk[k]] + f * A[m1, colk[k]]
+
+
+def _unshear(Tb, T, r0, r1, rndm, colk, nmin):
+    """Each texel takes the horizon of the line sample nearest to it: ``T[r + rnd, col] = Tb[r, k]``."""
+    nk = Tb.shape[1]
+    for kb in range(0, nk, 256):
+        for r in range(r0, r1):
+            for k in range(kb, min(nk, kb + 256)):
+                m = r + rndm[k]
+                if m >= nmin:
+                    m -= nmin
+                T[m, colk[k]] = Tb[r, k]
+
+
+def _walk(B, Tb, tasks, t0, t1, q, nmin, per_cycle, inv_len, stack_k, stack_y):
+    """Wrap edges, no distance limit. Line r continues, one map period later, as line ``r + q``, and the
+    lines ``c0 + j q`` (mod nmin), ``0 <= j < per_cycle``, close into a cycle. A task walks lines
+    ``j_lo <= j < j_hi`` of a cycle as one long line and writes each sample's horizon tangent (rise over run
+    per step, times ``inv_len``). A whole cycle is walked once from its highest sample: nothing before that
+    sample can rise above the line to it, so those horizons are the exact ones of the endless tiling. Part
+    of a cycle starts with a warm-up on line ``j_lo - 1``."""
+    nk = B.shape[1]
+    for i in range(t0, t1):
+        c0 = tasks[i, 0]
+        j_lo = tasks[i, 1]
+        j_hi = tasks[i, 2]
+        whole = j_hi - j_lo == per_cycle
+        start = (j_lo - 1) * nk
+        count = (j_hi - j_lo + 1) * nk
+        if whole:
+            best = -np.inf
+            for j in range(per_cycle):
+                line = (c0 + j * q) % nmin
+                for k in range(nk):
+                    if B[line, k] > best:
+                        best = B[line, k]
+                        start = j * nk + k
+            count = per_cycle * nk
+        top = -1
+        j = start // nk
+        k = start - j * nk
+        line = (c0 + j * q) % nmin
+        for K in range(count):
+            y = B[line, k]
+            while top >= 1:
+                k1 = stack_k[top]
+                y1 = stack_y[top]
+                k0 = stack_k[top - 1]
+                y0 = stack_y[top - 1]
+                if (y1 - y0) * (K - k0) <= (y - y0) * (k1 - k0):
+                    top -= 1
+                else:
+                    break
+            if whole or j >= j_lo:
+                Tb[line, k] = (stack_y[top] - y) / (K - stack_k[top]) * inv_len if top >= 0 else 0.0
+            top += 1
+            stack_k[top] = K
+            stack_y[top] = y
+            k += 1
+            if k == nk:
+                k = 0
+                j += 1
+                if j == per_cycle:
+                    j = 0
+                line = (c0 + j * q) % nmin
+
+
+def _bent_terms(t, u, nz, npsi):
+    """Vertical and along-psi parts of the integral of w (n . w) sin(theta) over 0 <= theta <= h, with
+    h = pi/2 - atan(t): cos h = t sqrt(u), sin h = sqrt(u)."""
+    sh = math.sqrt(u)
+    ch = t * sh
+    sh3 = sh * sh * sh
+    ch3 = ch * ch * ch
+    z = nz * (1.0 - ch3) / 3.0 + npsi * sh3 / 3.0
+    d = nz * sh3 / 3.0 + npsi * (2.0 / 3.0 - ch + ch3 / 3.0)
+    return z, d
+
+
+_KERNELS: dict | None = None
+
+
+def _kernels() -> dict:
+    """The sweeps compiled by numba (imported here, on first use: it costs ~0.4 s)."""
+    global _KERNELS, _atan, _bent_terms
+    if _KERNELS is None:
+        from numba import njit
+
+        def jit(fn, **kw):
+            try:
+                return njit(nogil=True, cache=True, error_model="numpy", **kw)(fn)
+            except RuntimeError:  # no writable cache location
+                return njit(nogil=True, error_model="numpy", **kw)(fn)
+
+        # callees first: a jitted function binds the globals it calls when it is compiled
+        fast = {"nsz", "arcp", "contract", "afn", "reassoc"}  # no nnan/ninf: 1/0 = inf is relied on
+        _atan = jit(_atan, fastmath=fast)
+        _bent_terms = jit(_bent_terms, fastmath=fast)
+        _KERNELS = {"sweep": jit(_sweep), "gather": jit(_gather, fastmath=fast), "shear": jit(_shear),
+                    "unshear": jit(_unshear), "walk": jit(_walk)}
+    return _KERNELS
+
+
+#: Neighbouring lines advanced together by one call of the sweep.
+LANES = 32
+
+#: Wrapped lines walked as one (each walk starts with a warm-up of one line: 1/64 more work).
+WALK_LINES = 64
+
+
+def _strengths(strength) -> tuple[float, float]:
+    if np.ndim(strength) == 0:
+        sx = sy = float(strength)
+    else:
+        vals = [float(v) for v in np.ravel(strength)]
+        if len(vals) != 2:
+            raise BakeryError(f"strength must be a number or a pair (s_x, s_y); got {strength!r}")
+        sx, sy = vals
+    if not (math.isfinite(sx) and math.isfinite(sy)) or sx == 0 or sy == 0 or (sx > 0) != (sy > 0):
+        raise BakeryError(f"strength must be finite, non-zero and of one sign on both axes; got {strength!r}")
+    return sx, sy
+
+
+def _directions(directions) -> int:
+    if isinstance(directions, bool) or not isinstance(directions, (int, np.integer)) or directions < 4:
+        raise BakeryError(f"directions must be a whole number of azimuths >= 4; got {directions!r}")
+    return int(directions)
+
+
+def _plan(psi: float, sx: float, sy: float, shape: tuple[int, int], edges: str, max_distance: float | None
+          ) -> dict:
+    """Sweep of one azimuth: the walk steps one texel along the major axis and ``s = q / n_major`` texels
+    across (q whole, so a line through the tiling map closes on itself after whole periods), against psi so
+    that the samples already seen lie toward psi."""
+    H, W = shape
+    dcol, drow = -sx * math.cos(psi), sy * math.sin(psi)  # texel steps against psi; rows run down, v up
+    transposed = abs(dcol) < abs(drow)
+    nmaj, nmin = (H, W) if transposed else (W, H)
+    major, minor = (drow, dcol) if transposed else (dcol, drow)
+    sgn = 1 if major > 0 else -1
+    q = int(round(minor / abs(major) * nmaj))
+    s = q / nmaj
+    if transposed:  # walk step in physical units: (x, y up) = (s / sx, -sgn / sy)
+        wx, wy = s / sx, -sgn / sy
+    else:
+        wx, wy = sgn / sx, -s / sy
+    step_len = math.hypot(wx, wy)
+    plan = dict(transposed=transposed, nmaj=nmaj, nmin=nmin, sgn=sgn, q=q, inv_len=1.0 / step_len,
+                cpsi=-wx / step_len, spsi=-wy / step_len)
+    if edges == "wrap" and max_distance is None:
+        k = np.arange(nmaj)
+        num = k * q
+        fl = num // nmaj
+        fk = (num - fl * nmaj) / nmaj
+        rnd = fl + (2 * (num - fl * nmaj) >= nmaj)
+        g = math.gcd(abs(q), nmin)
+        per_cycle = nmin // g
+        tasks = [(c0, j0, min(per_cycle, j0 + WALK_LINES)) for c0 in range(g) for j0 in range(0, per_cycle, WALK_LINES)]
+        plan.update(kind="walk", colk=(k if sgn > 0 else nmaj - 1 - k).astype(np.int64),
+                    flm=np.mod(fl, nmin).astype(np.int64), fk=fk, rndm=np.mod(rnd, nmin).astype(np.int64),
+                    tasks=np.array(tasks, np.int64), nwarm=nmaj, per_cycle=per_cycle)
+        return plan
+    if max_distance is None:
+        nwarm, reach = nmaj, 0
+    else:  # max_distance in texels along u: one step is step_len * sx of them
+        reach = max(1, int(math.floor(max_distance / (step_len * sx) + 1e-9)))
+        nwarm = min(nmaj, reach)
+    k = np.arange(nwarm + nmaj)
+    pos = k - nwarm if sgn > 0 else nmaj - 1 + nwarm - k
+    colk = edge_index(-nwarm, nmaj + nwarm, nmaj, edges)[pos + nwarm].astype(np.int64)
+    num = (k - nwarm) * q
+    flk = num // nmaj
+    fk = (num - flk * nmaj) / nmaj
+    span = abs(q) + 2
+    r_lo, r_hi = (0, nmin) if edges == "wrap" else (-span, nmin + span)
+    rowbase = span + abs(q) * 2 + 4
+    plan.update(kind="lines", nwarm=nwarm, reach=reach, colk=colk, flk=flk.astype(np.int64), fk=fk,
+                rowfold=edge_index(-rowbase, nmin + rowbase, nmin, edges).astype(np.int64), rowbase=rowbase,
+                r_lo=r_lo, r_hi=r_hi)
+    return plan
+
+
+def occlusion_from_height(
+    height: np.ndarray,
+    *,
+    strength: float | tuple[float, float] = 1.0,
+    directions: int = 16,
+    max_distance: float | None = None,
+    edges: str = "wrap",
+    kernel: str = DEFAULT_KERNEL,
+    bent_normals: bool = False,
+    threads: int | None = None,
+    progress: Callable[[float, str], None] | None = None,
+) -> np.ndarray | tuple[np.ndarray, np.ndarray]:
+    """Ambient occlusion of a height map: cosine-weighted visibility of the sky over each texel.
+
+    Parameters
+    ----------
+    height : ndarray, (H, W) or (H, W, 1)
+        Heights in height units (file data in [0, 1]: the full nominal range is 1).
+    strength : float or (float, float)
+        Texels per height unit, ``(s_x, s_y)``, exactly as for :func:`bakery.normals.normal_from_height`
+        (use :func:`bakery.normals.strength_from_size` for physical sizes). Negative values (both axes)
+        invert the relief.
+    directions : int
+        Number of azimuths ``N >= 4``, ``psi_k = 2 pi k / N`` (physical directions, +X right, +Y up); each
+        costs one sweep of the map.
+    max_distance : float, optional
+        Cutoff: occluders farther than this many texels (widths of one texel along u) are ignored. Default:
+        no limit (exact horizons, up to one map period away). Must be > 0 and at most the map's larger side.
+    edges : {"wrap", "clamp", "mirror"}
+        How the relief continues past the borders: tiles (default), edge texel repeats, or mirrored.
+    kernel : str
+        Derivative kernel of the normals (:mod:`bakery.normals.kernels`); default that of the normal map.
+    bent_normals : bool
+        Also return the bent normals (the normalised cosine-weighted mean unoccluded direction).
+    threads : int, optional
+        Worker threads (default: the number of CPUs, at most 8). The result does not depend on it.
+    progress : callable(fraction, label), optional
+        Called after each azimuth with increasing fractions in (0, 1], the last one 1.0. The result does not
+        depend on it.
+
+    Returns
+    -------
+    occlusion : ndarray, float32, (H, W)
+        In [0, 1]: 1 = the whole sky is seen, 0 = none of it.
+    bent : ndarray, float32, (H, W, 3)
+        Only with ``bent_normals=True``: unit vectors in [-1, 1], tangent space, +X right, +Y up, +Z out.
+
+    References
+    ----------
+    .. [1] J. Jimenez, X. Wu, A. Pesce, A. Jarabo, "Practical Realtime Strategies for Accurate Indirect
+       Occlusion", ATVI-TR-16-01, 2016, eq. 10.
+    .. [2] V. Timonen, J. Westerholm, "Scalable Height Field Self-Shadowing", CGF 29(2), 2010.
+
+    Examples
+    --------
+    A V-groove whose walls rise at 45 degrees: at its bottom the sky seen is cos(45 deg) = 0.7071.
+
+    >>> import numpy as np
+    >>> x = np.arange(64, dtype=np.float32)
+    >>> groove = np.minimum(np.abs(x - 32), 20)[None, :].repeat(16, axis=0)  # 1 height unit per texel
+    >>> ao = occlusion_from_height(groove, strength=1.0, directions=64)
+    >>> round(float(ao[8, 32]), 3), round(float(ao[8, 0]), 3)
+    (0.707, 1.0)
+    """
+    from bakery.normals.from_height import _as_height, normal_from_height
+
+    h = _as_height(height)
+    sx, sy = _strengths(strength)
+    n = _directions(directions)
+    check_edges(edges)
+    H, W = h.shape
+    if max_distance is not None:
+        md = float(max_distance)
+        if not (math.isfinite(md) and 0 < md <= max(H, W)):
+            raise BakeryError(f"max_distance must be a number of texels in (0, {max(H, W)}] (the map's "
+                              f"larger side); got {max_distance!r}")
+        max_distance = md
+    if sx < 0:
+        h, sx, sy = -h, -sx, -sy
+    if not np.isfinite(h).all():
+        raise BakeryError("height map has NaN or infinite values")
+    if h.size and float(h.max()) == float(h.min()):
+        warnings.warn("height map is constant: occlusion is 1 everywhere", BakeryWarning, stacklevel=2)
+    normals = normal_from_height(h, strength=(sx, sy), kernel=kernel, edges=edges, threads=threads)
+    nthreads = max(1, threads or min(8, os.cpu_count() or 1))
+    kern = _kernels()
+    acc = np.zeros((H, W), np.float32)
+    bent = np.zeros((H, W, 3) if bent_normals else (1, 1, 3), np.float32)
+    nx, ny, nz = (np.ascontiguousarray(normals[:, :, i]) for i in range(3))
+    tan = np.empty((H, W), np.float32)
+    local = threading.local()
+
+    def buffers(size: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        b = getattr(local, "buf", None)
+        if b is None or b[0].shape[1] < size:
+            b = local.buf = (np.empty((LANES, size), np.int64), np.empty((LANES, size), np.float32),
+                             np.empty(LANES, np.int64))
+        return b
+
+    def sweep(r0, r1, p, A, T):
+        size = p["nwarm"] + p["nmaj"] + 1
+        kern["sweep"](A, T, r0, r1, p["nwarm"], p["nmaj"], p["colk"], p["flk"], p["fk"], p["rowfold"],
+                      p["rowbase"], p["nmin"], edges == "wrap", p["reach"], p["inv_len"], *buffers(size))
+
+    lines = {}
+
+    def walk(t0, t1, p, B, Tb):
+        size = (WALK_LINES + 1) * p["nmaj"] + 1
+        stack_k, stack_y, _ = buffers(size)
+        kern["walk"](B, Tb, p["tasks"], t0, t1, p["q"], p["nmin"], p["per_cycle"], p["inv_len"], stack_k[0],
+                     stack_y[0])
+
+    def gather(i0, i1, p):
+        kern["gather"](acc, bent, tan, nx, ny, nz, i0, i1, p["cpsi"], p["spsi"], bool(bent_normals))
+
+    rows = [(i0, min(H, i0 + 64)) for i0 in range(0, H, 64)]
+    pool = ThreadPoolExecutor(max_workers=nthreads) if nthreads > 1 else None
+
+    def each(fn, ranges, *args):
+        if pool is None:
+            for a, b in ranges:
+                fn(a, b, *args)
+        else:
+            for f in [pool.submit(fn, a, b, *args) for a, b in ranges]:
+                f.result()
+
+    try:
+        for d in range(n):
+            p = _plan(2.0 * math.pi * d / n, sx, sy, (H, W), edges, max_distance)
+            A, T = (h.T, tan.T) if p["transposed"] else (h, tan)  # the sweeps index [minor, major]
+            if p["kind"] == "walk":
+                if p["transposed"] not in lines:
+                    lines[p["transposed"]] = (np.empty(A.shape, np.float32), np.empty(A.shape, np.float32))
+                B, Tb = lines[p["transposed"]]
+                blocks = [(r0, min(p["nmin"], r0 + 64)) for r0 in range(0, p["nmin"], 64)]
+                each(lambda r0, r1, A=A, B=B, p=p: kern["shear"](A, B, r0, r1, p["flm"], p["fk"], p["colk"],
+                                                                 p["nmin"]), blocks)
+                per = max(1, len(p["tasks"]) // (4 * nthreads))
+                each(walk, [(t0, min(len(p["tasks"]), t0 + per)) for t0 in range(0, len(p["tasks"]), per)],
+                     p, B, Tb)
+                each(lambda r0, r1, T=T, Tb=Tb, p=p: kern["unshear"](Tb, T, r0, r1, p["rndm"], p["colk"],
+                                                                     p["nmin"]), blocks)
+            else:
+                each(sweep, [(r0, min(p["r_hi"], r0 + LANES)) for r0 in range(p["r_lo"], p["r_hi"], LANES)],
+                     p, A, T)
+            each(gather, rows, p)
+            if progress is not None:
+                progress((d + 1) / n, f"occlusion: azimuth {d + 1} of {n}")
+    finally:
+        if pool is not None:
+            pool.shutdown()
+    occ = np.clip(acc * np.float32(2.0 / n), 0.0, 1.0).astype(np.float32)
+    if not bent_normals:
+        return occ
+    length = np.sqrt(np.sum(bent * bent, axis=2, keepdims=True))
+    bent = np.where(length > 0, bent / np.maximum(length, np.float32(1e-30)), normals).astype(np.float32)
+    return occ, bent
