@@ -124,7 +124,7 @@ def _resample_axis(a: np.ndarray, axis: int, m: int, name: str, edges: str) -> n
     """Reduce ``axis`` of ``a`` from n to m texels with the windowed-sinc filter ``name``, widened by the scale
     n/m: output texel j is centred at input coordinate ``(j + 0.5) n/m - 0.5``; taps past the border fold back
     by ``edges``; weights normalised to sum 1 per output texel."""
-    from bakery.normals.kernels import edge_index
+    from bakery.edges import edge_index
 
     n = a.shape[axis]
     if n == m:
@@ -391,8 +391,8 @@ def color_mips(
     import os
     import warnings
 
+    from bakery.edges import check_edges
     from bakery.errors import BakeryWarning
-    from bakery.normals.kernels import check_edges
 
     img = np.asarray(image)
     if img.ndim == 2:

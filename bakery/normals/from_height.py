@@ -30,8 +30,9 @@ from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 
+from bakery.edges import check_edges, edge_index
 from bakery.errors import BakeryError
-from bakery.normals.kernels import DEFAULT_KERNEL, Kernel, check_edges, edge_index, get_kernel, slopes
+from bakery.normals.kernels import DEFAULT_KERNEL, Kernel, get_kernel, slopes
 
 #: Default relief when no strength is given: the full height range is 1/32 of the texture's width deep.
 #: A choice of ours (docs/normals.md), independent of resolution.

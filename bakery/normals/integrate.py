@@ -28,10 +28,11 @@ from __future__ import annotations
 
 import numpy as np
 
+from bakery.edges import check_edges
 from bakery.errors import BakeryError
 from bakery.normals.encode import unit_normals
 from bakery.normals.from_height import _strengths
-from bakery.normals.kernels import DEFAULT_KERNEL, check_edges, get_kernel
+from bakery.normals.kernels import DEFAULT_KERNEL, get_kernel
 
 #: Smallest n_z used when turning normals into slopes (about 89.9 degrees of tilt).
 MIN_NZ = 1e-3

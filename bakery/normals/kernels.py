@@ -38,6 +38,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from bakery.edges import check_edges, pad
 from bakery.errors import BakeryError
 
 
@@ -66,44 +67,12 @@ KERNELS: dict[str, Kernel] = {
 #: The default kernel: Scharr, the most isotropic of the four (docs/normals.md explains the choice).
 DEFAULT_KERNEL = "scharr"
 
-EDGES = ("wrap", "clamp", "mirror")
-
-
 def get_kernel(name: str) -> Kernel:
     """The kernel called ``name``; a :class:`BakeryError` naming the choices for an unknown one."""
     try:
         return KERNELS[name]
     except KeyError:
         raise BakeryError(f"unknown derivative kernel {name!r}; must be one of {', '.join(KERNELS)}") from None
-
-
-def check_edges(edges: str) -> str:
-    if edges not in EDGES:
-        raise BakeryError(f"unknown edge mode {edges!r}; must be one of {', '.join(EDGES)}")
-    return edges
-
-
-def edge_index(start: int, stop: int, n: int, edges: str) -> np.ndarray:
-    """Indices ``start .. stop-1`` (which may run outside ``0 .. n-1``) folded back into the image by the
-    edge mode: ``wrap`` (modulo), ``clamp`` (nearest edge) or ``mirror`` (edge texel repeated)."""
-    i = np.arange(start, stop)
-    if edges == "wrap":
-        return np.mod(i, n)
-    if edges == "clamp":
-        return np.clip(i, 0, n - 1)
-    if edges == "mirror":
-        period = 2 * n
-        i = np.mod(i, period)
-        return np.where(i < n, i, period - 1 - i)
-    raise BakeryError(f"unknown edge mode {edges!r}; must be one of {', '.join(EDGES)}")
-
-
-def pad(a: np.ndarray, halo: int, edges: str) -> np.ndarray:
-    """``a`` (H, W) padded by ``halo`` texels on every side according to the edge mode."""
-    h, w = a.shape
-    rows = edge_index(-halo, h + halo, h, edges)
-    cols = edge_index(-halo, w + halo, w, edges)
-    return a[rows][:, cols]
 
 
 def derivatives(a: np.ndarray, kernel: str | Kernel = DEFAULT_KERNEL, *, edges: str = "wrap"

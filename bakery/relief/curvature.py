@@ -37,8 +37,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from bakery.edges import check_edges, pad
 from bakery.errors import BakeryError
-from bakery.normals.kernels import DEFAULT_KERNEL, check_edges, get_kernel, pad
+from bakery.normals.kernels import DEFAULT_KERNEL, get_kernel
 
 
 @dataclass(frozen=True)

@@ -62,8 +62,9 @@ from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 
+from bakery.edges import check_edges, edge_index
 from bakery.errors import BakeryError, BakeryWarning
-from bakery.normals.kernels import DEFAULT_KERNEL, check_edges, edge_index
+from bakery.normals.kernels import DEFAULT_KERNEL
 
 
 def _atan(t):
