@@ -3,9 +3,9 @@ definitions of premultiplied filtering and alpha coverage."""
 
 import numpy as np
 import pytest
+from bakery.color import linear_to_srgb, srgb_to_linear
 
 from bakery import BakeryError, BakeryWarning
-from bakery.io.color import linear_to_srgb, srgb_to_linear
 from bakery.mips import _compiled, color_mips, coverage, downsample, mip_size
 from bakery.relief.examples import leaf_card
 
@@ -43,7 +43,7 @@ def test_srgb_curves_follow_the_standard():
 
 
 def test_decode_filter_encode_matches_a_direct_computation():
-    # The whole chain for box on an even map, written out with bakery.io.color: level 1 = encode(2x2 mean of
+    # The whole chain for box on an even map, written out with bakery.color: level 1 = encode(2x2 mean of
     # decoded colour times alpha / 2x2 mean of alpha). Measured max |error| 1.2e-7.
     rng = np.random.default_rng(4)
     img = rng.random((16, 12, 4), dtype=np.float32)
