@@ -46,6 +46,20 @@ def _channel_names(c: int) -> str:
     return {1: "gray", 2: "R, G", 3: "R, G, B", 4: "R, G, B, A"}[c]
 
 
+def _quality_from_manifest(path: Path) -> list[str]:
+    """The compression quality the bake measured, from the manifest beside the file (when it describes it)."""
+    import json
+
+    from bakery.io.manifest import manifest_path
+
+    m = manifest_path(path)
+    try:
+        q = json.loads(m.read_text(encoding="utf-8")).get("quality", {}).get(path.name)
+    except (OSError, ValueError, AttributeError):
+        return []
+    return [f"  quality:  {q['summary']} ({m.name})"] if isinstance(q, dict) and "summary" in q else []
+
+
 def describe_ktx2(path: Path) -> list[str]:
     """Lines for a KTX2 file: type, format, faces, levels with sizes, key/value data, value range."""
     from bakery.io.ktx2 import read_ktx2
@@ -64,6 +78,10 @@ def describe_ktx2(path: Path) -> list[str]:
         f"  levels:   {len(tex.levels)} ({sizes})",
         f"  channels: {c} ({_channel_names(c)})",
     ]
+    if tex.block_compressed or tex.supercompressed:
+        lines.append(f"  stored:   {'block-compressed ' + tex.format.short_name if tex.block_compressed else 'plain'}"
+                     + (", Zstandard supercompression" if tex.supercompressed else ""))
+    lines += _quality_from_manifest(path)
     for key in sorted(tex.key_values):
         value = tex.key_values[key]
         if value.endswith(b"\0"):

@@ -13,10 +13,27 @@ from pathlib import Path
 from typing import Literal
 
 from bakery.bakes import Bake, Progress, bake_threads, level_path, params_to_dict, register
-from bakery.bakes.params import Bits, Edges, Params, YConvention, bits_param, edges_param, param, parse_numbers, y_param
+from bakery.bakes.params import (
+    Bits,
+    Edges,
+    Params,
+    YConvention,
+    bits_param,
+    edges_param,
+    effort_param,
+    ktx2_format_param,
+    param,
+    parse_numbers,
+    y_param,
+    zstd_param,
+)
 from bakery.errors import BakeryError, BakeryWarning
 
 KernelName = Literal["scharr", "sobel", "prewitt", "central"]
+Effort = Literal["fast", "balanced", "best"]
+KTX2_NORMAL_FORMAT = ktx2_format_param(None, "Texel format of a .ktx2 output: rgba8, rgba16, rgba16f ..., bc5 "
+                                       "(XY, Z rebuilt by the shader) or compressed (= bc5). Default: the "
+                                       "uncompressed format of the sample type.")
 
 ENCODING = "rgb = n * 0.5 + 0.5; integers round to nearest, ties to even"
 #: ITU-R BT.709 luma weights, used for ``channel="luminance"`` on the stored (not linearised) values.
@@ -181,6 +198,9 @@ class NormalParams(Params):
         "files, or colour files with equal channels.")
     stretch: bool = param(False, "Use the data's min..max as the full height range instead of the file's "
                           "nominal range.")
+    ktx2_format: str | None = KTX2_NORMAL_FORMAT
+    effort: Effort = effort_param()
+    zstd: int | None = zstd_param()
 
     def check(self) -> None:
         check_strength(self)
@@ -201,15 +221,33 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress:
     from bakery.normals.encode import encode_normals
     from bakery.normals.from_height import normal_from_height, run_strips
 
-    check_output(output)
+    ktx2 = output.suffix.lower() == ".ktx2"
+    if not ktx2:
+        check_output(output)
     src = inputs["height"]
     h, in_bits, (lo, hi) = read_height(src, p.channel, p.stretch)
     rows, cols = h.shape
     sx, sy = resolve_strength(h.shape, p.strength, p.relief, p.span)
+    opts = dict(strength=(sx, sy), kernel=p.kernel, blur=p.blur, edges=p.edges)
+    extra = {"conventions": _conventions(p.y),
+             "strength_used": {"x": sx, "y": sy,
+                               "formula": "n = normalize(-s_x dh/dx, -s_y dh/dy, 1), derivatives per texel"},
+             "height_range": {"nominal": [0.0, 1.0], "data": [lo, hi], "stretched": p.stretch}}
+    if ktx2:  # the mip chain from the float normals, not from a rounded file
+        from bakery.normals.mips import normal_mips
+
+        n = normal_from_height(h, threads=bake_threads(), **opts)
+        del h
+        fmt, q = write_normal_ktx2(output, [u for u, _ in normal_mips(n)], p, p.channels, in_bits)
+        extra["sample_type"] = fmt.name
+        if q:
+            extra["quality"] = {output.name: q}
+        manifest = write_manifest(output, bake="normal", inputs={"height": src}, params=params_to_dict(p),
+                                  outputs=[output], extra=extra)
+        return [output, manifest]
     bits = output_bits(output, p.bits, in_bits)
     if p.channels == 2 and output.suffix.lower() == ".png":
         raise BakeryError("PNG files cannot hold 2 channels; write the XY map as .tif or .exr", output)
-    opts = dict(strength=(sx, sy), kernel=p.kernel, blur=p.blur, edges=p.edges)
     if bits in INTEGER_MAX:  # encode strip by strip into the integer image: no full float copy
         q = np.empty((rows, cols, p.channels), np.uint8 if bits == "8" else np.uint16)
         scratch = {}
@@ -242,11 +280,7 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress:
         n = normal_from_height(h, threads=bake_threads(), **opts)
         del h
         write_image(output, encode_normals(n, y=p.y, channels=p.channels), bits=bits)
-    extra = {"conventions": _conventions(p.y),
-             "strength_used": {"x": sx, "y": sy,
-                               "formula": "n = normalize(-s_x dh/dx, -s_y dh/dy, 1), derivatives per texel"},
-             "height_range": {"nominal": [0.0, 1.0], "data": [lo, hi], "stretched": p.stretch},
-             "sample_type": bits}
+    extra["sample_type"] = bits
     manifest = write_manifest(output, bake="normal", inputs={"height": src}, params=params_to_dict(p),
                               outputs=[output], extra=extra)
     return [output, manifest]
@@ -349,6 +383,9 @@ class MipsParams(Params):
                              "or down (DirectX-style).")
     bits: Bits | None = bits_param()
     lengths: bool = param(True, "Also write each level's averaged-normal length (for specular anti-aliasing).")
+    ktx2_format: str | None = KTX2_NORMAL_FORMAT
+    effort: Effort = effort_param()
+    zstd: int | None = zstd_param()
 
 
 def mip_paths(output: Path, levels: int) -> tuple[list[Path], list[Path]]:
@@ -383,9 +420,29 @@ KTX2_NORMAL_FORMATS = {("8", 3): "R8G8B8A8_UNORM", ("8", 2): "R8G8_UNORM", ("16"
                        ("float", 2): "R32G32B32A32_SFLOAT"}
 
 
+def write_normal_ktx2(output: Path, units: list, p, channels: int, source_bits: str):
+    """A normal-map chain (unit vectors per level, level 0 first) as one KTX2 file in ``p.ktx2_format`` (default:
+    the uncompressed format of the sample type); returns (format, quality report or None)."""
+    from bakery.io.texcompress import resolve_format, write_texture
+    from bakery.normals.encode import encode_normals
+
+    if p.ktx2_format is None:
+        bits = p.bits or ("16" if source_bits == "16" else "8" if source_bits == "8" else "half")
+        fmt = resolve_format(KTX2_NORMAL_FORMATS[(bits, channels)], "normal")
+    else:
+        fmt = resolve_format(p.ktx2_format, "normal")
+    if fmt.block is not None and fmt.block != "bc5":
+        raise BakeryError(f"normal maps go to bc5 (XY, Z rebuilt) or an uncompressed format, not {fmt.short_name}",
+                          output)
+    note = {"bakeryNormalMap": f"{ENCODING}; +Y {p.y}; level data = renormalized averages"}
+    levels = [encode_normals(u, y=p.y, channels=channels) for u in units]
+    _, q = write_texture(output, levels, fmt, kind="normal", key_values=note, effort=p.effort, zstd=p.zstd,
+                         threads=bake_threads())
+    return fmt, q
+
+
 def run_mips(inputs: dict[str, Path], output: Path, p: MipsParams, progress: Progress) -> list[Path]:
     from bakery.io.manifest import write_manifest
-    from bakery.normals.encode import encode_normals
     from bakery.normals.mips import normal_mips
 
     ktx2 = output.suffix.lower() == ".ktx2"
@@ -393,14 +450,14 @@ def run_mips(inputs: dict[str, Path], output: Path, p: MipsParams, progress: Pro
     channels = 2 if img.channels == 2 else 3
     chain = normal_mips(n, levels=p.levels)
     written: list[Path] = []
+    quality = {}
     if ktx2:
         from bakery.io.ktx2 import write_ktx2
 
-        bits = p.bits or ("16" if img.bits == "16" else "8" if img.bits == "8" else "half")
-        fmt = KTX2_NORMAL_FORMATS[(bits, channels)]
-        note = {"bakeryNormalMap": f"{ENCODING}; +Y {p.y}; level data = renormalized averages"}
-        written.append(write_ktx2(output, [encode_normals(u, y=p.y, channels=channels) for u, _ in chain],
-                                  fmt, cubemap=False, key_values=note))
+        fmt, q = write_normal_ktx2(output, [u for u, _ in chain], p, channels, img.bits)
+        written.append(output)
+        if q:
+            quality[output.name] = q
         names = [output.name] * len(chain)
         length_names = [None] * len(chain)
         if p.lengths:
@@ -408,7 +465,7 @@ def run_mips(inputs: dict[str, Path], output: Path, p: MipsParams, progress: Pro
             written.append(write_ktx2(lpath, [ln[:, :, None] for _, ln in chain], "R16_UNORM", cubemap=False,
                                       key_values={"bakeryNormalMap": "length of the averaged unit normal"}))
             length_names = [lpath.name] * len(chain)
-        bits = fmt
+        bits = fmt.name
     else:
         from bakery.io.images import write_image
 
@@ -429,6 +486,8 @@ def run_mips(inputs: dict[str, Path], output: Path, p: MipsParams, progress: Pro
                          "length": length_names[i], "mean_length": float(ln.mean(dtype="float64"))}
                         for i, (u, ln) in enumerate(chain)],
              "length_meaning": "|average of the level-0 unit normals under the texel| (Toksvig 2005)"}
+    if quality:
+        extra["quality"] = quality
     manifest = write_manifest(output, bake="normal-mips", inputs={"normal": inputs["normal"]},
                               params=params_to_dict(p), outputs=written, extra=extra)
     return written + [manifest]

@@ -263,8 +263,8 @@ def channel_param(help: str = "Channel of the input file to read (r, g, b, a); d
     return param(None, help)
 
 
-KTX2_FORMAT_HELP = ("Texel format of .ktx2 outputs (a Vulkan format name, lowercase, or a short name such as "
-                    "rgba16f); see docs/formats.md.")
+KTX2_FORMAT_HELP = ("Texel format of .ktx2 outputs: a short name (rgba8, rgba16f, bc4, bc5, bc6h, bc7-srgb ...), a "
+                    "Vulkan format name, or compressed (the block format made for the map; docs/compression.md).")
 
 
 def ktx2_format_param(default: str | None = None, help: str = KTX2_FORMAT_HELP) -> Any:
@@ -273,3 +273,12 @@ def ktx2_format_param(default: str | None = None, help: str = KTX2_FORMAT_HELP) 
 
 def loose_param(what: str = "every mip level as an image file (NAME.png, NAME.mip01.png ...)") -> Any:
     return param(False, f"With a .ktx2 output, also write {what} beside it.")
+
+
+def effort_param() -> Any:
+    return param("fast", "Block-compression effort for .ktx2 outputs: fast, balanced or best (slower, a little "
+                 "more accurate; docs/compression.md).")
+
+
+def zstd_param() -> Any:
+    return param(None, "Zstandard supercompression level (1-22) of .ktx2 outputs; default none.", low=1, high=22)

@@ -190,3 +190,14 @@ def bake_command(app: typer.Typer, command_name: str, bake_name: str, doc: str, 
 def _report(paths: list[Path]) -> None:
     for p in paths:
         echo(f"wrote {p}")
+    quality_lines(paths)
+
+
+def quality_lines(paths: list[Path]) -> None:
+    """One line per block-compressed output: the quality report its manifest holds."""
+    import json
+
+    for p in paths:
+        if p.name.endswith(".bakery.json"):
+            for name, q in (json.loads(p.read_text(encoding="utf-8")).get("quality") or {}).items():
+                echo(f"quality {name}: {q['summary']}")

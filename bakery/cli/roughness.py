@@ -5,13 +5,14 @@ from __future__ import annotations
 from pathlib import Path
 
 from bakery.cli import app
-from bakery.cli._build import bake_command
+from bakery.cli._build import bake_command, quality_lines
 from bakery.cli._common import echo
 
 
 def _levels(written: list[Path]) -> None:
     images = [p for p in written if not p.name.endswith(".json")]
     echo(f"wrote {len(images)} file(s): {images[0]}" + (f" ... {images[-1]}" if len(images) > 1 else ""))
+    quality_lines(written)
 
 
 bake_command(app, "roughness", "roughness", "Convert a specular-exponent (gloss) map into roughness, or roughness "

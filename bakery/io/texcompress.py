@@ -234,3 +234,37 @@ def write_compressed_ktx2(path: str | os.PathLike, source: np.ndarray | list[np.
         tmp.write_bytes(res.data)
     res.path = path
     return res
+
+
+#: The format ``ktx2-format = "compressed"`` picks for each map kind.
+COMPRESSED_DEFAULTS = {"normal": "bc5", "data": "bc4", "color": "bc7-srgb", "hdr": "bc6h"}
+
+
+def resolve_format(name: str, kind: str, channels: int = 1) -> K.Format:
+    """The texel format for ``name``: a format name, or ``"compressed"`` for the block format made for ``kind``
+    (:data:`COMPRESSED_DEFAULTS`; a two-channel data map takes bc5, a colour data map bc7)."""
+    if name.lower() == "compressed":
+        name = COMPRESSED_DEFAULTS[kind]
+        if kind == "data" and channels == 2:
+            name = "bc5"
+        elif kind == "data" and channels > 2:
+            name = "bc7"
+    return K.get_format(name)
+
+
+def write_texture(path: str | os.PathLike, levels: list[np.ndarray], fmt: K.Format | str, *, kind: str,
+                  cubemap: bool = False, key_values: dict[str, bytes | str] | None = None, effort: str = "fast",
+                  zstd: int | None = None, threads: int | None = None) -> tuple[Path, dict | None]:
+    """Write ``levels`` (float32, level 0 first, every level given) as KTX2 in ``fmt``: block formats and
+    Zstandard through :func:`write_compressed_ktx2` with a quality report, others with
+    :func:`bakery.io.ktx2.write_ktx2`. Returns the path and ``{"format", "summary", "levels": [...]}`` (the
+    report) or None for an uncompressed file."""
+    fmt = K.get_format(fmt) if isinstance(fmt, str | int) else fmt
+    path = Path(path)
+    if fmt.block is None and zstd is None:
+        return K.write_ktx2(path, levels, fmt, cubemap=cubemap, key_values=key_values), None
+    res = write_compressed_ktx2(path, list(levels), fmt, kind=kind, cubemap=cubemap, quality=effort, zstd=zstd,
+                                threads=threads, key_values=key_values, report=fmt.block is not None)
+    if res.report is None:
+        return path, None
+    return path, {"format": fmt.short_name, "summary": res.summary, "report": res.report}
