@@ -13,7 +13,19 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Literal
 
 from bakery.bakes import Bake, Progress, level_path, params_to_dict, register
-from bakery.bakes.params import Bits, Channel, Params, bits_param, channel_param, loose_param, param, parse_numbers
+from bakery.bakes.params import (
+    Bits,
+    Channel,
+    Params,
+    bits_param,
+    channel_param,
+    effort_param,
+    ktx2_format_param,
+    loose_param,
+    param,
+    parse_numbers,
+    zstd_param,
+)
 from bakery.errors import BakeryError, BakeryWarning
 
 if TYPE_CHECKING:
@@ -120,6 +132,10 @@ class RoughnessParams(Params):
     bits: Bits | None = bits_param()
     pack_channel: Channel = param(GLTF_ROUGHNESS_CHANNEL, "Channel of the --pack image that receives the result "
                                   "(glTF 2.0 metallic-roughness: g).")
+    ktx2_format: str | None = ktx2_format_param(None, "Texel format of a .ktx2 output (a mip chain): r8/r16 by "
+                                                "--bits, rgba8/rgba16 when packing, bc4, bc7 or compressed.")
+    effort: Literal["fast", "balanced", "best"] = effort_param()
+    zstd: int | None = zstd_param()
 
 
 INTEGER_HINT = ("--source gloss-linear --exponent-range LO,HI, --source gloss-exp --exponent-range LO,HI, "
@@ -171,8 +187,17 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
                               "(glTF 2.0: roughness in G, metalness in B)", pack)
         if CHANNELS.index(params.pack_channel) >= packed.channels:
             raise BakeryError(f"image to pack into has no {params.pack_channel} channel", pack)
-    bits = output_bits(output, params.bits, packed.bits if packed is not None else img.bits,
-                         bounded=math.isfinite(target.high))
+    ktx2 = output.suffix.lower() == ".ktx2"
+    if ktx2:  # a mip chain (area box) of the result, from the float values
+        if not math.isfinite(target.high):
+            raise BakeryError("exponents and Beckmann widths are unbounded; a KTX2 chain holds [0, 1]", output)
+        bits = params.bits or ("8" if (packed.bits if packed is not None else img.bits) == "8" else "16")
+        if bits not in KTX2_FORMATS:
+            raise BakeryError("KTX2 outputs hold 8 or 16-bit samples here (or a block format); use --bits 8 or 16",
+                              output)
+    else:
+        bits = output_bits(output, params.bits, packed.bits if packed is not None else img.bits,
+                             bounded=math.isfinite(target.high))
     try:
         result = convert_specular(values, source=source, target=params.target, model=params.model,
                                   rule=params.rule, exponent_range=params.exponent_range, clamp=params.clamp)
@@ -190,7 +215,19 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
         pixels[:, :, CHANNELS.index(params.pack_channel)] = result
     else:
         pixels = result
-    write_image(output, pixels, bits=bits)  # data, never sRGB-encoded
+    quality = None
+    if ktx2:
+        from bakery.bakes import bake_threads
+        from bakery.io.texcompress import build_levels, resolve_format, write_texture
+
+        px = pixels if pixels.ndim == 3 else pixels[:, :, None]
+        names = {1: "r", 3: "rgba", 4: "rgba"}
+        fmt = resolve_format(params.ktx2_format or f"{names.get(px.shape[2], 'rgba')}{bits}", "data", px.shape[2])
+        _, quality = write_texture(output, build_levels(px, kind="data"), fmt, kind="data", effort=params.effort,
+                                   zstd=params.zstd, threads=bake_threads(),
+                                   key_values={"bakery.roughness": target.summary})
+    else:
+        write_image(output, pixels, bits=bits)  # data, never sRGB-encoded
     p = params_to_dict(params)
     p["source"] = source
     conventions = {
@@ -201,8 +238,10 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
     if packed is not None:
         conventions["packing"] = (f"roughness in {params.pack_channel.upper()} of {pack.name} "
                                   "(glTF 2.0 metallicRoughness)")
-    manifest = write_manifest(output, bake="roughness", inputs=inputs, params=p, outputs=[output],
-                              extra={"conventions": conventions})
+    extra = {"conventions": conventions}
+    if quality:
+        extra["quality"] = {output.name: quality}
+    manifest = write_manifest(output, bake="roughness", inputs=inputs, params=p, outputs=[output], extra=extra)
     return [output, manifest]
 
 
@@ -240,9 +279,23 @@ class AntialiasParams(Params):
                                             "metallic-roughness map); default: the only one, or equal r, g, b.")
     bits: Bits | None = bits_param("Samples of the levels: 8, 16, half, float (default: follows the roughness "
                                    "map, else 16).")
+    ktx2_format: str | None = ktx2_format_param(None, "Texel format of a .ktx2 output: r8, r16 (by --bits), bc4 or "
+                                                "compressed (= bc4).")
+    effort: Literal["fast", "balanced", "best"] = effort_param()
+    zstd: int | None = zstd_param()
 
 
 KTX2_FORMATS = {"8": "R8_UNORM", "16": "R16_UNORM"}
+
+
+def _roughness_format(name: str | None, bits: str, output: Path):
+    """The texel format of a one-channel KTX2 chain: R8/R16 by the sample type, or bc4 (``compressed``)."""
+    from bakery.io.texcompress import resolve_format
+
+    fmt = resolve_format(name or KTX2_FORMATS[bits], "data", 1)
+    if fmt.channels != 1 and fmt.block is None:
+        raise BakeryError(f"a roughness chain has one channel; {fmt.short_name} has {fmt.channels}", output)
+    return fmt
 
 
 def level_paths(output: Path, count: int, loose: bool = False) -> list[Path]:
@@ -302,8 +355,9 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
     if ktx2:
         bits = params.bits or ("8" if source_bits == "8" else "16")
         if bits not in KTX2_FORMATS:
-            raise BakeryError("KTX2 roughness chains are stored as R8_UNORM or R16_UNORM; use --bits 8 or 16",
-                              output)
+            raise BakeryError("KTX2 roughness chains are stored as R8_UNORM or R16_UNORM (or --ktx2-format bc4); "
+                              "use --bits 8 or 16", output)
+        fmt = _roughness_format(params.ktx2_format, bits, output)
     else:
         bits = output_bits(output, params.bits, source_bits, bounded=True)
     try:
@@ -319,18 +373,23 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
         for level, path in zip(chain, images, strict=False):
             tmp = stack.enter_context(atomic_output(path))
             write_image(tmp, level, bits=bits)
+        quality = None
         if ktx2:
-            from bakery.io.ktx2 import write_ktx2
+            from bakery.bakes import bake_threads
+            from bakery.io.texcompress import write_texture
 
             tmp = stack.enter_context(atomic_output(output))
-            fmt = KTX2_FORMATS[bits if bits in KTX2_FORMATS else "16"]
-            write_ktx2(tmp, [lv[:, :, None] for lv in chain], fmt, cubemap=False,
-                       key_values={"bakery.roughness": describe})
+            _, quality = write_texture(tmp, [lv[:, :, None] for lv in chain], fmt, kind="data",
+                                       key_values={"bakery.roughness": describe}, effort=params.effort,
+                                       zstd=params.zstd, threads=bake_threads())
     conventions = {"roughness": describe, "transfer": "linear",
                    "levels": [{"level": k, "size": [int(lv.shape[1]), int(lv.shape[0])]}
                               for k, lv in enumerate(chain)]}
+    extra = {"conventions": conventions}
+    if quality:
+        extra["quality"] = {output.name: quality}
     manifest = write_manifest(output, bake="antialias", inputs={k: v for k, v in inputs.items() if v},
-                              params=params_to_dict(params), outputs=paths, extra={"conventions": conventions})
+                              params=params_to_dict(params), outputs=paths, extra=extra)
     return paths + [manifest]
 
 
