@@ -12,12 +12,13 @@ from pathlib import Path
 from typing import Literal
 
 from bakery.bakes import Bake, Progress, bake_threads, params_to_dict, register
-from bakery.bakes.params import Bits, Params, bits_param, ktx2_format_param, param
+from bakery.bakes.params import Bits, Params, bits_param, effort_param, ktx2_format_param, param, zstd_param
 from bakery.errors import BakeryError
 
 Layout = Literal["equirect", "cross-wide", "cross-tall", "row", "stack", "files", "ktx2"]
 ImageLayout = Literal["equirect", "cross-wide", "cross-tall", "row", "stack"]
 Filter = Literal["auto", "area", "bilinear"]
+Effort = Literal["fast", "balanced", "best"]
 
 #: The help of every input layout option (env convert, diffuse, specular).
 INPUT_LAYOUT = param(None, "Layout of a single input image: equirect (2:1), cross-wide (4:3), cross-tall (3:4), "
@@ -58,7 +59,11 @@ class ConvertParams(Params):
     filter: Filter = param("auto", "auto: area-weighted (energy-keeping) when shrinking, bilinear otherwise.")
     bits: Bits | None = bits_param("Image samples: 8, 16 (PNG, TIFF), half, float (EXR; float also TIFF). "
                                    "Default follows the input (float input -> half-float EXR).")
-    ktx2_format: str | None = ktx2_format_param(None)
+    ktx2_format: str | None = ktx2_format_param(None, "Texel format of a .ktx2 output: rgba16f (default), "
+                                                "rgba32f, b10g11r11-ufloat, e5b9g9r9-ufloat, bc6h or compressed "
+                                                "(= bc6h), rgba8-srgb ...")
+    effort: Effort = effort_param()
+    zstd: int | None = zstd_param()
     mips: bool = param(True, "Write the mip chain into .ktx2 outputs.")
     repair: bool = REPAIR
 
@@ -68,7 +73,7 @@ class ConvertParams(Params):
         if self.ktx2_format is not None:
             from bakery.io.ktx2 import get_format
 
-            get_format(self.ktx2_format)
+            get_format(self.ktx2_format) if self.ktx2_format.lower() != "compressed" else None
 
 
 def _input_files(env_paths: list[Path], role: str) -> dict[str, Path]:
@@ -145,8 +150,10 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, pr
     mips = None
     if output.suffix.lower() == ".ktx2" and params.mips:
         mips = (cube_mip_chain(pixels) if kind == "cube" else equirect_mip_chain(pixels))[1:]
+    quality: dict = {}
     written = write_environment(output, pixels, kind, layout=lay, bits=params.bits,
                                 source_bits=env.bits, ktx_format=params.ktx2_format, mips=mips,
+                                effort=params.effort, zstd=params.zstd, threads=bake_threads(), quality=quality,
                                 key_values=KTX_KEYS if output.suffix.lower() == ".ktx2" else None)
     man = write_manifest(output, bake="env-convert",
                          inputs=_input_files(env.paths, "environment"),
@@ -154,7 +161,8 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, pr
                          extra={"conventions": CONVENTIONS, "output": {
                              "kind": kind, "layout": lay or ("ktx2" if output.suffix.lower() == ".ktx2"
                                                              else "files"),
-                             "size": int(target), "levels": 1 + len(mips or [])}})
+                             "size": int(target), "levels": 1 + len(mips or [])},
+                             **({"quality": quality} if quality else {})})
     return written + [man]
 
 
@@ -178,14 +186,18 @@ class DiffuseParams(Params):
                            "for l = 0, 1, 2; Blackman & Tukey 1958). The JSON keeps both.")
     units: Units = param("reflected", "Cubemap values: reflected = E/pi, the radiance a white Lambertian "
                          "surface reflects; irradiance = E.")
-    ktx2_format: str = ktx2_format_param("rgba16f")
+    ktx2_format: str = ktx2_format_param("rgba16f", "Texel format of the irradiance cubemap (.ktx2): rgba16f, "
+                                         "rgba32f, b10g11r11-ufloat, e5b9g9r9-ufloat, bc6h or compressed (= bc6h).")
+    effort: Effort = effort_param()
+    zstd: int | None = zstd_param()
     input_layout: ImageLayout | None = INPUT_LAYOUT
     repair: bool = REPAIR
 
     def check(self) -> None:
         from bakery.io.ktx2 import get_format
 
-        get_format(self.ktx2_format)
+        if self.ktx2_format.lower() != "compressed":
+            get_format(self.ktx2_format)
 
 
 def diffuse_outputs(output: Path) -> tuple[Path, Path]:
@@ -257,11 +269,14 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
     }
     json_path = write_json(output, data)
     written = [json_path]
-    written += write_environment(ktx_path, cube, "cube", ktx_format=params.ktx2_format,
+    quality: dict = {}
+    written += write_environment(ktx_path, cube, "cube", ktx_format=params.ktx2_format, effort=params.effort,
+                                 zstd=params.zstd, threads=bake_threads(), quality=quality,
                                  key_values={**KTX_KEYS, "bakery.units": data["cubemap"]["units"]})
     written += write_environment(faces_pattern, cube, "cube", bits="half")
+    extra = {"conventions": CONVENTIONS, **({"quality": quality} if quality else {})}
     man = write_manifest(output, bake="env-diffuse", inputs=_input_files(env.paths, "environment"),
-                         params=params_to_dict(params), outputs=written, extra={"conventions": CONVENTIONS})
+                         params=params_to_dict(params), outputs=written, extra=extra)
     return written + [man]
 
 

@@ -13,11 +13,11 @@ from typing import Literal
 
 from bakery.bakes import Bake, Progress, level_path, params_to_dict, register
 from bakery.bakes.envmaps import INPUT_LAYOUT, ImageLayout
-from bakery.bakes.params import Params, ktx2_format_param, loose_param, param, parse_numbers
+from bakery.bakes.params import Params, effort_param, ktx2_format_param, loose_param, param, parse_numbers, zstd_param
 from bakery.errors import BakeryError
 
 #: KTX2 formats offered for the specular chain (float formats only: radiance is HDR).
-SPECULAR_FORMATS = ("rgba16f", "rgba32f", "b10g11r11-ufloat", "e5b9g9r9-ufloat")
+SPECULAR_FORMATS = ("rgba16f", "rgba32f", "b10g11r11-ufloat", "e5b9g9r9-ufloat", "bc6h", "compressed")
 #: KTX2 key/value entry holding the roughness of every level (JSON text).
 KTX_ROUGHNESS_KEY = "bakery.roughness-per-level"
 
@@ -42,7 +42,9 @@ class SpecularParams(Params):
     quality: Literal["draft", "final", "high"] = param("final", "draft, final or high (errors in "
                                                        "docs/envlight.md).")
     ktx2_format: str = ktx2_format_param("rgba16f", "Texel format of the KTX2 chain: rgba16f, rgba32f, "
-                                         "b10g11r11-ufloat, e5b9g9r9-ufloat.")
+                                         "b10g11r11-ufloat, e5b9g9r9-ufloat, bc6h or compressed (= bc6h).")
+    effort: Literal["fast", "balanced", "best"] = effort_param()
+    zstd: int | None = zstd_param()
     loose: bool = loose_param("every level's six faces as OpenEXR files (NAME.mip00.x+.exr ... NAME.mip08.z-.exr)")
     input_layout: ImageLayout | None = INPUT_LAYOUT
 
@@ -58,6 +60,10 @@ class LutParams(Params):
                       high=4096)
     roughness_grows: Literal["down", "up"] = param("down", "down: the first stored row is roughness 0; up: the "
                                                    "last row is.")
+    ktx2_format: str = ktx2_format_param("rg16f", "Texel format of a .ktx2 table: rg16f, rgba32f, bc5 or "
+                                         "compressed (= bc5).")
+    effort: Literal["fast", "balanced", "best"] = effort_param()
+    zstd: int | None = zstd_param()
 
 
 def check_specular_params(p: SpecularParams) -> None:
@@ -119,7 +125,6 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
 
     from bakery.envmap.specular import level_roughness, prefilter_specular
     from bakery.io.images import write_image
-    from bakery.io.ktx2 import get_format, write_ktx2
     from bakery.io.layouts import FACE_TOKENS
     from bakery.io.manifest import write_manifest
 
@@ -147,9 +152,16 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
         "lobe_parameter_name": "alpha" if params.lobe == "ggx" else "exponent",
         "level_from_roughness": _level_formula(mapping, levels),
     }
-    fmt = get_format(params.ktx2_format)
-    kv = {KTX_ROUGHNESS_KEY: json.dumps(table, sort_keys=True, separators=(",", ":"), ensure_ascii=False)}
-    written = [write_ktx2(output, res.levels, fmt, cubemap=True, key_values=kv)]
+    from bakery.bakes import bake_threads
+    from bakery.io.texcompress import resolve_format, write_texture
+
+    fmt = resolve_format(params.ktx2_format, "hdr")
+    from bakery.bakes.envmaps import KTX_KEYS
+
+    kv = {**KTX_KEYS, KTX_ROUGHNESS_KEY: json.dumps(table, sort_keys=True, separators=(",", ":"), ensure_ascii=False)}
+    _, quality = write_texture(output, res.levels, fmt, kind="hdr", cubemap=True, key_values=kv,
+                               effort=params.effort, zstd=params.zstd, threads=bake_threads())
+    written = [output]
     if params.loose:
         for k, lv in enumerate(res.levels):
             for f, tag in enumerate(FACE_TOKENS):
@@ -163,6 +175,8 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
                         "quantity": "P(n) = ∫L w / ∫w, w = max(n·l,0) D(normalize(n+l)), v = r = n",
                         "roughness": "perceptual r; GGX alpha = r^2"},
     }
+    if quality:
+        extra["quality"] = {output.name: quality}
     written.append(write_manifest(output, bake="env-specular", inputs=inputs, params=params_to_dict(params),
                                   outputs=written, extra=extra))
     return written
@@ -190,22 +204,27 @@ def _run_lut(inputs: dict[str, Path], output: Path, params: LutParams, progress:
 
     from bakery.envmap.brdf_lut import brdf_lut
     from bakery.io.images import write_image
-    from bakery.io.ktx2 import write_ktx2
     from bakery.io.manifest import write_manifest
 
     suffix = output.suffix.lower()
     if suffix not in (".png", ".exr", ".ktx2"):
         raise BakeryError("output must end in .png (16-bit), .exr or .ktx2 (R16G16_SFLOAT)", output)
     lut = brdf_lut(params.size, roughness_grows=params.roughness_grows)
-    if suffix == ".png":
+    if suffix == ".png":  # png / exr; ktx2 below
         rgb = np.concatenate([lut, np.zeros(lut.shape[:2] + (1,), np.float32)], axis=2)
         path = write_image(output, rgb, bits="16")
     elif suffix == ".exr":
         path = write_image(output, lut, bits="float")
-    else:
-        path = write_ktx2(output, [lut], "R16G16_SFLOAT", cubemap=False,
-                          key_values={"bakery.brdf-lut": _lut_layout(params)})
+    quality = None
+    if suffix == ".ktx2":
+        from bakery.io.texcompress import resolve_format, write_texture
+
+        fmt = resolve_format(params.ktx2_format, "data", 2)
+        path, quality = write_texture(output, [lut], fmt, kind="data", effort=params.effort, zstd=params.zstd,
+                                      key_values={"bakery.brdf-lut": _lut_layout(params)})
     extra = {"layout": json.loads(_lut_layout(params))}
+    if quality:
+        extra["quality"] = {output.name: quality}
     man = write_manifest(output, bake="env-lut", inputs={}, params=params_to_dict(params), outputs=[path],
                          extra=extra)
     return [path, man]

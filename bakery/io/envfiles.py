@@ -219,15 +219,17 @@ def output_bits(path: str | os.PathLike, bits: str | None, source_bits: str) -> 
 
 def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *, layout: str | None = None,
                       bits: str | None = None, source_bits: str = "float", ktx_format: str | None = None,
-                      mips: list[np.ndarray] | None = None, key_values: dict[str, str] | None = None
-                      ) -> list[Path]:
+                      mips: list[np.ndarray] | None = None, key_values: dict[str, str] | None = None,
+                      effort: str = "fast", zstd: int | None = None, threads: int | None = None,
+                      quality: dict | None = None) -> list[Path]:
     """Write a cube ``(6, N, N, C)`` or panorama ``(H, W, C)`` in a layout; returns the written paths.
 
     ``layout`` defaults from the path (pattern -> faces, .ktx2 -> ktx2) or the kind (cube -> cross-wide,
     panorama -> equirect). For KTX2, ``mips`` are the levels after level 0 (optional). All files are written
-    to temporary names first and renamed only when every one succeeded.
+    to temporary names first and renamed only when every one succeeded. Block-compressed and supercompressed
+    KTX2 formats (``ktx_format`` ``bc6h``, ``compressed``, or ``zstd``) go through
+    :func:`bakery.io.texcompress.write_texture`; its quality report lands in ``quality[file name]``.
     """
-    from bakery.io import ktx2
     from bakery.io.atomic import atomic_output
     from bakery.io.images import write_image
 
@@ -246,10 +248,16 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
     if kind == "cube" and lay == "equirect":
         raise BakeryError("a cubemap cannot be written as a panorama here; convert it first", path)
     if lay in ("ktx2", "ktx2-2d"):
-        fmt = ktx2.get_format(ktx_format or "R16G16B16A16_SFLOAT")
+        from bakery.io.texcompress import resolve_format, write_texture
+
+        fmt = resolve_format(ktx_format or "R16G16B16A16_SFLOAT", "hdr")
         levels = [pixels] + list(mips or [])
         p = Path(path)
-        ktx2.write_ktx2(p, levels, fmt, cubemap=(lay == "ktx2"), key_values=key_values)
+        kind = "hdr" if fmt.is_float else "color" if fmt.srgb else "data"
+        _, q = write_texture(p, levels, fmt, kind=kind, cubemap=(lay == "ktx2"), key_values=key_values,
+                             effort=effort, zstd=zstd, threads=threads)
+        if q and quality is not None:
+            quality[p.name] = q
         return [p]
     if lay == "files":
         paths = face_paths(path)
