@@ -33,15 +33,19 @@ STATE_DIR = ".bakery"
 CACHE_FORMAT = 1
 
 
-def job_key(bake: str, inputs: dict[str, tuple[str, str]], params: dict[str, Any], version: str) -> str:
+def job_key(bake: str, inputs: dict[str, tuple[str, str]], params: dict[str, Any], version: str,
+            encoder: str | None = None) -> str:
     """SHA-256 over what determines a job's output bytes.
 
     ``inputs`` maps role -> (file name, content digest): the name goes into the manifest, so it counts.
+    ``encoder`` names the block encoder for jobs that write KTX2 (its version changes their bytes).
     """
     import hashlib
 
-    text = json.dumps({"bake": bake, "inputs": {r: list(v) for r, v in inputs.items()}, "params": params,
-                       "bakery": version}, sort_keys=True, separators=(",", ":"))
+    data = {"bake": bake, "inputs": {r: list(v) for r, v in inputs.items()}, "params": params, "bakery": version}
+    if encoder is not None:
+        data["encoder"] = encoder
+    text = json.dumps(data, sort_keys=True, separators=(",", ":"))
     return "sha256:" + hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 

@@ -174,7 +174,8 @@ def make_plan(recipe: Recipe, *, force: bool = False, only: tuple[str, ...] = ()
             job.action, job.reason = FAIL, str(exc)
             continue
         named = {role: (Path(rel).name, job.digests[role]) for role, rel in job.inputs.items()}
-        job.key = job_key(job.bake, named, job.params, __version__)
+        encoder = _encoder() if job.output.lower().endswith(".ktx2") else None
+        job.key = job_key(job.bake, named, job.params, __version__, encoder)
         job.action, job.reason = _decide(job, cache, recipe.output, force, __version__)
     return Plan(recipe, jobs, cache, unselected, all_outputs)
 
@@ -215,6 +216,12 @@ def _resolve_values(rule: Rule, recipe: Recipe, settings: dict[str, FolderSettin
         put(s.bakes.get(rule.bake, {}), _shown(recipe, folder))
         put(s.rules.get(rule.name, {}), _shown(recipe, folder))
     return dict(sorted(merged.items())), dict(sorted(origins.items()))
+
+
+def _encoder() -> str:
+    from bakery.io.blockcodec import encoder_version  # reads package metadata; loads no encoder
+
+    return encoder_version()
 
 
 def check_output(out_root: Path, rel: str, rule: Rule) -> None:

@@ -68,10 +68,11 @@ CODECS: dict[str, Codec] = {c.name: c for c in (
 
 
 def encoder_version() -> str:
-    """Name and version of the block encoder, e.g. ``"ispc-texcomp 1.0.1"`` (part of a batch job key)."""
-    import ispc_texcomp
+    """Name and version of the block encoder, e.g. ``"ispc-texcomp 1.0.1"`` (part of a batch job key: a new
+    encoder re-bakes). Read from the installed package's metadata, so planning a batch loads no encoder."""
+    from importlib.metadata import version
 
-    return f"ispc-texcomp {ispc_texcomp.__version__}"
+    return f"ispc-texcomp {version('ispc-texcomp')}"
 
 
 def check_quality(quality: str) -> str:
