@@ -27,7 +27,7 @@ def describe(path: Path, *, max_pixels: int | None = None) -> list[str]:
         f"  format:   {img.format.upper()}",
         f"  size:     {w} x {h}",
         f"  channels: {c} ({_channel_names(c)})",
-        f"  bits:    {BITS_NAMES[img.bits]}" + (" (stored as RGBE)" if img.format == "hdr" else ""),
+        f"  bits:     {BITS_NAMES[img.bits]}" + (" (stored as RGBE)" if img.format == "hdr" else ""),
     ]
     names = _channel_names(c).split(", ")
     for ch in range(c):

@@ -41,7 +41,7 @@ def test_specular_ktx2_manifest_and_loose(sky, tmp_path):
     table = json.loads(tex.key_values[KTX_ROUGHNESS_KEY].rstrip(b"\0"))
     assert table["roughness"] == [0.0, 0.25, 0.5, 0.75, 1.0] and table["lobe"] == "ggx"
     assert table["level_from_roughness"] == "level = r * 4"
-    man = json.loads((tmp_path / "spec.bakery.json").read_text())
+    man = json.loads((tmp_path / "spec.ktx2.bakery.json").read_text())
     assert man["roughness_per_level"] == table and man["bake"] == "env-specular"
     face = read_image(tmp_path / "spec.mip02.z+.exr").pixels
     assert face.shape == (4, 4, 3)
@@ -55,8 +55,8 @@ def test_recipe_and_command_give_identical_bytes(sky, tmp_path):
     run_bake("env-specular", {"environment": sky}, b,
              SpecularParams(face_size=8, lobe="blinn-phong", level_roughness=(0, 0.3, 0.6, 1)))
     assert a.read_bytes() == b.read_bytes()
-    ja = json.loads((tmp_path / "a.bakery.json").read_text())
-    jb = json.loads((tmp_path / "b.bakery.json").read_text())
+    ja = json.loads((tmp_path / "a.ktx2.bakery.json").read_text())
+    jb = json.loads((tmp_path / "b.ktx2.bakery.json").read_text())
     ja.pop("outputs"), jb.pop("outputs")
     assert ja == jb
 
@@ -109,7 +109,7 @@ def test_lut_files(tmp_path, suffix):
             assert np.all(got[..., 2] == 0)
     assert got.shape[:2] == (16, 16)
     assert np.abs(got[..., :2] - want).max() <= tol
-    man = json.loads(out.with_name(out.stem + ".bakery.json").read_text())
+    man = json.loads(out.with_name(out.name + ".bakery.json").read_text())
     assert "n·v" in man["layout"]["columns"]
 
 

@@ -177,7 +177,13 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
     }
     if quality:
         extra["quality"] = {output.name: quality}
-    written.append(write_manifest(output, bake="env-specular", inputs=inputs, params=params_to_dict(params),
+    from bakery.bakes.envmaps import _input_files
+    from bakery.io.envfiles import face_paths, is_face_pattern
+
+    src = inputs["environment"]
+    files = face_paths(src) if is_face_pattern(src) else [src]
+    written.append(write_manifest(output, bake="env-specular", inputs=_input_files(files, "environment"),
+                                  params=params_to_dict(params),
                                   outputs=written, extra=extra))
     return written
 

@@ -65,5 +65,15 @@ if env_app.registered_commands:
     app.add_typer(env_app, name="env")
 
 
-def main() -> None:
-    app()
+#: Options of the whole program; accepted anywhere on the command line (``bakery batch r.toml --quiet``).
+GLOBAL_FLAGS = ("--quiet", "-q", "--debug")
+
+
+def main(argv: list[str] | None = None) -> None:
+    import sys
+
+    args = list(sys.argv[1:] if argv is None else argv)
+    if "--" not in args:  # after "--" everything is an argument
+        front = [a for a in args if a in GLOBAL_FLAGS]
+        args = front + [a for a in args if a not in GLOBAL_FLAGS]
+    app(args=args, prog_name="bakery")

@@ -81,9 +81,10 @@ def _params_from_cli(bake, values: dict[str, Any]):
         raise BakeryError(text) from None
 
 
-def output_for(bake, source: Path | None, out: Path, many: bool) -> Path:
+def output_for(bake, source: Path | None, out_text: str, many: bool) -> Path:
     """The -o rule (see the module notes): the output file for one input."""
-    is_folder = str(out).endswith(("/", "\\")) or out.is_dir()
+    out = Path(out_text)
+    is_folder = out_text.endswith(("/", "\\")) or out.is_dir()
     if not is_folder:
         if many:
             raise BakeryError("several inputs need an output folder: end -o with / (the folder must exist)", out)
@@ -144,7 +145,8 @@ def bake_command(app: typer.Typer, command_name: str, bake_name: str, doc: str, 
             add(f"in_{role}", Annotated[Path | None, typer.Option(f"--{role.replace('_', '-')}",
                                                                   help=inputs_help[role], show_default=False)],
                 None)
-    add("output", Annotated[Path, typer.Option("-o", "--output", help=output_help, show_default=False)])
+    add("output", Annotated[str, typer.Option("-o", "--output", help=output_help, show_default=False,
+                                              metavar="PATH")])
     for spec in specs(bake.params):
         annotation, default = _option(spec)
         add(spec.name, annotation, default)

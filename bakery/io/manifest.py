@@ -52,10 +52,11 @@ MANIFEST_SUFFIX = ".bakery.json"
 
 
 def manifest_path(output: str | os.PathLike) -> Path:
-    """The manifest that belongs to an output file: ``NAME.ext`` -> ``NAME.bakery.json`` (a face pattern's
-    ``{face}`` / ``{index}`` becomes ``cube``)."""
+    """The manifest that belongs to an output file: ``NAME.ext`` -> ``NAME.ext.bakery.json``, so outputs that
+    differ only in their extension (``rock.png``, ``rock.ktx2``) keep manifests of their own; a face pattern's
+    ``{face}`` / ``{index}`` becomes ``cube``."""
     output = Path(str(output).replace("{face}", "cube").replace("{index}", "cube"))
-    return output.with_name(output.stem + MANIFEST_SUFFIX)
+    return output.with_name(output.name + MANIFEST_SUFFIX)
 
 
 def write_manifest(output: str | os.PathLike, *, bake: str, inputs: dict[str, str | os.PathLike],

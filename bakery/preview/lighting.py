@@ -163,7 +163,7 @@ def read_radiance_sh(path: str | os.PathLike) -> np.ndarray:
 def read_brdf_table(path: str | os.PathLike) -> np.ndarray:
     """A split-sum table as ``bakery env lut`` writes it (16-bit PNG, EXR or KTX2), as ``(H, W, 2)`` with
     roughness growing down the rows. The orientation comes from the KTX2 key ``bakery.brdf-lut`` or, for PNG and
-    EXR, from the manifest beside the file (``NAME.bakery.json``); without either, rows are taken to grow down."""
+    EXR, from the manifest beside the file (``NAME.ext.bakery.json``); without either, rows are taken to grow down."""
     import json
 
     path = Path(path)
@@ -181,7 +181,7 @@ def read_brdf_table(path: str | os.PathLike) -> np.ndarray:
         from bakery.io.images import read_image
 
         table = read_image(path).pixels
-        manifest = path.with_name(path.stem + ".bakery.json")
+        manifest = path.with_name(path.name + ".bakery.json")
         if manifest.is_file():
             try:
                 layout = json.loads(manifest.read_text(encoding="utf-8")).get("layout")

@@ -15,7 +15,7 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parents[1]))
 
-from bakery.io.color import linear_to_srgb, srgb_to_linear  # noqa: E402
+from bakery.color import linear_to_srgb, srgb_to_linear  # noqa: E402
 from bakery.mips import color_mips  # noqa: E402
 from bakery.relief import curvature_maps, occlusion_from_height  # noqa: E402
 from bakery.relief.examples import leaf_card  # noqa: E402

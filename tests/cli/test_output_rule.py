@@ -21,7 +21,7 @@ def test_folder_output_takes_the_input_names(tmp_path):
     out.mkdir()
     r = runner.invoke(app, ["normal", str(a), str(b), "-o", f"{out}/"])
     assert r.exit_code == 0, r.output
-    assert sorted(p.name for p in out.iterdir()) == ["h0.bakery.json", "h0.png", "h1.bakery.json", "h1.png"]
+    assert sorted(p.name for p in out.iterdir()) == ["h0.png", "h0.png.bakery.json", "h1.png", "h1.png.bakery.json"]
     assert read_image(out / "h0.png").pixels.shape == (16, 16, 3)
     # an existing folder without the trailing slash is a folder too; the bake's own extension where needed
     r = runner.invoke(app, ["env", "lut", "-o", str(out), "--size", "4"])
@@ -55,3 +55,23 @@ def test_output_folder_in_place_of_the_input_is_refused(tmp_path):
     r = runner.invoke(app, ["normal-fix", str(a), "-o", f"{tmp_path}/", "--flip-y"])
     assert r.exit_code == 2 and "also an input" in r.output
     assert a.read_bytes() == before
+
+
+def test_global_options_anywhere_and_a_missing_output_folder(tmp_path):
+    from bakery.cli import main
+
+    (a,) = _heights(tmp_path, 1)
+    import pytest
+
+    with pytest.raises(SystemExit) as info:
+        main(["normal", str(a), "-o", str(tmp_path / "n.png"), "--quiet"])
+    assert info.value.code == 0 and (tmp_path / "n.png").exists()
+    r = runner.invoke(app, ["normal", str(a), "-o", f"{tmp_path / 'nowhere'}/"])
+    assert r.exit_code == 2 and "output folder does not exist" in r.output
+
+
+def test_outputs_differing_in_extension_keep_their_own_manifests(tmp_path):
+    (a,) = _heights(tmp_path, 1)
+    assert runner.invoke(app, ["normal", str(a), "-o", str(tmp_path / "n.png")]).exit_code == 0
+    assert runner.invoke(app, ["normal", str(a), "-o", str(tmp_path / "n.ktx2"), "--ktx2-format", "bc5"]).exit_code == 0
+    assert {p.name for p in tmp_path.glob("n.*.bakery.json")} == {"n.png.bakery.json", "n.ktx2.bakery.json"}

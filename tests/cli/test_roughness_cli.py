@@ -46,7 +46,7 @@ def test_roughness_from_float_exponents(tmp_path, exponent_map):
     assert r.exit_code == 0, r.output
     got = read_image(out).pixels[..., 0]
     np.testing.assert_allclose(got, roughness_from_exponent(n), rtol=1e-6)  # the library function, exactly
-    manifest = json.loads((tmp_path / "r.bakery.json").read_text())
+    manifest = json.loads((tmp_path / "r.exr.bakery.json").read_text())
     assert manifest["params"]["source"] == "exponent" and manifest["conventions"]["transfer"] == "linear"
     # a float source written to PNG defaults to 16 bits, linear (no sRGB curve)
     r = invoke("roughness", path, "-o", tmp_path / "r.png")
@@ -158,7 +158,7 @@ def test_antialias_loose_and_ktx2(tmp_path):
     tex = read_ktx2(tmp_path / "aa.ktx2")
     assert len(tex.levels) == len(expect) == 6
     np.testing.assert_allclose(np.asarray(tex.levels[3])[..., 0], expect[3], atol=0.5 / 65535 + 1e-6)
-    manifest = json.loads((tmp_path / "aa.bakery.json").read_text())
+    manifest = json.loads((tmp_path / "aa.ktx2.bakery.json").read_text())
     assert manifest["outputs"][:2] == ["aa.ktx2", "aa.png"] and "alpha^2" in manifest["conventions"]["roughness"]
 
 

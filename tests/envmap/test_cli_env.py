@@ -59,9 +59,9 @@ def test_convert_through_every_layout(tmp_path, pano):
     smooth[14:28, 62:78] = False  # around the sun, which spreads over its neighbours
     rel = np.abs(back - orig) / orig
     assert rel[smooth].max() < 0.03  # half-float faces and two resamplings on a 32-texel cube
-    man = json.loads((tmp_path / "f.bakery.json").read_text())
+    man = json.loads((tmp_path / "f.ktx2.bakery.json").read_text())
     assert man["bake"] == "env-convert" and man["output"]["levels"] == 6
-    assert json.loads((tmp_path / "a_cube.bakery.json").read_text())["outputs"][0] == "a_x+.exr"
+    assert json.loads((tmp_path / "a_cube.exr.bakery.json").read_text())["outputs"][0] == "a_x+.exr"
 
 
 def test_convert_is_deterministic(tmp_path, pano):
@@ -95,7 +95,7 @@ def test_diffuse_outputs(tmp_path, pano):
     np.testing.assert_allclose(np.array(data["reflected_sh"]) * np.pi, data["irradiance_sh"])
     tex = read_ktx2(tmp_path / "irr.ktx2")
     assert tex.cubemap and tex.width == 8
-    assert (tmp_path / "irr.z+.exr").exists() and (tmp_path / "irr.bakery.json").exists()
+    assert (tmp_path / "irr.z+.exr").exists() and (tmp_path / "irr.json.bakery.json").exists()
     r = run("env", "diffuse", pano, "-o", tmp_path / "ex.json", "--face-size", "8", "--method", "exact",
             "--units", "irradiance")
     assert r.exit_code == 0, r.output

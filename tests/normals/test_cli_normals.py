@@ -49,7 +49,7 @@ def test_normal_defaults_follow_input_bits(tmp_path, height_png):
     assert r.exit_code == 0, r.output
     img = read_image(tmp_path / "n.png")
     assert img.bits == "16" and img.channels == 3
-    man = json.loads((tmp_path / "n.bakery.json").read_text())
+    man = json.loads((tmp_path / "n.png.bakery.json").read_text())
     assert man["bake"] == "normal" and man["conventions"]["y"] == "up"
     # default strength: relief = width / 32 -> s = 48 / 32 texels per unit
     assert man["strength_used"]["x"] == pytest.approx(1.5)
@@ -65,7 +65,7 @@ def test_cli_matches_core_and_run_bake(tmp_path, height_png):
     run_bake("normal", {"height": height_png}, tmp_path / "b.png",
              NormalParams(strength=4.0, kernel="sobel", y="down"))
     assert (tmp_path / "a.png").read_bytes() == (tmp_path / "b.png").read_bytes()
-    ma, mb = (json.loads((tmp_path / f"{k}.bakery.json").read_text()) for k in "ab")
+    ma, mb = (json.loads((tmp_path / f"{k}.png.bakery.json").read_text()) for k in "ab")
     assert ma.pop("outputs") == ["a.png"] and mb.pop("outputs") == ["b.png"]
     assert ma == mb
     # and the file holds the core's normals, Y-down applied before quantisation
@@ -79,7 +79,7 @@ def test_cli_matches_core_and_run_bake(tmp_path, height_png):
 def test_physical_strength_options(tmp_path, height_png):
     r = bake("normal", height_png, "-o", tmp_path / "n.exr", "--relief", "0.05", "--span", "2x1")
     assert r.exit_code == 0, r.output
-    man = json.loads((tmp_path / "n.bakery.json").read_text())
+    man = json.loads((tmp_path / "n.exr.bakery.json").read_text())
     used = man["strength_used"]
     assert (used["x"], used["y"]) == pytest.approx((0.05 * 48 / 2, 0.05 * 32 / 1))
     assert read_image(tmp_path / "n.exr").bits == "half"
@@ -157,7 +157,7 @@ def test_height_round_trip_and_manifest(tmp_path, height_png):
     assert bake("height", tmp_path / "d.png", "-o", tmp_path / "hd.png", "--strength", "8", "--y",
                 "down").exit_code == 0
     assert np.abs(read_image(tmp_path / "hd.png").pixels[..., 0] - back).max() <= 2 / 65535
-    fit = json.loads((tmp_path / "h.bakery.json").read_text())["fit"]
+    fit = json.loads((tmp_path / "h.png.bakery.json").read_text())["fit"]
     assert fit["scale"] == 1.0
     assert np.abs((back - fit["offset"]) - (h - h.mean())).max() < 2e-3  # stored = z + offset
 
@@ -189,7 +189,7 @@ def test_mips_command(tmp_path, height_png):
     assert sizes == [(32, 48), (16, 24), (8, 12), (4, 6), (2, 3), (1, 1)]
     length = read_image(tmp_path / "m.length.mip03.png")
     assert length.channels == 1 and length.bits == "16" and length.pixels.max() <= 1.0
-    man = json.loads((tmp_path / "m.bakery.json").read_text())
+    man = json.loads((tmp_path / "m.png.bakery.json").read_text())
     assert [lv["size"] for lv in man["levels"]][:2] == [[48, 32], [24, 16]]
     assert man["levels"][0]["mean_length"] == 1.0
 
@@ -253,5 +253,5 @@ def test_recipe_values_match_the_command_line(tmp_path, height_png):
     assert bake("normal", height_png, "-o", tmp_path / "c.png", "--bits", "16", "--span", "2",
                 "--relief", "0.1").exit_code == 0
     assert (tmp_path / "r.png").read_bytes() == (tmp_path / "c.png").read_bytes()
-    mr, mc = (json.loads((tmp_path / f"{k}.bakery.json").read_text()) for k in "rc")
+    mr, mc = (json.loads((tmp_path / f"{k}.png.bakery.json").read_text()) for k in "rc")
     assert mr["params"] == mc["params"]
