@@ -141,11 +141,27 @@ def read_height(path: Path, channel: str | None = None, stretch: bool = False):
 
 def read_normals(path: Path, y: str):
     """Unit normals (H, W, 3) (+Y up) from a file, its sample type and channel count; warns (naming the file)
-    and renormalizes when the stored vectors are not unit length."""
-    from bakery.io.images import read_image
+    and renormalizes when the stored vectors are not unit length. A 2D KTX2 file gives its level 0 (a BC5 map
+    its X and Y; Z is rebuilt)."""
+    from bakery.io.images import Image, read_image
     from bakery.normals.encode import decode_normals, unit_normals
 
-    img = read_image(path)
+    if Path(path).suffix.lower() == ".ktx2":
+        import numpy as np
+
+        from bakery.io.ktx2 import read_ktx2
+
+        tex = read_ktx2(path)
+        if tex.cubemap:
+            raise BakeryError("is a cubemap; a normal map is a 2D texture", path)
+        f = tex.format
+        bits = "half" if f.is_float else "16" if (f.block is None and f.bits == 16) else "8"
+        px = np.ascontiguousarray(tex.levels[0], dtype=np.float32)
+        if f.channels == 4 and f.block is None:
+            px = px[..., :3]  # RGBA chains store XYZ with alpha 1
+        img = Image(px, bits, "ktx2", Path(path))
+    else:
+        img = read_image(path)
     if img.channels == 1:
         raise BakeryError("has one channel: a normal map needs 2 (XY), 3 (RGB) or 4 (RGBA)", path)
     n = decode_normals(img.pixels, y=y)

@@ -49,8 +49,17 @@ def decode_normal_pixels(pixels: np.ndarray, *, green: str = "up") -> np.ndarray
 
 
 def _read(path: Path, *, color: str = "data", max_pixels: int | None = None) -> np.ndarray:
+    """Pixels of an image file, or level 0 of a 2D KTX2 texture (block-compressed ones decoded; sRGB formats
+    come back linear, as ``color="srgb"`` would give)."""
     from bakery.io.images import read_image
 
+    if Path(path).suffix.lower() == ".ktx2":
+        from bakery.io.ktx2 import read_ktx2
+
+        tex = read_ktx2(path)
+        if tex.cubemap:
+            raise BakeryError("is a cubemap; a material map is a 2D texture", path)
+        return np.ascontiguousarray(tex.levels[0], dtype=np.float32)
     return read_image(path, color=color, max_pixels=max_pixels).pixels
 
 
