@@ -254,3 +254,35 @@ def window_sums(dirs: np.ndarray, vals: np.ndarray, height: int, width: int, tab
         if progress is not None:
             progress(min(1.0, (g + len(group)) / len(starts)))
     return out
+
+
+# --------------------------------------------------------------------- associated Legendre functions
+
+
+@_compiled
+def legendre_block(lmax, ms, x, pmms, out):
+    """Fully normalised P̄_lm(x) for the orders ``ms`` (consecutive) and degrees l = ms[0]..lmax into
+    ``out (lmax − ms[0] + 1, len(ms), len(x))`` (zero where l < m), each order started from its P̄_mm in
+    ``pmms`` and run up by the recurrence in degree of Holmes & Featherstone 2002, eq. 11 (the compiled form of
+    :func:`bakery.envmap.zonal._legendre_block`)."""
+    m0 = ms[0]
+    nl = lmax - m0 + 1
+    nx = x.shape[0]
+    out[:] = 0.0
+    for b in range(ms.shape[0]):
+        m = ms[b]
+        i0 = m - m0
+        if i0 >= nl:
+            continue
+        for j in range(nx):
+            out[i0, b, j] = pmms[b, j]
+        if i0 + 1 < nl:
+            a = np.sqrt(2.0 * m + 3.0)
+            for j in range(nx):
+                out[i0 + 1, b, j] = a * x[j] * pmms[b, j]
+        for i in range(i0 + 2, nl):
+            l = m0 + i
+            a = np.sqrt((4.0 * l * l - 1.0) / (l * l - m * m))
+            bb = np.sqrt(((l - 1.0) ** 2 - m * m) / (4.0 * (l - 1.0) ** 2 - 1.0))
+            for j in range(nx):
+                out[i, b, j] = a * (x[j] * out[i - 1, b, j] - bb * out[i - 2, b, j])

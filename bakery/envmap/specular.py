@@ -24,8 +24,18 @@ Exact treatment of the sun is what makes this robust: a band-limited transform o
 everywhere, and importance sampling of it makes fireflies (the measurements in docs/envlight.md). Both parts
 share one normalisation, the convolution of a constant image under the same texel quadrature, which is
 the continuous counterpart of the brute-force normalisation Σ w Ω: a constant environment stays constant.
-A level whose lobe is too narrow for the panorama's resolution (degree above W/2) is computed by the exact
-sum over all texels instead.
+
+A level whose lobe needs a band limit above W/2 (more than the rows' Fourier transforms give without
+aliasing: a narrow lobe on a small panorama) is **split** by a smooth window of angle θc,
+``w = w·ψ(t) + w·(1 − ψ(t))`` with t = (1 − n·l)/(1 − cos θc) and ψ (:func:`near_factor`) infinitely
+differentiable, 1 at the peak and 0 beyond θc. The near part ``w ψ`` is summed texel by texel over the
+source texels within θc of each output texel only (:func:`bakery.envmap.shsums.window_sums`, compiled); the
+far part ``w (1 − ψ)`` is smooth and zero at the peak, so it is band-limited and joins the transform; θc is the
+smallest angle whose far part fits the panorama's band limit at the tolerance (measured: L θc ≈ 24-27 at
+10⁻⁴). Both parts carry the ones column, so the level is normalised by the discrete Σ w Ω like the brute
+force. The work per output texel is about 365 (L θc / 27)² texels whatever the input size. Levels whose
+band limit the panorama's rings resolve less finely than :data:`SYNTH_RINGS_PER_DEGREE` rings per degree are
+synthesised on a finer ring grid (unless the panorama was already halved for the transform).
 
 Roughness per level (written into manifests and KTX2 key/value data, ``bakery.roughness-per-level``):
 

@@ -159,6 +159,17 @@ def _legendre_block(lmax: int, ms: np.ndarray, x: np.ndarray, pmms: np.ndarray) 
     return out
 
 
+def _legendre_fast(lmax: int, ms: np.ndarray, x: np.ndarray, pmms: np.ndarray) -> np.ndarray:
+    """:func:`_legendre_block`, compiled (:func:`bakery.envmap.shsums.legendre_block`; the same recurrence,
+    about 10x faster than the numpy loop over degrees)."""
+    from bakery.envmap.shsums import legendre_block
+
+    out = np.empty((lmax - int(ms[0]) + 1, len(ms), x.size))
+    legendre_block(int(lmax), np.ascontiguousarray(ms, dtype=np.int64), np.ascontiguousarray(x, np.float64),
+                   np.ascontiguousarray(pmms, np.float64), out)
+    return out
+
+
 def _transform(even, odd, gtab, limits, x, s, h, lmax, cc, progress, fine=None):
     """Analysis and synthesis, order by order: returns per kernel the synthesised ring spectra
     (rings, L_k + 1, 2cc). ``fine = (hs, xs, ss, is_fine)`` synthesises the kernels flagged in ``is_fine``
@@ -193,13 +204,13 @@ def _transform(even, odd, gtab, limits, x, s, h, lmax, cc, progress, fine=None):
         if live.size == 0:
             break
         lo = live[0]  # rings nearer the pole carry no degree >= m0 content at double precision
-        p = _legendre_block(lmax, ms, x[lo:], pmms[:, lo:])  # (L-m0+1, B, J')
+        p = _legendre_fast(lmax, ms, x[lo:], pmms[:, lo:])  # (L-m0+1, B, J')
         pf, lo_f = None, half_f
         if m0 <= lmax_f:
             live_f = np.nonzero(pmms_f[0])[0]
             if live_f.size:
                 lo_f = live_f[0]
-                pf = _legendre_block(lmax_f, ms, xs[lo_f:], pmms_f[:, lo_f:])
+                pf = _legendre_fast(lmax_f, ms, xs[lo_f:], pmms_f[:, lo_f:])
         for i, m in enumerate(ms):
             pm = p[m - m0:, i, :]  # degrees l = m..L
             pe, po = pm[0::2], pm[1::2]  # (l + m) even / odd (views, no copies)
