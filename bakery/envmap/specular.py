@@ -35,7 +35,7 @@ smallest angle whose far part fits the panorama's band limit at the tolerance (m
 10⁻⁴). Both parts carry the ones column, so the level is normalised by the discrete Σ w Ω like the brute
 force. The work per output texel is about 365 (L θc / 27)² texels whatever the input size. Levels whose
 band limit the panorama's rings resolve less finely than :data:`SYNTH_RINGS_PER_DEGREE` rings per degree are
-synthesised on a finer ring grid (unless the panorama was already halved for the transform).
+synthesised on a finer ring grid.
 
 Roughness per level (written into manifests and KTX2 key/value data, ``bakery.roughness-per-level``):
 
@@ -543,10 +543,7 @@ def prefilter_specular(
     need = [int(SYNTH_RINGS_PER_DEGREE * (len(g) - 1)) for g in kernels]
     fine = max(need)
     fine += fine % 2
-    # (a panorama already halved for the transform keeps >= oversampling rings per degree: its lookups were
-    # measured as accurate as on finer rings, at a third of the time)
-    reduced = rest.shape[0] < h
-    rings = [fine if n_k > rest.shape[0] and not reduced else rest.shape[0] for n_k in need]
+    rings = [fine if n_k > rest.shape[0] else rest.shape[0] for n_k in need]
     grids, norms = zonal_convolve_equirect(rest, kernels, return_norms=True, rings=rings,
                                            progress=transform_progress if progress else None)
     pos = t_end
