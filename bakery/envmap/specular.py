@@ -336,12 +336,16 @@ def brightest_texels(radiance: np.ndarray, omega: np.ndarray, factor: float, max
     m = radiance[..., 0]
     for ch in range(1, radiance.shape[-1]):
         m = np.maximum(m, radiance[..., ch])
+    omega = np.asarray(omega, dtype=np.float64)
     om = np.broadcast_to(omega, m.shape)
-    mean = float(np.dot(m.reshape(-1).astype(np.float64), om.reshape(-1)) / (4 * math.pi))
+    if omega.ndim == m.ndim and omega.shape[-1] == 1:  # per-row solid angles: sum rows first (no big temporary)
+        mean = float(m.sum(axis=-1, dtype=np.float64) @ omega[..., 0].reshape(-1)) / (4 * math.pi)
+    else:
+        mean = float(np.sum(m * om, dtype=np.float64)) / (4 * math.pi)
     flat = m.reshape(-1)
     cand = np.flatnonzero(flat > factor * max(mean, 1e-30))
     if cand.size > max_count:
-        energy = flat[cand] * om.reshape(-1)[cand]
+        energy = flat[cand] * om[np.unravel_index(cand, m.shape)]
         cand = cand[np.argsort(energy, kind="stable")[::-1][:max_count]]
     return np.sort(cand)
 
@@ -532,9 +536,11 @@ def prefilter_specular(
     pos = 0.04
     t_end = pos + 0.96 * t_cost / total
     say(pos, f"levels {todo[0]}-{todo[-1]}: spherical harmonics to degree {lmax}")
-    while (rest.shape[0] % 4 == 0 and rest.shape[0] // 2 >= q.oversampling * lmax
-           and rest.shape[0] // 2 >= 2 * (size >> todo[0])):
-        rest = reduce_equirect(rest)  # exact 2 x 2 area means: fewer rings, same band limit
+    factor, rows = 1, rest.shape[0]
+    while rows % 4 == 0 and rows // 2 >= q.oversampling * lmax and rows // 2 >= 2 * (size >> todo[0]):
+        factor, rows = factor * 2, rows // 2
+    if factor > 1:  # exact area means over factor x factor blocks, in one pass: fewer rings, same band limit
+        rest = reduce_equirect(rest, factor)
 
     def transform_progress(done: int, count: int) -> None:  # order m costs about (L − m) H
         say(pos + (t_end - pos) * (1 - (1 - done / count) ** 2),
