@@ -50,9 +50,9 @@ def test_constant_environment_stays_constant(lobe):
     for k, lv in enumerate(res.levels):
         assert lv.shape == (6, 16 >> k, 16 >> k, 3) and lv.dtype == np.float32
         assert np.allclose(lv / env[0, 0], 1.0, rtol=1e-4, atol=0), (k, np.abs(lv / env[0, 0] - 1).max())
-    # GGX: both paths ran (exact sums for the narrow level, SH for the rest)
+    # GGX: both paths ran (a window summed texel by texel for the narrow level, SH for the rest)
     if lobe == "ggx":
-        assert -1 in res.band_limits and any(b > 0 for b in res.band_limits)
+        assert res.window_degrees[1] > 0 and all(b > 0 for b in res.band_limits[1:])
 
 
 def test_against_brute_force_small_sky():
@@ -62,7 +62,7 @@ def test_against_brute_force_small_sky():
         d, om = _level_dirs(res.levels[k])
         ref = sp.brute_force_prefilter(env, d, float(res.params[k]))
         m = sp.error_metrics(res.levels[k].reshape(-1, 3), ref, om)
-        # the issue's bounds: relative RMS <= 1 %, 99th percentile of per-texel error <= 3 %
+        # smoke-check bounds (common practice): relative RMS <= 1 %, 99th percentile <= 3 %
         assert m["rel_rms"].max() < 0.01 and m["p99"].max() < 0.03, (k, m)
 
 
@@ -210,7 +210,7 @@ def test_error_metrics_definition():
 
 @pytest.mark.slow
 def test_demo_sky_against_brute_force():
-    """The issue's test sky (radiance 0.15-1.2, sun of 0.5° at 2·10⁴) at 2048 x 1024 -> 256² chain, sampled
+    """The demo sky (radiance 0.15-1.2, sun of 0.5° at 2·10⁴) at 2048 x 1024 -> 256² chain, sampled
     at a few texels per level (tests/perf/bench_specular.py checks >= 2000 plus all edge texels)."""
     from bakery.samples import sky_panorama
 

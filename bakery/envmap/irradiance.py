@@ -141,25 +141,87 @@ def irradiance_cube_sh(irr_sh: np.ndarray, size: int) -> np.ndarray:
 
 
 def irradiance_exact(env: np.ndarray, kind: str, normals: np.ndarray, *, source_size: int = 64,
-                     chunk: int = 2048) -> np.ndarray:
+                     chunk: int = 2048, bright_factor: float = 16.0, max_bright: int = 4096,
+                     progress=None) -> np.ndarray:
     """Exact cosine convolution ``E(n) = integral L(w) max(0, n . w) dw`` at ``normals`` ``(..., 3)``.
 
-    The environment is first reduced to a cubemap of face ``source_size`` with the energy-keeping area
-    filter (:func:`bakery.envmap.sample.resample`), so a sun keeps its power; then every normal sums over all
-    texels. Returns float64 ``(..., C)``.
+    The brightest texels (those brighter than ``bright_factor`` times the environment's mean radiance, at most
+    ``max_bright``, the most energetic: :func:`bakery.envmap.specular.brightest_texels`, the same split the
+    specular prefilter uses) are summed exactly at their own directions and solid angles; the rest of the
+    environment is reduced to a cubemap of face ``source_size`` with the energy-keeping area filter
+    (:func:`bakery.envmap.sample.resample`) and summed over all its texels. A sun thus keeps its position
+    and its sharp terminator (normals about 90° from it), not only its power. ``progress(fraction, label)``
+    is called per block of normals (fractions rising to exactly 1.0). Returns float64 ``(..., C)``.
     """
     from bakery.envmap.sample import resample
+    from bakery.envmap.specular import brightest_texels
 
-    src = resample(env, kind, "cube", source_size) if not (kind == "cube" and env.shape[1] <= source_size) \
-        else np.asarray(env, dtype=np.float32)
+    env = np.asarray(env)
+    c = env.shape[-1]
+    if kind == "cube":
+        n0 = env.shape[1]
+        om_src = np.broadcast_to(sphere.cube_texel_solid_angles(n0, dtype=np.float64)[None], (6, n0, n0))
+        d_src = sphere.cube_directions(n0, dtype=np.float64)
+    else:
+        h, w = env.shape[:2]
+        om_src = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)[:, None] * np.ones((1, w))
+        d_src = sphere.equirect_directions(w, h, dtype=np.float64)
+    bright = brightest_texels(env, om_src, bright_factor, max_bright)
+    rest = np.array(env, dtype=np.float32)
+    rest.reshape(-1, c)[bright] = 0.0
+    b_dirs = d_src.reshape(-1, 3)[bright]
+    b_lw = env.reshape(-1, c)[bright].astype(np.float64) * om_src.reshape(-1)[bright][:, None]
+    src = rest if (kind == "cube" and env.shape[1] <= source_size) else resample(rest, kind, "cube",
+                                                                                   source_size)
     n = src.shape[1]
-    dirs = sphere.cube_directions(n, dtype=np.float64).reshape(-1, 3)
-    w = np.broadcast_to(sphere.cube_texel_solid_angles(n, dtype=np.float64)[None], (6, n, n)).reshape(-1)
-    lw = src.reshape(-1, src.shape[-1]).astype(np.float64) * w[:, None]
+    dirs = np.concatenate([sphere.cube_directions(n, dtype=np.float64).reshape(-1, 3), b_dirs])
+    w_ = np.broadcast_to(sphere.cube_texel_solid_angles(n, dtype=np.float64)[None], (6, n, n)).reshape(-1)
+    lw = np.concatenate([src.reshape(-1, c).astype(np.float64) * w_[:, None], b_lw])
     nrm = np.asarray(normals, dtype=np.float64)
     flat = nrm.reshape(-1, 3)
-    out = np.empty((flat.shape[0], lw.shape[1]), dtype=np.float64)
+    out = np.empty((flat.shape[0], c), dtype=np.float64)
     for i in range(0, flat.shape[0], chunk):
         cos = np.maximum(flat[i:i + chunk] @ dirs.T, 0.0)
         out[i:i + chunk] = cos @ lw
-    return out.reshape(nrm.shape[:-1] + (lw.shape[1],))
+        if progress is not None:
+            progress(1.0 if i + chunk >= flat.shape[0] else (i + chunk) / flat.shape[0], "exact irradiance")
+    return out.reshape(nrm.shape[:-1] + (c,))
+
+
+def sh9_error_estimate(env: np.ndarray, kind: str, *, size: int = 8, window: str = "none",
+                       threads: int | None = None) -> dict[str, float]:
+    """How poor the 9-coefficient irradiance is for this environment (pure; for a warning that suggests the
+    exact method).
+
+    The SH9 irradiance (:func:`project_sh`, :func:`irradiance_coefficients` with ``window``) is compared with
+    :func:`irradiance_exact` at the texel centres of a cubemap of face ``size`` (6 size² normals, 384 by
+    default). Returns
+
+    - ``"max_relative"``: the largest |E_SH − E| / E over those normals and the channels, where E exceeds
+      10⁻³ of its maximum (the expected worst error of an SH9 bake);
+    - ``"mean_relative"``: Σ|E_SH − E| / ΣE over the normals (worst channel; Ramamoorthi & Hanrahan 2001 call
+      about 1 % typical);
+    - ``"bright_fraction"``: the share of the environment's energy Σ L Ω (channel mean) in its brightest
+      0.1 % of solid angle (a compact sun carries most of it).
+    """
+    env = np.asarray(env)
+    normals = sphere.cube_directions(size, dtype=np.float64).reshape(-1, 3)
+    sh = eval_sh(irradiance_coefficients(project_sh(env, kind, threads=threads), window=window), normals)
+    ex = irradiance_exact(env, kind, normals, source_size=32)
+    keep = ex > 1e-3 * ex.max(axis=0, keepdims=True)
+    rel = np.where(keep, np.abs(sh - ex) / np.maximum(ex, 1e-300), 0.0)
+    mean = np.abs(sh - ex).sum(axis=0) / np.maximum(ex.sum(axis=0), 1e-300)
+    if kind == "cube":
+        n0 = env.shape[1]
+        om = np.broadcast_to(sphere.cube_texel_solid_angles(n0, dtype=np.float64)[None], (6, n0, n0))
+    else:
+        h, w = env.shape[:2]
+        om = np.broadcast_to(sphere.equirect_row_solid_angles(w, h, dtype=np.float64)[:, None], (h, w))
+    lum = env.astype(np.float64).mean(axis=-1).reshape(-1)
+    om = om.reshape(-1)
+    order = np.argsort(lum)[::-1]
+    cum = np.cumsum(om[order])
+    top = order[: int(np.searchsorted(cum, 4 * math.pi * 1e-3)) + 1]
+    total = float(lum @ om)
+    return {"max_relative": float(rel.max()), "mean_relative": float(mean.max()),
+            "bright_fraction": float((lum[top] @ om[top]) / total) if total > 0 else 0.0}

@@ -147,3 +147,142 @@ def folded_sums(flat: np.ndarray, lat: np.ndarray, *, threads: int | None = None
         for k in range(5):
             total[k] += float(lat[k, half]) * (left + LON_PARITY[k] * right)
     return total
+
+
+# ------------------------------------------------------------------------------ windowed prefilter sums
+
+@_compiled
+def _window_block(dirs, i0, i1, vals, h, w, lat, slat, clat, sphi, cphi, table, cos_c, out):
+    """Near-part sums for output directions i0 <= i < i1 (see :func:`window_sums`)."""
+    c1 = vals.shape[1]
+    theta_c = np.arccos(cos_c)
+    scale = (table.shape[0] - 1) / np.sqrt(1.0 - cos_c)
+    last = table.shape[0] - 1
+    acc = np.zeros(c1)
+    for i in range(i0, i1):
+        nx, ny, nz = dirs[i, 0], dirs[i, 1], dirs[i, 2]
+        latc = np.arcsin(min(1.0, max(-1.0, ny)))
+        phic = np.arctan2(nx, -nz)
+        slc, clc = np.sin(latc), np.cos(latc)
+        r0 = max(0, int(np.floor((0.5 - (latc + theta_c) / np.pi) * h - 0.5)))
+        r1 = min(h - 1, int(np.ceil((0.5 - (latc - theta_c) / np.pi) * h - 0.5)))
+        xc = (phic / (2 * np.pi) + 0.5) * w - 0.5
+        acc[:] = 0.0
+        a0 = a1 = a2 = a3 = 0.0
+        for r in range(r0, r1 + 1):
+            num = cos_c - slat[r] * slc
+            den = clat[r] * clc
+            if den < 1e-12:
+                if num > 0:
+                    continue
+                half = np.pi
+            else:
+                ratio = num / den
+                if ratio >= 1.0:
+                    continue
+                half = np.pi if ratio <= -1.0 else np.arccos(ratio)
+            lo = int(np.ceil(xc - half * w / (2 * np.pi)))
+            hi = int(np.floor(xc + half * w / (2 * np.pi)))
+            if hi - lo + 1 >= w:
+                lo, hi = 0, w - 1
+            sr, cr = slat[r], clat[r]
+            ax, az, ay = nx * cr, -nz * cr, ny * sr
+            base = r * w
+            x = lo
+            while x <= hi:  # the columns in at most two runs that do not wrap
+                x0 = x % w
+                x1 = min(w, x0 + (hi - x) + 1)
+                for xx in range(x0, x1):
+                    mu = ax * sphi[xx] + az * cphi[xx] + ay
+                    if mu > cos_c:
+                        u = np.sqrt(1.0 - mu) * scale
+                        k = min(int(u), last - 1)
+                        wgt = table[k] + (u - k) * (table[k + 1] - table[k])
+                        row = vals[base + xx]
+                        if c1 == 4:
+                            a0 += wgt * row[0]
+                            a1 += wgt * row[1]
+                            a2 += wgt * row[2]
+                            a3 += wgt * row[3]
+                        else:
+                            for ch in range(c1):
+                                acc[ch] += wgt * row[ch]
+                x += x1 - x0
+        if c1 == 4:
+            acc[0], acc[1], acc[2], acc[3] = a0, a1, a2, a3
+        for ch in range(c1):
+            out[i, ch] = acc[ch]
+
+
+def window_sums(dirs: np.ndarray, vals: np.ndarray, height: int, width: int, table: np.ndarray,
+                cos_c: float, *, threads: int | None = None, progress=None, chunk: int = 2048) -> np.ndarray:
+    """``Σ_t k(n·l_t) vals_t`` over the texels t of a ``width`` x ``height`` panorama whose centres lie within
+    θc = arccos(``cos_c``) of each direction n of ``dirs (N, 3)``; ``vals (H W, K)`` float64 (already times
+    each texel's solid angle); returns ``(N, K)`` float64.
+
+    The weight k, zero beyond θc, is given by ``table (M,)``: its values at u = sqrt((1 − n·l)/(1 − cos θc)) =
+    0, 1/(M−1), ..., 1 (u is about the angle over θc), interpolated linearly. Each direction visits only the rows
+    within θc of its latitude and, per row, the columns within θc (the spherical law of cosines solved for the
+    longitude), so the work is about N times the texels in one window. Each direction's sum runs in a fixed
+    order on one thread: the result does not depend on ``threads``. ``progress(fraction)`` is called after
+    each round of ``chunk`` directions per thread.
+    """
+    dirs = np.ascontiguousarray(dirs, dtype=np.float64).reshape(-1, 3)
+    vals = np.ascontiguousarray(vals, dtype=np.float64)
+    table = np.ascontiguousarray(table, dtype=np.float64)
+    h, w = int(height), int(width)
+    if vals.shape[0] != h * w:
+        raise ValueError(f"need one row of values per texel ({h * w}); got {vals.shape[0]}")
+    lat = np.pi * (0.5 - (np.arange(h) + 0.5) / h)
+    phi = 2 * np.pi * ((np.arange(w) + 0.5) / w - 0.5)
+    slat, clat, sphi, cphi = np.sin(lat), np.cos(lat), np.sin(phi), np.cos(phi)
+    out = np.zeros((dirs.shape[0], vals.shape[1]))
+    n = dirs.shape[0]
+    starts = list(range(0, n, chunk))
+    nthreads = max(1, min(threads or _CPUS, _CPUS, len(starts)))
+
+    def run(s: int) -> None:
+        _window_block(dirs, s, min(n, s + chunk), vals, h, w, lat, slat, clat, sphi, cphi, table,
+                      float(cos_c), out)
+
+    for g in range(0, len(starts), nthreads):
+        group = starts[g:g + nthreads]
+        helpers = [_pool().submit(run, s) for s in group[1:]]
+        run(group[0])
+        for f in helpers:
+            f.result()
+        if progress is not None:
+            progress(min(1.0, (g + len(group)) / len(starts)))
+    return out
+
+
+# --------------------------------------------------------------------- associated Legendre functions
+
+
+@_compiled
+def legendre_block(lmax, ms, x, pmms, out):
+    """Fully normalised P̄_lm(x) for the orders ``ms`` (consecutive) and degrees l = ms[0]..lmax into
+    ``out (lmax − ms[0] + 1, len(ms), len(x))`` (zero where l < m), each order started from its P̄_mm in
+    ``pmms`` and run up by the recurrence in degree of Holmes & Featherstone 2002, eq. 11 (the compiled form of
+    :func:`bakery.envmap.zonal._legendre_block`)."""
+    m0 = ms[0]
+    nl = lmax - m0 + 1
+    nx = x.shape[0]
+    out[:] = 0.0
+    for b in range(ms.shape[0]):
+        m = ms[b]
+        i0 = m - m0
+        if i0 >= nl:
+            continue
+        for j in range(nx):
+            out[i0, b, j] = pmms[b, j]
+        if i0 + 1 < nl:
+            a = np.sqrt(2.0 * m + 3.0)
+            for j in range(nx):
+                out[i0 + 1, b, j] = a * x[j] * pmms[b, j]
+        for i in range(i0 + 2, nl):
+            l = m0 + i
+            a = np.sqrt((4.0 * l * l - 1.0) / (l * l - m * m))
+            bb = np.sqrt(((l - 1.0) ** 2 - m * m) / (4.0 * (l - 1.0) ** 2 - 1.0))
+            for j in range(nx):
+                out[i, b, j] = a * (x[j] * out[i - 1, b, j] - bb * out[i - 2, b, j])

@@ -24,8 +24,18 @@ Exact treatment of the sun is what makes this robust: a band-limited transform o
 everywhere, and importance sampling of it makes fireflies (the measurements in docs/envlight.md). Both parts
 share one normalisation, the convolution of a constant image under the same texel quadrature, which is
 the continuous counterpart of the brute-force normalisation Σ w Ω: a constant environment stays constant.
-A level whose lobe is too narrow for the panorama's resolution (degree above W/2) is computed by the exact
-sum over all texels instead.
+
+A level whose lobe needs a band limit above W/2 (more than the rows' Fourier transforms give without
+aliasing: a narrow lobe on a small panorama) is **split** by a smooth window of angle θc,
+``w = w·ψ(t) + w·(1 − ψ(t))`` with t = (1 − n·l)/(1 − cos θc) and ψ (:func:`near_factor`) infinitely
+differentiable, 1 at the peak and 0 beyond θc. The near part ``w ψ`` is summed texel by texel over the
+source texels within θc of each output texel only (:func:`bakery.envmap.shsums.window_sums`, compiled); the
+far part ``w (1 − ψ)`` is smooth and zero at the peak, so it is band-limited and joins the transform; θc is the
+smallest angle whose far part fits the panorama's band limit at the tolerance (measured: L θc ≈ 24-27 at
+10⁻⁴). Both parts carry the ones column, so the level is normalised by the discrete Σ w Ω like the brute
+force. The work per output texel is about 365 (L θc / 27)² texels whatever the input size. Levels whose
+band limit the panorama's rings resolve less finely than :data:`SYNTH_RINGS_PER_DEGREE` rings per degree are
+synthesised on a finer ring grid.
 
 Roughness per level (written into manifests and KTX2 key/value data, ``bakery.roughness-per-level``):
 
@@ -132,9 +142,12 @@ class PrefilterResult:
     params : ndarray
         The lobe parameter per level: α for GGX, the exponent for Blinn-Phong (inf at r = 0).
     band_limits : list of int
-        SH degree used per level (0 for level 0, -1 where the exact sum was used).
+        SH degree used per level (0 for level 0).
     bright_texels : int
         Texels summed exactly.
+    window_degrees : list of float
+        Per level, the angle θc (degrees) of the window over which the lobe's peak was summed exactly, texel
+        by texel (0 where the transform took the whole lobe).
     """
 
     levels: list[np.ndarray]
@@ -143,6 +156,7 @@ class PrefilterResult:
     params: np.ndarray
     band_limits: list[int] = field(default_factory=list)
     bright_texels: int = 0
+    window_degrees: list[float] = field(default_factory=list)
 
 
 def level_roughness(levels: int, mapping: str | Sequence[float] = "linear") -> np.ndarray:
@@ -226,16 +240,120 @@ def _kernel(lobe: str, r: float, param: float, tolerance: float, cap: int) -> np
         guess = min(cap, 2 * guess)
 
 
+#: Rings per degree of the band limit a level is synthesised on before its texels are read by bicubic
+#: lookup: levels whose band limit the panorama's own rings resolve less finely get a finer ring grid of
+#: their own. (Measured on 128 x 64 - 1024 x 512 skies: at 1.2-1.5 rings per degree the lookup alone made
+#: 0.5-0.8 % errors at the 99th percentile next to sharp edges.)
+SYNTH_RINGS_PER_DEGREE = 2.5
+
+#: Entries of the near part's weight table, in u = sqrt(t) (about the angle over θc), read with linear
+#: interpolation: 16 K entries put ≥ 100 across the narrowest lobe's half width in the widest window used.
+WINDOW_TABLE = 16385
+
+
+def near_factor(t: np.ndarray) -> np.ndarray:
+    """The smooth window of the near part: 1 for t <= 0, 0 for t >= 1, ``1 / (1 + exp(1/(1−t) − 1/t))``
+    between (infinitely differentiable everywhere; common practice for smooth partitions of unity).
+
+    With t = (1 − n·l) / (1 − cos θc) (a polynomial in the direction, so smooth on the sphere), a level's
+    weight splits exactly into ``w · near_factor(t)`` (zero beyond θc: summed over the texels inside the
+    window) and ``w · (1 − near_factor(t))`` (smooth, zero at the peak: band-limited, convolved in spherical
+    harmonics)."""
+    t = np.asarray(t, dtype=np.float64)
+    out = (t <= 0).astype(np.float64)
+    m = (t > 0) & (t < 1)
+    tm = t[m]
+    with np.errstate(over="ignore"):
+        out[m] = 1 / (1 + np.exp(1 / (1 - tm) - 1 / tm))
+    return out
+
+
+def _far_weight(lobe: str, param: float, cos_c: float) -> Callable[[np.ndarray], np.ndarray]:
+    sc = 1 - cos_c
+    return lambda mu: prefilter_weight(mu, param, lobe=lobe) * (1 - near_factor((1 - np.asarray(mu)) / sc))
+
+
+def _split_kernel(lobe: str, r: float, param: float, tolerance: float, lmax: int
+                  ) -> tuple[np.ndarray, float, float]:
+    """A narrow level's weight split at the smallest window angle θc whose far part is band-limited to
+    ``lmax`` at ``tolerance`` (relative to the whole weight's integral).
+
+    Returns (g, cos θc, Z_far): the far part's normalised Legendre coefficients, the window's cosine and the
+    far part's integral 2π ∫ w_far dμ."""
+    z = _normaliser(lobe, param, r)
+
+    def far(theta: float) -> tuple[np.ndarray, float, float, int]:
+        cos_c = math.cos(theta)
+        wf = _far_weight(lobe, param, cos_c)
+        brk = list(np.linspace(0, theta, 33)[1:])
+        zf = _integral(wf, _kernel_scale(r * r), brk)
+        g = funk_hecke_coefficients(wf, 2 * lmax + 16, scale=theta / 8, upper_only=True, breaks=brk)
+        return g, cos_c, zf, _band_limit(g * (zf / z), tolerance)
+
+    # the band limit falls as θc grows (measured: L θc ≈ 24-27 at tolerance 1e-4 for GGX): bracket, then
+    # bisect in log θc to within 3 %
+    lo, hi = 0.0, min(28.0 / max(lmax, 1), 1.2)
+    best = far(hi)
+    while best[3] > lmax and hi < 1.2:
+        lo, hi = hi, min(1.2, hi * 1.5)
+        best = far(hi)
+    if lo == 0.0:
+        lo = hi / 2
+    while hi / lo > 1.03 and best[3] <= lmax:
+        mid = math.sqrt(lo * hi)
+        trial = far(mid)
+        if trial[3] <= lmax:
+            hi, best = mid, trial
+        else:
+            lo = mid
+    g, cos_c, zf, lk = best
+    return g[: min(lk, lmax) + 1], cos_c, zf
+
+
+def _window_sums(dirs: np.ndarray, img: np.ndarray, omega_row: np.ndarray, lobe: str, param: float,
+                 cos_c: float, progress: Callable[[float], None] | None = None,
+                 threads: int | None = None) -> np.ndarray:
+    """Σ_t w(n·l_t) near_factor(t) (L_t, 1) Ω_t over the panorama texels within θc of each output direction
+    (the near part of a split level), ``(N, C + 1)`` float64: the last column sums the weights alone.
+    Compiled (:func:`bakery.envmap.shsums.window_sums`): each output direction visits only its window."""
+    from bakery.envmap.shsums import window_sums
+
+    h, w, c = img.shape
+    vals = np.concatenate([img.reshape(-1, c).astype(np.float64), np.ones((h * w, 1))], axis=1)
+    vals *= np.repeat(omega_row, w)[:, None]
+    u = np.linspace(0.0, 1.0, WINDOW_TABLE)
+    t = u * u  # t = (1 − n·l) / (1 − cos θc)
+    table = prefilter_weight(1 - t * (1 - cos_c), param, lobe=lobe) * near_factor(t)
+    return window_sums(dirs.reshape(-1, 3), vals, h, w, table, cos_c, threads=threads, progress=progress)
+
+
+def brightest_texels(radiance: np.ndarray, omega: np.ndarray, factor: float, max_count: int) -> np.ndarray:
+    """Flat indices (sorted) of the texels summed exactly: those whose largest channel exceeds ``factor`` times
+    the environment's mean radiance, at most ``max_count`` of them (the most energetic).
+
+    ``radiance (..., C)`` texels with solid angles ``omega`` broadcastable to ``radiance.shape[:-1]`` (a
+    panorama's ``(H, 1)`` row solid angles or a cubemap's ``(6, N, N)``)."""
+    m = radiance[..., 0]
+    for ch in range(1, radiance.shape[-1]):
+        m = np.maximum(m, radiance[..., ch])
+    omega = np.asarray(omega, dtype=np.float64)
+    om = np.broadcast_to(omega, m.shape)
+    if omega.ndim == m.ndim and omega.shape[-1] == 1:  # per-row solid angles: sum rows first (no big temporary)
+        mean = float(m.sum(axis=-1, dtype=np.float64) @ omega[..., 0].reshape(-1)) / (4 * math.pi)
+    else:
+        mean = float(np.sum(m * om, dtype=np.float64)) / (4 * math.pi)
+    flat = m.reshape(-1)
+    cand = np.flatnonzero(flat > factor * max(mean, 1e-30))
+    if cand.size > max_count:
+        energy = flat[cand] * om[np.unravel_index(cand, m.shape)]
+        cand = cand[np.argsort(energy, kind="stable")[::-1][:max_count]]
+    return np.sort(cand)
+
+
 def _bright_split(img: np.ndarray, omega_row: np.ndarray, q: Quality) -> tuple[np.ndarray, np.ndarray]:
     """Flat indices of the texels summed exactly, and the panorama with them removed."""
-    h, w, c = img.shape
-    m = img.max(axis=2)
-    mean = float((m * omega_row[:, None]).sum() / (4 * math.pi))
-    cand = np.flatnonzero(m > q.bright_factor * max(mean, 1e-30))
-    if cand.size > q.max_bright:
-        energy = (m * omega_row[:, None]).ravel()[cand]
-        cand = cand[np.argsort(energy)[::-1][: q.max_bright]]
-    cand = np.sort(cand)
+    c = img.shape[2]
+    cand = brightest_texels(img, omega_row[:, None], q.bright_factor, q.max_bright)
     rest = img.copy()
     rest.reshape(-1, c)[cand] = 0.0
     return cand, rest
@@ -283,7 +401,8 @@ def _read_rings(grid: np.ndarray, dirs: np.ndarray, *, cubic: bool = True) -> np
 
 
 def _exact_sum(dirs: np.ndarray, src_dirs: np.ndarray, src_vals: np.ndarray, lobe: str, param: float,
-               chunk: int = 1 << 22, dtype=np.float64) -> np.ndarray:
+               chunk: int = 1 << 22, dtype=np.float64,
+               progress: Callable[[float], None] | None = None) -> np.ndarray:
     """Σ_t w(n·l_t) values_t for each output direction (accumulated in float64); values carry Ω already."""
     n = dirs.reshape(-1, 3).astype(dtype)
     out = np.zeros((n.shape[0], src_vals.shape[1]))
@@ -298,6 +417,8 @@ def _exact_sum(dirs: np.ndarray, src_dirs: np.ndarray, src_vals: np.ndarray, lob
         for s in range(0, n.shape[0], step):
             mu = n[s:s + step] @ src_t
             out[s:s + step] = prefilter_weight_inplace(mu, param, lobe=lobe) @ vals
+            if progress is not None:
+                progress(min(1.0, (s + step) / n.shape[0]))
     return out
 
 
@@ -323,7 +444,7 @@ def prefilter_specular(
     roughness: str | Sequence[float] = "linear",
     lobe: str = "ggx",
     quality: str | Quality = "final",
-    progress: Callable[[str], None] | None = None,
+    progress: Callable[[float, str], None] | None = None,
 ) -> PrefilterResult:
     """Prefilter an equirectangular HDR panorama into a specular cubemap mip chain.
 
@@ -342,7 +463,10 @@ def prefilter_specular(
     quality : {"draft", "final", "high"} or Quality
         The quality knob (:data:`QUALITY`); "final" (default) reached 0.01 % relative RMS on the demo sky.
     progress : callable, optional
-        Receives short progress messages.
+        ``progress(fraction, label)``: fractions in [0, 1] that never decrease, the last exactly 1.0, with a
+        short label; called within the steps (over the transform's orders, and per block of output texels
+        in every level). The results do not depend on it. (A callable of one parameter receives one
+        message per label instead.)
 
     Returns
     -------
@@ -362,7 +486,7 @@ def prefilter_specular(
     q = QUALITY[quality] if isinstance(quality, str) else quality
     rough = level_roughness(levels, roughness)
     params = lobe_parameter(rough, lobe)
-    say = progress or (lambda _msg: None)
+    say = _Progress(progress)
 
     if kind == "cube":  # the transform works on rings: resample to a panorama of matching resolution
         n = src.shape[1]
@@ -372,8 +496,9 @@ def prefilter_specular(
     h, w, c = img.shape
     omega_row = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)
     bright, rest = _bright_split(img, omega_row, q)
+    full_rest = rest
     out: list[np.ndarray] = [None] * levels  # type: ignore[list-item]
-    say("level 0: resampling the mirror image")
+    say(0.0, "level 0: mirror image")
     band = [0] * levels
     todo = [k for k in range(1, levels) if rough[k] > 0]
     for k in range(levels):
@@ -383,47 +508,121 @@ def prefilter_specular(
             else:
                 out[k] = resample(src, kind, "cube", size >> k, filter=q.mirror_filter)
     if not todo:
+        say(1.0, "done")
         return PrefilterResult(out, rough, lobe, params, band, int(len(bright)))
+    say(0.04, "level 0: mirror image")
     b_dirs = sphere.equirect_to_dir((bright % w + 0.5) / w, (bright // w + 0.5) / h).astype(np.float64)
     b_vals = img.reshape(-1, c)[bright].astype(np.float64) * omega_row[bright // w][:, None]
-    cap = w // 2 - 1
-    sh_levels, direct_levels, kernels = [], [], []
+    cap = w // 2 - 1  # the highest order the rows' Fourier transforms give without aliasing
+    kernels, split = [], {}  # split[k] = (cos θc, Z_far) for levels summed partly over a window
     for k in todo:
         g = _kernel(lobe, float(rough[k]), float(params[k]), q.tolerance, cap + 16)
         if len(g) - 1 > cap:
-            direct_levels.append(k)
-            band[k] = -1
-        else:
-            sh_levels.append(k)
-            kernels.append(g)
-            band[k] = len(g) - 1
+            g, cos_c, z_far = _split_kernel(lobe, float(rough[k]), float(params[k]), q.tolerance, cap)
+            split[k] = (cos_c, z_far)
+        kernels.append(g)
+        band[k] = len(g) - 1
 
-    if sh_levels:
-        say(f"levels {sh_levels[0]}-{sh_levels[-1]}: spherical-harmonic convolution up to degree "
-            f"{max(band[k] for k in sh_levels)} ({len(bright)} bright texels summed exactly)")
-        lmax = max(len(g) - 1 for g in kernels)
-        while (rest.shape[0] % 4 == 0 and rest.shape[0] // 2 >= q.oversampling * lmax
-               and rest.shape[0] // 2 >= 2 * (size >> sh_levels[0])):
-            rest = reduce_equirect(rest)  # exact 2 x 2 area means: fewer rings, same band limit
-        grids, norms = zonal_convolve_equirect(rest, kernels, return_norms=True)
-        colat = (np.arange(rest.shape[0]) + 0.5) * math.pi / rest.shape[0]
-        for k, grid, norm in zip(sh_levels, grids, norms, strict=True):
-            s = size >> k
-            dirs = sphere.cube_directions(s, dtype=np.float64)
-            vals = _read_rings(grid, dirs).astype(np.float64)
-            if len(bright):
-                z = _normaliser(lobe, float(params[k]), float(rough[k]))
-                theta = np.arccos(np.clip(dirs[..., 1], -1, 1))
-                nrm = np.interp(theta, colat, norm)
-                vals += (_exact_sum(dirs, b_dirs, b_vals, lobe, float(params[k])).reshape(vals.shape)
-                         / (z * nrm[..., None]))
-            out[k] = vals.astype(np.float32)
-    for k in direct_levels:
-        say(f"level {k}: exact sum over all {h * w} texels (lobe narrower than the panorama resolves)")
+    # progress shares: the transform by its multiply-adds, each level by its texels x (1 + summed texels/64)
+    lmax = max(len(g) - 1 for g in kernels)
+    t_cost = lmax * lmax * h / 2 * 1e-3
+    l_cost, l_win = {}, {}
+    for k in todo:
         s = size >> k
+        # texels in a window: its share of the sphere, times about 4 for the tiles' own extent
+        l_win[k] = (1 - split[k][0]) / 2 * h * w * 4 if k in split else 0.0
+        l_cost[k] = 6 * s * s * (1 + (len(bright) + l_win[k]) / 64)
+    total = t_cost + sum(l_cost.values())
+    pos = 0.04
+    t_end = pos + 0.96 * t_cost / total
+    say(pos, f"levels {todo[0]}-{todo[-1]}: spherical harmonics to degree {lmax}")
+    factor, rows = 1, rest.shape[0]
+    while rows % 4 == 0 and rows // 2 >= q.oversampling * lmax and rows // 2 >= 2 * (size >> todo[0]):
+        factor, rows = factor * 2, rows // 2
+    if factor > 1:  # exact area means over factor x factor blocks, in one pass: fewer rings, same band limit
+        rest = reduce_equirect(rest, factor)
+
+    def transform_progress(done: int, count: int) -> None:  # order m costs about (L − m) H
+        say(pos + (t_end - pos) * (1 - (1 - done / count) ** 2),
+            f"levels {todo[0]}-{todo[-1]}: spherical harmonics to degree {lmax}")
+
+    need = [int(SYNTH_RINGS_PER_DEGREE * (len(g) - 1)) for g in kernels]
+    fine = max(need)
+    fine += fine % 2
+    rings = [fine if n_k > rest.shape[0] else rest.shape[0] for n_k in need]
+    grids, norms = zonal_convolve_equirect(rest, kernels, return_norms=True, rings=rings,
+                                           progress=transform_progress if progress else None)
+    pos = t_end
+    for k, grid, norm in zip(todo, grids, norms, strict=True):
+        s = size >> k
+        end = pos + 0.96 * l_cost[k] / total
+        label = f"level {k} ({s}x{s}, r = {rough[k]:.3g})"
+        say(pos, label)
         dirs = sphere.cube_directions(s, dtype=np.float64)
-        out[k] = brute_force_prefilter(img, dirs, float(params[k]), lobe=lobe).astype(np.float32)
-    return PrefilterResult(out, rough, lobe, params, band, int(len(bright)))
+        theta = np.arccos(np.clip(dirs[..., 1], -1, 1))
+        colat = (np.arange(grid.shape[0]) + 0.5) * math.pi / grid.shape[0]
+        nrm = np.interp(theta, colat, norm)[..., None]
+        if k in split:
+            cos_c, z = split[k]
+        else:
+            z = _normaliser(lobe, float(params[k]), float(rough[k]))
+        num = _read_rings(grid, dirs).astype(np.float64) * (nrm * z)
+        den = nrm * z
+        mid = pos + (end - pos) * len(bright) / max(len(bright) + l_win[k], 1e-9)
+        if len(bright):
+            num += _exact_sum(dirs, b_dirs, b_vals, lobe, float(params[k]),
+                              progress=lambda f, a=pos, b=mid, lb=label: say(a + (b - a) * f, lb)
+                              ).reshape(num.shape)
+        if k in split:
+            near = _window_sums(dirs, full_rest, omega_row, lobe, float(params[k]), split[k][0],
+                                progress=lambda f, a=mid, b=end, lb=label: say(a + (b - a) * f, lb))
+            num += near[:, :c].reshape(num.shape)
+            den = den + near[:, c:].reshape(den.shape)
+        out[k] = (num / den).astype(np.float32)
+        pos = end
+        say(pos, label)
+    say(1.0, "done")
+    windows = [math.degrees(math.acos(split[k][0])) if k in split else 0.0 for k in range(levels)]
+    return PrefilterResult(out, rough, lobe, params, band, int(len(bright)), windows)
+
+
+class _Progress:
+    """Calls ``progress(fraction, label)`` with fractions that never decrease, clipped to [0, 1]."""
+
+    def __init__(self, callback: Callable[[float, str], None] | None):
+        self.callback = _two_argument(callback)
+        self.last = 0.0
+
+    def __call__(self, fraction: float, label: str) -> None:
+        if self.callback is None:
+            return
+        f = 1.0 if fraction >= 1.0 else min(1.0, max(self.last, float(fraction)))
+        self.last = f
+        self.callback(f, label)
+
+
+def _two_argument(callback):
+    """A progress callback of the (fraction, label) form; a callable of one parameter (the older
+    message-only form) receives ``"label (NN %)"`` lines, one per label, instead."""
+    if callback is None:
+        return None
+    import inspect
+
+    try:
+        params = [p for p in inspect.signature(callback).parameters.values()
+                  if p.kind in (p.POSITIONAL_ONLY, p.POSITIONAL_OR_KEYWORD, p.VAR_POSITIONAL)]
+    except (TypeError, ValueError):
+        return callback
+    if len(params) >= 2 or any(p.kind == p.VAR_POSITIONAL for p in params):
+        return callback
+    seen = set()
+
+    def lines(fraction: float, label: str) -> None:
+        if label not in seen:
+            seen.add(label)
+            callback(label)
+
+    return lines
 
 
 def _mirror_level(img: np.ndarray, size: int, bright: np.ndarray, omega_row: np.ndarray,
@@ -437,29 +636,27 @@ def _mirror_level(img: np.ndarray, size: int, bright: np.ndarray, omega_row: np.
     lands in the texels it covers (close to the source's area average over each texel), while a constant
     environment (no bright texels) stays exactly constant.
     """
-    import cv2
-
     h, w, c = img.shape
     mask = np.zeros(h * w, bool)
     mask[bright] = True
     mask = mask.reshape(h, w)
-    keep = (~mask).astype(np.float32)
-    rest = img * keep[..., None]
     pad = 4
-
-    def box(a):
-        a = np.concatenate([a[:, -pad:], a, a[:, :pad]], axis=1)  # wrap around in longitude
-        return cv2.boxFilter(a, -1, (2 * pad + 1, 2 * pad + 1), normalize=False,
-                             borderType=cv2.BORDER_REFLECT)[:, pad:-pad]
-
-    box_r = box(np.ascontiguousarray(rest)).reshape(h, w, c)
-    box_k = box(keep)
-    fill = np.where(box_k[..., None] > 0, box_r / np.maximum(box_k, 1e-30)[..., None], 0.0)
-    filled = rest.copy()
-    filled[mask] = fill[mask]
-    base = resample(filled.astype(np.float32), "equirect", "cube", size, filter="bilinear").reshape(-1, c)
     rows, cols = np.nonzero(mask)
-    excess = (img[mask].astype(np.float64) - filled[mask]) * omega_row[rows][:, None] / (sub * sub)
+    # the mean of the non-bright texels in the 9 x 9 box around each bright texel (columns wrap around,
+    # rows stop at the poles)
+    dr, dc = np.meshgrid(np.arange(-pad, pad + 1), np.arange(-pad, pad + 1), indexing="ij")
+    rr = rows[:, None] + dr.ravel()[None, :]
+    cc = (cols[:, None] + dc.ravel()[None, :]) % w
+    inside = (rr >= 0) & (rr < h)
+    rr = np.clip(rr, 0, h - 1)
+    keep = inside & ~mask[rr, cc]
+    nb = img[rr, cc].astype(np.float32) * keep[..., None]
+    cnt = keep.sum(axis=1)
+    fill = np.where(cnt[:, None] > 0, nb.sum(axis=1) / np.maximum(cnt, 1)[:, None], 0.0).astype(np.float32)
+    filled = img.copy()
+    filled[rows, cols] = fill
+    base = resample(filled.astype(np.float32), "equirect", "cube", size, filter="bilinear").reshape(-1, c)
+    excess = (img[rows, cols].astype(np.float64) - fill) * omega_row[rows][:, None] / (sub * sub)
     off = (np.arange(sub) + 0.5) / sub
     u = (cols[:, None, None] + off[None, None, :]) / w
     v = (rows[:, None, None] + off[None, :, None]) / h
@@ -473,16 +670,23 @@ def _mirror_level(img: np.ndarray, size: int, bright: np.ndarray, omega_row: np.
     return (base + acc / om[:, None]).reshape(6, size, size, c).astype(np.float32)
 
 
-def _normaliser(lobe: str, param: float, r: float) -> float:
-    """Z = ∫ w(n·l) dl over the sphere (2π ∫ w(μ) dμ), by composite Gauss-Legendre quadrature in θ."""
-    scale = _kernel_scale(r * r)
-    edges = np.unique(np.concatenate([np.linspace(0, math.pi / 2, 65), scale * np.geomspace(1 / 64, 16, 40)]))
-    edges = edges[edges <= math.pi / 2]
+def _integral(weight: Callable[[np.ndarray], np.ndarray], scale: float,
+              breaks: Sequence[float] = ()) -> float:
+    """2π ∫ w(μ) dμ over the upper hemisphere by composite Gauss-Legendre quadrature in θ (panels refined
+    geometrically around the peak width ``scale`` and at ``breaks``)."""
+    edges = [np.linspace(0, math.pi / 2, 65), scale * np.geomspace(1 / 64, 16, 40), np.asarray(breaks, float)]
+    edges = np.unique(np.concatenate(edges))
+    edges = edges[(edges >= 0) & (edges <= math.pi / 2)]
     x, wx = np.polynomial.legendre.leggauss(24)
     a, b = edges[:-1, None], edges[1:, None]
     th = ((b - a) / 2 * (x + 1) + a).ravel()
     wt = ((b - a) / 2 * wx).ravel()
-    return float(2 * math.pi * np.sum(prefilter_weight(np.cos(th), param, lobe=lobe) * np.sin(th) * wt))
+    return float(2 * math.pi * np.sum(weight(np.cos(th)) * np.sin(th) * wt))
+
+
+def _normaliser(lobe: str, param: float, r: float) -> float:
+    """Z = ∫ w(n·l) dl over the sphere (2π ∫ w(μ) dμ), by composite Gauss-Legendre quadrature in θ."""
+    return _integral(_weight(lobe, param), _kernel_scale(r * r))
 
 
 def brute_force_prefilter(env: np.ndarray, dirs: np.ndarray, param: float, *, lobe: str = "ggx",
