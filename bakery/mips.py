@@ -275,7 +275,9 @@ def _compiled() -> dict:
     plain numpy sRGB decode of a 4096^2 RGBA map took longer than the whole target, tests/perf/bench_mips.py)."""
     global _COLOR_KERNELS, _decode_flat, _encode_flat, _stats_flat, _horner8
     if _COLOR_KERNELS is None:
-        from numba import njit
+        from bakery.jit import numba
+
+        njit = numba().njit
 
         fast = {"nsz", "arcp", "contract", "afn", "reassoc"}  # no nnan / ninf: NaN checks must stay
 

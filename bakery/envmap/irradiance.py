@@ -35,8 +35,8 @@ References
 ----------
 .. [1] R. Ramamoorthi, P. Hanrahan, "An Efficient Representation for Irradiance Environment Maps",
    SIGGRAPH 2001, eqs. 7-9 and 12-13.
-.. [2] P.-P. Sloan, "Stupid Spherical Harmonics (SH) Tricks", Game Developers Conference 2008 (windowing SH
-   coefficients against ringing; the Hann window used here, from memory).
+.. [2] R. B. Blackman, J. W. Tukey, "The Measurement of Power Spectra", Dover, 1958 (the Hann window, here on
+   the SH bands l = 0, 1, 2 against ringing).
 """
 
 from __future__ import annotations
@@ -46,6 +46,7 @@ import math
 import numpy as np
 
 from bakery import sphere
+from bakery.errors import BakeryError
 
 #: Exact basis constants: sqrt(1/4pi), sqrt(3/4pi), sqrt(15/4pi), sqrt(5/16pi), sqrt(15/16pi).
 K0 = math.sqrt(1 / (4 * math.pi))
@@ -85,7 +86,7 @@ def project_sh(env: np.ndarray, kind: str, *, threads: int | None = None) -> np.
         return np.einsum("fijk,fijc,ij->kc", basis, env.astype(np.float64), w)
     h, w_, c = env.shape
     if w_ % 2:
-        raise ValueError(f"a panorama's width must be even (2:1); got {w_}")
+        raise BakeryError(f"a panorama's width must be even (2:1); got {w_}")
     lat = np.pi * (0.5 - (np.arange(h) + 0.5) / h)
     st, ct = np.sin(lat), np.cos(lat)
     om = sphere.equirect_row_solid_angles(w_, h, dtype=np.float64)
@@ -115,13 +116,13 @@ def project_sh(env: np.ndarray, kind: str, *, threads: int | None = None) -> np.
 
 def window_weights(window: str = "none", width: float = 3.0) -> np.ndarray:
     """Per-band weights against ringing: "none" -> 1; "hann" -> ``(1 + cos(pi l / width)) / 2`` for
-    l = 0, 1, 2 (Sloan 2008, [2]_; from memory), i.e. 1, 0.75, 0.25 at the default width 3."""
+    l = 0, 1, 2 (the Hann window, [2]_), i.e. 1, 0.75, 0.25 at the default width 3."""
     if window == "none":
         return np.ones(3)
     if window == "hann":
         l = np.arange(3)
         return np.where(l < width, 0.5 * (1 + np.cos(np.pi * l / width)), 0.0)
-    raise ValueError(f"window must be one of {WINDOWS}; got {window!r}")
+    raise BakeryError(f"window must be one of {WINDOWS}; got {window!r}")
 
 
 def irradiance_coefficients(radiance_sh: np.ndarray, *, window: str = "none") -> np.ndarray:

@@ -40,7 +40,11 @@ import threading
 from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
-from numba import njit
+
+from bakery.errors import BakeryError
+from bakery.jit import numba
+
+njit = numba().njit
 
 #: Row pairs summed in float32 before a block's total joins the float64 sum; blocks run on worker threads (a
 #: 2048-row panorama is four blocks).
@@ -121,7 +125,7 @@ def folded_sums(flat: np.ndarray, lat: np.ndarray, *, threads: int | None = None
     lat = np.ascontiguousarray(lat, dtype=np.float32)
     h, n = flat.shape
     if n % 2 or lat.shape != (5, h):
-        raise ValueError(f"need an even row length and latitude functions of shape (5, {h}); "
+        raise BakeryError(f"need an even row length and latitude functions of shape (5, {h}); "
                          f"got {n} and {lat.shape}")
     half, m = h // 2, n // 2
     starts = range(0, half, BLOCK)
@@ -232,7 +236,7 @@ def window_sums(dirs: np.ndarray, vals: np.ndarray, height: int, width: int, tab
     table = np.ascontiguousarray(table, dtype=np.float64)
     h, w = int(height), int(width)
     if vals.shape[0] != h * w:
-        raise ValueError(f"need one row of values per texel ({h * w}); got {vals.shape[0]}")
+        raise BakeryError(f"need one row of values per texel ({h * w}); got {vals.shape[0]}")
     lat = np.pi * (0.5 - (np.arange(h) + 0.5) / h)
     phi = 2 * np.pi * ((np.arange(w) + 0.5) / w - 0.5)
     slat, clat, sphi, cphi = np.sin(lat), np.cos(lat), np.sin(phi), np.cos(phi)

@@ -46,12 +46,12 @@ Roughness per level (written into manifests and KTX2 key/value data, ``bakery.ro
 
 References
 ----------
-.. [1] Karis, B. (2013). Real shading in Unreal Engine 4. SIGGRAPH course "Physically Based Shading in Theory
-   and Practice" (split sum; the prefilter listing used as baseline in tests/perf).
+.. [1] Karis, B. (2013). SIGGRAPH course notes, "Physically Based Shading in Theory
+   and Practice" (split sum; the importance-sampled prefilter used as baseline in tests/perf).
 .. [2] Walter, B., Marschner, S. R., Li, H., Torrance, K. E. (2007). Microfacet models for refraction through
    rough surfaces. EGSR.
-.. [3] Lagarde, S., de Rousiers, C. (2014). Moving Frostbite to physically based rendering. SIGGRAPH course
-   "Physically Based Shading in Theory and Practice" (roughness to mip mapping).
+.. [3] Lagarde, S., de Rousiers, C. (2014). SIGGRAPH course notes, "Physically Based Shading in Theory and
+   Practice" (roughness to mip mapping).
 .. [4] Driscoll, J. R., Healy, D. M. (1994). Computing Fourier transforms and convolutions on the 2-sphere.
    Advances in Applied Mathematics 15 (convolution as a per-degree scaling).
 """
@@ -67,6 +67,7 @@ import numpy as np
 from bakery import sphere
 from bakery.envmap.sample import reduce_equirect, resample
 from bakery.envmap.zonal import funk_hecke_coefficients, zonal_convolve_equirect
+from bakery.errors import BakeryError
 from bakery.microfacet import prefilter_weight, prefilter_weight_inplace
 
 __all__ = [
@@ -182,22 +183,22 @@ def level_roughness(levels: int, mapping: str | Sequence[float] = "linear") -> n
     [0.0, 0.25, 1.0]
     """
     if levels < 1:
-        raise ValueError(f"levels must be at least 1; got {levels}")
+        raise BakeryError(f"levels must be at least 1; got {levels}")
     if isinstance(mapping, str):
         if mapping not in MAPPINGS:
             names = ", ".join(map(repr, MAPPINGS))
-            raise ValueError(f"roughness mapping must be one of {names} or a list of values; got {mapping!r}")
+            raise BakeryError(f"roughness mapping must be one of {names} or a list of values; got {mapping!r}")
         return np.asarray(MAPPINGS[mapping](np.arange(levels, dtype=np.float64), levels), dtype=np.float64)
     r = np.asarray(list(mapping), dtype=np.float64)
     if r.shape != (levels,):
-        raise ValueError(f"the roughness list needs one value per level ({levels}); got {r.size}")
+        raise BakeryError(f"the roughness list needs one value per level ({levels}); got {r.size}")
     if not np.all(np.isfinite(r)) or np.any((r < 0) | (r > 1)):
         bad = [float(v) for v in r if not (0 <= v <= 1)]
-        raise ValueError(f"roughness values must lie in [0, 1]; got {bad}")
+        raise BakeryError(f"roughness values must lie in [0, 1]; got {bad}")
     if r[0] != 0:
-        raise ValueError(f"level 0 is the mirror image: its roughness must be 0; got {r[0]}")
+        raise BakeryError(f"level 0 is the mirror image: its roughness must be 0; got {r[0]}")
     if np.any(np.diff(r) < 0):
-        raise ValueError("roughness values must not decrease from level to level")
+        raise BakeryError("roughness values must not decrease from level to level")
     return r
 
 
@@ -211,7 +212,7 @@ def lobe_parameter(roughness, lobe: str = "ggx") -> np.ndarray:
     if lobe == "blinn-phong":
         with np.errstate(divide="ignore"):
             return np.where(a > 0, 2 / np.maximum(a, 1e-300) ** 2 - 2, np.inf)
-    raise ValueError(f"lobe must be one of {', '.join(map(repr, PREFILTER_LOBES))}; got {lobe!r}")
+    raise BakeryError(f"lobe must be one of {', '.join(map(repr, PREFILTER_LOBES))}; got {lobe!r}")
 
 
 def _kernel_scale(alpha_equiv: float) -> float:
@@ -429,10 +430,10 @@ def _check_env(env: np.ndarray) -> tuple[np.ndarray, str]:
     elif env.ndim == 3 and env.shape[1] == 2 * env.shape[0] and env.shape[0] >= 2 and env.shape[0] % 2 == 0:
         kind = "equirect"
     else:
-        raise ValueError("expected an equirectangular panorama (H, 2H, C) with H even or a cubemap "
+        raise BakeryError("expected an equirectangular panorama (H, 2H, C) with H even or a cubemap "
                          f"(6, N, N, C); got {env.shape}")
     if not np.all(np.isfinite(env)):
-        raise ValueError("the environment holds NaN or Inf values")
+        raise BakeryError("the environment holds NaN or Inf values")
     return env.astype(np.float32, copy=False), kind
 
 
@@ -474,15 +475,15 @@ def prefilter_specular(
     """
     src, kind = _check_env(env)
     if size < 1 or size & (size - 1):
-        raise ValueError(f"the face size must be a power of two; got {size}")
+        raise BakeryError(f"the face size must be a power of two; got {size}")
     full = size.bit_length()
     levels = full if levels is None else int(levels)
     if not 1 <= levels <= full:
-        raise ValueError(f"a {size} x {size} chain has at most {full} levels; got {levels}")
+        raise BakeryError(f"a {size} x {size} chain has at most {full} levels; got {levels}")
     if lobe not in PREFILTER_LOBES:
-        raise ValueError(f"lobe must be one of {', '.join(map(repr, PREFILTER_LOBES))}; got {lobe!r}")
+        raise BakeryError(f"lobe must be one of {', '.join(map(repr, PREFILTER_LOBES))}; got {lobe!r}")
     if isinstance(quality, str) and quality not in QUALITY:
-        raise ValueError(f"quality must be one of {', '.join(map(repr, QUALITY))}; got {quality!r}")
+        raise BakeryError(f"quality must be one of {', '.join(map(repr, QUALITY))}; got {quality!r}")
     q = QUALITY[quality] if isinstance(quality, str) else quality
     rough = level_roughness(levels, roughness)
     params = lobe_parameter(rough, lobe)

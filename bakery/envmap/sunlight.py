@@ -41,7 +41,7 @@ References
 .. [1] Debevec, P. (2005). A median cut algorithm for light probe sampling. SIGGRAPH 2005 poster.
 .. [2] Ramamoorthi, R., Hanrahan, P. (2001). An efficient representation for irradiance environment maps.
    SIGGRAPH (SH irradiance; units of the coefficients).
-.. [3] Karis, B. (2013). Real shading in Unreal Engine 4. SIGGRAPH course "Physically Based Shading in Theory
+.. [3] Karis, B. (2013). SIGGRAPH course notes, "Physically Based Shading in Theory
    and Practice" (the prefiltered quantity).
 """
 
@@ -53,6 +53,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from bakery import sphere
+from bakery.errors import BakeryError
 
 __all__ = ["Light", "add_light_to_level", "disc_points", "find_lights", "light_irradiance",
            "light_radiance_sh", "light_specular"]
@@ -99,11 +100,11 @@ class Light:
             d = np.asarray(data["direction"], dtype=np.float64)
             rho = math.radians(float(data["angular_radius_deg"]))
         except (KeyError, TypeError, ValueError) as exc:
-            raise ValueError(f"a light needs 'direction' [x, y, z] and 'angular_radius_deg'; {exc}") from None
+            raise BakeryError(f"a light needs 'direction' [x, y, z] and 'angular_radius_deg'; {exc}") from None
         if d.shape != (3,) or not np.all(np.isfinite(d)) or np.linalg.norm(d) == 0:
-            raise ValueError(f"light 'direction' must be three finite numbers, not all 0; got {data['direction']}")
+            raise BakeryError(f"light 'direction' must be three finite numbers, not all 0; got {data['direction']}")
         if not 0 < rho < math.pi / 2:
-            raise ValueError(f"light 'angular_radius_deg' must lie in (0, 90); got {data['angular_radius_deg']}")
+            raise BakeryError(f"light 'angular_radius_deg' must lie in (0, 90); got {data['angular_radius_deg']}")
         d = d / np.linalg.norm(d)
         area = math.pi * math.sin(rho) ** 2
         if "radiance" in data:
@@ -113,9 +114,9 @@ class Light:
             irr = np.asarray(data["irradiance"], dtype=np.float64)
             rad = irr / area
         else:
-            raise ValueError("a light needs 'radiance' or 'irradiance'")
+            raise BakeryError("a light needs 'radiance' or 'irradiance'")
         if rad.ndim != 1 or rad.shape != irr.shape or not np.all(np.isfinite(rad)):
-            raise ValueError("light 'radiance' and 'irradiance' must be lists of finite numbers of one length")
+            raise BakeryError("light 'radiance' and 'irradiance' must be lists of finite numbers of one length")
         return cls(tuple(d.tolist()), rho, tuple(rad.tolist()), tuple(irr.tolist()),
                    2 * math.pi * (1 - math.cos(rho)))
 
@@ -213,9 +214,9 @@ def find_lights(env: np.ndarray, *, max_lights: int = 4, contrast: float = 16.0,
 
     env = np.asarray(env, dtype=np.float32)
     if env.ndim != 3 or env.shape[1] != 2 * env.shape[0]:
-        raise ValueError(f"expected an equirectangular panorama (H, 2H, C); got {env.shape}")
+        raise BakeryError(f"expected an equirectangular panorama (H, 2H, C); got {env.shape}")
     if not np.all(np.isfinite(env)):
-        raise ValueError("the panorama holds NaN or Inf values")
+        raise BakeryError("the panorama holds NaN or Inf values")
     h, w, c = env.shape
     om_row = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)
     lum = env.astype(np.float64).mean(axis=2)
@@ -336,7 +337,7 @@ def light_specular(light: Light, dirs: np.ndarray, roughness: float, *, lobe: st
     from bakery.microfacet import prefilter_weight
 
     if not roughness > 0:
-        raise ValueError("light_specular needs roughness > 0 (use add_light_to_level for the mirror level)")
+        raise BakeryError("light_specular needs roughness > 0 (use add_light_to_level for the mirror level)")
     param = float(lobe_parameter(roughness, lobe))
     z = _normaliser(lobe, param, float(roughness))
     pts, wts = disc_points(light, 12, 32)

@@ -34,6 +34,8 @@ from collections.abc import Callable, Sequence
 
 import numpy as np
 
+from bakery.errors import BakeryError
+
 __all__ = ["funk_hecke_coefficients", "legendre_p_normalized", "zonal_convolve_equirect"]
 
 
@@ -77,7 +79,7 @@ def funk_hecke_coefficients(weight: Callable[[np.ndarray], np.ndarray], lmax: in
     p0, p1 = np.ones_like(mu), mu
     g[0] = f.sum()
     if g[0] <= 0 or not math.isfinite(g[0]):
-        raise ValueError("the weight must have a positive, finite integral")
+        raise BakeryError("the weight must have a positive, finite integral")
     if lmax >= 1:
         g[1] = f @ p1
     for n in range(2, lmax + 1):
@@ -286,11 +288,11 @@ def zonal_convolve_equirect(image: np.ndarray, kernels: Sequence[np.ndarray], *,
         img = img.astype(np.float64)
     h, w, c = img.shape
     if h % 2:
-        raise ValueError("the panorama height must be even")
+        raise BakeryError("the panorama height must be even")
     kernels = [np.asarray(g, dtype=np.float64) for g in kernels]
     lmax = max(len(g) for g in kernels) - 1
     if lmax >= w // 2:
-        raise ValueError(f"band limit {lmax} needs a panorama at least {2 * (lmax + 1)} texels wide")
+        raise BakeryError(f"band limit {lmax} needs a panorama at least {2 * (lmax + 1)} texels wide")
     nk = len(kernels)
     if widths is None:
         widths = [min(w, 2 * max(8, 2 * len(g))) for g in kernels]
@@ -324,7 +326,7 @@ def zonal_convolve_equirect(image: np.ndarray, kernels: Sequence[np.ndarray], *,
         rings = [int(r) for r in rings]
         others = {r for r in rings if r != h}
         if len(others) > 1 or any(r < 2 or r % 2 for r in rings):
-            raise ValueError(f"rings must be even, the input's {h} or one other count; got {rings}")
+            raise BakeryError(f"rings must be even, the input's {h} or one other count; got {rings}")
         if others:
             hs = others.pop()
             xs, ss, _ = _ring_geometry(hs)

@@ -615,23 +615,23 @@ def mip_count(size: int) -> int:
 def check_levels(levels: list[np.ndarray], cubemap: bool) -> tuple[int, int]:
     """(width, height) of level 0 after checking the chain's shapes (each level half the one before)."""
     if not levels:
-        raise ValueError("a KTX2 texture needs at least one level")
+        raise BakeryError("a KTX2 texture needs at least one level")
     first = levels[0]
     if cubemap:
         if first.ndim != 4 or first.shape[0] != 6 or first.shape[1] != first.shape[2]:
-            raise ValueError(f"cubemap levels must be (6, N, N, C); got {first.shape}")
+            raise BakeryError(f"cubemap levels must be (6, N, N, C); got {first.shape}")
         h, w = first.shape[1], first.shape[2]
     else:
         if first.ndim != 3:
-            raise ValueError(f"2D levels must be (H, W, C); got {first.shape}")
+            raise BakeryError(f"2D levels must be (H, W, C); got {first.shape}")
         h, w = first.shape[0], first.shape[1]
     for i, lv in enumerate(levels):
         want = (max(1, h >> i), max(1, w >> i))
         got = lv.shape[1:3] if cubemap else lv.shape[:2]
         if tuple(got) != want or lv.ndim != first.ndim:
-            raise ValueError(f"level {i} is {lv.shape}; expected size {want}")
+            raise BakeryError(f"level {i} is {lv.shape}; expected size {want}")
     if len(levels) > mip_count(max(h, w)):
-        raise ValueError("more levels than a full mip chain")
+        raise BakeryError("more levels than a full mip chain")
     return int(w), int(h)
 
 

@@ -262,7 +262,9 @@ def _kernels() -> dict:
     """The sweeps compiled by numba (imported here, on first use: it costs ~0.4 s)."""
     global _KERNELS, _atan, _bent_terms
     if _KERNELS is None:
-        from numba import njit
+        from bakery.jit import numba
+
+        njit = numba().njit
 
         def jit(fn, **kw):
             try:

@@ -156,7 +156,7 @@ def test_sharp_lobe_sh9_error_and_exact():
 
 
 def test_hann_window_reduces_ringing_behind_a_light():
-    # Sloan 2008 (from memory): windowing the bands damps ringing; behind max(0, z) SH9 goes negative
+    # the Hann window (Blackman & Tukey 1958) on the bands damps ringing; behind max(0, z) SH9 goes negative
     # (-0.016361, references sheet 10) where the exact irradiance is 0
     env = pano(lambda d: np.maximum(0, d[..., 2]))
     coeffs = I.project_sh(env, "equirect")

@@ -1,7 +1,7 @@
 """The specular prefilter at any input and output size, against a brute-force sum written here.
 
-The quantity (Karis 2013, "Real Shading in Unreal Engine 4", SIGGRAPH course "Physically Based Shading in
-Theory and Practice", split sum with v = r = n):
+The quantity (Karis 2013, SIGGRAPH course notes, "Physically Based Shading in Theory and Practice", split
+sum with v = r = n):
 
     P(n) = Σ_t L_t w_t Ω_t / Σ_t w_t Ω_t,   w = max(n·l, 0) D(h),   h = normalize(n + l),
 

@@ -17,7 +17,7 @@ beside the same metric of the exact level (the reference at the same texel pairs
 Methods:
 - bakery at quality draft / final / high;
 - the pinned baseline: per-texel GGX importance sampling with 1024 Hammersley samples, no source mip filtering,
-  one bilinear lookup per sample, n·l weighting (the PrefilterEnvMap listing of Karis 2013), at the same output
+  one bilinear lookup per sample, n·l weighting (the importance-sampled prefilter of Karis 2013), at the same output
   size (tests/perf/karis_baseline.py).
 
 Floor: one cv2.remap bilinear lookup per output texel of the whole chain, measured in the same run.
