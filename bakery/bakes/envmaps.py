@@ -216,6 +216,11 @@ def diffuse_files(inputs: dict[str, Path], output: Path, params: DiffuseParams) 
     return [output, ktx_path, *face_paths(faces_pattern), manifest_path(output)]
 
 
+#: The expected worst SH9 error above which ``env-diffuse --method sh`` warns (common practice: SH9 irradiance
+#: is called accurate to about 1 % on average, Ramamoorthi & Hanrahan 2001; 5 % at the worst texel is chosen here).
+SH9_WARN = 0.05
+
+
 def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, progress: Progress) -> list[Path]:
     import numpy as np
 
@@ -233,14 +238,39 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
     env = read_environment(src, layout=params.input_layout, repair=params.repair)
     check_distinct([ktx_path, *face_paths(faces_pattern)], env.paths)
     px = env.pixels[..., :3] if env.pixels.shape[-1] >= 3 else env.pixels
+    lights = []
+    if inputs.get("lights") is not None:
+        lights = read_lights(inputs["lights"])
+        if px.shape[-1] != 3:
+            raise BakeryError("lights go with an RGB environment", inputs["lights"])
+    progress(0.05, "spherical harmonics")
     radiance = irr.project_sh(px, env.kind, threads=bake_threads())
+    if lights:  # directional lights taken out by env-lights go back in (their radiance in SH, R&H 2001 basis)
+        from bakery.envmap.sunlight import light_irradiance, light_radiance_sh
+
+        radiance = radiance + sum(light_radiance_sh(lt) for lt in lights)
     plain = irr.irradiance_coefficients(radiance)
     windowed = irr.irradiance_coefficients(radiance, window=params.window)
+    expected = None
     if params.method == "sh":
         cube = irr.irradiance_cube_sh(windowed, params.face_size)
+        if not lights:
+            expected = irr.sh9_error_estimate(px, env.kind, window=params.window, threads=bake_threads())
+            if expected["max_relative"] > SH9_WARN:
+                import warnings
+
+                from bakery.errors import BakeryWarning
+
+                worst, mean = 100 * expected["max_relative"], 100 * expected["mean_relative"]
+                warnings.warn(f"{src}: 9 SH coefficients miss this environment's compact bright light: up to "
+                              f"{worst:.0f} % error (mean {mean:.1f} %); use --method exact (or take the sun out "
+                              "with bakery env lights)", BakeryWarning, stacklevel=2)
     else:
-        cube = irr.irradiance_exact(px, env.kind, sphere.cube_directions(params.face_size, dtype=np.float64)
-                                    ).astype(np.float32)
+        dirs = sphere.cube_directions(params.face_size, dtype=np.float64)
+        cube = irr.irradiance_exact(px, env.kind, dirs, progress=lambda f, w: progress(0.1 + 0.8 * f, w))
+        if lights:
+            cube = cube + sum(light_irradiance(lt, dirs) for lt in lights)
+        cube = cube.astype(np.float32)
     if params.units == "reflected":
         cube = cube / np.float32(np.pi)
     negative = int(np.count_nonzero(cube < 0))
@@ -266,7 +296,10 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
                     "units": "E/pi (reflected radiance)" if params.units == "reflected" else "E (irradiance)",
                     "clamped_negative_texels": negative},
         "conventions": CONVENTIONS,
+        "lights_added": len(lights),
     }
+    if expected is not None:
+        data["sh9_expected_error"] = {k: round(float(v), 6) for k, v in expected.items()}
     json_path = write_json(output, data)
     written = [json_path]
     quality: dict = {}
@@ -275,10 +308,103 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
                                  key_values={**KTX_KEYS, "bakery.units": data["cubemap"]["units"]})
     written += write_environment(faces_pattern, cube, "cube", bits="half")
     extra = {"conventions": CONVENTIONS, **({"quality": quality} if quality else {})}
-    man = write_manifest(output, bake="env-diffuse", inputs=_input_files(env.paths, "environment"),
+    manifest_inputs = _input_files(env.paths, "environment")
+    if inputs.get("lights") is not None:
+        manifest_inputs["lights"] = inputs["lights"]
+    man = write_manifest(output, bake="env-diffuse", inputs=manifest_inputs,
                          params=params_to_dict(params), outputs=written, extra=extra)
     return written + [man]
 
 
 register(Bake("env-diffuse", "diffuse irradiance: SH9 coefficients (JSON) and a small irradiance cubemap",
-              ("environment",), DiffuseParams, diffuse_files, run_diffuse, output_suffix=".json"))
+              ("environment", "lights?"), DiffuseParams, diffuse_files, run_diffuse, output_suffix=".json"))
+
+
+# ------------------------------------------------------------------------------------------------- lights
+
+
+@dataclass(frozen=True)
+class LightsParams(Params):
+    """Parameters of ``env-lights``: the dominant compact lights of an HDR panorama (a sun) as directional
+    lights, and the panorama without them."""
+
+    max_lights: int = param(4, "The most lights to take out.", low=1, high=16)
+    contrast: float = param(16.0, "A light's texels are at least this many times the median sky radiance.",
+                            low=1.0, low_open=True, high=1e9)
+    max_radius: float = param(5.0, "The widest light taken out; wider bright regions stay in the environment.",
+                              unit="degrees", low=0.01, high=45.0)
+    min_share: float = param(0.02, "A light must hold at least this fraction of the environment's energy.",
+                             low=0.0, high=1.0)
+    input_layout: ImageLayout | None = INPUT_LAYOUT
+    repair: bool = REPAIR
+
+
+def lights_outputs(inputs: dict[str, Path], output: Path, params: LightsParams) -> list[Path]:
+    from bakery.io.manifest import manifest_path
+
+    if output.suffix.lower() != ".json":
+        raise BakeryError("the lights output must be a .json file (the environment without them goes beside it, "
+                          "NAME.rest.exr)", output)
+    return [output, rest_path(output), manifest_path(output)]
+
+
+def rest_path(output: Path) -> Path:
+    """The environment without its lights, beside the lights file: ``NAME.json`` -> ``NAME.rest.exr``."""
+    return output.with_name(output.stem + ".rest.exr")
+
+
+def run_lights(inputs: dict[str, Path], output: Path, params: LightsParams, progress: Progress) -> list[Path]:
+    import numpy as np
+
+    from bakery.envmap.sample import resample
+    from bakery.envmap.sunlight import find_lights
+    from bakery.io.envfiles import read_environment
+    from bakery.io.manifest import write_json, write_manifest
+
+    src = inputs["environment"]
+    env = read_environment(src, layout=params.input_layout, repair=params.repair)
+    px = env.pixels[..., :3]
+    if env.kind == "cube":  # the finder works on a panorama of the cube's resolution
+        px = resample(px, "cube", "equirect", 4 * px.shape[1])
+    progress(0.1, "finding lights")
+    lights, rest = find_lights(np.ascontiguousarray(px, np.float32), max_lights=params.max_lights,
+                               contrast=params.contrast, max_radius_deg=params.max_radius,
+                               min_share=params.min_share)
+    progress(0.8, "writing")
+    data = {
+        "lights": [lt.to_dict() for lt in lights],
+        "frame": CONVENTIONS["directions"] + "; direction points from the surface toward the light",
+        "units": "radiance of the disc and irradiance at normal incidence E = L * solid angle, per channel, in the "
+                 "units of the environment (the irradiance_sh of bakery env diffuse)",
+        "environment_without_lights": rest_path(output).name,
+    }
+    json_path = write_json(output, data)
+    from bakery.io.images import write_image
+
+    rest_file = write_image(rest_path(output), np.ascontiguousarray(rest, np.float32), bits="float")
+    man = write_manifest(output, bake="env-lights", inputs=_input_files(env.paths, "environment"),
+                         params=params_to_dict(params), outputs=[json_path, rest_file],
+                         extra={"conventions": CONVENTIONS, "lights_found": len(lights)})
+    progress(1.0, "done")
+    return [json_path, rest_file, man]
+
+
+def read_lights(path: Path) -> list:
+    """The lights of a file written by ``env-lights`` (one-line errors for malformed files)."""
+    import json
+
+    from bakery.envmap.sunlight import Light
+
+    try:
+        data = json.loads(Path(path).read_text(encoding="utf-8"))
+        items = data["lights"]
+        if not isinstance(items, list):
+            raise TypeError("'lights' is not a list")
+        return [Light.from_dict(item) for item in items]
+    except (OSError, ValueError, KeyError, TypeError) as exc:
+        raise BakeryError(f"not a lights file of bakery env lights ({exc})", path) from None
+
+
+register(Bake("env-lights", "the dominant compact lights of an HDR environment (a sun) as directional lights, and "
+              "the environment without them", ("environment",), LightsParams, lights_outputs, run_lights,
+              output_suffix=".json"))

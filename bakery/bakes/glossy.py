@@ -135,13 +135,19 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
     rough = params.level_roughness if isinstance(params.level_roughness, str) else list(params.level_roughness)
     levels = params.levels or params.face_size.bit_length()
     r = level_roughness(levels, rough)
-    steps = iter(range(1, 2 * levels + 2))
+    lights = []
+    if inputs.get("lights") is not None:
+        from bakery.bakes.envmaps import read_lights
 
-    def say(message: str) -> None:  # the prefilter reports a line per step; two steps per level
-        progress(min(1.0, next(steps, 2 * levels) / (2 * levels)), message)
-
+        lights = read_lights(inputs["lights"])
     res = prefilter_specular(env, params.face_size, levels=levels, roughness=r.tolist(), lobe=params.lobe,
-                             quality=params.quality, progress=say)
+                             quality=params.quality, progress=lambda f, w: progress(0.95 * f, w))
+    if lights:  # directional lights taken out of the environment by env-lights go back in, per level
+        from bakery.envmap.sunlight import add_light_to_level
+
+        for light in lights:
+            res.levels[:] = [add_light_to_level(lv, light, float(rk), lobe=params.lobe)
+                             for lv, rk in zip(res.levels, res.roughness, strict=True)]
     progress(1.0, "done")
     mapping = rough if isinstance(rough, str) else "list"
     table = {
@@ -170,6 +176,8 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
     extra = {
         "roughness_per_level": table,
         "method": {"quality": params.quality, "sh_band_limit_per_level": res.band_limits,
+                   "exact_window_degrees_per_level": [round(float(v), 6) for v in res.window_degrees],
+                   "lights_added": len(lights),
                    "bright_texels_summed_exactly": res.bright_texels},
         "conventions": {"faces": "+X,-X,+Y,-Y,+Z,-Z (Vulkan face selection table; bakery z = -table z)",
                         "quantity": "P(n) = ∫L w / ∫w, w = max(n·l,0) D(normalize(n+l)), v = r = n",
@@ -182,7 +190,10 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
 
     src = inputs["environment"]
     files = face_paths(src) if is_face_pattern(src) else [src]
-    written.append(write_manifest(output, bake="env-specular", inputs=_input_files(files, "environment"),
+    manifest_inputs = _input_files(files, "environment")
+    if inputs.get("lights") is not None:
+        manifest_inputs["lights"] = inputs["lights"]
+    written.append(write_manifest(output, bake="env-specular", inputs=manifest_inputs,
                                   params=params_to_dict(params),
                                   outputs=written, extra=extra))
     return written
@@ -249,6 +260,6 @@ def _lut_layout(params: LutParams) -> str:
 
 
 register(Bake("env-specular", "specular prefiltered cubemap mip chain (split sum) from an HDR environment",
-              ("environment",), SpecularParams, specular_outputs, _run_specular, output_suffix=".ktx2"))
+              ("environment", "lights?"), SpecularParams, specular_outputs, _run_specular, output_suffix=".ktx2"))
 register(Bake("env-lut", "split-sum BRDF lookup table (scale and bias of F0 over n·v and roughness)",
               (), LutParams, lut_outputs, _run_lut))
