@@ -3,9 +3,9 @@ definitions of premultiplied filtering and alpha coverage."""
 
 import numpy as np
 import pytest
-from bakery.color import linear_to_srgb, srgb_to_linear
 
 from bakery import BakeryError, BakeryWarning
+from bakery.color import linear_to_srgb, srgb_to_linear
 from bakery.mips import _compiled, color_mips, coverage, downsample, mip_size
 from bakery.relief.examples import leaf_card
 

@@ -154,6 +154,11 @@ SPAN = param((), "Physical size the texture covers: WIDTH or WIDTHxHEIGHT, in th
 KERNEL = param("scharr", "Derivative kernel (Scharr 2000, Sobel in Duda & Hart 1973, Prewitt 1970, central "
                "differences).")
 
+HeightChannel = Literal["r", "g", "b", "a", "luminance"]
+HEIGHT_CHANNEL = param(None, "Which channel of a colour file holds the heights (luminance: BT.709 weights); "
+                       "default: gray files, or colour files with equal channels.")
+STRETCH = param(False, "Use the data's min..max as the full height range instead of the file's nominal range.")
+
 
 def check_strength(p) -> None:
     if p.strength is not None and (p.relief is not None or p.span):
@@ -176,11 +181,8 @@ class NormalParams(Params):
     y: YConvention = y_param()
     channels: Literal[2, 3] = param(3, "Channels written: 3 (XYZ) or 2 (XY; readers rebuild Z; .tif or .exr).")
     bits: Bits | None = bits_param()
-    channel: Literal["r", "g", "b", "a", "luminance"] | None = param(
-        None, "Which channel of a colour file holds the heights (luminance: BT.709 weights); default: gray "
-        "files, or colour files with equal channels.")
-    stretch: bool = param(False, "Use the data's min..max as the full height range instead of the file's "
-                          "nominal range.")
+    channel: HeightChannel | None = HEIGHT_CHANNEL
+    stretch: bool = STRETCH
 
     def check(self) -> None:
         check_strength(self)

@@ -16,7 +16,8 @@ BAKE_COMMANDS = {
     "normal": "bakery normal", "height": "bakery height", "blend": "bakery blend",
     "normal-mips": "bakery normal-mips", "normal-fix": "bakery normal-fix", "roughness": "bakery roughness",
     "antialias": "bakery antialias", "env-convert": "bakery env convert", "env-diffuse": "bakery env diffuse",
-    "env-specular": "bakery env specular", "env-lut": "bakery env lut",
+    "env-specular": "bakery env specular", "env-lut": "bakery env lut", "occlusion": "bakery occlusion",
+    "curvature": "bakery curvature", "mips": "bakery mips",
 }
 
 
