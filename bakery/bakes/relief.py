@@ -296,7 +296,11 @@ def _ktx2_format(p: ColorMipsParams, transfer: str, in_bits: str, output: Path):
 
 def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, progress: Progress) -> list[Path]:
     import contextlib
+    import warnings
 
+    import numpy as np
+
+    from bakery.errors import BakeryWarning
     from bakery.io import atomic_output, read_image, write_image, write_manifest
     from bakery.mips import color_mips, coverage
 
@@ -318,6 +322,11 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
                        alpha_cutoff=p.alpha_cutoff if p.coverage else None, threads=bake_threads())
     progress(0.6, "writing")
     paths = color_level_paths(output, len(chain), p.loose)
+    if bits in ("8", "16") and (not ktx2 or p.loose):
+        over = int(np.count_nonzero(chain[0] > 1.0))
+        if over:
+            warnings.warn(f"{src}: {over} sample(s) above 1 are clipped in the {bits}-bit level files; write "
+                          ".exr to keep them", BakeryWarning, stacklevel=2)
     images = paths[1:] if ktx2 else paths
     report = None
     with contextlib.ExitStack() as stack:  # every file renamed into place only after all were written

@@ -183,3 +183,14 @@ def test_mips_refuses_normal_maps_and_coverage_without_alpha(tmp_path, height_pn
     one_error(bake("mips", height_png, "-o", tmp_path / "m.png", "--coverage"), "h.png", "alpha")
     assert not (tmp_path / "m.png").exists()
     one_error(bake("mips", height_png, "-o", tmp_path / "m.png", "--loose"), "--loose")
+
+
+def test_mips_of_linear_float_colour_warns_where_integer_files_clip(tmp_path):
+    # Float files are linear (DEVELOPERS.md, data conventions); 16-bit PNG holds [0, 1] only.
+    hdr = np.full((8, 8, 3), 2.0, np.float32)
+    src = write_image(tmp_path / "hdr.exr", hdr, bits="float")
+    r = bake("mips", src, "-o", tmp_path / "hdr_m.png")
+    assert r.exit_code == 0 and "warning:" in r.output and "clipped" in r.output, r.output
+    r = bake("mips", src, "-o", tmp_path / "hdr_m.exr")
+    assert r.exit_code == 0 and "warning:" not in r.output, r.output
+    assert read_image(tmp_path / "hdr_m.mip01.exr").pixels == pytest.approx(2.0)  # averages of a constant
