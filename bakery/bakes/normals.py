@@ -77,11 +77,12 @@ def resolve_strength(shape: tuple[int, int], strength: float | None, relief: flo
     return strength_from_size(shape, relief, width, tall)
 
 
-def read_height(path: Path, channel: str | None = None, stretch: bool = False):
+def read_height(path: Path, channel: str | None = None, stretch: bool = False, *,
+                flat: str = "the normal map is flat"):
     """A height map from a file: (H, W) float32 and the file's sample type.
 
     Gray files, and colour files whose colour channels are equal, are read as gray; other colour files need
-    ``channel``. Warns when the heights are constant (the normal map will be flat).
+    ``channel``. Warns when the heights are constant (``flat`` says what that makes of the result).
     """
     import numpy as np
 
@@ -114,7 +115,7 @@ def read_height(path: Path, channel: str | None = None, stretch: bool = False):
     h = np.ascontiguousarray(h, dtype=np.float32)
     lo, hi = float(h.min()), float(h.max())
     if lo == hi:
-        warnings.warn(f"{path}: the height map is constant ({lo:.6g} everywhere): the normal map is flat",
+        warnings.warn(f"{path}: the height map is constant ({lo:.6g} everywhere): {flat}",
                       BakeryWarning, stacklevel=2)
     elif stretch:
         h -= np.float32(lo)

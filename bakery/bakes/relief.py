@@ -55,10 +55,10 @@ def check_image_output(output: Path, what: str) -> str:
     return fmt
 
 
-def _height_and_strength(inputs: dict[str, Path], p):
+def _height_and_strength(inputs: dict[str, Path], p, flat: str):
     """Heights, sample type, data range and ``(s_x, s_y)`` as the ``normal`` bake resolves them."""
     src = inputs["height"]
-    h, bits, rng = read_height(src, p.channel, p.stretch)
+    h, bits, rng = read_height(src, p.channel, p.stretch, flat=flat)
     sx, sy = resolve_strength(h.shape, p.strength, p.relief, p.span)
     return h, bits, rng, (sx, sy)
 
@@ -111,7 +111,7 @@ def run_occlusion(inputs: dict[str, Path], output: Path, p: OcclusionParams, pro
     from bakery.relief import occlusion_from_height
 
     check_image_output(output, "occlusion maps")
-    h, in_bits, (lo, hi), (sx, sy) = _height_and_strength(inputs, p)
+    h, in_bits, (lo, hi), (sx, sy) = _height_and_strength(inputs, p, "the occlusion is 1 everywhere")
     rows, cols = h.shape
     if p.max_distance is not None and p.max_distance > max(rows, cols):
         raise BakeryError(f"--max-distance must be at most the map's larger side ({max(rows, cols)} texels); got "
@@ -186,7 +186,7 @@ def run_curvature(inputs: dict[str, Path], output: Path, p: CurvatureParams, pro
     from bakery.relief import curvature_maps
 
     check_image_output(output, "curvature maps")
-    h, in_bits, (lo, hi), (sx, sy) = _height_and_strength(inputs, p)
+    h, in_bits, (lo, hi), (sx, sy) = _height_and_strength(inputs, p, "the surface is flat (curvature 0 everywhere)")
     if p.strength is not None:
         relief, unit = 1.0, "height units"
     else:

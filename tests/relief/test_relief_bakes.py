@@ -93,6 +93,14 @@ def test_occlusion_bad_values_are_one_line_and_write_nothing(tmp_path, height_pn
     assert out.read_bytes() == b"keep" and not (tmp_path / "ao.bakery.json").exists()
 
 
+def test_occlusion_of_a_constant_height_warns_and_sees_the_whole_sky(tmp_path):
+    # A plane sees the whole hemisphere: (1/pi) * integral of cos over it = 1 (Lambert's cosine law).
+    src = write_image(tmp_path / "flat.png", np.full((16, 16), 0.5, np.float32), bits="16")
+    r = bake("occlusion", src, "-o", tmp_path / "flat_ao.png")
+    assert r.exit_code == 0 and "warning:" in r.output and "occlusion is 1 everywhere" in r.output, r.output
+    assert np.all(stored(tmp_path / "flat_ao.png") == 65535)
+
+
 # ------------------------------------------------------------------------------------------------ curvature
 
 
