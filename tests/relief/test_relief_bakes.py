@@ -202,3 +202,45 @@ def test_mips_of_linear_float_colour_warns_where_integer_files_clip(tmp_path):
     r = bake("mips", src, "-o", tmp_path / "hdr_m.exr")
     assert r.exit_code == 0 and "warning:" not in r.output, r.output
     assert read_image(tmp_path / "hdr_m.mip01.exr").pixels == pytest.approx(2.0)  # averages of a constant
+
+
+def test_a_recipe_gives_the_same_bytes_as_the_commands(tmp_path):
+    # One declaration, one run_bake: recipe keys are the command options (DEVELOPERS.md, vocabulary).
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    write_image(lib / "stone_height.png", bumps(32), bits="16")
+    write_image(lib / "leaf_color.png", leaf_card(32), bits="8")
+    (tmp_path / "r.toml").write_text('''source = "lib"
+output = "baked"
+
+[[rule]]
+bake = "occlusion"
+match = "{m}_height.png"
+output = "{m}_ao.png"
+params = { directions = 8, max-distance = 12, bent-normals = true }
+
+[[rule]]
+bake = "curvature"
+match = "{m}_height.png"
+output = "{m}_cavity.png"
+params = { map = "cavity", scale = 1.5 }
+
+[[rule]]
+bake = "mips"
+match = "{m}_color.png"
+output = "{m}_mips.png"
+params = { coverage = true, alpha-cutoff = 0.75 }
+''', encoding="utf-8")
+    r = bake("batch", tmp_path / "r.toml", "--jobs", 1)
+    assert r.exit_code == 0, r.output
+    cli = tmp_path / "cli"
+    cli.mkdir()
+    for args in [("occlusion", lib / "stone_height.png", "-o", cli / "stone_ao.png", "--directions", 8,
+                  "--max-distance", 12, "--bent-normals"),
+                 ("curvature", lib / "stone_height.png", "-o", cli / "stone_cavity.png", "--map", "cavity",
+                  "--scale", 1.5),
+                 ("mips", lib / "leaf_color.png", "-o", cli / "leaf_mips.png", "--coverage", "--alpha-cutoff", 0.75)]:
+        assert bake(*args).exit_code == 0
+    names = ["stone_ao.png", "stone_ao.bent.png", "stone_cavity.png", "leaf_mips.png", "leaf_mips.mip05.png"]
+    for name in names:
+        assert (tmp_path / "baked" / name).read_bytes() == (cli / name).read_bytes(), name
