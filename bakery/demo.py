@@ -94,6 +94,39 @@ def _step_roughness(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]
             ("the same chain in one KTX 2.0 file", ktx2)]
 
 
+def _step_derived(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
+    """Ambient occlusion and cavity of the paving stones (the relief of the demo's normal map), and the mip
+    chain of a procedural leaf card with and without alpha-coverage preservation."""
+    from bakery.bakes import run_bake
+    from bakery.bakes.relief import ColorMipsParams, CurvatureParams, OcclusionParams
+    from bakery.io.images import image_size, write_image
+    from bakery.relief.examples import leaf_card
+
+    folder = out / "derived"
+    for sub in ("plain", "coverage"):
+        (folder / "leaf_mips" / sub).mkdir(parents=True, exist_ok=True)
+    height = inputs["height"]
+    ao = run_bake("occlusion", {"height": height}, folder / "paving_occlusion.png",
+                  OcclusionParams(bent_normals=True))
+    cavity = run_bake("curvature", {"height": height}, folder / "paving_cavity.png",
+                      CurvatureParams(map="cavity", scale=1.0))[0]
+    size = image_size(height)[0]
+    card = write_image(out / "inputs" / "leaf_card.png", leaf_card(size), bits="8")
+    plain = run_bake("mips", {"color": card}, folder / "leaf_mips" / "plain" / "leaf_card.png",
+                     ColorMipsParams(alpha_cutoff=0.75))
+    kept = run_bake("mips", {"color": card}, folder / "leaf_mips" / "coverage" / "leaf_card.png",
+                    ColorMipsParams(coverage=True, alpha_cutoff=0.75))
+    ktx2 = run_bake("mips", {"color": card}, folder / "leaf_mips" / "leaf_card.ktx2",
+                    ColorMipsParams(coverage=True, alpha_cutoff=0.75))[0]
+    return [("ambient occlusion of the paving stones, same relief as the normal map (bakery occlusion)", ao[0]),
+            ("bent normals beside it (bakery occlusion --bent-normals)", ao[1]),
+            ("cavity mask, 1 open, darker in the joints (bakery curvature --map cavity)", cavity),
+            ("leaf card, 8-bit sRGB with alpha (procedural)", card),
+            (f"leaf-card mips, {len(plain) - 1} levels, plain (bakery mips)", plain[0]),
+            ("leaf-card mips keeping alpha-tested coverage at 0.75 (bakery mips --coverage)", kept[0]),
+            ("the coverage-kept chain in one KTX 2.0 file (rgba8-srgb)", ktx2)]
+
+
 def _step_envmaps(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
     """Environment maps: the sky panorama as a KTX2 cubemap with mips, a cross, a preview, and its diffuse
     irradiance (SH9 JSON + a small cubemap)."""
@@ -231,8 +264,9 @@ def _step_sheet(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
 
 #: Demo steps in order: (name, function). The contact sheet stays last: it shows what the others made.
 STEPS: list[tuple[str, Step]] = [("info", _step_info), ("normals", _step_normals), ("roughness", _step_roughness),
-                                 ("envmaps", _step_envmaps), ("specular", _step_specular), ("batch", _step_batch),
-                                 ("preview", _step_preview), ("sheet", _step_sheet)]
+                                 ("derived", _step_derived), ("envmaps", _step_envmaps),
+                                 ("specular", _step_specular), ("batch", _step_batch), ("preview", _step_preview),
+                                 ("sheet", _step_sheet)]
 
 
 def run_demo(out: str | Path, *, size: int = 256, log: Callable[[str], None] = print) -> Path:

@@ -94,11 +94,12 @@ def resolve_strength(shape: tuple[int, int], strength: float | None, relief: flo
     return strength_from_size(shape, relief, width, tall)
 
 
-def read_height(path: Path, channel: str | None = None, stretch: bool = False):
+def read_height(path: Path, channel: str | None = None, stretch: bool = False, *,
+                flat: str = "the normal map is flat"):
     """A height map from a file: (H, W) float32 and the file's sample type.
 
     Gray files, and colour files whose colour channels are equal, are read as gray; other colour files need
-    ``channel``. Warns when the heights are constant (the normal map will be flat).
+    ``channel``. Warns when the heights are constant (``flat`` says what that makes of the result).
     """
     import numpy as np
 
@@ -131,7 +132,7 @@ def read_height(path: Path, channel: str | None = None, stretch: bool = False):
     h = np.ascontiguousarray(h, dtype=np.float32)
     lo, hi = float(h.min()), float(h.max())
     if lo == hi:
-        warnings.warn(f"{path}: the height map is constant ({lo:.6g} everywhere): the normal map is flat",
+        warnings.warn(f"{path}: the height map is constant ({lo:.6g} everywhere): {flat}",
                       BakeryWarning, stacklevel=2)
     elif stretch:
         h -= np.float32(lo)
@@ -187,6 +188,11 @@ SPAN = param((), "Physical size the texture covers: WIDTH or WIDTHxHEIGHT, in th
 KERNEL = param("scharr", "Derivative kernel (Scharr 2000, Sobel in Duda & Hart 1973, Prewitt 1970, central "
                "differences).")
 
+HeightChannel = Literal["r", "g", "b", "a", "luminance"]
+HEIGHT_CHANNEL = param(None, "Which channel of a colour file holds the heights (luminance: BT.709 weights); "
+                       "default: gray files, or colour files with equal channels.")
+STRETCH = param(False, "Use the data's min..max as the full height range instead of the file's nominal range.")
+
 
 def check_strength(p) -> None:
     if p.strength is not None and (p.relief is not None or p.span):
@@ -209,11 +215,8 @@ class NormalParams(Params):
     y: YConvention = y_param()
     channels: Literal[2, 3] = param(3, "Channels written: 3 (XYZ) or 2 (XY; readers rebuild Z; .tif or .exr).")
     bits: Bits | None = bits_param()
-    channel: Literal["r", "g", "b", "a", "luminance"] | None = param(
-        None, "Which channel of a colour file holds the heights (luminance: BT.709 weights); default: gray "
-        "files, or colour files with equal channels.")
-    stretch: bool = param(False, "Use the data's min..max as the full height range instead of the file's "
-                          "nominal range.")
+    channel: HeightChannel | None = HEIGHT_CHANNEL
+    stretch: bool = STRETCH
     ktx2_format: str | None = KTX2_NORMAL_FORMAT
     effort: Effort = effort_param()
     zstd: int | None = zstd_param()

@@ -17,6 +17,7 @@ BAKE_COMMANDS = {
     "normal-mips": "bakery normal-mips", "normal-fix": "bakery normal-fix", "roughness": "bakery roughness",
     "antialias": "bakery antialias", "env-convert": "bakery env convert", "env-diffuse": "bakery env diffuse",
     "env-specular": "bakery env specular", "env-lut": "bakery env lut", "env-lights": "bakery env lights",
+    "occlusion": "bakery occlusion", "curvature": "bakery curvature", "mips": "bakery mips",
 }
 
 

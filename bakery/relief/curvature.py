@@ -6,9 +6,9 @@ For the surface z = h(x, y) the mean curvature is (do Carmo 1976, section 3-3, f
 
 Sign convention: with this formula a dome (a cap bulging toward +z, out of the surface) has H < 0, a bowl
 H > 0, a plane 0, and the saddle a x^2 - b y^2 has H = a - b at its centre. Its unit is one over the length
-unit: bakery measures lengths in units of the depth D that the full height range stands for (one texel is
-``1 / s_x`` of them wide and ``1 / s_y`` tall, ``s`` the normal map's strength), so multiply by 1/D for a
-physical curvature (``depth=D`` does it).
+unit: bakery measures lengths in units of the relief R that the full height range stands for (one texel is
+``1 / s_x`` of them wide and ``1 / s_y`` tall, ``s`` the normal map's strength), so multiply by 1/R for a
+physical curvature (``relief=R`` does it).
 
 The scale. Derivatives are those of the height smoothed by a Gaussian of standard deviation ``scale`` texels
 (derivative-of-Gaussian filters made exact on low polynomials; Lindeberg 1994): features much smaller than
@@ -110,7 +110,7 @@ def mean_curvature(
     height: np.ndarray,
     *,
     strength: float | tuple[float, float] = 1.0,
-    depth: float = 1.0,
+    relief: float = 1.0,
     scale: float = 1.0,
     edges: str = "wrap",
     kernel: str = DEFAULT_KERNEL,
@@ -123,8 +123,9 @@ def mean_curvature(
         Heights in height units (the full nominal range of a file is 1).
     strength : float or (float, float)
         ``(s_x, s_y)`` of :func:`bakery.normals.normal_from_height`: the relief of the normal map.
-    depth : float
-        Physical depth D of one height unit: H is returned in 1/(unit of D). Default 1: H per height unit.
+    relief : float
+        Physical relief R the full height range (one height unit) stands for: H is returned in 1/(unit of R).
+        Default 1: H per height unit.
     scale : float
         Standard deviation in texels of the Gaussian the derivatives are taken at (0: 3x3 differences with
         the smoothing of ``kernel``).
@@ -159,11 +160,11 @@ def mean_curvature(
     scale = float(scale)
     if not (math.isfinite(scale) and scale >= 0):
         raise BakeryError(f"scale must be zero or a positive number of texels; got {scale!r}")
-    d = float(depth)
+    d = float(relief)
     if not (math.isfinite(d) and d > 0):
-        raise BakeryError(f"depth must be a positive number; got {depth!r}")
+        raise BakeryError(f"relief must be a positive number; got {relief!r}")
     hx, hy, hxx, hxy, hyy = _texel_derivatives(h, scale, edges, kernel)
-    # lengths in units of D: one texel is 1/s_x wide, 1/s_y tall
+    # lengths in units of R: one texel is 1/s_x wide, 1/s_y tall
     hx, hy = hx * sx, hy * sy
     hxx, hxy, hyy = hxx * sx * sx, hxy * sx * sy, hyy * sy * sy
     num = (1 + hx * hx) * hyy - 2 * hx * hy * hxy + (1 + hy * hy) * hxx
@@ -175,7 +176,7 @@ def curvature_maps(
     height: np.ndarray,
     *,
     strength: float | tuple[float, float] = 1.0,
-    depth: float = 1.0,
+    relief: float = 1.0,
     scale: float = 1.0,
     radius: float | None = None,
     edges: str = "wrap",
@@ -185,11 +186,11 @@ def curvature_maps(
 
     Parameters
     ----------
-    height, strength, depth, scale, edges, kernel
+    height, strength, relief, scale, edges, kernel
         As for :func:`mean_curvature`.
     radius : float, optional
-        Radius of curvature that fills a mask (same unit as ``depth``): a surface bent this tightly or more
-        gives 1. Default: 4 texels (``4 / max(s_x, s_y)`` height units, times ``depth``), a choice of ours.
+        Radius of curvature that fills a mask (same unit as ``relief``): a surface bent this tightly or more
+        gives 1. Default: 4 texels (``4 / max(s_x, s_y)`` height units, times ``relief``), a choice of ours.
 
     Returns
     -------
@@ -207,8 +208,8 @@ def curvature_maps(
     (-1.0, True, 1.0)
     """
     sx, sy = _strengths(strength)
-    H = mean_curvature(height, strength=(sx, sy), depth=depth, scale=scale, edges=edges, kernel=kernel)
-    rho = 4.0 / max(abs(sx), abs(sy)) * float(depth) if radius is None else float(radius)
+    H = mean_curvature(height, strength=(sx, sy), relief=relief, scale=scale, edges=edges, kernel=kernel)
+    rho = 4.0 / max(abs(sx), abs(sy)) * float(relief) if radius is None else float(radius)
     if not (math.isfinite(rho) and rho > 0):
         raise BakeryError(f"radius must be a positive length; got {radius!r}")
     k = H * np.float32(rho)

@@ -25,11 +25,11 @@ def test_sphere_has_curvature_minus_one_over_radius(scale, tol):
 
 
 def test_physical_units():
-    # Lengths in units of the depth D: with strength s one texel is 1/s height units wide. A dome of 60 texels
-    # radius stored as heights h/s at strength s is a sphere of 60/s height units, 60 D/s physical:
-    # H = -s / (60 D) (do Carmo 1976, 3-3: |H| = 1/R).
+    # Lengths in units of the relief R: with strength s one texel is 1/s height units wide. A dome of 60 texels
+    # radius stored as heights h/s at strength s is a sphere of 60/s height units, 60 R/s physical:
+    # H = -s / (60 R) (do Carmo 1976, 3-3: |H| = 1 / radius).
     h, inner = dome()
-    H = mean_curvature(h / 4, strength=4.0, depth=0.5, scale=0)  # heights /4, strength x4: the same relief
+    H = mean_curvature(h / 4, strength=4.0, relief=0.5, scale=0)  # heights /4, strength x4: the same relief
     assert np.median(H[inner]) == pytest.approx(-4.0 / (60.0 * 0.5), rel=1e-3)
 
 
@@ -74,7 +74,7 @@ def test_masks_signs_and_ranges():
     assert (flat.encoded == 0.5).all() and (flat.cavity == 1.0).all()
 
 
-@pytest.mark.parametrize(("kwargs", "word"), [({"scale": -1}, "scale"), ({"depth": 0}, "depth"),
+@pytest.mark.parametrize(("kwargs", "word"), [({"scale": -1}, "scale"), ({"relief": 0}, "relief"),
                                               ({"strength": 0}, "strength"), ({"edges": "tile"}, "edge"),
                                               ({"radius": -2.0}, "radius")])
 def test_bad_parameters_are_named(kwargs, word):
