@@ -263,10 +263,36 @@ def _step_sheet(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
 
 
 #: Demo steps in order: (name, function). The contact sheet stays last: it shows what the others made.
+def _step_engine(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
+    """Engine-ready KTX2: the paving normal map as BC5, its roughness as BC4, the sky's specular chain as BC6H
+    (each with its quality report in the manifest); the sun taken out of the sky as a light."""
+    from bakery.bakes import run_bake
+    from bakery.bakes.envmaps import LightsParams
+    from bakery.bakes.glossy import SpecularParams
+    from bakery.bakes.normals import NormalParams
+    from bakery.bakes.roughness import RoughnessParams
+
+    folder = out / "engine"
+    folder.mkdir(parents=True, exist_ok=True)
+    normal = folder / "paving_normal.ktx2"
+    run_bake("normal", {"height": inputs["height"]}, normal, NormalParams(ktx2_format="compressed", zstd=5))
+    rough = folder / "paving_roughness.ktx2"
+    run_bake("roughness", {"specular": inputs["exponent"]}, rough, RoughnessParams(ktx2_format="bc4"))
+    spec = folder / "sky_specular.ktx2"
+    run_bake("env-specular", {"environment": inputs["sky"]}, spec, SpecularParams(face_size=64, ktx2_format="bc6h"))
+    lights = folder / "sky_sun.json"
+    run_bake("env-lights", {"environment": inputs["sky"]}, lights, LightsParams())
+    return [("normal map as a BC5 KTX2 mip chain, Zstandard (bakery normal --ktx2-format compressed)", normal),
+            ("roughness as a BC4 KTX2 mip chain (bakery roughness --ktx2-format bc4)", rough),
+            ("specular chain as BC6H (bakery env specular --ktx2-format bc6h)", spec),
+            ("the sun as a directional light (bakery env lights)", lights),
+            ("the sky without its sun", folder / "sky_sun.rest.exr")]
+
+
 STEPS: list[tuple[str, Step]] = [("info", _step_info), ("normals", _step_normals), ("roughness", _step_roughness),
                                  ("derived", _step_derived), ("envmaps", _step_envmaps),
-                                 ("specular", _step_specular), ("batch", _step_batch), ("preview", _step_preview),
-                                 ("sheet", _step_sheet)]
+                                 ("specular", _step_specular), ("engine", _step_engine), ("batch", _step_batch),
+                                 ("preview", _step_preview), ("sheet", _step_sheet)]
 
 
 def run_demo(out: str | Path, *, size: int = 256, log: Callable[[str], None] = print) -> Path:
