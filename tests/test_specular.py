@@ -228,7 +228,7 @@ def test_demo_sky_against_brute_force():
 def test_cubemap_input():
     # a cubemap input is resampled to a panorama first; on a smooth environment the chain matches the one
     # made from the panorama itself (both judged against the brute-force sum over the panorama)
-    from bakery.envmap.sample import resample
+    from bakery.envmap.resample import resample
 
     env = _smooth_env(64, seed=13, sun=False)
     cube = resample(env, "equirect", "cube", 48)
@@ -243,7 +243,7 @@ def test_cubemap_input():
 def test_mirror_level_is_the_source():
     # level 0 (roughness 0) is the panorama resampled: on a smooth environment it matches the source's own
     # conservative area average over each texel, and keeps the total energy Σ L Ω
-    from bakery.envmap.sample import resample
+    from bakery.envmap.resample import resample
 
     env = _smooth_env(128, seed=21, sun=False)
     lv0 = sp.prefilter_specular(env, 32, levels=2).levels[0]

@@ -122,7 +122,7 @@ def output_kind(output: Path, layout: str | None, input_layout: str) -> tuple[st
 def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, progress: Progress) -> list[Path]:
     import numpy as np
 
-    from bakery.envmap.sample import cube_mip_chain, equirect_mip_chain, resample
+    from bakery.envmap.resample import cube_mip_chain, equirect_mip_chain, resample
     from bakery.io.envfiles import read_environment, write_environment
     from bakery.io.manifest import write_manifest
 
@@ -356,7 +356,7 @@ def rest_path(output: Path) -> Path:
 def run_lights(inputs: dict[str, Path], output: Path, params: LightsParams, progress: Progress) -> list[Path]:
     import numpy as np
 
-    from bakery.envmap.sample import resample
+    from bakery.envmap.resample import resample
     from bakery.envmap.sunlight import find_lights
     from bakery.io.envfiles import read_environment
     from bakery.io.manifest import write_json, write_manifest

@@ -150,11 +150,11 @@ def irradiance_exact(env: np.ndarray, kind: str, normals: np.ndarray, *, source_
     ``max_bright``, the most energetic: :func:`bakery.envmap.specular.brightest_texels`, the same split the
     specular prefilter uses) are summed exactly at their own directions and solid angles; the rest of the
     environment is reduced to a cubemap of face ``source_size`` with the energy-keeping area filter
-    (:func:`bakery.envmap.sample.resample`) and summed over all its texels. A sun thus keeps its position
+    (:func:`bakery.envmap.resample.resample`) and summed over all its texels. A sun thus keeps its position
     and its sharp terminator (normals about 90° from it), not only its power. ``progress(fraction, label)``
     is called per block of normals (fractions rising to exactly 1.0). Returns float64 ``(..., C)``.
     """
-    from bakery.envmap.sample import resample
+    from bakery.envmap.resample import resample
     from bakery.envmap.specular import brightest_texels
 
     env = np.asarray(env)

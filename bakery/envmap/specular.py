@@ -65,7 +65,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from bakery import sphere
-from bakery.envmap.sample import reduce_equirect, resample
+from bakery.envmap.reduce import reduce_equirect
+from bakery.envmap.resample import resample
 from bakery.envmap.zonal import funk_hecke_coefficients, zonal_convolve_equirect
 from bakery.errors import BakeryError
 from bakery.microfacet import prefilter_weight, prefilter_weight_inplace
@@ -108,7 +109,7 @@ class Quality:
         The panorama is halved (2 x 2 area means) before the transform while it keeps at least
         ``oversampling`` rings per degree of the band limit (and twice the first level's face size).
     mirror_filter : str
-        Filter (:func:`bakery.envmap.sample.resample`) for converting cubemap inputs to a panorama and for
+        Filter (:func:`bakery.envmap.resample.resample`) for converting cubemap inputs to a panorama and for
         the mirror level where nothing is bright enough to be summed exactly: "bilinear" (exact 2 x 2
         reductions, then one bilinear lookup) or "area" (conservative; slower).
     """
@@ -631,7 +632,7 @@ def _mirror_level(img: np.ndarray, size: int, bright: np.ndarray, omega_row: np.
     """The mirror level of a panorama with a few very bright texels (a sun smaller than an output texel).
 
     The panorama is split exactly into a smooth part — the bright texels replaced by the mean of their
-    non-bright neighbours in a 9 x 9 box — resampled bilinearly (:func:`bakery.envmap.sample.resample`), and
+    non-bright neighbours in a 9 x 9 box — resampled bilinearly (:func:`bakery.envmap.resample.resample`), and
     the bright texels' excess radiance over that fill, whose energy ``(L − fill) Ω`` is deposited into the
     output texels under ``sub x sub`` points of each bright texel. So the sun keeps its energy exactly and
     lands in the texels it covers (close to the source's area average over each texel), while a constant

@@ -170,7 +170,7 @@ def test_hann_window_reduces_ringing_behind_a_light():
 
 
 def test_cube_and_panorama_projections_agree():
-    from bakery.envmap.sample import resample
+    from bakery.envmap.resample import resample
 
     env = pano(lambda d: 1 + 0.5 * d[..., 0] + 0.2 * d[..., 1] ** 2)
     cube = resample(env, "equirect", "cube", 128)

@@ -87,7 +87,7 @@ def test_exact_irradiance_with_a_half_degree_sun_within_one_percent():
 
 def test_exact_irradiance_keeps_the_sun_of_a_cube_input():
     from bakery import sphere
-    from bakery.envmap.sample import resample
+    from bakery.envmap.resample import resample
 
     env = sun_sky(512, SUN, 1.0)
     cube = resample(env, "equirect", "cube", 128, filter="area")

@@ -11,6 +11,8 @@ import numpy as np
 import pytest
 
 from bakery import sphere as S
+from bakery.envmap import reduce as RD
+from bakery.envmap import resample as RS
 from bakery.envmap import sample as E
 
 
@@ -31,8 +33,8 @@ def cube_field(n):
 @pytest.mark.parametrize("size", [48, 96, 128, 200])
 def test_equirect_cube_equirect_round_trip(size):
     # issue 4 check: error well under 1% away from the poles (|latitude| < 60 degrees)
-    cube = E.resample(EQ, "equirect", "cube", size)
-    back = E.resample(cube, "cube", "equirect", 512)
+    cube = RS.resample(EQ, "equirect", "cube", size)
+    back = RS.resample(cube, "cube", "equirect", 512)
     lat = np.degrees(np.arcsin(S.equirect_directions(512, 256)[..., 1]))
     rel = np.abs(back - EQ) / EQ
     assert rel[np.abs(lat) < 60].max() < 0.01
@@ -54,8 +56,8 @@ CONVERSIONS = [
 def test_total_energy_kept_through_every_conversion(kind, dst, size, rotate):
     # issue 4 check: sum(L * solid angle) within 1% (here 0.1%) through every conversion
     src = EQ if kind == "equirect" else cube_field(96)
-    out = E.resample(src, kind, dst, size, rotation_deg=rotate)
-    ratio = E.energy(out, dst) / E.energy(src, kind)
+    out = RS.resample(src, kind, dst, size, rotation_deg=rotate)
+    ratio = RS.energy(out, dst) / RS.energy(src, kind)
     np.testing.assert_allclose(ratio, 1.0, atol=1e-3)
 
 
@@ -73,8 +75,8 @@ def test_single_bright_texel_keeps_its_energy_when_shrinking(kind, dst, size):
         else:
             src = np.zeros((6, 128, 128, 1), np.float32)
             src[rng.integers(0, 6), rng.integers(0, 128), rng.integers(0, 128)] = 5.0e4
-        out = E.resample(src, kind, dst, size)
-        assert E.energy(out, dst)[0] == pytest.approx(E.energy(src, kind)[0], rel=0.01)
+        out = RS.resample(src, kind, dst, size)
+        assert RS.energy(out, dst)[0] == pytest.approx(RS.energy(src, kind)[0], rel=0.01)
         assert out.min() >= 0
 
 
@@ -82,16 +84,16 @@ def test_single_bright_texel_keeps_its_energy_when_shrinking(kind, dst, size):
 def test_constant_environment_stays_constant(filt):
     const = np.full((128, 256, 3), 2.5, np.float32)
     for dst, size in (("cube", 40), ("equirect", 200), ("cube", 200)):
-        out = E.resample(const, "equirect", dst, size, filter=filt)
+        out = RS.resample(const, "equirect", dst, size, filter=filt)
         np.testing.assert_allclose(out, 2.5, rtol=5e-3)
 
 
 def test_exact_reductions_keep_energy():
     cube = cube_field(64)
-    np.testing.assert_allclose(E.energy(E.reduce_cube(cube), "cube"), E.energy(cube, "cube"), rtol=1e-6)
-    np.testing.assert_allclose(E.energy(E.reduce_equirect(EQ), "equirect"), E.energy(EQ, "equirect"),
+    np.testing.assert_allclose(RS.energy(RD.reduce_cube(cube), "cube"), RS.energy(cube, "cube"), rtol=1e-6)
+    np.testing.assert_allclose(RS.energy(RD.reduce_equirect(EQ), "equirect"), RS.energy(EQ, "equirect"),
                                rtol=1e-6)
-    np.testing.assert_allclose(E.energy(E.reduce_cube(cube, 4), "cube"), E.energy(cube, "cube"), rtol=1e-6)
+    np.testing.assert_allclose(RS.energy(RD.reduce_cube(cube, 4), "cube"), RS.energy(cube, "cube"), rtol=1e-6)
 
 
 def test_cube_sampling_is_seamless_across_edges_and_corners():
@@ -126,9 +128,9 @@ def test_rotation_quarter_turn_moves_front_to_plus_x():
     # bakery.sphere.rotation_y: positive moves content to the right, -Z (front) toward +X
     n = 32
     cube = cube_field(n)
-    rot = E.resample(cube, "cube", "cube", n, rotation_deg=90.0, filter="bilinear")
+    rot = RS.resample(cube, "cube", "cube", n, rotation_deg=90.0, filter="bilinear")
     np.testing.assert_allclose(rot[0], cube[4], rtol=1e-3)  # new +X face = old front face
-    eq = E.resample(EQ, "equirect", "equirect", 512, rotation_deg=90.0)
+    eq = RS.resample(EQ, "equirect", "equirect", 512, rotation_deg=90.0)
     np.testing.assert_allclose(eq, np.roll(EQ, 128, axis=1), rtol=1e-3)
 
 
@@ -137,19 +139,19 @@ def test_asymmetric_marker_lands_on_front_face_unmirrored():
     # bakery.sphere) in its upper-right quadrant: not mirrored, not upside down
     pano = np.zeros((256, 512, 1), np.float32)
     pano[100:110, 280:290] = 1.0  # right of the centre column 256, above the centre row 128
-    cube = E.resample(pano, "equirect", "cube", 64)
+    cube = RS.resample(pano, "equirect", "cube", 64)
     f, i, j = np.unravel_index(np.argmax(cube[..., 0]), cube.shape[:3])
     assert f == 4 and i < 32 and j > 32
     # a quarter turn right (+X) lands on face 0 the same way up
     pano = np.roll(pano, 128, axis=1)
-    cube = E.resample(pano, "equirect", "cube", 64)
+    cube = RS.resample(pano, "equirect", "cube", 64)
     f, i, j = np.unravel_index(np.argmax(cube[..., 0]), cube.shape[:3])
     assert f == 0 and i < 32 and j > 32
 
 
 def test_cube_equirect_uv_matches_directions():
     for n, rot in ((16, 0.0), (16, 37.5), (15, -90.0), (1, 0.0), (2, 10.0)):  # odd faces have a middle row
-        u, v = E.cube_equirect_uv(n, rot)
+        u, v = RD.cube_equirect_uv(n, rot)
         d = S.cube_directions(n, dtype=np.float64) @ S.rotation_y(rot)
         u2, v2 = S.dir_to_equirect(d)
         pole = np.abs(d[..., 1]) > 1 - 1e-12  # an odd face's centre: every u is the pole
@@ -158,30 +160,30 @@ def test_cube_equirect_uv_matches_directions():
 
 
 def test_mip_chain_keeps_energy_and_shapes():
-    chain = E.cube_mip_chain(cube_field(32))
+    chain = RS.cube_mip_chain(cube_field(32))
     assert [c.shape[1] for c in chain] == [32, 16, 8, 4, 2, 1]
-    e0 = E.energy(chain[0], "cube")
+    e0 = RS.energy(chain[0], "cube")
     for c in chain[1:]:
-        np.testing.assert_allclose(E.energy(c, "cube"), e0, rtol=1e-5)
-    odd = E.cube_mip_chain(cube_field(12))
+        np.testing.assert_allclose(RS.energy(c, "cube"), e0, rtol=1e-5)
+    odd = RS.cube_mip_chain(cube_field(12))
     assert [c.shape[1] for c in odd] == [12, 6, 3, 1]
 
 
 def test_float32_outputs_and_bad_shapes():
-    assert E.resample(EQ, "equirect", "cube", 16).dtype == np.float32
+    assert RS.resample(EQ, "equirect", "cube", 16).dtype == np.float32
     with pytest.raises(ValueError):
-        E.resample(np.zeros((5, 4, 4, 3), np.float32), "cube", "cube", 4)
+        RS.resample(np.zeros((5, 4, 4, 3), np.float32), "cube", "cube", 4)
     with pytest.raises(ValueError):
-        E.resample(EQ, "equirect", "equirect", 33)
+        RS.resample(EQ, "equirect", "equirect", 33)
 
 
 def test_equirect_mip_chain_keeps_energy_and_ktx2_sizes():
-    chain = E.equirect_mip_chain(EQ[::2, ::2].copy())  # 256 x 128
+    chain = RS.equirect_mip_chain(EQ[::2, ::2].copy())  # 256 x 128
     assert [c.shape[:2] for c in chain] == [(128 >> i or 1, 256 >> i) for i in range(9)]
-    e0 = E.energy(chain[0], "equirect")
+    e0 = RS.energy(chain[0], "equirect")
     for c in chain[1:]:
-        np.testing.assert_allclose(E.energy(c, "equirect"), e0, rtol=1e-5)
-    odd = E.equirect_mip_chain(np.ones((48, 96, 1), np.float32))
+        np.testing.assert_allclose(RS.energy(c, "equirect"), e0, rtol=1e-5)
+    odd = RS.equirect_mip_chain(np.ones((48, 96, 1), np.float32))
     assert [c.shape[:2] for c in odd] == [(48, 96), (24, 48), (12, 24), (6, 12), (3, 6), (1, 3), (1, 1)]
     np.testing.assert_allclose(odd[-1], 1.0, rtol=1e-6)
 
@@ -189,7 +191,7 @@ def test_equirect_mip_chain_keeps_energy_and_ktx2_sizes():
 def test_area_filter_falls_back_with_a_warning_beyond_its_size_limit(monkeypatch):
     from bakery.errors import BakeryWarning
 
-    monkeypatch.setattr(E, "AREA_MAX_TEXELS", 1000)
+    monkeypatch.setattr(RS, "AREA_MAX_TEXELS", 1000)
     with pytest.warns(BakeryWarning, match="bilinear"):
-        out = E.resample(EQ, "equirect", "cube", 40)
-    np.testing.assert_allclose(E.energy(out, "cube"), E.energy(EQ, "equirect"), rtol=1e-2)
+        out = RS.resample(EQ, "equirect", "cube", 40)
+    np.testing.assert_allclose(RS.energy(out, "cube"), RS.energy(EQ, "equirect"), rtol=1e-2)

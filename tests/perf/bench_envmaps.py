@@ -22,15 +22,15 @@ from timing import best, ratio_rounds  # noqa: E402  (tests/perf/timing.py, besi
 def case_convert(repeat: int) -> str:
     import cv2
 
-    from bakery.envmap import sample
+    from bakery.envmap import reduce, resample, sample
 
     pano = (np.random.default_rng(0).random((2048, 4096, 3), dtype=np.float32) * 4).astype(np.float32)
-    u, v = sample.cube_equirect_uv(1024)
+    u, v = reduce.cube_equirect_uv(1024)
     padded = sample.pad_equirect(pano)
     mx = np.ascontiguousarray((u * 4096 + 0.5).reshape(-1, 4096))
     my = np.ascontiguousarray((v * 2048 + 0.5).reshape(-1, 4096))
     floor = best(lambda: cv2.remap(padded, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE), repeat)
-    conv = best(lambda: sample.resample(pano, "equirect", "cube", 1024), repeat)
+    conv = best(lambda: resample.resample(pano, "equirect", "cube", 1024), repeat)
     return (f"equirect 4096x2048 -> cube 1024: {conv * 1e3:.0f} ms; floor (one cv2.remap lookup per texel) "
             f"{floor * 1e3:.0f} ms; ratio {conv / floor:.2f} (target <= 3)")
 
@@ -53,15 +53,15 @@ def case_sh(repeat: int) -> str:
 def case_area(repeat: int) -> str:
     import cv2
 
-    from bakery.envmap import sample
+    from bakery.envmap import reduce, resample, sample
 
     pano = (np.random.default_rng(0).random((2048, 4096, 3), dtype=np.float32) * 4).astype(np.float32)
-    u, v = sample.cube_equirect_uv(256)
+    u, v = reduce.cube_equirect_uv(256)
     padded = sample.pad_equirect(pano)
     mx = np.ascontiguousarray((u * 4096 + 0.5).reshape(-1, 256))
     my = np.ascontiguousarray((v * 2048 + 0.5).reshape(-1, 256))
     floor = best(lambda: cv2.remap(padded, mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE), repeat)
-    area = best(lambda: sample.resample(pano, "equirect", "cube", 256), repeat)
+    area = best(lambda: resample.resample(pano, "equirect", "cube", 256), repeat)
     copy = best(lambda: pano.copy(), repeat)
     return (f"equirect 4096x2048 -> cube 256 (area filter, energy-exact): {area * 1e3:.0f} ms; ratio to one "
             f"remap lookup per output texel {area / floor:.0f}, to one copy of the input {area / copy:.0f} "
@@ -69,11 +69,11 @@ def case_area(repeat: int) -> str:
 
 
 def case_ktx2(repeat: int) -> str:
-    from bakery.envmap import sample
+    from bakery.envmap import resample
     from bakery.io.ktx2 import encode_ktx2
 
     cube = np.random.default_rng(0).random((6, 1024, 1024, 3), dtype=np.float32)
-    chain = sample.cube_mip_chain(cube)
+    chain = resample.cube_mip_chain(cube)
     enc = best(lambda: encode_ktx2(chain, "rgba16f", cubemap=True), repeat)
     copy = best(lambda: np.concatenate([c.ravel() for c in chain]).astype(np.float16).tobytes(), repeat)
     return (f"KTX2 RGBA16F encode, cube 1024 + mips: {enc * 1e3:.0f} ms; floor (float16 copy of the same texels) "
