@@ -152,9 +152,10 @@ def _step_envmaps(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
         run_bake("env-convert", {"environment": sky}, folder / "sky_cross_preview.png",
                  ConvertParams(output_layout="cross-wide", face_size=face, exposure=-1.0))
     made.append(("sky cross preview, 8-bit sRGB, -1 EV (the sun clips)", folder / "sky_cross_preview.png"))
-    run_bake("env-diffuse", {"environment": sky}, folder / "sky_diffuse.json", DiffuseParams())
+    run_bake("env-diffuse", {"environment": sky}, folder / "sky_diffuse.json", DiffuseParams(method="exact"))
     made.append(("diffuse irradiance: SH9 coefficients (bakery env diffuse)", folder / "sky_diffuse.json"))
-    made.append(("diffuse irradiance cubemap (E/pi), 32 x 32 per face", folder / "sky_diffuse.ktx2"))
+    made.append(("diffuse irradiance cubemap (E/pi), 32 x 32 per face, exact cosine convolution (the sky holds a "
+                 "sun)", folder / "sky_diffuse.ktx2"))
     return made
 
 
