@@ -271,6 +271,10 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress:
         q = np.empty((rows, cols, p.channels), np.uint8 if bits == "8" else np.uint16)
         scratch = {}
 
+        import threading
+
+        lock, done = threading.Lock(), [0]
+
         def finish(r0: int, r1: int, block: np.ndarray) -> None:
             import threading
 
@@ -280,6 +284,9 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress:
                 buf = scratch[key] = np.empty(block.shape[:2] + (p.channels,), np.float32)
             e = encode_normals(block, y=p.y, channels=p.channels, out=buf[: r1 - r0])
             q[r0:r1] = quantize(e, bits)
+            with lock:
+                done[0] += r1 - r0
+                progress(0.9 * done[0] / rows, "strips")
 
         blocks: dict[int, np.ndarray] = {}
 
@@ -294,7 +301,9 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress:
 
         run_strips(h, target=target, finish=finish, threads=bake_threads(), **opts)
         del h
+        progress(0.9, "writing")
         write_image(output, q)
+        progress(1.0, "done")
     else:
         n = normal_from_height(h, threads=bake_threads(), **opts)
         del h
