@@ -114,6 +114,13 @@ def get_bake(name: str) -> Bake:
         raise BakeryError(f"unknown bake {name!r}; known bakes: {known}") from None
 
 
+def one_output(inputs: Mapping[str, Path], output: Path, params: Any) -> list[Path]:
+    """The ``outputs`` of a bake that writes one file and its manifest."""
+    from bakery.io.manifest import manifest_path
+
+    return [output, manifest_path(output)]
+
+
 def planned_outputs(name: str, inputs: Mapping[str, str | os.PathLike], output: str | os.PathLike,
                     params: Any = None) -> list[Path]:
     """Every file bake ``name`` would write for these inputs (nothing is written)."""

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
-from bakery.bakes import Bake, Progress, bake_threads, level_path, params_to_dict, register
+from bakery.bakes import Bake, Progress, bake_threads, level_path, one_output, params_to_dict, register
 from bakery.bakes.params import (
     Bits,
     Edges,
@@ -223,13 +223,6 @@ class NormalParams(Params):
 
     def check(self) -> None:
         check_strength(self)
-
-
-def one_output(inputs: dict[str, Path], output: Path, p) -> list[Path]:
-    """The files of a bake that writes one image and its manifest."""
-    from bakery.io.manifest import manifest_path
-
-    return [output, manifest_path(output)]
 
 
 def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress: Progress) -> list[Path]:

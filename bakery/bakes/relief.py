@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
-from bakery.bakes import Bake, Progress, bake_threads, level_path, params_to_dict, register
+from bakery.bakes import Bake, Progress, bake_threads, level_path, one_output, params_to_dict, register
 from bakery.bakes.normals import (
     HEIGHT_CHANNEL,
     KERNEL,
@@ -23,7 +23,6 @@ from bakery.bakes.normals import (
     HeightChannel,
     KernelName,
     check_strength,
-    one_output,
     output_bits,
     read_height,
     resolve_strength,

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Literal
 
-from bakery.bakes import Bake, Progress, level_path, params_to_dict, register
+from bakery.bakes import Bake, Progress, level_path, one_output, params_to_dict, register
 from bakery.bakes.params import (
     Bits,
     Channel,
@@ -155,12 +155,6 @@ def _source_quantity(params: RoughnessParams, bits: str, path: Path) -> str:
         raise BakeryError(f"an {bits}-bit map does not say how it encodes exponents; give its mapping: "
                           f"{INTEGER_HINT}", path)
     return "exponent"
-
-
-def one_output(inputs: dict[str, Path], output: Path, p) -> list[Path]:
-    from bakery.io.manifest import manifest_path
-
-    return [output, manifest_path(output)]
 
 
 def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams, progress: Progress) -> list[Path]:
