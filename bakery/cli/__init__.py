@@ -8,6 +8,7 @@ import heavy libraries inside their functions only, so ``bakery --help`` is fast
 from __future__ import annotations
 
 import importlib
+import sys
 from typing import Annotated
 
 import typer
@@ -65,5 +66,43 @@ if env_app.registered_commands:
     app.add_typer(env_app, name="env")
 
 
+def _usage_line(exc) -> str:
+    """A click usage error as one line: ``--opt: message`` when an option or argument is to blame."""
+    import click
+
+    if isinstance(exc, click.BadParameter) and exc.param is not None:
+        names = getattr(exc.param, "opts", None) or [exc.param.name or "value"]
+        where = max(names, key=len) if exc.param.param_type_name == "option" else (exc.param.name or "").upper()
+        return f"{where}: {' '.join(exc.format_message().split(': ', 1)[-1].split())}"
+    return " ".join(exc.format_message().split())
+
+
+def run(args: list[str] | None = None) -> int:
+    """Run the command line and return its exit code. Usage mistakes (unknown option, bad option value,
+    missing argument) are one ``error: ...`` line and exit code 2; Ctrl-C is one line and exit code 130.
+    ``--debug`` shows click's full usage text and tracebacks instead."""
+    import click
+
+    argv = list(sys.argv[1:] if args is None else args)
+    debug = "--debug" in argv[:argv.index("--")] if "--" in argv else "--debug" in argv
+    try:
+        rv = app(args=argv, prog_name="bakery", standalone_mode=False)
+    except click.UsageError as exc:
+        if debug:
+            exc.show()
+            return 2
+        typer.echo(f"error: {_usage_line(exc)}", err=True)
+        return 2
+    except click.exceptions.Exit as exc:
+        return exc.exit_code
+    except (click.Abort, KeyboardInterrupt):
+        typer.echo("error: interrupted; no output was left half-written", err=True)
+        return 130
+    except click.ClickException as exc:
+        typer.echo(f"error: {' '.join(exc.format_message().split())}", err=True)
+        return exc.exit_code
+    return rv if isinstance(rv, int) else 0
+
+
 def main() -> None:
-    app()
+    sys.exit(run())

@@ -52,8 +52,29 @@ def command(fn: Callable[..., T]) -> Callable[..., T]:
                     raise
                 typer.echo(f"error: {exc}", err=True)
                 raise typer.Exit(2) from None
+            except OSError as exc:  # full disk, permissions changed during the work, a vanished folder
+                if STATE["debug"]:
+                    raise
+                typer.echo(f"error: {os_error_line(exc)}", err=True)
+                raise typer.Exit(2) from None
+            except MemoryError:
+                if STATE["debug"]:
+                    raise
+                typer.echo("error: out of memory; try a smaller image, size or face-size", err=True)
+                raise typer.Exit(2) from None
+            except KeyboardInterrupt:
+                if STATE["debug"]:
+                    raise
+                typer.echo("error: interrupted; no output was left half-written", err=True)
+                raise typer.Exit(130) from None
 
     return wrapper
+
+
+def os_error_line(exc: OSError) -> str:
+    """An operating-system error as one line that names the file: ``PATH: No space left on device``."""
+    what = exc.strerror or " ".join(str(exc).split()) or type(exc).__name__
+    return f"{exc.filename}: {what}" if exc.filename else what
 
 
 class ProgressDisplay:
