@@ -8,6 +8,7 @@ import heavy libraries inside their functions only, so ``bakery --help`` is fast
 from __future__ import annotations
 
 import importlib
+import os
 import sys
 from typing import Annotated
 
@@ -57,6 +58,8 @@ def _root(
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print only warnings and errors.")] = False,
 ) -> None:
     STATE["debug"] = debug
+    if debug:  # keep what decoder libraries print about a bad file (bakery.io.images.quiet_decoders)
+        os.environ["BAKERY_DECODER_MESSAGES"] = "1"
     STATE["quiet"] = quiet
 
 
@@ -67,38 +70,41 @@ if env_app.registered_commands:
 
 
 def _usage_line(exc) -> str:
-    """A click usage error as one line: ``--opt: message`` when an option or argument is to blame."""
-    import click
-
-    if isinstance(exc, click.BadParameter) and exc.param is not None:
-        names = getattr(exc.param, "opts", None) or [exc.param.name or "value"]
-        where = max(names, key=len) if exc.param.param_type_name == "option" else (exc.param.name or "").upper()
-        return f"{where}: {' '.join(exc.format_message().split(': ', 1)[-1].split())}"
-    return " ".join(exc.format_message().split())
+    """A usage error of the option parser as one line, naming the option or argument: ``--blur: ...``."""
+    param = getattr(exc, "param", None)
+    if param is None:
+        return " ".join(exc.format_message().split())
+    if param.param_type_name == "option":
+        where = max(param.opts, key=len)
+    else:
+        where = (param.name or "argument").removeprefix("in_").upper()
+    message = " ".join(str(exc.message or "").split()).removeprefix("Value error, ")
+    if type(exc).__name__ == "MissingParameter":
+        message = "missing" if not message else message
+    return f"{where}: {message}"
 
 
 def run(args: list[str] | None = None) -> int:
     """Run the command line and return its exit code. Usage mistakes (unknown option, bad option value,
     missing argument) are one ``error: ...`` line and exit code 2; Ctrl-C is one line and exit code 130.
-    ``--debug`` shows click's full usage text and tracebacks instead."""
-    import click
-
+    ``--debug`` shows the parser's full usage text instead."""
+    errors = sys.modules[typer.BadParameter.__module__]  # click's exceptions, wherever typer takes them from
     argv = list(sys.argv[1:] if args is None else args)
     debug = "--debug" in argv[:argv.index("--")] if "--" in argv else "--debug" in argv
     try:
         rv = app(args=argv, prog_name="bakery", standalone_mode=False)
-    except click.UsageError as exc:
-        if debug:
+    except errors.UsageError as exc:
+        if debug or type(exc).__name__ == "NoArgsIsHelpError":
             exc.show()
-            return 2
+            return exc.exit_code
         typer.echo(f"error: {_usage_line(exc)}", err=True)
         return 2
-    except click.exceptions.Exit as exc:
+    except typer.Exit as exc:
         return exc.exit_code
-    except (click.Abort, KeyboardInterrupt):
+    except (typer.Abort, KeyboardInterrupt):
         typer.echo("error: interrupted; no output was left half-written", err=True)
         return 130
-    except click.ClickException as exc:
+    except errors.ClickException as exc:
         typer.echo(f"error: {' '.join(exc.format_message().split())}", err=True)
         return exc.exit_code
     return rv if isinstance(rv, int) else 0

@@ -114,11 +114,15 @@ def progress_lines(label: str) -> ProgressDisplay:
 
 
 def output_path(path: Path, *, suffixes: tuple[str, ...] | None = None) -> Path:
-    """Check an output path before any work: its folder exists and the extension is one we write."""
+    """Check an output path before any work: its folder exists and is writable, and the extension is one we
+    write."""
     if suffixes is not None and path.suffix.lower() not in suffixes:
         raise BakeryError(f"output must end in one of {', '.join(suffixes)}", path)
     if not path.parent.exists():
         raise BakeryError("output folder does not exist", path.parent)
     if path.is_dir():
         raise BakeryError("output path is a folder; give a file name", path)
+    from bakery.io.atomic import check_output_folder
+
+    check_output_folder([path])  # writable
     return path

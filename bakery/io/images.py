@@ -22,9 +22,13 @@ RGBE follows the variant of Ward's encoding that scales the mantissa by 256 and 
 
 from __future__ import annotations
 
+import contextlib
 import os
 import struct
+import sys
+import threading
 import warnings
+from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
@@ -137,10 +141,14 @@ def read_image(
         raise BakeryError("not a regular file", path)
     if not os.access(path, os.R_OK):
         raise BakeryError("file is not readable (permission denied)", path)
-    width, height = _peek_size(path, fmt)
+    with quiet_decoders():
+        width, height = _peek_size(path, fmt)
+    if width <= 0 or height <= 0:
+        raise BakeryError(f"the header declares an empty image ({width}x{height})", path)
     check_pixel_limit(width, height, path, max_pixels)
     try:
-        raw, bits = _READERS[fmt](path)
+        with quiet_decoders():
+            raw, bits = _READERS[fmt](path)
     except BakeryError:
         raise
     except Exception as exc:  # decoder libraries raise many types for corrupt data
@@ -160,6 +168,47 @@ def read_image(
     elif color not in ("data", "srgb"):
         raise BakeryError(f"color must be 'data' or 'srgb'; got {color!r}")
     return Image(np.ascontiguousarray(pixels), bits, fmt, path)
+
+
+@contextlib.contextmanager
+def quiet_decoders() -> Iterator[None]:
+    """Silence what decoder libraries print from C (libpng warnings, OpenCV ``imdecode_`` lines, OpenEXR
+    messages) while a file is read: bakery reports a bad file in its own one ``error:`` line. The process's
+    stderr (file descriptor 2) points at the null device meanwhile; Python's own ``sys.stderr`` writes are
+    flushed first. ``BAKERY_DECODER_MESSAGES=1`` (set by ``bakery --debug``) keeps the libraries' lines."""
+    if os.environ.get("BAKERY_DECODER_MESSAGES") == "1":
+        yield
+        return
+    with contextlib.suppress(Exception):
+        sys.stderr.flush()
+    with _QUIET_LOCK:
+        global _QUIET_DEPTH
+        if _QUIET_DEPTH == 0:
+            try:
+                saved = os.dup(2)
+            except OSError:  # no stderr at all: nothing to silence
+                saved = None
+            if saved is not None:
+                null = os.open(os.devnull, os.O_WRONLY)
+                os.dup2(null, 2)
+                os.close(null)
+            _QUIET_STATE.append(saved)
+        _QUIET_DEPTH += 1
+    try:
+        yield
+    finally:
+        with _QUIET_LOCK:
+            _QUIET_DEPTH -= 1
+            if _QUIET_DEPTH == 0:
+                saved = _QUIET_STATE.pop()
+                if saved is not None:
+                    os.dup2(saved, 2)
+                    os.close(saved)
+
+
+_QUIET_LOCK = threading.Lock()
+_QUIET_DEPTH = 0
+_QUIET_STATE: list[int | None] = []
 
 
 def pixel_limit() -> int:
