@@ -25,7 +25,8 @@ def atomic_output(path: str | os.PathLike) -> Iterator[Path]:
     folder = path.parent
     if not folder.is_dir():
         raise BakeryError("output folder does not exist", folder)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=f".part{path.suffix}", dir=folder)
+    _remove_stale_temporaries(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.p{os.getpid()}.", suffix=f".part{path.suffix}", dir=folder)
     os.close(fd)
     tmp_path = Path(tmp)
     try:
@@ -37,6 +38,39 @@ def atomic_output(path: str | os.PathLike) -> Iterator[Path]:
     finally:
         with contextlib.suppress(FileNotFoundError):
             tmp_path.unlink()
+
+
+#: A temporary file older than this (seconds) is stale even when its process id is in use again.
+STALE_SECONDS = 3600
+
+
+def _remove_stale_temporaries(path: Path) -> None:
+    """Delete temporaries of ``path`` left by a process that was killed (``.NAME.pPID.*.partEXT`` whose process
+    is gone, or older than :data:`STALE_SECONDS`), so a SIGKILL mid-write leaves nothing behind for long."""
+    import re
+    import time
+
+    pattern = re.compile(rf"^\.{re.escape(path.stem)}\.p(\d+)\.[^.]+\.part{re.escape(path.suffix)}$")
+    with contextlib.suppress(OSError):
+        for entry in os.scandir(path.parent):
+            m = pattern.match(entry.name)
+            if m is None:
+                continue
+            with contextlib.suppress(OSError):
+                pid = int(m.group(1))
+                old = time.time() - entry.stat(follow_symlinks=False).st_mtime > STALE_SECONDS
+                if old or (pid != os.getpid() and not _alive(pid)):
+                    os.unlink(entry.path)
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # another user's process
+        return True
+    return True
 
 
 def _umask() -> int:

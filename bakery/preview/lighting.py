@@ -115,10 +115,10 @@ def read_specular_chain(path: str | os.PathLike) -> tuple[list[np.ndarray], np.n
     import warnings
 
     from bakery.errors import BakeryWarning
-    from bakery.io.ktx2 import read_ktx2
+    from bakery.io.envfiles import read_ktx2_limited
 
     path = Path(path)
-    tex = read_ktx2(path)
+    tex = read_ktx2_limited(path)
     if not tex.cubemap:
         raise BakeryError("is not a cubemap: a prefiltered specular chain has six faces per level", path)
     if ROUGHNESS_KEY not in tex.key_values:
@@ -169,9 +169,9 @@ def read_brdf_table(path: str | os.PathLike) -> np.ndarray:
     path = Path(path)
     layout = None
     if path.suffix.lower() == ".ktx2":
-        from bakery.io.ktx2 import read_ktx2
+        from bakery.io.envfiles import read_ktx2_limited
 
-        tex = read_ktx2(path)
+        tex = read_ktx2_limited(path)
         if tex.cubemap or len(tex.levels[0].shape) != 3:
             raise BakeryError("is not a 2D texture: a BRDF table is one (H, W, 2) image", path)
         table = tex.levels[0]
