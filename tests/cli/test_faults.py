@@ -181,3 +181,36 @@ def test_json_holds_nan_and_infinity_as_text():
 
     text = to_json({"strength": float("nan"), "levels": [1.0, float("inf"), np.float32(-np.inf)]})
     assert json.loads(text) == {"strength": "nan", "levels": [1.0, "inf", "-inf"]}
+
+
+ROUGHNESS_ENTRIES = ["[]", '"str"', "5", "null", '{"roughness": "abc"}', '{"roughness": [0, NaN]}',
+                     '{"roughness": [0, 1e999]}', '{"roughness": [0, 1.5]}', '{"roughness": [0]}',
+                     '{"roughness": [0, [1]]}', "{not json"]
+
+
+@pytest.mark.parametrize("entry", ROUGHNESS_ENTRIES)
+def test_preview_refuses_a_bad_roughness_entry_in_one_line(entry, tmp_path, capfd):
+    rng = np.random.default_rng(2)
+    levels = [rng.random((6, 4, 4, 4)).astype(np.float32), rng.random((6, 2, 2, 4)).astype(np.float32)]
+    spec = write_ktx2(tmp_path / "s.ktx2", levels, "R16G16B16A16_SFLOAT", cubemap=True,
+                      key_values={"bakery.roughness-per-level": entry})
+    sh = tmp_path / "d.json"
+    sh.write_text('{"radiance_sh": ' + str([[0.1, 0.1, 0.1]] * 9) + "}")
+    got, err = run_cli(["preview", "--specular", spec, "--diffuse", sh, "--size", "16", "-o", tmp_path / "p.png"],
+                       capfd)
+    assert got == 2 and "s.ktx2" in one_line(err)
+    assert not (tmp_path / "p.png").exists()
+
+
+@pytest.mark.parametrize("sh", ['{"radiance_sh": "text"}', '{"radiance_sh": [[1, 2, 3], [1]]}',
+                                '{"radiance_sh": [["a", "b", "c"]]}', '{"radiance_sh": null}', "[]", "{nope"])
+def test_preview_refuses_a_bad_sh_file_in_one_line(sh, tmp_path, capfd):
+    rng = np.random.default_rng(2)
+    levels = [rng.random((6, 4, 4, 4)).astype(np.float32), rng.random((6, 2, 2, 4)).astype(np.float32)]
+    spec = write_ktx2(tmp_path / "s.ktx2", levels, "R16G16B16A16_SFLOAT", cubemap=True,
+                      key_values={"bakery.roughness-per-level": '{"roughness": [0, 1]}'})
+    (tmp_path / "d.json").write_text(sh)
+    got, err = run_cli(["preview", "--specular", spec, "--diffuse", tmp_path / "d.json", "--size", "16",
+                        "-o", tmp_path / "p.png"], capfd)
+    assert got == 2 and "d.json" in one_line(err)
+    assert not (tmp_path / "p.png").exists()
