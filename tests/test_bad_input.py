@@ -10,7 +10,7 @@ run as root).
 Kinds: missing, empty, truncated, garbage, wrong extension, huge header (a PNG declaring 100000 x 100000),
 zero-size (a PNG declaring 0 x 16), wrong channels, NaN/Inf samples, folder in place of an output, output equal
 to an input, output equal to one of the bake's side files, bad option values, unwritable output folder.
-The module runs 238 cases (``pytest tests/test_bad_input.py -q`` counts them; ``test_case_count`` holds the
+The module runs 239 cases (``pytest tests/test_bad_input.py -q`` counts them; ``test_case_count`` holds the
 number, so a change to the tables shows here).
 """
 
@@ -356,6 +356,27 @@ def test_report_in_a_missing_folder_fails_before_any_job(good, tmp_path, capfd):
     assert not (tmp_path / "baked").exists()  # nothing ran
 
 
+def test_a_link_out_of_the_source_root_is_refused(good, tmp_path, capfd):
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    shutil.copy(good / "h.png", lib / "a.png")
+    secret = tmp_path / "elsewhere"
+    secret.mkdir()
+    shutil.copy(good / "h.png", secret / "s.png")
+    (lib / "b.png").symlink_to(secret / "s.png")
+    (lib / "c.png").symlink_to(lib / "a.png")  # a link that stays inside is read as usual
+    recipe = tmp_path / "r.toml"
+    recipe.write_text(RECIPE.format(bake="normal", match="**/{m}.png", ext="png", params="{}"))
+    for dry in ([], ["--dry-run"]):
+        code, err = run_cli(["batch", recipe, *dry], capfd)
+        assert_one_error(code, err, ["b.png"])
+        assert "outside the source root" in err and not (tmp_path / "baked").exists()
+    (lib / "b.png").unlink()
+    code, err = run_cli(["batch", recipe], capfd)
+    assert code == 0, err
+    assert sorted(p.name for p in (tmp_path / "baked").glob("*.png")) == ["a_out.png", "c_out.png"]
+
+
 # ---------------------------------------------------------------------------- unwritable folder
 def _drop_file_capabilities():
     """In the child, before it runs the command: drop the capabilities that let root write anywhere
@@ -394,6 +415,6 @@ def test_case_count():
     import re
 
     n = (len(FILE_CASES) + len(WRITERS) * 2 + len(SIDE_FILES) + len(BAD_OPTIONS) + 7 + len(BATCH_CASES) * 2 + 1
-         + len(WRITERS) + 1)
+         + len(WRITERS) + 1 + 1)
     stated = int(re.search(r"runs (\d+) cases", __doc__).group(1))
     assert n == stated, n
