@@ -286,7 +286,8 @@ BAD_OPTIONS = [
 ]
 
 
-@pytest.mark.parametrize(("command", "extra", "option"), BAD_OPTIONS, ids=[" ".join([c, *e]) for c, e, _ in BAD_OPTIONS])
+@pytest.mark.parametrize(("command", "extra", "option"), BAD_OPTIONS,
+                         ids=[" ".join([c, *e]) for c, e, _ in BAD_OPTIONS])
 def test_bad_option_value(command, extra, option, good, tmp_path, capfd):
     role, suffix, argv = COMMANDS[command]
     _check(argv(good / GOOD[role], tmp_path, good) + extra, capfd, [option], good, tmp_path)

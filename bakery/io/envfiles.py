@@ -123,8 +123,6 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
         Missing or unreadable files, an aspect ratio that matches no layout, faces of different sizes or
         non-square faces, NaN/Inf or negative radiance (unless ``repair``).
     """
-    from bakery.io import ktx2
-
     path_layout = layout_of_path(path)
     if layout in ("files", "ktx2") and path_layout != layout:
         need = "a pattern with {face}" if layout == "files" else "a .ktx2"
