@@ -216,3 +216,24 @@ def test_lengths_agree_with_the_normal_map_mip_chain():
         np.testing.assert_allclose(a, b, atol=2e-6)
     for k in range(1, 6):  # and both are the footprint means of the unit normals (float64 reference)
         np.testing.assert_allclose(ours[k], np.linalg.norm(box_mean(n.astype(np.float64), k), axis=-1), atol=2e-6)
+
+
+@pytest.mark.parametrize(("lobe", "alpha"), [("ggx", 0.001), ("ggx", 0.05), ("ggx", 0.2), ("beckmann", 0.001),
+                                             ("beckmann", 0.05), ("beckmann", 0.2)])
+def test_lobe_spread_factor_from_the_lobe_itself(lobe, alpha):
+    # The factor c that turns a per-axis angular variance v into alpha^2 (alpha'^2 = alpha^2 + c v), pinned
+    # independently of bakery.roughness: near its peak a lobe is a Gaussian exp(-theta^2 / (2 s^2)) in the
+    # angle, so s^2 = -1 / (d^2 ln D / d theta^2 at 0), measured here by a central second difference of the
+    # distributions of Walter et al. 2007 (eqs. 25, 33), and c = alpha^2 / s^2. Derived here (docs/references.md,
+    # section 6): GGX ln D = const - 2 ln(alpha^2 cos^2 + sin^2) gives c = 4 (1 - alpha^2); Beckmann
+    # -tan^2/alpha^2 - 4 ln cos gives c = 2 (1 - 2 alpha^2). Their small-lobe limits 4 and 2 are the constants
+    # bakery uses (Han et al. 2007: kappa ~ 2 / alpha^2 for Beckmann).
+    from bakery.roughness.antialias import LOBE_SPREAD
+
+    t = 1e-3 * alpha
+    ln_d = [math.log(float(LOBES[lobe](np.float64(math.cos(x)), alpha))) for x in (-t, 0.0, t)]
+    measured = alpha * alpha * -(ln_d[0] - 2 * ln_d[1] + ln_d[2]) / (t * t)
+    closed = 4 * (1 - alpha**2) if lobe == "ggx" else 2 * (1 - 2 * alpha**2)
+    assert measured == pytest.approx(closed, rel=1e-4)
+    if alpha <= 1e-3:
+        assert measured == pytest.approx(LOBE_SPREAD[lobe], rel=1e-4)
