@@ -56,6 +56,7 @@ def test_info_guesses_a_normal_map_and_an_hdr_panorama(tmp_path):
     sky = np.ones((16, 32, 3), np.float32) * 3
     r = runner.invoke(app, ["info", str(write_image(tmp_path / "n.png", flat)),
                             str(write_image(tmp_path / "s.exr", sky))])
+    assert r.exit_code == 0, r.output
     assert "normal map" in r.output and "HDR environment (equirectangular)" in r.output
 
 
