@@ -31,7 +31,7 @@ from bakery.errors import BakeryError
 
 __all__ = ["BatchReport", "JobResult", "Recipe", "load_recipe", "run"]
 
-#: Names of the temporary files :func:`bakery.io.atomic_output` writes (``.<stem>.<random>.part<suffix>``).
+#: Names of the temporary files :func:`bakery.io.atomic_output` writes (``.<stem>.<writer>.<random>.part<suffix>``).
 _TEMP_NAME = re.compile(r"^\..+\.part(\.[^./]+)?$")
 
 

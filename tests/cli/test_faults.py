@@ -79,8 +79,8 @@ def test_out_of_memory_names_the_size(height, tmp_path, capfd, monkeypatch):
 
 
 def test_a_killed_writers_temporary_is_removed_by_the_next_write(height, tmp_path):
-    """A SIGKILL mid-write leaves ``.NAME.pPID.*.partEXT``: never under the output's name, and removed by the
-    next write of that output once its process is gone."""
+    """A SIGKILL mid-write leaves ``.NAME.pPIDhHOST.*.partEXT``: never under the output's name, and removed by
+    the next write in that folder once its process is gone."""
     out = tmp_path / "n.png"
     code = (f"import os, sys\nfrom bakery.io.atomic import atomic_output\n"
             f"with atomic_output({str(out)!r}) as tmp:\n    tmp.write_bytes(b'half')\n    print(tmp, flush=True)\n"
@@ -89,6 +89,9 @@ def test_a_killed_writers_temporary_is_removed_by_the_next_write(height, tmp_pat
     assert r.returncode == -9
     left = [p.name for p in tmp_path.iterdir() if p.name.endswith(".part.png")]
     assert len(left) == 1 and left[0].startswith(".n.p") and not out.exists()
+    from bakery.io.atomic import _SCANNED
+
+    _SCANNED.discard(tmp_path)  # the next write is a new command
     from bakery.cli import run
 
     assert run(["normal", str(height), "-o", str(out)]) == 0
@@ -96,16 +99,21 @@ def test_a_killed_writers_temporary_is_removed_by_the_next_write(height, tmp_pat
 
 
 def test_an_old_temporary_is_removed_even_when_its_process_id_is_alive(height, tmp_path):
-    stale = tmp_path / f".n.p{os.getpid()}.abcdefgh.part.png"
+    from bakery.io.atomic import _SCANNED, _host
+
+    _SCANNED.discard(tmp_path)  # the fixture's write looked at the folder already; the next is a new command
+    stale = tmp_path / f".n.p{os.getpid()}h{_host()}.abcdefgh.part.png"
     stale.write_bytes(b"x")
     old = time.time() - 2 * 3600
     os.utime(stale, (old, old))
-    fresh = tmp_path / f".n.p{os.getppid()}.ijklmnop.part.png"  # a live process's write in progress
+    fresh = tmp_path / f".m.p{os.getppid()}h{_host()}.ijklmnop.part.png"  # a live process's write in progress
     fresh.write_bytes(b"x")
+    elsewhere = tmp_path / ".k.p1h000000.qrstuvwx.part.exr"  # another host's write: only age tells
+    elsewhere.write_bytes(b"x")
     from bakery.cli import run
 
     assert run(["normal", str(height), "-o", str(tmp_path / "n.png")]) == 0
-    assert not stale.exists() and fresh.exists()
+    assert not stale.exists() and fresh.exists() and elsewhere.exists()
 
 
 @pytest.fixture
