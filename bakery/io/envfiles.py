@@ -281,7 +281,7 @@ def read_ktx2_limited(path: str | os.PathLike, max_pixels: int | None = None):
         raise BakeryError("file not found", path)
     with open(path, "rb") as f:
         head = f.read(40)
-    if len(head) == 40:
+    if len(head) == 40 and head[:12] == b"\xabKTX 20\xbb\r\n\x1a\n":  # the KTX 2.0 file identifier
         width, height, _depth, layers, faces = struct.unpack("<5I", head[20:40])
         check_pixel_limit(width, max(height, 1) * max(layers, 1) * max(faces, 1), path, max_pixels)
     return ktx2.read_ktx2(path)

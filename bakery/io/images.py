@@ -23,6 +23,7 @@ RGBE follows the variant of Ward's encoding that scales the mantissa by 256 and 
 from __future__ import annotations
 
 import contextlib
+import gc
 import os
 import struct
 import sys
@@ -146,13 +147,19 @@ def read_image(
     if width <= 0 or height <= 0:
         raise BakeryError(f"the header declares an empty image ({width}x{height})", path)
     check_pixel_limit(width, height, path, max_pixels)
-    try:
-        with quiet_decoders():
+    problem = None
+    with quiet_decoders():
+        try:
             raw, bits = _READERS[fmt](path)
-    except BakeryError:
-        raise
-    except Exception as exc:  # decoder libraries raise many types for corrupt data
-        raise BakeryError(f"cannot decode {fmt.upper()} data ({_short(exc)})", path) from exc
+        except BakeryError:
+            raise
+        except Exception as exc:  # decoder libraries raise many types for corrupt data
+            problem = f"cannot decode {fmt.upper()} data ({_short(exc)})"
+            exc.__traceback__ = None  # free the decoder's objects now: some print as they are destroyed
+            del exc
+            gc.collect()
+    if problem is not None:
+        raise BakeryError(problem, path)
     pixels = _to_float(raw, bits)
     if pixels.ndim == 2:
         pixels = pixels[:, :, None]
