@@ -179,27 +179,31 @@ def read_image(
 
 @contextlib.contextmanager
 def quiet_decoders() -> Iterator[None]:
-    """Silence what decoder libraries print from C (libpng warnings, OpenCV ``imdecode_`` lines, OpenEXR
-    messages) while a file is read: bakery reports a bad file in its own one ``error:`` line. The process's
-    stderr (file descriptor 2) points at the null device meanwhile; Python's own ``sys.stderr`` writes are
-    flushed first. ``BAKERY_DECODER_MESSAGES=1`` (set by ``bakery --debug``) keeps the libraries' lines."""
+    """Silence what decoder libraries print (libpng warnings, OpenCV ``imdecode_`` lines, OpenEXR messages, on
+    stderr or stdout, from C or through Python) while a file is read: bakery reports a bad file in its own one
+    ``error:`` line. File descriptors 1 and 2 point at the null device meanwhile, and ``sys.stdout`` /
+    ``sys.stderr`` at a sink. ``BAKERY_DECODER_MESSAGES=1`` (set by ``bakery --debug``) keeps the lines."""
     if os.environ.get("BAKERY_DECODER_MESSAGES") == "1":
         yield
         return
-    with contextlib.suppress(Exception):
-        sys.stderr.flush()
+    global _QUIET_DEPTH
     with _QUIET_LOCK:
-        global _QUIET_DEPTH
         if _QUIET_DEPTH == 0:
-            try:
-                saved = os.dup(2)
-            except OSError:  # no stderr at all: nothing to silence
-                saved = None
-            if saved is not None:
+            saved = []
+            for stream in (sys.stdout, sys.stderr):
+                with contextlib.suppress(Exception):
+                    stream.flush()
+            for fd in (1, 2):
+                try:
+                    keep = os.dup(fd)
+                except OSError:  # no such stream: nothing to silence
+                    continue
                 null = os.open(os.devnull, os.O_WRONLY)
-                os.dup2(null, 2)
+                os.dup2(null, fd)
                 os.close(null)
-            _QUIET_STATE.append(saved)
+                saved.append((fd, keep))
+            _QUIET_STATE.append((saved, sys.stdout, sys.stderr))
+            sys.stdout = sys.stderr = _Sink()
         _QUIET_DEPTH += 1
     try:
         yield
@@ -207,15 +211,25 @@ def quiet_decoders() -> Iterator[None]:
         with _QUIET_LOCK:
             _QUIET_DEPTH -= 1
             if _QUIET_DEPTH == 0:
-                saved = _QUIET_STATE.pop()
-                if saved is not None:
-                    os.dup2(saved, 2)
-                    os.close(saved)
+                saved, sys.stdout, sys.stderr = _QUIET_STATE.pop()
+                for fd, keep in saved:
+                    os.dup2(keep, fd)
+                    os.close(keep)
+
+
+class _Sink:
+    """A text stream that keeps nothing."""
+
+    def write(self, text: str) -> int:
+        return len(text)
+
+    def flush(self) -> None:
+        pass
 
 
 _QUIET_LOCK = threading.Lock()
 _QUIET_DEPTH = 0
-_QUIET_STATE: list[int | None] = []
+_QUIET_STATE: list = []
 
 
 def pixel_limit() -> int:
