@@ -58,8 +58,12 @@ def _root(
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print only warnings and errors.")] = False,
 ) -> None:
     STATE["debug"] = debug
-    if debug:  # keep what decoder libraries print about a bad file (bakery.io.images.quiet_decoders)
+    # --debug keeps what decoder libraries print about a bad file (bakery.io.images.quiet_decoders); set for
+    # this run only, as several runs can share one process (tests, scripts calling bakery.cli.run)
+    if debug:
         os.environ["BAKERY_DECODER_MESSAGES"] = "1"
+    else:
+        os.environ.pop("BAKERY_DECODER_MESSAGES", None)
     STATE["quiet"] = quiet
 
 

@@ -182,7 +182,8 @@ def quiet_decoders() -> Iterator[None]:
     """Silence what decoder libraries print (libpng warnings, OpenCV ``imdecode_`` lines, OpenEXR messages, on
     stderr or stdout, from C or through Python) while a file is read: bakery reports a bad file in its own one
     ``error:`` line. File descriptors 1 and 2 point at the null device meanwhile, and ``sys.stdout`` /
-    ``sys.stderr`` at a sink. ``BAKERY_DECODER_MESSAGES=1`` (set by ``bakery --debug``) keeps the lines."""
+    ``sys.stderr`` at a sink. ``BAKERY_DECODER_MESSAGES=1`` keeps the lines (``bakery --debug`` sets it for its
+    run)."""
     if os.environ.get("BAKERY_DECODER_MESSAGES") == "1":
         yield
         return
