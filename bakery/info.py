@@ -62,9 +62,9 @@ def _quality_from_manifest(path: Path) -> list[str]:
 
 def describe_ktx2(path: Path) -> list[str]:
     """Lines for a KTX2 file: type, format, faces, levels with sizes, key/value data, value range."""
-    from bakery.io.ktx2 import read_ktx2
+    from bakery.io.envfiles import read_ktx2_limited
 
-    tex = read_ktx2(path)
+    tex = read_ktx2_limited(path)
     lv0 = tex.levels[0]
     c = lv0.shape[-1]
     sizes = ", ".join(f"{lv.shape[-2]}x{lv.shape[-3]}" for lv in tex.levels)

@@ -56,7 +56,7 @@ def test_against_scipy_quadrature(nov, r):
 
 
 @pytest.mark.parametrize(("nov", "r", "A", "B"), [
-    # references sheet section 7 (computed by exact quadrature; height-correlated Smith)
+    # docs/references.md, section 7 (computed by exact quadrature; height-correlated Smith)
     (1.0, 0.0, 1.0, 0.0),
     (0.5, 0.0, 0.96875, 0.03125),
     (1.0, 0.5, 0.915785, 0.0000274),
@@ -103,7 +103,7 @@ def test_table_layout_and_orientation():
 
 
 def test_karis_hammersley_estimate_lands_close():
-    # references section 7: 1024 Hammersley samples (Karis 2013 listing) land within 1.4e-3 of exact; the
+    # docs/references.md, section 7: 1024 Hammersley samples (Karis 2013 listing) land within 1.4e-3 of exact; the
     # sheet does not say which Hammersley variant it used, so allow 2e-3 for this one (i/N, radical inverse)
     from bakery import microfacet as mf
 

@@ -50,8 +50,9 @@ def test_specular_ktx2_manifest_and_loose(sky, tmp_path):
 
 def test_recipe_and_command_give_identical_bytes(sky, tmp_path):
     a, b = tmp_path / "a.ktx2", tmp_path / "b.ktx2"
-    runner.invoke(app, ["env", "specular", str(sky), "-o", str(a), "--face-size", "8", "--lobe", "blinn-phong",
-                        "--level-roughness", "0,0.3,0.6,1"])
+    r = runner.invoke(app, ["env", "specular", str(sky), "-o", str(a), "--face-size", "8", "--lobe", "blinn-phong",
+                            "--level-roughness", "0,0.3,0.6,1"])
+    assert r.exit_code == 0, r.output
     run_bake("env-specular", {"environment": sky}, b,
              SpecularParams(face_size=8, lobe="blinn-phong", level_roughness=(0, 0.3, 0.6, 1)))
     assert a.read_bytes() == b.read_bytes()
@@ -115,7 +116,8 @@ def test_lut_files(tmp_path, suffix):
 
 def test_lut_bake_matches_command(tmp_path):
     a, b = tmp_path / "a.png", tmp_path / "b.png"
-    runner.invoke(app, ["env", "lut", "-o", str(a), "--size", "8", "--roughness-grows", "up"])
+    r = runner.invoke(app, ["env", "lut", "-o", str(a), "--size", "8", "--roughness-grows", "up"])
+    assert r.exit_code == 0, r.output
     run_bake("env-lut", {}, b, LutParams(size=8, roughness_grows="up"))
     assert a.read_bytes() == b.read_bytes()
     res = runner.invoke(app, ["env", "lut", "-o", str(tmp_path / "c.png"), "--roughness-grows", "left"])

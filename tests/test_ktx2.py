@@ -4,7 +4,7 @@ Sources: Khronos "KTX File Format Specification, version 2.0" (identifier 3.1, h
 level index 3.9, DFD 3.10, key/value data 3.11, level data order and mipPadding 3.12); Khronos "Data Format
 Specification 1.3", basic descriptor block (section 5) and its B10G11R11 / E5B9G9R9 examples; Vulkan 1.3
 specification, unsigned 11/10-bit floats and the shared-exponent encoding (from EXT_texture_shared_exponent).
-Layout numbers: references sheet section 12 (computed from the specification).
+Layout numbers: docs/references.md, section 12 (computed from the specification).
 """
 
 import struct
@@ -27,7 +27,7 @@ def _cube_levels(n=4, levels=3, c=4, seed=0):
 
 
 def test_layout_of_small_cubemap_matches_spec():
-    # references sheet 12 (computed from the KTX2 spec): RGBA16F cube 4x4, 3 levels, no key/value data:
+    # docs/references.md, section 12 (computed from the KTX2 spec): RGBA16F cube 4x4, 3 levels, no key/value data:
     # DFD at 152 (92 bytes); level 2 at 248, level 1 at 296, level 0 at 488; file 1256 bytes.
     data, clamped = K.encode_ktx2(_cube_levels(), "R16G16B16A16_SFLOAT", cubemap=True, writer_keys=False)
     assert clamped == 0
@@ -111,7 +111,7 @@ def test_pack_11bit_float(v, bits):
 
 
 def test_pack_b10g11r11_worked_words():
-    # references sheet 12 (computed): (1, 1, 1) -> 0x781E03C0; R bits 0-10, G 11-21, B 22-31
+    # docs/references.md, section 12 (computed): (1, 1, 1) -> 0x781E03C0; R bits 0-10, G 11-21, B 22-31
     assert int(K.pack_b10g11r11(np.array([1.0, 1.0, 1.0]))) == 0x781E03C0
     # 10-bit largest finite (2 - 2^-5) 2^15 = 64512 -> exponent 30, mantissa 31 in bits 22-31
     assert int(K.pack_b10g11r11(np.array([0.0, 0.0, 64512.0]))) == ((30 << 5) | 31) << 22
@@ -120,7 +120,7 @@ def test_pack_b10g11r11_worked_words():
 
 
 def test_pack_rgb9e5_worked_words():
-    # references sheet 12: (1, 0.5, 0.25) -> 0x81010100 (exponent 16, mantissas 256/128/64); max 65408
+    # docs/references.md, section 12: (1, 0.5, 0.25) -> 0x81010100 (exponent 16, mantissas 256/128/64); max 65408
     # = 511/512 2^16 -> all ones. Encoding per the Vulkan spec's shared-exponent rules.
     assert int(K.pack_rgb9e5(np.array([1.0, 0.5, 0.25]))) == 0x81010100
     assert int(K.pack_rgb9e5(np.array([65408.0, 65408.0, 65408.0]))) == 0xFFFFFFFF

@@ -43,7 +43,7 @@ def test_blinn_phong_is_normalised(n):
 
 
 def test_published_values():
-    # check values of references section 4 (computed from Walter et al. 2007 eqs. 25, 30, 33)
+    # check values of docs/references.md, section 4 (computed from Walter et al. 2007 eqs. 25, 30, 33)
     assert mf.d_ggx(1.0, 0.5) == pytest.approx(1.273240, abs=1e-6)
     assert mf.d_ggx(math.cos(math.pi / 4), 0.5) == pytest.approx(0.203718, abs=1e-6)
     assert mf.d_beckmann(math.cos(math.radians(30)), 0.5) == pytest.approx(0.596662, abs=1e-6)
@@ -149,7 +149,7 @@ def test_hammersley_and_ggx_sampling():
     assert mf.radical_inverse(0) == 0.0
     pts = mf.hammersley(8)
     assert pts.shape == (8, 2) and pts[3, 0] == 3 / 8 and pts[3, 1] == 0.75
-    # GGX sample at ξ = 0.5: cos θh = 1/sqrt(1 + α²) (Walter et al. 2007 eq. 35; references section 7)
+    # GGX sample at ξ = 0.5: cos θh = 1/sqrt(1 + α²) (Walter et al. 2007 eq. 35; docs/references.md, section 7)
     for a in (0.1, 0.5, 1.0):
         assert mf.sample_ggx_half(0.5, 0.3, a)[2] == pytest.approx(1 / math.sqrt(1 + a * a), rel=1e-12)
     # samples follow D(h)(n·h): compare the sample mean of cos θh with quadrature

@@ -83,7 +83,7 @@ def lobe_ratios(lobe, alpha, kappa, size=64):
     ("beckmann", 0.3, 50), ("beckmann", 0.3, 1000),
 ])
 def test_coarse_level_matches_footprint_mean_lobe(lobe, alpha, kappa):
-    # Issue 6: the footprint mean of D_alpha(h . n_i) against D_alpha'(h . n_mean): peak and half-maximum
+    # the footprint mean of D_alpha(h . n_i) against D_alpha'(h . n_mean): peak and half-maximum
     # angle within 10%. Normals ~ von Mises-Fisher(kappa) (Banerjee et al. 2005), 64 x 64, coarsest level.
     peak, width = lobe_ratios(lobe, alpha, kappa)
     assert peak == pytest.approx(1.0, rel=0.10)
@@ -99,14 +99,14 @@ def test_vmf_concentration_estimate():
     r = 1 / math.tanh(2.0) - 0.5  # kappa = 2: Toksvig's estimate r/(1 - r) = 1.1613 is 42% low (measured here)
     assert 1 / float(normal_spread(np.float64(r), method="toksvig")) == pytest.approx(r / (1 - r), rel=1e-12)
     assert r / (1 - r) < 0.6 * 2.0
-    # shared reference sheet, section 6 (computed): averaging (+-0.6, 0, 0.8) gives |Na| = 0.8, sigma^2 = 0.25,
+    # docs/references.md, section 6 (computed): averaging (+-0.6, 0, 0.8) gives |Na| = 0.8, sigma^2 = 0.25,
     # kappa = 5.244444
     assert float(normal_spread(np.float64(0.8), method="toksvig")) == pytest.approx(0.25, rel=1e-12)
     assert 1 / float(normal_spread(np.float64(0.8))) == pytest.approx(5.244444, abs=1e-6)
 
 
 @pytest.mark.parametrize(("s", "na", "expect"), [
-    # Toksvig 2005, s' = ft s, ft = |Na| / (|Na| + s (1 - |Na|)); shared reference sheet, section 6 (computed)
+    # Toksvig 2005, s' = ft s, ft = |Na| / (|Na| + s (1 - |Na|)); docs/references.md, section 6 (computed)
     (16, 0.99, 13.7739), (128, 0.99, 55.8238), (1024, 0.99, 90.2725),
     (16, 0.90, 5.7600), (128, 0.90, 8.4088), (1024, 0.90, 8.9216),
     (16, 0.50, 0.9412), (128, 0.50, 0.9922), (1024, 0.50, 0.9990)])
@@ -129,7 +129,7 @@ def test_toksvig_method_is_toksvig_in_alpha():
 
 
 def test_flat_normals_leave_roughness_unchanged():
-    # Issue 6: a flat normal map adds nothing at any level; roughness levels are box means of alpha^2 = r^4.
+    # a flat normal map adds nothing at any level; roughness levels are box means of alpha^2 = r^4.
     rng = np.random.default_rng(3)
     r = rng.random((32, 32)).astype(np.float32)
     flat = np.zeros((32, 32, 3), np.float32)
@@ -148,7 +148,7 @@ def test_flat_normals_leave_roughness_unchanged():
 
 
 def test_mips_average_alpha_squared_not_perceptual():
-    # Issue 6: alpha^2 (the NDF's variance) is averaged. Checker of r = 0 and r = 1: level 1 has alpha^2 = 1/2,
+    # alpha^2 (the NDF's variance) is averaged. Checker of r = 0 and r = 1: level 1 has alpha^2 = 1/2,
     # r = (1/2)^(1/4) = 0.840896, not the perceptual mean 0.5.
     r = (np.indices((8, 8)).sum(axis=0) % 2).astype(np.float32)
     flat = np.zeros((8, 8, 3), np.float32)
@@ -157,7 +157,7 @@ def test_mips_average_alpha_squared_not_perceptual():
 
 
 def test_monotonic_in_level():
-    # Issue 6: the result grows with the level. Normals ~ vMF with kappa varying across the map, random base.
+    # the result grows with the level. Normals ~ vMF with kappa varying across the map, random base.
     rng = np.random.default_rng(11)
     n = np.concatenate([vmf_normals(k, 32, seed=i) for i, k in enumerate((10, 40, 160, 640))], axis=1)
     n = np.concatenate([n, n[:, ::-1]], axis=0)[:, :64].astype(np.float32)  # 64 x 64
@@ -216,3 +216,24 @@ def test_lengths_agree_with_the_normal_map_mip_chain():
         np.testing.assert_allclose(a, b, atol=2e-6)
     for k in range(1, 6):  # and both are the footprint means of the unit normals (float64 reference)
         np.testing.assert_allclose(ours[k], np.linalg.norm(box_mean(n.astype(np.float64), k), axis=-1), atol=2e-6)
+
+
+@pytest.mark.parametrize(("lobe", "alpha"), [("ggx", 0.001), ("ggx", 0.05), ("ggx", 0.2), ("beckmann", 0.001),
+                                             ("beckmann", 0.05), ("beckmann", 0.2)])
+def test_lobe_spread_factor_from_the_lobe_itself(lobe, alpha):
+    # The factor c that turns a per-axis angular variance v into alpha^2 (alpha'^2 = alpha^2 + c v), pinned
+    # independently of bakery.roughness: near its peak a lobe is a Gaussian exp(-theta^2 / (2 s^2)) in the
+    # angle, so s^2 = -1 / (d^2 ln D / d theta^2 at 0), measured here by a central second difference of the
+    # distributions of Walter et al. 2007 (eqs. 25, 33), and c = alpha^2 / s^2. Derived here (docs/references.md,
+    # section 6): GGX ln D = const - 2 ln(alpha^2 cos^2 + sin^2) gives c = 4 (1 - alpha^2); Beckmann
+    # -tan^2/alpha^2 - 4 ln cos gives c = 2 (1 - 2 alpha^2). Their small-lobe limits 4 and 2 are the constants
+    # bakery uses (Han et al. 2007: kappa ~ 2 / alpha^2 for Beckmann).
+    from bakery.roughness.antialias import LOBE_SPREAD
+
+    t = 1e-3 * alpha
+    ln_d = [math.log(float(LOBES[lobe](np.float64(math.cos(x)), alpha))) for x in (-t, 0.0, t)]
+    measured = alpha * alpha * -(ln_d[0] - 2 * ln_d[1] + ln_d[2]) / (t * t)
+    closed = 4 * (1 - alpha**2) if lobe == "ggx" else 2 * (1 - 2 * alpha**2)
+    assert measured == pytest.approx(closed, rel=1e-4)
+    if alpha <= 1e-3:
+        assert measured == pytest.approx(LOBE_SPREAD[lobe], rel=1e-4)

@@ -54,7 +54,7 @@ def test_peak_rule_matches_walter_formula():
 
 
 @pytest.mark.parametrize(("n", "a", "r"), [
-    # shared reference sheet, section 5 (computed from Walter et al. 2007 and Burley 2012), 6 decimals
+    # docs/references.md, section 5 (computed from Walter et al. 2007 and Burley 2012), 6 decimals
     (1, 0.816497, 0.903602), (8, 0.447214, 0.668740), (32, 0.242536, 0.492479), (128, 0.124035, 0.352186),
     (512, 0.062378, 0.249756), (2048, 0.031235, 0.176734), (8192, 0.015623, 0.124992)])
 def test_reference_table(n, a, r):
@@ -90,7 +90,7 @@ def test_round_trip(model, rule, target):
         n = n[n > 0.2]  # GGX's width rule is defined only while the lobe falls to half (see the module notes)
     r = convert_specular(n, source="exponent", target=target, model=model, rule=rule)
     back = convert_specular(r, source=target, target="exponent", model=model, rule=rule)
-    np.testing.assert_allclose(back, n, rtol=1e-6)  # issue 6: inverse round trip to 1e-6
+    np.testing.assert_allclose(back, n, rtol=1e-6)  # inverse round trip to 1e-6 (common practice)
 
 
 def test_round_trip_float32():
@@ -113,7 +113,7 @@ def test_peak_rule_equal_peak_heights(n):
 
 @pytest.mark.parametrize("n", [1.0, 10.0, 100.0, 1000.0, 10000.0])
 def test_width_rule_equal_half_maximum_angles(n):
-    # Width rule: half-maximum angles agree within 1% (issue 6), measured by root finding on the lobes.
+    # Width rule: half-maximum angles agree within 1%, measured by root finding on the lobes.
     theta_bp = half_max_angle(d_blinn_phong, n)
     assert theta_bp == pytest.approx(math.acos(2 ** (-1 / n)), rel=1e-9)  # cos^n = 1/2 (analytic)
     for lobe, d in (("alpha", d_ggx), ("beckmann", d_beckmann)):
@@ -124,7 +124,7 @@ def test_width_rule_equal_half_maximum_angles(n):
 
 @pytest.mark.parametrize("n", [10.0, 100.0, 1000.0, 10000.0])
 def test_peak_rule_width_ratios(n):
-    # Issue 6 (measured there): at the peak rule GGX's half-maximum angle is 0.773x Blinn-Phong's for
+    # docs/references.md, section 5 (computed): at the peak rule GGX's half-maximum angle is 0.773x Blinn-Phong's for
     # n = 10...1e4, Beckmann's 1.00x. Limit for large n from the small-angle forms: sqrt((sqrt2 - 1)/ln 2).
     a = float(roughness_from_exponent(np.float64(n), target="alpha"))
     theta_bp = half_max_angle(d_blinn_phong, n)
@@ -135,7 +135,8 @@ def test_peak_rule_width_ratios(n):
     assert ggx == pytest.approx(0.773, abs=0.025)
     assert beck == pytest.approx(1.00, abs=0.06)
     wide = float(roughness_from_exponent(np.float64(n), target="alpha", rule="width"))
-    assert wide / a == pytest.approx(1.29, abs=0.1)  # issue 6: "alpha about 1.29x the peak rule's"
+    # docs/references.md, section 5 (computed): about 1.29x the peak rule's alpha
+    assert wide / a == pytest.approx(1.29, abs=0.1)
     if n >= 1000:
         assert ggx == pytest.approx(math.sqrt((math.sqrt(2) - 1) / math.log(2)), rel=2e-3)
 

@@ -2,7 +2,7 @@
 published check values.
 
 The quantity (Karis 2013, split sum, v = r = n): P(n) = ∫ L(l) w dl / ∫ w dl with w = max(n·l, 0) D(h),
-h = normalize(n + l). Check values for L(ω) = max(0, ω·a) are from the project's reference sheet, section 7
+h = normalize(n + l). Check values for L(ω) = max(0, ω·a) are in docs/references.md, section 7
 (computed by exact quadrature).
 """
 
@@ -92,7 +92,7 @@ def test_blinn_phong_against_brute_force():
 
 
 @pytest.mark.parametrize(("r", "expected"), [
-    # references section 7 (computed): L(ω) = max(0, ω·a), output at a
+    # docs/references.md, section 7 (computed): L(ω) = max(0, ω·a), output at a
     (0.25, 0.976093), (0.5, 0.867396), (0.75, 0.745131), (1.0, 2 / 3)])
 def test_clamped_cosine_check_values(r, expected):
     # level 2 of a 4 x 4 chain is 1 x 1: its texel centre on face +Z is exactly bakery −Z, the axis a
@@ -169,7 +169,7 @@ def test_roughness_mappings():
     assert np.allclose(np.sqrt(r) * 4, np.arange(5))
     assert sp.level_roughness(1).tolist() == [0.0]
     assert sp.lobe_parameter(0.5, "ggx") == 0.25
-    # Walter et al. 2007 section 5.2 / references section 5: n = 2/α² − 2; r 0.492479 -> n 32
+    # Walter et al. 2007 section 5.2 / docs/references.md, section 5: n = 2/α² − 2; r 0.492479 -> n 32
     assert float(sp.lobe_parameter(0.492479, "blinn-phong")) == pytest.approx(32, rel=1e-4)
 
 

@@ -151,11 +151,32 @@ def run_bake(name: str, inputs: Mapping[str, str | os.PathLike], output: str | o
     declared = [Path(p) for p in bake.outputs(paths, output, params)]
     check_output_folder(declared)
     check_distinct(declared, _input_files(paths))
-    written = [Path(p) for p in bake.run(paths, output, params, progress or no_progress)]
+    try:
+        written = [Path(p) for p in bake.run(paths, output, params, progress or no_progress)]
+    except MemoryError:
+        raise BakeryError(f"out of memory for {_work_size(paths, params)}; try a smaller one",
+                          output) from None
     if sorted(map(str, written)) != sorted(map(str, declared)):
         raise RuntimeError(f"bake {name!r} wrote {sorted(map(str, written))} but declared "
                            f"{sorted(map(str, declared))}")
     return written
+
+
+def _work_size(paths: Mapping[str, Path], params: Any) -> str:
+    """The size of a bake's work in words, for the out-of-memory message: its first image input's size, else
+    its ``size`` / ``face-size`` parameter."""
+    from bakery.io.images import image_size
+
+    for p in paths.values():
+        try:
+            w, h = image_size(p)
+        except (BakeryError, OSError):
+            continue
+        return f"a {w}x{h} input ({p})"
+    for name in ("face_size", "size"):
+        if isinstance(getattr(params, name, None), int):
+            return f"{option_name(name)} {getattr(params, name)}"
+    return "this input"
 
 
 def level_path(output: Path, level: int, *, tag: str = "", face: str = "") -> Path:

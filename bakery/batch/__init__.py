@@ -31,7 +31,7 @@ from bakery.errors import BakeryError
 
 __all__ = ["BatchReport", "JobResult", "Recipe", "load_recipe", "run"]
 
-#: Names of the temporary files :func:`bakery.io.atomic_output` writes (``.<stem>.<random>.part<suffix>``).
+#: Names of the temporary files :func:`bakery.io.atomic_output` writes (``.<stem>.<writer>.<random>.part<suffix>``).
 _TEMP_NAME = re.compile(r"^\..+\.part(\.[^./]+)?$")
 
 
@@ -92,6 +92,10 @@ def run(recipe: str | os.PathLike | Recipe, *, jobs: int | None = None, force: b
     started = now_utc()
     if jobs is not None and (isinstance(jobs, bool) or not isinstance(jobs, int) or jobs < 1):
         raise BakeryError(f"jobs must be a whole number of at least 1; got {jobs!r}")
+    if report is not None:  # a report that cannot be written is found before any job runs
+        from bakery.io.atomic import check_output_folder
+
+        check_output_folder([report])
     recipe = recipe if isinstance(recipe, Recipe) else load_recipe(recipe)
     only = tuple(only)
     if dry_run:

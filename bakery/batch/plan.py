@@ -87,10 +87,12 @@ class Plan:
 def scan_sources(root: Path) -> tuple[list[str], list[str]]:
     """Every visible file under ``root`` (relative ``/`` paths, sorted) and the folders holding a folder file.
 
-    Hidden names (starting with ``.``) are skipped; links to folders are not followed.
+    Hidden names (starting with ``.``) are skipped; links to folders are not followed; a link to a file outside
+    the source root is refused (bakery reads only the source root), before any job runs.
     """
     files: list[str] = []
     folders: list[str] = []
+    real_root = root.resolve()
     for dirpath, dirnames, filenames in os.walk(root):
         dirnames[:] = sorted(d for d in dirnames if not d.startswith("."))
         rel_dir = Path(dirpath).relative_to(root).as_posix()
@@ -101,6 +103,10 @@ def scan_sources(root: Path) -> tuple[list[str], list[str]]:
             if name == FOLDER_FILE:
                 folders.append("" if rel_dir == "." else rel_dir)
                 continue
+            link = Path(dirpath) / name
+            if link.is_symlink() and not link.resolve().is_relative_to(real_root):
+                raise BakeryError(f"links to {link.resolve()}, outside the source root {root}; bakery reads only "
+                                  "the source root (copy the file in, or move the root up)", link)
             files.append(prefix + name)
     files.sort()
     return files, folders

@@ -147,7 +147,11 @@ def compile_pattern(text: str, where: str) -> Pattern:
         if "**" in seg:
             raise BakeryError(f"{where}: '**' must be a whole folder part in pattern {text!r}")
         out.append(_segment_regex(seg, fields, text, where) + ("" if last else "/"))
-    return Pattern(text, re.compile("".join(out)), tuple(dict.fromkeys(fields)))
+    try:
+        regex = re.compile("".join(out))
+    except re.error as exc:  # e.g. a character range backwards: [z-a]
+        raise BakeryError(f"{where}: pattern {text!r} is not valid ({exc.msg})") from None
+    return Pattern(text, regex, tuple(dict.fromkeys(fields)))
 
 
 def _segment_regex(seg: str, fields: list[str], text: str, where: str) -> str:

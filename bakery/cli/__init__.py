@@ -8,6 +8,8 @@ import heavy libraries inside their functions only, so ``bakery --help`` is fast
 from __future__ import annotations
 
 import importlib
+import os
+import sys
 from typing import Annotated
 
 import typer
@@ -56,6 +58,12 @@ def _root(
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Print only warnings and errors.")] = False,
 ) -> None:
     STATE["debug"] = debug
+    # --debug keeps what decoder libraries print about a bad file (bakery.io.images.quiet_decoders); set for
+    # this run only, as several runs can share one process (tests, scripts calling bakery.cli.run)
+    if debug:
+        os.environ["BAKERY_DECODER_MESSAGES"] = "1"
+    else:
+        os.environ.pop("BAKERY_DECODER_MESSAGES", None)
     STATE["quiet"] = quiet
 
 
@@ -69,11 +77,48 @@ if env_app.registered_commands:
 GLOBAL_FLAGS = ("--quiet", "-q", "--debug")
 
 
-def main(argv: list[str] | None = None) -> None:
-    import sys
+def _usage_line(exc) -> str:
+    """A usage error of the option parser as one line, naming the option or argument: ``--blur: ...``."""
+    param = getattr(exc, "param", None)
+    if param is None:
+        return " ".join(exc.format_message().split())
+    if param.param_type_name == "option":
+        where = max(param.opts, key=len)
+    else:
+        where = (param.name or "argument").removeprefix("in_").upper()
+    message = " ".join(str(exc.message or "").split()).removeprefix("Value error, ")
+    if type(exc).__name__ == "MissingParameter":
+        message = "missing" if not message else message
+    return f"{where}: {message}"
 
-    args = list(sys.argv[1:] if argv is None else argv)
-    if "--" not in args:  # after "--" everything is an argument
-        front = [a for a in args if a in GLOBAL_FLAGS]
-        args = front + [a for a in args if a not in GLOBAL_FLAGS]
-    app(args=args, prog_name="bakery")
+
+def run(args: list[str] | None = None) -> int:
+    """Run the command line and return its exit code. Usage mistakes (unknown option, bad option value,
+    missing argument) are one ``error: ...`` line and exit code 2; Ctrl-C is one line and exit code 130.
+    ``--debug`` shows the parser's full usage text instead."""
+    errors = sys.modules[typer.BadParameter.__module__]  # click's exceptions, wherever typer takes them from
+    argv = list(sys.argv[1:] if args is None else args)
+    if "--" not in argv:  # the program's own flags anywhere on the line (``bakery batch r.toml --quiet``)
+        argv = [a for a in argv if a in GLOBAL_FLAGS] + [a for a in argv if a not in GLOBAL_FLAGS]
+    debug = "--debug" in argv[:argv.index("--")] if "--" in argv else "--debug" in argv
+    try:
+        rv = app(args=argv, prog_name="bakery", standalone_mode=False)
+    except errors.UsageError as exc:
+        if debug or type(exc).__name__ == "NoArgsIsHelpError":
+            exc.show()
+            return exc.exit_code
+        typer.echo(f"error: {_usage_line(exc)}", err=True)
+        return 2
+    except typer.Exit as exc:
+        return exc.exit_code
+    except (typer.Abort, KeyboardInterrupt):
+        typer.echo("error: interrupted; no output was left half-written", err=True)
+        return 130
+    except errors.ClickException as exc:
+        typer.echo(f"error: {' '.join(exc.format_message().split())}", err=True)
+        return exc.exit_code
+    return rv if isinstance(rv, int) else 0
+
+
+def main(argv: list[str] | None = None) -> None:
+    sys.exit(run(argv))

@@ -69,7 +69,10 @@ def _params_from_cli(bake, values: dict[str, Any]):
         if v is None:
             continue
         if isinstance(v, str) and spec.parse is not None:
-            v = spec.parse(v)
+            try:
+                v = spec.parse(v)
+            except BakeryError as exc:
+                raise BakeryError(f"--{spec.option}: {exc}") from None
         kwargs[spec.name] = v
     try:
         return bake.params(**kwargs)

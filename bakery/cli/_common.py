@@ -52,8 +52,29 @@ def command(fn: Callable[..., T]) -> Callable[..., T]:
                     raise
                 typer.echo(f"error: {exc}", err=True)
                 raise typer.Exit(2) from None
+            except OSError as exc:  # full disk, permissions changed during the work, a vanished folder
+                if STATE["debug"]:
+                    raise
+                typer.echo(f"error: {os_error_line(exc)}", err=True)
+                raise typer.Exit(2) from None
+            except MemoryError:
+                if STATE["debug"]:
+                    raise
+                typer.echo("error: out of memory; try a smaller image, size or face-size", err=True)
+                raise typer.Exit(2) from None
+            except KeyboardInterrupt:
+                if STATE["debug"]:
+                    raise
+                typer.echo("error: interrupted; no output was left half-written", err=True)
+                raise typer.Exit(130) from None
 
     return wrapper
+
+
+def os_error_line(exc: OSError) -> str:
+    """An operating-system error as one line that names the file: ``PATH: No space left on device``."""
+    what = exc.strerror or " ".join(str(exc).split()) or type(exc).__name__
+    return f"{exc.filename}: {what}" if exc.filename else what
 
 
 class ProgressDisplay:
@@ -93,11 +114,15 @@ def progress_lines(label: str) -> ProgressDisplay:
 
 
 def output_path(path: Path, *, suffixes: tuple[str, ...] | None = None) -> Path:
-    """Check an output path before any work: its folder exists and the extension is one we write."""
+    """Check an output path before any work: its folder exists and is writable, and the extension is one we
+    write."""
     if suffixes is not None and path.suffix.lower() not in suffixes:
         raise BakeryError(f"output must end in one of {', '.join(suffixes)}", path)
     if not path.parent.exists():
         raise BakeryError("output folder does not exist", path.parent)
     if path.is_dir():
         raise BakeryError("output path is a folder; give a file name", path)
+    from bakery.io.atomic import check_output_folder
+
+    check_output_folder([path])  # writable
     return path

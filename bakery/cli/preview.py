@@ -96,6 +96,11 @@ def preview(
     from bakery.preview.inputs import load_material, parse_value_or_path
     from bakery.preview.lighting import choose_lighting
 
+    for name, value in (("--yaw", yaw), ("--pitch", pitch), ("--tile-pitch", tile_pitch), ("--rotation", rotation),
+                        ("--tiles", tiles[0]), ("--tiles", tiles[1]), ("--repeat", repeat), ("--white", white),
+                        ("--metallic", metallic), ("--fps", fps), ("--strength", strength)):
+        if value is not None and not math.isfinite(value):
+            raise BakeryError(f"{name} must be a finite number; got {value}")
     anim = turntable is not None
     output_path(output, suffixes=(".gif", ".webp") if anim else (".png",))
     rough = parse_value_or_path(roughness, "--roughness", channels=1)

@@ -25,7 +25,8 @@ def atomic_output(path: str | os.PathLike) -> Iterator[Path]:
     folder = path.parent
     if not folder.is_dir():
         raise BakeryError("output folder does not exist", folder)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=f".part{path.suffix}", dir=folder)
+    _remove_stale_temporaries(folder)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.{_writer_tag()}.", suffix=f".part{path.suffix}", dir=folder)
     os.close(fd)
     tmp_path = Path(tmp)
     try:
@@ -37,6 +38,60 @@ def atomic_output(path: str | os.PathLike) -> Iterator[Path]:
     finally:
         with contextlib.suppress(FileNotFoundError):
             tmp_path.unlink()
+
+
+#: A temporary file older than this (seconds) is stale even when its writer cannot be asked (another host) or
+#: its process id is in use again.
+STALE_SECONDS = 3600
+
+_SCANNED: set[Path] = set()
+
+
+def _host() -> str:
+    import socket
+    import zlib
+
+    return f"{zlib.crc32(socket.gethostname().encode()) & 0xFFFFFF:06x}"
+
+
+def _writer_tag() -> str:
+    """``pPIDhHOST``: who writes a temporary file, so a later write can tell a dead writer's leftovers."""
+    return f"p{os.getpid()}h{_host()}"
+
+
+def _remove_stale_temporaries(folder: Path) -> None:
+    """Delete temporaries (``.NAME.pPIDhHOST.XXXXXXXX.partEXT``) left in ``folder`` by a writer that was killed:
+    one of this host whose process is gone, or any older than :data:`STALE_SECONDS`. Each process looks at a
+    folder once, at its first write there, so a SIGKILL mid-write leaves nothing behind for long."""
+    import re
+    import time
+
+    if folder in _SCANNED:
+        return
+    _SCANNED.add(folder)
+    pattern = re.compile(r"^\..+\.p(\d+)h([0-9a-f]{6})\.[a-z0-9_]+\.part(\.[^./]+)?$")
+    host, me = _host(), os.getpid()
+    with contextlib.suppress(OSError):
+        for entry in os.scandir(folder):
+            m = pattern.match(entry.name)
+            if m is None:
+                continue
+            with contextlib.suppress(OSError):
+                pid = int(m.group(1))
+                old = time.time() - entry.stat(follow_symlinks=False).st_mtime > STALE_SECONDS
+                dead = m.group(2) == host and pid != me and not _alive(pid)
+                if old or dead:
+                    os.unlink(entry.path)
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # another user's process
+        return True
+    return True
 
 
 def _umask() -> int:

@@ -123,8 +123,6 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
         Missing or unreadable files, an aspect ratio that matches no layout, faces of different sizes or
         non-square faces, NaN/Inf or negative radiance (unless ``repair``).
     """
-    from bakery.io import ktx2
-
     path_layout = layout_of_path(path)
     if layout in ("files", "ktx2") and path_layout != layout:
         need = "a pattern with {face}" if layout == "files" else "a .ktx2"
@@ -148,7 +146,7 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
         return Environment("cube", cube, "files", max(depths, key=_BITS_ORDER.index), paths)
     p = Path(path)
     if path_layout == "ktx2":
-        tex = ktx2.read_ktx2(p)
+        tex = read_ktx2_limited(p, max_pixels)
         px = tex.levels[0]
         bits = "float" if tex.format.name.startswith("R32") else ("half" if tex.format.is_float else
                                                                ("16" if tex.format.bits == 16 else "8"))
@@ -274,3 +272,24 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
     img = _prepare_image(p, img, d)
     write_image(p, img, bits=d, color="srgb" if d in ("8", "16") else "data")
     return [p]
+
+
+def read_ktx2_limited(path: str | os.PathLike, max_pixels: int | None = None):
+    """:func:`bakery.io.ktx2.read_ktx2` behind the pixel limit (``max_pixels`` or
+    :func:`bakery.io.images.pixel_limit`): level 0's texels over every face and layer, from the header
+    (KTX 2.0 specification: pixelWidth, pixelHeight at bytes 20-27, layerCount and faceCount at 32-39),
+    refused before any level is read."""
+    import struct
+
+    from bakery.io import ktx2
+    from bakery.io.images import check_pixel_limit
+
+    path = Path(path)
+    if not path.is_file():
+        raise BakeryError("file not found", path)
+    with open(path, "rb") as f:
+        head = f.read(40)
+    if len(head) == 40 and head[:12] == b"\xabKTX 20\xbb\r\n\x1a\n":  # the KTX 2.0 file identifier
+        width, height, _depth, layers, faces = struct.unpack("<5I", head[20:40])
+        check_pixel_limit(width, max(height, 1) * max(layers, 1) * max(faces, 1), path, max_pixels)
+    return ktx2.read_ktx2(path)

@@ -22,9 +22,14 @@ RGBE follows the variant of Ward's encoding that scales the mantissa by 256 and 
 
 from __future__ import annotations
 
+import contextlib
+import gc
 import os
 import struct
+import sys
+import threading
 import warnings
+from collections.abc import Iterator
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
@@ -137,14 +142,24 @@ def read_image(
         raise BakeryError("not a regular file", path)
     if not os.access(path, os.R_OK):
         raise BakeryError("file is not readable (permission denied)", path)
-    width, height = _peek_size(path, fmt)
+    with quiet_decoders():
+        width, height = _peek_size(path, fmt)
+    if width <= 0 or height <= 0:
+        raise BakeryError(f"the header declares an empty image ({width}x{height})", path)
     check_pixel_limit(width, height, path, max_pixels)
-    try:
-        raw, bits = _READERS[fmt](path)
-    except BakeryError:
-        raise
-    except Exception as exc:  # decoder libraries raise many types for corrupt data
-        raise BakeryError(f"cannot decode {fmt.upper()} data ({_short(exc)})", path) from exc
+    problem = None
+    with quiet_decoders():
+        try:
+            raw, bits = _READERS[fmt](path)
+        except BakeryError:
+            raise
+        except Exception as exc:  # decoder libraries raise many types for corrupt data
+            problem = f"cannot decode {fmt.upper()} data ({_short(exc)})"
+            exc.__traceback__ = None  # free the decoder's objects now: some print as they are destroyed
+            del exc
+            gc.collect()
+    if problem is not None:
+        raise BakeryError(problem, path)
     pixels = _to_float(raw, bits)
     if pixels.ndim == 2:
         pixels = pixels[:, :, None]
@@ -160,6 +175,62 @@ def read_image(
     elif color not in ("data", "srgb"):
         raise BakeryError(f"color must be 'data' or 'srgb'; got {color!r}")
     return Image(np.ascontiguousarray(pixels), bits, fmt, path)
+
+
+@contextlib.contextmanager
+def quiet_decoders() -> Iterator[None]:
+    """Silence what decoder libraries print (libpng warnings, OpenCV ``imdecode_`` lines, OpenEXR messages, on
+    stderr or stdout, from C or through Python) while a file is read: bakery reports a bad file in its own one
+    ``error:`` line. File descriptors 1 and 2 point at the null device meanwhile, and ``sys.stdout`` /
+    ``sys.stderr`` at a sink. ``BAKERY_DECODER_MESSAGES=1`` keeps the lines (``bakery --debug`` sets it for its
+    run)."""
+    if os.environ.get("BAKERY_DECODER_MESSAGES") == "1":
+        yield
+        return
+    global _QUIET_DEPTH
+    with _QUIET_LOCK:
+        if _QUIET_DEPTH == 0:
+            saved = []
+            for stream in (sys.stdout, sys.stderr):
+                with contextlib.suppress(Exception):
+                    stream.flush()
+            for fd in (1, 2):
+                try:
+                    keep = os.dup(fd)
+                except OSError:  # no such stream: nothing to silence
+                    continue
+                null = os.open(os.devnull, os.O_WRONLY)
+                os.dup2(null, fd)
+                os.close(null)
+                saved.append((fd, keep))
+            _QUIET_STATE.append((saved, sys.stdout, sys.stderr))
+            sys.stdout = sys.stderr = _Sink()
+        _QUIET_DEPTH += 1
+    try:
+        yield
+    finally:
+        with _QUIET_LOCK:
+            _QUIET_DEPTH -= 1
+            if _QUIET_DEPTH == 0:
+                saved, sys.stdout, sys.stderr = _QUIET_STATE.pop()
+                for fd, keep in saved:
+                    os.dup2(keep, fd)
+                    os.close(keep)
+
+
+class _Sink:
+    """A text stream that keeps nothing."""
+
+    def write(self, text: str) -> int:
+        return len(text)
+
+    def flush(self) -> None:
+        pass
+
+
+_QUIET_LOCK = threading.Lock()
+_QUIET_DEPTH = 0
+_QUIET_STATE: list = []
 
 
 def pixel_limit() -> int:

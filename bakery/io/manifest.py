@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import math
 import os
 from pathlib import Path
 from typing import Any
@@ -25,8 +26,22 @@ def file_digest(path: str | os.PathLike, *, chunk: int = 1 << 20) -> str:
 
 
 def to_json(data: Any) -> str:
-    """Deterministic JSON text: sorted keys, two-space indent, paths as strings, trailing newline."""
-    return json.dumps(data, indent=2, sort_keys=True, default=_default, allow_nan=False) + "\n"
+    """Deterministic JSON text: sorted keys, two-space indent, paths as strings, trailing newline. A NaN or
+    infinite number (which JSON cannot hold, RFC 8259 section 6) is written as the string "nan", "inf" or
+    "-inf", so a report about a bad value can always be written."""
+    return json.dumps(_finite(data), indent=2, sort_keys=True, default=_default, allow_nan=False) + "\n"
+
+
+def _finite(obj: Any) -> Any:
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return str(obj)
+    if isinstance(obj, dict):
+        return {k: _finite(v) for k, v in obj.items()}
+    if isinstance(obj, list | tuple):
+        return [_finite(v) for v in obj]
+    if hasattr(obj, "item") and getattr(obj, "ndim", None) == 0:  # numpy scalars
+        return _finite(obj.item())
+    return obj
 
 
 def _default(obj: Any) -> Any:

@@ -148,7 +148,7 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
     else:
         rough = float(roughness)
         if not 0 <= rough <= 1:
-            raise BakeryError(f"roughness must lie in [0, 1]; got {rough}")
+            raise BakeryError(f"--roughness must lie in [0, 1]; got {rough}")
     if isinstance(base_color, str | os.PathLike):
         path = Path(base_color)
         px = _read(path, color="srgb", max_pixels=max_pixels)

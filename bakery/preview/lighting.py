@@ -115,19 +115,23 @@ def read_specular_chain(path: str | os.PathLike) -> tuple[list[np.ndarray], np.n
     import warnings
 
     from bakery.errors import BakeryWarning
-    from bakery.io.ktx2 import read_ktx2
+    from bakery.io.envfiles import read_ktx2_limited
 
     path = Path(path)
-    tex = read_ktx2(path)
+    tex = read_ktx2_limited(path)
     if not tex.cubemap:
         raise BakeryError("is not a cubemap: a prefiltered specular chain has six faces per level", path)
     if ROUGHNESS_KEY not in tex.key_values:
         raise BakeryError(f"does not say the roughness of its levels (no {ROUGHNESS_KEY!r} entry); bake the chain "
                           "with bakery env specular", path)
     table = _kv_json(tex.key_values[ROUGHNESS_KEY], ROUGHNESS_KEY, path)
-    rough = np.asarray(table.get("roughness", []), dtype=np.float32)
-    if rough.shape != (len(tex.levels),):
-        raise BakeryError(f"lists {rough.size} roughness values for {len(tex.levels)} levels", path)
+    rough = _numbers(table.get("roughness") if isinstance(table, dict) else None, 1)
+    if rough is None or rough.shape != (len(tex.levels),):
+        raise BakeryError(f"its {ROUGHNESS_KEY!r} entry must hold \"roughness\": a list of {len(tex.levels)} "
+                          "numbers, one per level", path)
+    if not (np.all(np.isfinite(rough)) and np.all((rough >= 0) & (rough <= 1))):
+        raise BakeryError(f"its {ROUGHNESS_KEY!r} entry lists roughness values outside [0, 1] (or NaN/Inf)", path)
+    rough = rough.astype(np.float32)
     if table.get("lobe", "ggx") != "ggx":
         warnings.warn(f"{path}: the chain was prefiltered with the {table.get('lobe')} lobe; the preview's BRDF "
                       "table is GGX, so highlights will not match exactly", BakeryWarning, stacklevel=2)
@@ -137,6 +141,20 @@ def read_specular_chain(path: str | os.PathLike) -> tuple[list[np.ndarray], np.n
             lv = np.repeat(lv[..., :1], 3, axis=-1)
         levels.append(np.ascontiguousarray(lv[..., :3], dtype=np.float32))
     return levels, rough
+
+
+def _numbers(value, ndim: int) -> np.ndarray | None:
+    """A JSON value as a float64 array of ``ndim`` dimensions, or None when it is not one (text, ragged rows,
+    null, a mapping)."""
+    if not isinstance(value, list):
+        return None
+    if any(isinstance(v, bool | str | dict) or v is None for v in np.ravel(np.asarray(value, dtype=object))):
+        return None
+    try:
+        a = np.asarray(value, dtype=np.float64)
+    except (TypeError, ValueError):
+        return None
+    return a if a.ndim == ndim else None
 
 
 def read_radiance_sh(path: str | os.PathLike) -> np.ndarray:
@@ -151,8 +169,8 @@ def read_radiance_sh(path: str | os.PathLike) -> np.ndarray:
         raise BakeryError("file not found", path) from None
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise BakeryError(f"is not valid JSON ({exc.__class__.__name__})", path) from None
-    sh = np.asarray(data.get("radiance_sh", []) if isinstance(data, dict) else [], dtype=np.float64)
-    if sh.ndim != 2 or sh.shape[0] != 9 or sh.shape[1] not in (1, 3) or not np.all(np.isfinite(sh)):
+    sh = _numbers(data.get("radiance_sh") if isinstance(data, dict) else None, 2)
+    if sh is None or sh.ndim != 2 or sh.shape[0] != 9 or sh.shape[1] not in (1, 3) or not np.all(np.isfinite(sh)):
         raise BakeryError("has no 'radiance_sh' entry of 9 rows (1 or 3 channels); bake it with "
                           "bakery env diffuse", path)
     if sh.shape[1] == 1:
@@ -169,9 +187,9 @@ def read_brdf_table(path: str | os.PathLike) -> np.ndarray:
     path = Path(path)
     layout = None
     if path.suffix.lower() == ".ktx2":
-        from bakery.io.ktx2 import read_ktx2
+        from bakery.io.envfiles import read_ktx2_limited
 
-        tex = read_ktx2(path)
+        tex = read_ktx2_limited(path)
         if tex.cubemap or len(tex.levels[0].shape) != 3:
             raise BakeryError("is not a 2D texture: a BRDF table is one (H, W, 2) image", path)
         table = tex.levels[0]

@@ -458,7 +458,7 @@ def write_sheet(entries: Sequence[SheetEntry], out_html: str | os.PathLike, *, t
     """
     import cv2
 
-    from bakery.io.atomic import atomic_output
+    from bakery.io.atomic import atomic_output, check_output_folder
 
     out = Path(out_html)
     if out.suffix.lower() not in (".html", ".htm"):
@@ -467,6 +467,9 @@ def write_sheet(entries: Sequence[SheetEntry], out_html: str | os.PathLike, *, t
         raise BakeryError("output folder does not exist", out.parent)
     grids = sheet_grid(entries, thumb=thumb, columns=columns)
     folder, grid_paths = sheet_paths(out, len(grids))
+    check_output_folder([out, *grid_paths])  # before anything is written
+    if folder.exists() and not folder.is_dir():
+        raise BakeryError("a file has the name of the thumbnail folder", folder)
     work = Path(tempfile.mkdtemp(prefix=f".{out.stem}.sheet.", dir=out.parent))
     try:
         thumbs = work / folder.name

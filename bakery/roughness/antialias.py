@@ -129,7 +129,7 @@ def toksvig_exponent(exponent, length):
 
     Examples
     --------
-    >>> round(float(toksvig_exponent(16.0, 0.99)), 4)   # shared reference sheet, section 6
+    >>> round(float(toksvig_exponent(16.0, 0.99)), 4)   # docs/references.md, section 6
     13.7739
     """
     s = np.asarray(exponent, dtype=np.float64)

@@ -1,6 +1,7 @@
 """The command line: version, help, info, demo, and one-line errors with exit code 2."""
 
 import os
+import re
 import subprocess
 import sys
 
@@ -10,7 +11,7 @@ from typer.testing import CliRunner
 
 from bakery import __version__
 from bakery.cli import app
-from bakery.io import write_image
+from bakery.io import read_image, write_image
 
 runner = CliRunner()
 
@@ -56,6 +57,7 @@ def test_info_guesses_a_normal_map_and_an_hdr_panorama(tmp_path):
     sky = np.ones((16, 32, 3), np.float32) * 3
     r = runner.invoke(app, ["info", str(write_image(tmp_path / "n.png", flat)),
                             str(write_image(tmp_path / "s.exr", sky))])
+    assert r.exit_code == 0, r.output
     assert "normal map" in r.output and "HDR environment (equirectangular)" in r.output
 
 
@@ -88,8 +90,21 @@ def test_demo_writes_inputs_and_summary(tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)  # a relative output folder, as in the README's command
     r = runner.invoke(app, ["demo", "-o", "d", "--size", "64"])
     assert r.exit_code == 0, r.output
-    assert (tmp_path / "d" / "SUMMARY.md").exists()
-    assert (tmp_path / "d" / "inputs" / "paving_height.png").exists()
+    summary = (tmp_path / "d" / "SUMMARY.md").read_text(encoding="utf-8")
+    listed = re.findall(r"`([^`]+)`", summary)
+    assert len(listed) >= 10 and all((tmp_path / "d" / p).exists() for p in listed), listed
+    # the demo's bakes give what the commands give (one bake interface): its normal map, byte for byte
+    d = tmp_path / "d"
+    r = runner.invoke(app, ["normal", str(d / "inputs" / "paving_height.png"), "-o", str(tmp_path / "n.png")])
+    assert r.exit_code == 0, r.output
+    assert (tmp_path / "n.png").read_bytes() == (d / "normals" / "paving_normal.png").read_bytes()
+    # and its Y-down twin stores g' = 1 - g exactly, red and blue untouched (the Y-down convention of the trade,
+    # docs/references.md, section 1)
+    up, down = read_image(d / "normals" / "paving_normal.png"), read_image(d / "normals" / "paving_normal_ydown.png")
+    top = {"8": 255, "16": 65535}[up.bits]
+    g_up, g_down = np.rint(up.pixels[..., 1] * top), np.rint(down.pixels[..., 1] * top)
+    assert np.array_equal(g_down, top - g_up)
+    assert np.array_equal(up.pixels[..., ::2], down.pixels[..., ::2])
 
 
 def test_installed_entry_point_runs():

@@ -131,7 +131,8 @@ def test_channel_choice(tmp_path):
 
 def test_recipe_and_command_line_agree(tmp_path, exponent_map):
     path, _ = exponent_map
-    invoke("roughness", path, "-o", tmp_path / "cli.png", "--rule", "width", "--target", "alpha")
+    r = invoke("roughness", path, "-o", tmp_path / "cli.png", "--rule", "width", "--target", "alpha")
+    assert r.exit_code == 0, r.output
     params = params_from_mapping(get_bake("roughness"), {"rule": "width", "target": "alpha"}, "test")
     assert params == RoughnessParams(rule="width", target="alpha")
     run_bake("roughness", {"specular": path}, tmp_path / "lib.png", params)

@@ -3,6 +3,7 @@ parameter dataclasses, so they cannot disagree."""
 
 from pathlib import Path
 
+import pytest
 import typer.main
 
 from bakery.bakes import all_bakes
@@ -11,6 +12,17 @@ from bakery.bakes.reference import BAKE_COMMANDS, reference_markdown
 from bakery.cli import app
 
 ROOT = Path(__file__).resolve().parents[2]
+
+
+@pytest.fixture(autouse=True)
+def product_bakes_only(monkeypatch):
+    """The product's bakes only: the batch tests register test bakes (tests/batch/bakes_for_tests.py) in the
+    same registry when they run first."""
+    import bakery.bakes as bakes
+
+    bakes.all_bakes()
+    monkeypatch.setattr(bakes, "_REGISTRY", {k: v for k, v in bakes._REGISTRY.items()
+                                             if v.run.__module__.startswith("bakery.")})
 
 
 def _command(words: list[str]):

@@ -2,7 +2,7 @@
 
 Sources: R. Ramamoorthi, P. Hanrahan, "An Efficient Representation for Irradiance Environment Maps",
 SIGGRAPH 2001 -- basis constants, A_l (eq. 9), the quadratic form with c1..c5 (eq. 12-13), and the abstract's
-"average errors of only 1%". Closed-form cases from the references sheet section 10 (computed there):
+"average errors of only 1%". Closed-form cases from the docs/references.md, section 10 (computed there):
 constant L -> pi L; L = max(0, z) -> SH9 2.078034 / 0.662680 / -0.016361 at +z / +x / -z, exact 2pi/3, 2/3, 0,
 mean|dE|/mean E = 0.44%; upper hemisphere of 1 -> pi (1 + n_z) / 2 exactly; L = exp(8(z - 1)) at +x:
 SH9 0.113898 vs exact 0.105355.
@@ -53,7 +53,7 @@ def test_constant_environment_gives_pi_L(kind):
 
 
 def test_clamped_cosine_against_closed_form():
-    # references sheet 10 (computed): L = max(0, z): SH9 at +z 2.078034, +x 0.662680, -z -0.016361
+    # docs/references.md, section 10 (computed): L = max(0, z): SH9 at +z 2.078034, +x 0.662680, -z -0.016361
     env = pano(lambda d: np.maximum(0, d[..., 2]))
     sh = I.eval_sh(I.irradiance_coefficients(I.project_sh(env, "equirect")), NORMALS)[:, 0]
     np.testing.assert_allclose(sh, [2.078034, 27 * math.pi / 128, -0.016361], atol=2e-5)
@@ -63,7 +63,7 @@ def test_clamped_cosine_against_closed_form():
 
 
 def test_clamped_cosine_mean_relative_error():
-    # references sheet 10 (computed): mean|dE| / mean E = 0.44% for L = max(0, z)
+    # docs/references.md, section 10 (computed): mean|dE| / mean E = 0.44% for L = max(0, z)
     env = pano(lambda d: np.maximum(0, d[..., 2]))
     n = S.cube_directions(16, dtype=np.float64).reshape(-1, 3)
     w = np.tile(S.cube_texel_solid_angles(16, dtype=np.float64).reshape(-1), 6)
@@ -83,7 +83,7 @@ def test_linear_field_is_exact():
 
 
 def test_upper_hemisphere_exact_convolution():
-    # references sheet 10: upper hemisphere (y > 0 here: bakery's up) of radiance 1 -> pi (1 + n_y) / 2
+    # docs/references.md, section 10: upper hemisphere (y > 0 here: bakery's up) of radiance 1 -> pi (1 + n_y) / 2
     env = pano(lambda d: (d[..., 1] > 0).astype(np.float64))
     n = S.normalize(np.random.default_rng(2).normal(size=(25, 3)))
     ex = I.irradiance_exact(env, "equirect", n, source_size=128)[:, 0]
@@ -146,7 +146,7 @@ def test_exact_convolution_against_scipy_quadrature():
 
 
 def test_sharp_lobe_sh9_error_and_exact():
-    # references sheet 10: L = exp(8(z - 1)) at +x: SH9 0.113898 vs exact 0.105355 (+8%)
+    # docs/references.md, section 10: L = exp(8(z - 1)) at +x: SH9 0.113898 vs exact 0.105355 (+8%)
     env = pano(lambda d: np.exp(8 * (d[..., 2] - 1)))
     n = np.array([[1.0, 0, 0]])
     sh = I.eval_sh(I.irradiance_coefficients(I.project_sh(env, "equirect")), n)[0, 0]
@@ -157,7 +157,7 @@ def test_sharp_lobe_sh9_error_and_exact():
 
 def test_hann_window_reduces_ringing_behind_a_light():
     # the Hann window (Blackman & Tukey 1958) on the bands damps ringing; behind max(0, z) SH9 goes negative
-    # (-0.016361, references sheet 10) where the exact irradiance is 0
+    # (-0.016361, docs/references.md, section 10) where the exact irradiance is 0
     env = pano(lambda d: np.maximum(0, d[..., 2]))
     coeffs = I.project_sh(env, "equirect")
     back = np.array([[0, 0, -1.0]])

@@ -1,8 +1,8 @@
 """Seamless sampling and resampling (bakery.envmap.sample).
 
-Checks (issue 4): equirect -> cube -> equirect on a smooth HDR field stays well under 1% away from the poles;
+Checks: equirect -> cube -> equirect on a smooth HDR field stays well under 1% away from the poles;
 total energy sum(L * solid angle) within 1% through every conversion; a single bright texel keeps its energy
-within 1% when shrinking. Texel solid angles: closed forms of the references sheet section 11 (tested in
+within 1% when shrinking. Texel solid angles: closed forms of docs/references.md, section 11 (tested in
 tests/test_sphere.py). Orientation: bakery's equirect convention (DEVELOPERS.md) and the Vulkan cube-map face
 selection table with the handedness flip of bakery.sphere.
 """
@@ -32,7 +32,7 @@ def cube_field(n):
 
 @pytest.mark.parametrize("size", [48, 96, 128, 200])
 def test_equirect_cube_equirect_round_trip(size):
-    # issue 4 check: error well under 1% away from the poles (|latitude| < 60 degrees)
+    # error well under 1% away from the poles (|latitude| < 60 degrees)
     cube = RS.resample(EQ, "equirect", "cube", size)
     back = RS.resample(cube, "cube", "equirect", 512)
     lat = np.degrees(np.arcsin(S.equirect_directions(512, 256)[..., 1]))
@@ -54,7 +54,7 @@ CONVERSIONS = [
 @pytest.mark.parametrize("kind, dst, size", CONVERSIONS)
 @pytest.mark.parametrize("rotate", [0.0, 33.0])
 def test_total_energy_kept_through_every_conversion(kind, dst, size, rotate):
-    # issue 4 check: sum(L * solid angle) within 1% (here 0.1%) through every conversion
+    # sum(L * solid angle) within 1% (here 0.1%) through every conversion
     src = EQ if kind == "equirect" else cube_field(96)
     out = RS.resample(src, kind, dst, size, rotation_deg=rotate)
     ratio = RS.energy(out, dst) / RS.energy(src, kind)
@@ -66,7 +66,7 @@ def test_total_energy_kept_through_every_conversion(kind, dst, size, rotate):
     ("equirect", "equirect", 128), ("equirect", "equirect", 300), ("cube", "equirect", 64),
     ("cube", "equirect", 256), ("cube", "cube", 16), ("cube", "cube", 40), ("cube", "cube", 96)])
 def test_single_bright_texel_keeps_its_energy_when_shrinking(kind, dst, size):
-    # issue 4 check: area-weighted filtering keeps a single bright texel's energy within 1% when shrinking
+    # area-weighted filtering keeps a single bright texel's energy within 1% when shrinking
     rng = np.random.default_rng(5)
     for _ in range(4):
         if kind == "equirect":

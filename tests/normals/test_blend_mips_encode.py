@@ -33,7 +33,7 @@ def test_reoriented_flat_inputs_return_the_other():
                                                   ("derivative", (0.832050, 0.0, 0.554700)),
                                                   ("linear", (0.6, 0.0, 0.8))])
 def test_blend_values(method, expected):
-    # Barre-Brisebois & Hill 2012 formulas; values computed in the reference sheet, section 3:
+    # Barre-Brisebois & Hill 2012 formulas; values computed in docs/references.md, section 3:
     # n1 = n2 = (0.6, 0, 0.8): RNM (0.96, 0, 0.28) (angles add: 73.74 degrees), whiteout, partial
     # derivative (PD), linear.
     n = np.array([[[0.6, 0.0, 0.8]]], np.float32)
@@ -41,7 +41,7 @@ def test_blend_values(method, expected):
 
 
 def test_reoriented_crossed():
-    # Reference sheet, section 3: n1 = (0.6, 0, 0.8), n2 = (0, 0.6, 0.8): RNM (0.48, 0.60, 0.64).
+    # docs/references.md, section 3: n1 = (0.6, 0, 0.8), n2 = (0, 0.6, 0.8): RNM (0.48, 0.60, 0.64).
     a = np.array([[[0.6, 0.0, 0.8]]], np.float32)
     b = np.array([[[0.0, 0.6, 0.8]]], np.float32)
     assert blend_normals(a, b)[0, 0] == pytest.approx((0.48, 0.60, 0.64), abs=1e-6)
@@ -78,7 +78,7 @@ def test_mip_lengths_are_block_averages():
 
 
 def test_toksvig_example():
-    # Reference sheet, section 6 (computed): averaging (+-0.6, 0, 0.8) gives |Na| = 0.8.
+    # docs/references.md, section 6 (computed): averaging (+-0.6, 0, 0.8) gives |Na| = 0.8.
     n = np.zeros((2, 2, 3), np.float32)
     n[:, 0] = (0.6, 0, 0.8)
     n[:, 1] = (-0.6, 0, 0.8)
@@ -97,7 +97,7 @@ def test_odd_sizes_keep_the_mean(shape):
 
 
 def test_two_channel_decode_rebuilds_z():
-    # Reference sheet, section 1: z = sqrt(max(0, 1 - x^2 - y^2)).
+    # docs/references.md, section 1: z = sqrt(max(0, 1 - x^2 - y^2)).
     n = normal_from_height(np.random.default_rng(7).random((8, 8), dtype=np.float32), strength=2.0)
     back = decode_normals(encode_normals(n, channels=2))
     assert np.abs(back - n).max() < 1e-5

@@ -1,7 +1,7 @@
 """Height -> normal conversion against analytic surfaces and published kernel properties.
 
 Sources named beside each check. "Computed" values were evaluated numerically from the published formulas
-(the project's reference sheet, section 1) and are recomputed here where practical.
+(docs/references.md, section 1) and are recomputed here where practical.
 """
 
 import math
@@ -47,7 +47,7 @@ def test_exact_on_quadratics(kernel):
 def test_sinusoid_response_is_sinc(kernel, period, ratio):
     # Along its axis every kernel's response to sin(w x) is sin(w)/w (frequency response of the central
     # difference [-1, 0, 1]/2, e.g. Jaehne, "Digital Image Processing", derivative filters; from memory).
-    # Values computed in the reference sheet, section 1.
+    # Values computed in docs/references.md, section 1.
     w = 2 * math.pi / period
     assert math.sin(w) / w == pytest.approx(ratio, abs=1e-6)
     x, _ = grid(8, 64)
@@ -58,7 +58,7 @@ def test_sinusoid_response_is_sinc(kernel, period, ratio):
 @pytest.mark.parametrize(("kernel", "ratio"), [("central", 1.054499), ("sobel", 0.975259),
                                                ("scharr", 0.995069), ("prewitt", 0.948846)])
 def test_isotropy_at_period_8(kernel, ratio):
-    # Response at 45 degrees over response at 0 degrees for a plane wave of period 8 (reference sheet,
+    # Response at 45 degrees over response at 0 degrees for a plane wave of period 8 (docs/references.md,
     # section 1, computed): Scharr (Scharr 2000) is the most isotropic. The response of a linear filter to
     # exp(j phi) is read off its outputs for cos and sin.
     w = 2 * math.pi / 8
@@ -103,7 +103,7 @@ def test_tilted_plane_and_sphere_cap(kernel):
     n = normal_from_height((0.3 * x - 0.7 * y).astype(np.float32), strength=1.0, kernel=kernel, edges="clamp")
     err = angles_deg(n[1:-1, 1:-1], unit(np.array([-0.3, 0.7, 1.0])))
     assert err.max() < 0.05
-    # Sphere cap h = sqrt(R^2 - x^2 - y^2): exact normal (x, y, h) / R (reference sheet, section 1), e.g.
+    # Sphere cap h = sqrt(R^2 - x^2 - y^2): exact normal (x, y, h) / R (docs/references.md, section 1), e.g.
     # (0.3, 0.4, 0.866025) at (0.3R, 0.4R). Inside 0.8 R the curvature term of the kernels' Taylor error is
     # below 0.05 degrees for R = 40 texels.
     R = 40.0
@@ -185,7 +185,7 @@ def test_y_down_equals_negated_y_before_encoding():
 
 
 def test_encoding_values_and_tie_rule():
-    # Reference sheet, section 1: (0.3, 0.4, 0.866025) -> rgb (0.65, 0.70, 0.933013) -> 8-bit R 166, B 238
+    # docs/references.md, section 1: (0.3, 0.4, 0.866025) -> rgb (0.65, 0.70, 0.933013) -> 8-bit R 166, B 238
     # (G = 178.5 is a tie: kept out of the check). Flat 127.5 -> 128 with ties to even (numpy.rint).
     from bakery.io.images import quantize
 

@@ -1,6 +1,6 @@
 """Benchmarks for environment maps: ratios to floors measured in the same run (not collected by pytest).
 
-Targets (issue 4):
+Targets:
 - equirect 4096x2048 -> cubemap 1024^2 per face within 3x of the floor "one cv2.remap bilinear lookup per
   output texel" (same source, maps precomputed, so the floor is the lookup alone);
 - SH projection of a 4096x2048 panorama within 2x of the floor "one multiply-add pass over the image"

@@ -2,7 +2,7 @@
 
     python tests/perf/bench_roughness.py [--size 4096] [--repeat 5]
 
-Targets (issue 6):
+Targets:
 - 4096^2 exponent map -> roughness: within 3x of a numpy copy of the input + output bytes (float32).
 - 4096^2 normal map -> 13-level anti-aliased roughness chain: within 4x of a plain box mip chain of the same map.
 

@@ -2,7 +2,7 @@
 
 - :func:`split_sum_table`: the split-sum terms A, B (Karis 2013, SIGGRAPH course notes, the split-sum table
   integral) by a deterministic quadrature instead of Hammersley points: half vectors from GGX sampling
-  (Walter et al. 2007, eq. 35) at Gauss-Legendre nodes in u1 and midpoint nodes in the azimuth, the
+  (Walter et al. 2007, eq. 35) at Gauss-Legendre nodes in u1 and in the azimuths above the horizon, the
   integrand G2·(v·h)/((n·h)(n·v)) times (1 − Fc) and Fc, Fc = (1 − v·h)^5 (Schlick 1994), height-correlated
   Smith G2 (Heitz 2014, eq. 99) written out here from its formula.
 - :func:`brute_prefilter`: P(n) = Σ L(l) w Ω / Σ w Ω over every source texel, w = max(n·l, 0) D(h),
@@ -29,23 +29,32 @@ def _g2(nv, nl, a):
     return 1 / (1 + lam(nv) + lam(nl))
 
 
-def split_sum_terms(nv, r: float, n_u: int = 64, n_phi: int = 64):
-    """(A, B) at n·v (a number or a 1-D array) and perceptual roughness r (alpha = r², Burley 2012)."""
+def split_sum_terms(nv, r: float, n_u: int = 256, n_phi: int = 12):
+    """(A, B) at n·v (a number or a 1-D array) and perceptual roughness r (alpha = r², Burley 2012).
+
+    Half vectors at Gauss-Legendre nodes in u1 (GGX sampling, Walter et al. 2007, eq. 35) and, for each, at
+    Gauss-Legendre nodes over the azimuths where n·l > 0 only (|phi| < phi0 with cos phi0 = (n·v / (2 cos th) −
+    cos th n·v) / (sin th sin θv)), so the horizon cut-off is never inside a quadrature interval; the
+    published values of docs/references.md, section 7 come out to ~6e-6 (measured)."""
     scalar = np.ndim(nv) == 0
     nv = np.atleast_1d(np.asarray(nv, dtype=np.float64))[:, None, None]
     a = max(r * r, 1e-6)
     x, w = np.polynomial.legendre.leggauss(n_u)
     u1 = 0.5 * (x + 1)
     wu = 0.5 * w
-    phi = (np.arange(n_phi) + 0.5) / n_phi * 2 * math.pi
-    u1, phi = np.meshgrid(u1, phi, indexing="ij")
-    wt = wu[:, None] / n_phi
-    cos_t = np.sqrt((1 - u1) / (1 + (a * a - 1) * u1))
+    cos_t = np.sqrt((1 - u1) / (1 + (a * a - 1) * u1))[None, :, None]
     sin_t = np.sqrt(1 - cos_t * cos_t)
     sin_v = np.sqrt(1 - nv * nv)
+    lead = nv / (2 * cos_t) - cos_t * nv  # n·l > 0  <=>  sin_t sin_v cos(phi) > lead
+    with np.errstate(divide="ignore", invalid="ignore"):
+        c = np.where(sin_t * sin_v > 0, lead / (sin_t * sin_v), np.where(lead < 0, -2.0, 2.0))
+    phi0 = np.arccos(np.clip(c, -1, 1))
+    xp, wp = np.polynomial.legendre.leggauss(n_phi)
+    phi = 0.5 * (xp + 1) * phi0  # (nv, n_u, n_phi) over [0, phi0]; the integrand is even in phi
+    wt = wu[None, :, None] * (0.5 * wp * phi0) / math.pi
     vh = sin_t * np.cos(phi) * sin_v + cos_t * nv  # v = (sin θv, 0, cos θv)
     nl = 2 * vh * cos_t - nv
-    g = np.where(nl > 0, _g2(nv, nl, a) * vh / (cos_t * nv), 0.0)
+    g = np.where(nl > 0, _g2(nv, np.maximum(nl, 1e-300), a) * vh / (cos_t * nv), 0.0)
     fc = (1 - vh) ** 5
     ab = np.stack([np.sum(wt * g * (1 - fc), axis=(1, 2)), np.sum(wt * g * fc, axis=(1, 2))], -1)
     return tuple(float(v) for v in ab[0]) if scalar else ab

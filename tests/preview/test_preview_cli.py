@@ -102,7 +102,7 @@ def test_output_equal_to_input_is_refused(maps):
 
 
 def test_load_material_conventions(maps):
-    # Y-down files store −y (references.md §1); decoding as "down" negates it back
+    # Y-down files store −y (docs/references.md, section 1); decoding as "down" negates it back
     px = read_image(maps / "n.png").pixels
     up = decode_normal_pixels(px, green="up")
     down = decode_normal_pixels(px, green="down")
@@ -142,8 +142,8 @@ def test_sheet_errors(tmp_path):
 
 def test_sources_are_baked_in_memory(tmp_path):
     # A height ramp rising one unit per texel, strength 1: n = normalize(−1, 0, 1) (Blinn 1978, as in
-    # references.md §1); exponents 1, 32, 8192 -> perceptual roughness 0.903602, 0.492479, 0.124992
-    # (Walter et al. 2007: alpha = sqrt(2/(n + 2)), r = sqrt(alpha); references.md §5).
+    # docs/references.md, section 1); exponents 1, 32, 8192 -> perceptual roughness 0.903602, 0.492479, 0.124992
+    # (Walter et al. 2007: alpha = sqrt(2/(n + 2)), r = sqrt(alpha); docs/references.md, section 5).
     ramp = np.tile(np.arange(16, dtype=np.float32), (8, 1))[..., None]
     write_image(tmp_path / "h.exr", ramp, bits="float")
     exps = np.array([[1.0, 32.0, 8192.0]], np.float32)[..., None]

@@ -98,7 +98,8 @@ def test_entries_carry_kind_size_findings_and_previews(maps, lighting):
 
 
 def test_material_for_reads_normals_as_y_up():
-    # Encoding n·0.5 + 0.5 (references.md §1, glTF 2.0 normalTexture): (0.65, 0.70, 0.933013) is (0.3, 0.4, 0.866)
+    # Encoding n·0.5 + 0.5 (docs/references.md, section 1, glTF 2.0 normalTexture): (0.65, 0.70, 0.933013)
+    # is (0.3, 0.4, 0.866)
     px = np.broadcast_to(np.array([0.65, 0.70, 0.933013], np.float32), (4, 4, 3))
     mat, note = material_for(px, "normal", "8", "n.png")
     np.testing.assert_allclose(mat.normals[0, 0], [0.3, 0.4, 0.866025], atol=1e-4)
@@ -108,7 +109,7 @@ def test_material_for_reads_normals_as_y_up():
 def test_single_channel_maps_are_previewed_by_name():
     # heights: normals baked with relief = width/32 (bakery normal's default), n = normalize(−s ∂h/∂x, ..., 1)
     # (Blinn 1978) with s = 64/32 = 2 for a ramp rising 0.01 per texel; exponents: 32 -> r = 0.492479
-    # (Walter et al. 2007 peak rule, references.md §5)
+    # (Walter et al. 2007 peak rule, docs/references.md, section 5)
     ramp = np.tile(np.arange(64, dtype=np.float32) * 0.01, (16, 1))[..., None]
     mat, note = material_for(ramp, "height", "16", "wall_height.png")
     np.testing.assert_allclose(mat.normals[8, 30], np.array([-0.02, 0, 1]) / np.hypot(0.02, 1), atol=1e-5)
