@@ -253,8 +253,8 @@ def test_folder_in_place_of_the_output(command, good, tmp_path, capfd):
     args = argv(good / GOOD[role], out, good)
     target = Path(args[args.index("-o") + 1])
     # an existing folder named like the output is an output folder (the -o rule), so take a side file's name:
-    # the manifest, NAME.bakery.json (a face pattern's is NAME_cube.bakery.json)
-    taken = out / (target.stem.replace("_{face}", "_cube") + ".bakery.json")
+    # the manifest, NAME.ext.bakery.json (a face pattern's is NAME_cube.ext.bakery.json)
+    taken = out / (target.name.replace("_{face}", "_cube") + ".bakery.json")
     if command in ("sheet", "preview", "preview-env"):
         taken = out / "o.png"  # the sheet's grid picture; the preview picture (previews have no manifest)
     taken.mkdir()
