@@ -95,7 +95,7 @@ def test_a_killed_writers_temporary_is_removed_by_the_next_write(height, tmp_pat
     from bakery.cli import run
 
     assert run(["normal", str(height), "-o", str(out)]) == 0
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["h.png", "n.bakery.json", "n.png"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["h.png", "n.png", "n.png.bakery.json"]
 
 
 def test_an_old_temporary_is_removed_even_when_its_process_id_is_alive(height, tmp_path):

@@ -176,7 +176,7 @@ def test_height_from_a_non_tiling_map_by_value(tmp_path):
     r = bake("height", tmp_path / "n.png", "-o", tmp_path / "h.png", "--strength", "5", "--edges", "clamp")
     assert r.exit_code == 0, r.output
     back = read_image(tmp_path / "h.png").pixels[..., 0]
-    fit = json.loads((tmp_path / "h.bakery.json").read_text())["fit"]
+    fit = json.loads((tmp_path / "h.png.bakery.json").read_text())["fit"]
     assert fit["scale"] == 1.0
     err = (back - fit["offset"]) - (h - h.mean())
     assert np.abs(err).max() < 3e-3  # a result off in scale by 1.5 would be off by about 0.15
