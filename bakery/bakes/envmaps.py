@@ -76,7 +76,8 @@ class ConvertParams(Params):
             get_format(self.ktx2_format) if self.ktx2_format.lower() != "compressed" else None
 
 
-def _input_files(env_paths: list[Path], role: str) -> dict[str, Path]:
+def manifest_inputs(env_paths: list[Path], role: str) -> dict[str, Path]:
+    """The manifest's inputs for the files an environment was read from: one role, or one per face."""
     if len(env_paths) == 1:
         return {role: env_paths[0]}
     from bakery.io.layouts import FACE_TOKENS
@@ -156,7 +157,7 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, pr
                                 effort=params.effort, zstd=params.zstd, threads=bake_threads(), quality=quality,
                                 key_values=KTX_KEYS if output.suffix.lower() == ".ktx2" else None)
     man = write_manifest(output, bake="env-convert",
-                         inputs=_input_files(env.paths, "environment"),
+                         inputs=manifest_inputs(env.paths, "environment"),
                          params=params_to_dict(params), outputs=written,
                          extra={"conventions": CONVENTIONS, "output": {
                              "kind": kind, "layout": lay or ("ktx2" if output.suffix.lower() == ".ktx2"
@@ -255,7 +256,7 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
     if params.method == "sh":
         cube = irr.irradiance_cube_sh(windowed, params.face_size)
         if not lights:
-            expected = irr.sh9_error_estimate(px, env.kind, window=params.window, threads=bake_threads())
+            expected = irr.sh9_error_estimate(px, env.kind, window=params.window, radiance_sh=radiance)
             if expected["max_relative"] > SH9_WARN:
                 import warnings
 
@@ -308,10 +309,10 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
                                  key_values={**KTX_KEYS, "bakery.units": data["cubemap"]["units"]})
     written += write_environment(faces_pattern, cube, "cube", bits="half")
     extra = {"conventions": CONVENTIONS, **({"quality": quality} if quality else {})}
-    manifest_inputs = _input_files(env.paths, "environment")
+    recorded = manifest_inputs(env.paths, "environment")
     if inputs.get("lights") is not None:
-        manifest_inputs["lights"] = inputs["lights"]
-    man = write_manifest(output, bake="env-diffuse", inputs=manifest_inputs,
+        recorded["lights"] = inputs["lights"]
+    man = write_manifest(output, bake="env-diffuse", inputs=recorded,
                          params=params_to_dict(params), outputs=written, extra=extra)
     return written + [man]
 
@@ -382,7 +383,7 @@ def run_lights(inputs: dict[str, Path], output: Path, params: LightsParams, prog
     from bakery.io.images import write_image
 
     rest_file = write_image(rest_path(output), np.ascontiguousarray(rest, np.float32), bits="float")
-    man = write_manifest(output, bake="env-lights", inputs=_input_files(env.paths, "environment"),
+    man = write_manifest(output, bake="env-lights", inputs=manifest_inputs(env.paths, "environment"),
                          params=params_to_dict(params), outputs=[json_path, rest_file],
                          extra={"conventions": CONVENTIONS, "lights_found": len(lights)})
     progress(1.0, "done")

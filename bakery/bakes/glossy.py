@@ -185,15 +185,15 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
     }
     if quality:
         extra["quality"] = {output.name: quality}
-    from bakery.bakes.envmaps import _input_files
+    from bakery.bakes.envmaps import manifest_inputs
     from bakery.io.envfiles import face_paths, is_face_pattern
 
     src = inputs["environment"]
     files = face_paths(src) if is_face_pattern(src) else [src]
-    manifest_inputs = _input_files(files, "environment")
+    recorded = manifest_inputs(files, "environment")
     if inputs.get("lights") is not None:
-        manifest_inputs["lights"] = inputs["lights"]
-    written.append(write_manifest(output, bake="env-specular", inputs=manifest_inputs,
+        recorded["lights"] = inputs["lights"]
+    written.append(write_manifest(output, bake="env-specular", inputs=recorded,
                                   params=params_to_dict(params),
                                   outputs=written, extra=extra))
     return written

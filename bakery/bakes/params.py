@@ -141,7 +141,7 @@ class Params:
         for spec in specs(type(self)):
             value = getattr(self, spec.name)
             tidy = check_value(spec, value)
-            if tidy is not value:
+            if tidy is not value:  # canonical form: bits = 16 -> "16", a list -> a tuple
                 object.__setattr__(self, spec.name, tidy)
         self.check()
 
@@ -218,7 +218,7 @@ def _check_typed(spec: Spec, base: Any, value: Any, name: str) -> Any:
             if len(value) != len(inner):
                 raise BakeryError(f"{name} takes {len(inner)} values; got {len(value)}")
         out = tuple(_check_typed(spec, t, v, name) for t, v in zip(inner, value, strict=True))
-        return out if out != value or not isinstance(value, tuple) else value
+        return out
     return value
 
 

@@ -190,7 +190,7 @@ def irradiance_exact(env: np.ndarray, kind: str, normals: np.ndarray, *, source_
 
 
 def sh9_error_estimate(env: np.ndarray, kind: str, *, size: int = 8, window: str = "none",
-                       threads: int | None = None) -> dict[str, float]:
+                       threads: int | None = None, radiance_sh: np.ndarray | None = None) -> dict[str, float]:
     """How poor the 9-coefficient irradiance is for this environment (pure; for a warning that suggests the
     exact method).
 
@@ -207,7 +207,9 @@ def sh9_error_estimate(env: np.ndarray, kind: str, *, size: int = 8, window: str
     """
     env = np.asarray(env)
     normals = sphere.cube_directions(size, dtype=np.float64).reshape(-1, 3)
-    sh = eval_sh(irradiance_coefficients(project_sh(env, kind, threads=threads), window=window), normals)
+    if radiance_sh is None:  # callers that projected the environment already pass its coefficients
+        radiance_sh = project_sh(env, kind, threads=threads)
+    sh = eval_sh(irradiance_coefficients(radiance_sh, window=window), normals)
     ex = irradiance_exact(env, kind, normals, source_size=32)
     keep = ex > 1e-3 * ex.max(axis=0, keepdims=True)
     rel = np.where(keep, np.abs(sh - ex) / np.maximum(ex, 1e-300), 0.0)

@@ -19,16 +19,9 @@ Anti-aliasing: ``supersample`` x ``supersample`` samples per pixel, box-filtered
 References
 ----------
 .. [1] Karis, B. (2013). SIGGRAPH course notes, "Physically Based Shading in Theory and
-   Practice". (split-sum approximation).
-.. [2] Ramamoorthi, R., Hanrahan, P. (2001). An efficient representation for irradiance environment maps.
-   SIGGRAPH 2001 (eqs. 3 and 7; basis constants 0.282095, 0.488603, 1.092548, 0.315392, 0.546274).
-.. [3] The Khronos Group. glTF 2.0 Specification, appendix B "BRDF Implementation" (F0 = 0.04 for
-   dielectrics, metal-roughness mixing).
-.. [4] Reinhard, E., Stark, M., Shirley, P., Ferwerda, J. (2002). Photographic tone reproduction for digital
-   images. SIGGRAPH 2002 (eqs. 1, 2 and 4).
-.. [5] Williams, L. (1983). Pyramidal parametrics. SIGGRAPH '83 (mip maps, level from the footprint).
-.. [6] ITU-R Recommendation BT.709-6, item 3.2 (luminance weights 0.2126, 0.7152, 0.0722).
-.. [7] IEC 61966-2-1:1999 (sRGB transfer function).
+   Practice". (split-sum approximation; the shading itself is in :mod:`bakery.preview.shading`).
+.. [2] Williams, L. (1983). Pyramidal parametrics. SIGGRAPH '83 (mip level from the footprint; the lookups are
+   in :mod:`bakery.preview.textures`).
 """
 
 from __future__ import annotations
