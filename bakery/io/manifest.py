@@ -80,7 +80,8 @@ def write_manifest(output: str | os.PathLike, *, bake: str, inputs: dict[str, st
     """Write :func:`manifest_path` of ``output``, describing one bake.
 
     Input paths are stored by name only (relative paths would vary with the working folder); their content
-    hashes identify them.
+    hashes identify them. Outputs are stored relative to the manifest's folder with their content hashes
+    (``output_digests``; call this after the outputs are written).
     """
     from bakery._version import __version__
 
@@ -91,6 +92,8 @@ def write_manifest(output: str | os.PathLike, *, bake: str, inputs: dict[str, st
         "inputs": {role: {"name": Path(p).name, "digest": file_digest(p)} for role, p in inputs.items()},
         "params": params,
         "outputs": [_rel(o, out_dir) for o in outputs],
+        # content hashes of the outputs, so a reader can tell whether a file is still the one the bake wrote
+        "output_digests": {_rel(o, out_dir): file_digest(o) for o in outputs if Path(o).is_file()},
     }
     if extra:
         data.update(extra)
@@ -102,3 +105,40 @@ def _rel(p: str | os.PathLike, base: Path) -> str:
         return Path(p).resolve().relative_to(base.resolve()).as_posix()
     except ValueError:
         return Path(p).name
+
+
+def manifest_for(path: str | os.PathLike) -> dict[str, Any] | None:
+    """The manifest that describes the file ``path`` and still matches it, or None.
+
+    Looks at ``NAME.ext.bakery.json`` first, then at every other manifest in the same folder that lists the
+    file among its outputs (mip levels and cube faces are listed in the manifest of their bake's main output).
+    A manifest counts only when it records the file's content hash and the hash matches: a manifest left from
+    an earlier bake of a file that changed since is stale and ignored. Unreadable manifests are ignored too.
+    The returned dict is the manifest's JSON with ``"manifest"`` (its path) added.
+    """
+    path = Path(path)
+    if not path.is_file():
+        return None
+    own = manifest_path(path)
+    candidates = [own] + sorted(p for p in path.parent.glob("*" + MANIFEST_SUFFIX) if p != own)
+    digest = None
+    for cand in candidates:
+        data = _load(cand)
+        if data is None:
+            continue
+        recorded = data.get("output_digests")
+        if not isinstance(recorded, dict) or path.name not in recorded:
+            continue
+        digest = digest or file_digest(path)
+        if recorded[path.name] == digest:
+            data["manifest"] = cand
+            return data
+    return None
+
+
+def _load(path: Path) -> dict[str, Any] | None:
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    return data if isinstance(data, dict) else None
