@@ -7,13 +7,14 @@ through :func:`bakery.bakes.run_bake`, so a command line and a recipe give ident
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
 from bakery.bakes import Bake, Progress, bake_threads, params_to_dict, register
 from bakery.bakes.params import Bits, Params, bits_param, effort_param, ktx2_format_param, param, zstd_param
-from bakery.errors import BakeryError
+from bakery.errors import BakeryError, BakeryWarning
 
 Layout = Literal["equirect", "cross-wide", "cross-tall", "row", "stack", "files", "ktx2"]
 ImageLayout = Literal["equirect", "cross-wide", "cross-tall", "row", "stack"]
@@ -92,6 +93,35 @@ def environment_files(path: Path) -> list[Path]:
     return face_paths(path) if is_face_pattern(path) else [path]
 
 
+def clamp_for_ktx2(output: Path, levels: list, ktx2_format: str | None) -> list:
+    """Colour above 1 (or below 0) cannot be stored in a normalised KTX2 format (``rgba8``, ``rgba8-srgb``,
+    ``rgba16``, ``bc7-srgb`` ...): such levels are clamped here, with one warning that counts the clamped
+    colour samples and gives their fraction. HDR formats (the default rgba16f) pass unchanged."""
+    import numpy as np
+
+    from bakery.io.texcompress import resolve_format
+
+    if ktx2_format is None or output.suffix.lower() != ".ktx2":
+        return levels
+    fmt = resolve_format(ktx2_format, "hdr")
+    if fmt.is_float:
+        return levels
+    nc = min(3, levels[0].shape[-1])
+    over = sum(int(np.count_nonzero((lv[..., :nc] > 1) | (lv[..., :nc] < 0))) for lv in levels)
+    if not over:
+        return levels
+    total = sum(lv[..., :nc].size for lv in levels)
+    warnings.warn(f"{output}: {over} of {total} colour samples ({100 * over / total:.3g} %) lie outside [0, 1] "
+                  f"and were clamped for {fmt.short_name}; use rgba16f, b10g11r11-ufloat or bc6h to keep HDR "
+                  "values, or lower --exposure", BakeryWarning, stacklevel=2)
+    out = []
+    for lv in levels:
+        lv = np.array(lv, dtype=np.float32)
+        np.clip(lv[..., :nc], 0.0, 1.0, out=lv[..., :nc])
+        out.append(lv)
+    return out
+
+
 def convert_outputs(inputs: dict[str, Path], output: Path, params: ConvertParams) -> list[Path]:
     from bakery.io.manifest import manifest_path
 
@@ -151,6 +181,9 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, pr
     mips = None
     if output.suffix.lower() == ".ktx2" and params.mips:
         mips = (cube_mip_chain(pixels) if kind == "cube" else equirect_mip_chain(pixels))[1:]
+    if output.suffix.lower() == ".ktx2":
+        pixels, *rest = clamp_for_ktx2(output, [pixels] + list(mips or []), params.ktx2_format)
+        mips = rest if mips is not None else None
     quality: dict = {}
     written = write_environment(output, pixels, kind, layout=lay, bits=params.bits,
                                 source_bits=env.bits, ktx_format=params.ktx2_format, mips=mips,
@@ -258,10 +291,6 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
         if not lights:
             expected = irr.sh9_error_estimate(px, env.kind, window=params.window, radiance_sh=radiance)
             if expected["max_relative"] > SH9_WARN:
-                import warnings
-
-                from bakery.errors import BakeryWarning
-
                 worst, mean = 100 * expected["max_relative"], 100 * expected["mean_relative"]
                 warnings.warn(f"{src}: 9 SH coefficients miss this environment's compact bright light: up to "
                               f"{worst:.0f} % error (mean {mean:.1f} %); use --method exact (or take the sun out "
@@ -304,7 +333,8 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
     json_path = write_json(output, data)
     written = [json_path]
     quality: dict = {}
-    written += write_environment(ktx_path, cube, "cube", ktx_format=params.ktx2_format, effort=params.effort,
+    (ktx_cube,) = clamp_for_ktx2(ktx_path, [cube], params.ktx2_format)
+    written += write_environment(ktx_path, ktx_cube, "cube", ktx_format=params.ktx2_format, effort=params.effort,
                                  zstd=params.zstd, threads=bake_threads(), quality=quality,
                                  key_values={**KTX_KEYS, "bakery.units": data["cubemap"]["units"]})
     written += write_environment(faces_pattern, cube, "cube", bits="half")

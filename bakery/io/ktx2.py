@@ -387,12 +387,13 @@ def encode_blocks(a: np.ndarray, fmt: Format, *, quality: str = "fast", threads:
     a = np.asarray(a, dtype=np.float32)
     check_block_channels(a.shape[-1], fmt)
     a = fit_channels(a, fmt.channels)
-    if fmt.srgb:
+    clamped = 0
+    if fmt.srgb:  # colour outside [0, 1] is counted here, before the sRGB curve clips it
+        clamped = int(np.count_nonzero((a[..., :3] < 0) | (a[..., :3] > 1)))
         a = a.copy()
         a[..., :3] = linear_to_srgb(np.clip(a[..., :3], 0.0, 1.0))
     faces = a if a.ndim == 4 else a[None]
     out = []
-    clamped = 0
     for face in faces:
         data, c = blockcodec.encode_level(face, codec, quality=quality, threads=threads)
         out.append(data)
@@ -438,10 +439,10 @@ def encode_texels(a: np.ndarray, fmt: Format, *, counts: dict[str, int] | None =
     a = fit_channels(np.asarray(a, dtype=np.float32), fmt.channels)
     clamped = 0
     if fmt.kind == "unorm":
+        clamped = int(np.count_nonzero((a < 0) | (a > 1)))  # before the sRGB curve, which clips colour
         if fmt.srgb:
             a = a.copy()
             a[..., :3] = linear_to_srgb(np.clip(a[..., :3], 0.0, 1.0))
-        clamped = int(np.count_nonzero((a < 0) | (a > 1)))
         top = (1 << fmt.bits) - 1
         q = np.rint(np.clip(a, 0.0, 1.0) * np.float32(top))
         data = q.astype("<u1" if fmt.bits == 8 else "<u2")

@@ -79,6 +79,39 @@ def test_half_float_range_is_clamped_with_a_count(tmp_path, pano):
     assert read_image(tmp_path / "f.exr").pixels.max() == pytest.approx(1.0e5)
 
 
+def test_hdr_colour_in_an_srgb8_ktx2_is_counted_and_clamped(tmp_path):
+    # six 8x8 float faces of 0.5 with four texels of radiance 3 on +X: 12 of the 6 * 64 * 3 = 1152 colour
+    # samples (1.04 %) lie above 1, the top of R8G8B8A8_SRGB (KTX 2.0 / Vulkan format table)
+    faces = np.full((6, 8, 8, 3), 0.5, np.float32)
+    faces[0, 2:4, 5:7] = 3.0
+    for i, tok in enumerate(("x+", "x-", "y+", "y-", "z+", "z-")):
+        write_image(tmp_path / f"in_{tok}.exr", faces[i], bits="float")
+    out = tmp_path / "ldr.ktx2"
+    r = run("env", "convert", tmp_path / "in_{face}.exr", "-o", out, "--ktx2-format", "rgba8-srgb", "--no-mips")
+    assert r.exit_code == 0, r.output
+    lines = [ln for ln in r.output.splitlines() if ln.startswith("warning:")]
+    assert len(lines) == 1 and "12 of 1152 colour samples (1.04 %)" in lines[0] and "rgba16f" in lines[0]
+    # the stored bytes, read without bakery's reader: level 0 starts at the offset in the level index
+    # (KTX 2.0 section 3.9: byteOffset at bytes 80-87); 0xFF where clamped, sRGB(0.5) = 188 elsewhere
+    # (IEC 61966-2-1: 1.055 * 0.5^(1/2.4) - 0.055 = 0.7354, x 255 = 187.5)
+    data = out.read_bytes()
+    off = int.from_bytes(data[80:88], "little")
+    texels = np.frombuffer(data[off:off + 6 * 64 * 4], np.uint8).reshape(6, 8, 8, 4)
+    assert (texels[0, 2:4, 5:7, :3] == 255).all()
+    assert set(np.unique(texels[1:, :, :, :3])) == {188}
+    # an HDR format keeps the values and says nothing
+    r = run("env", "convert", tmp_path / "in_{face}.exr", "-o", tmp_path / "hdr.ktx2", "--no-mips")
+    assert r.exit_code == 0 and "warning" not in r.output
+    assert read_ktx2(tmp_path / "hdr.ktx2").levels[0].max() == 3.0
+
+
+def test_hdr_irradiance_in_an_srgb8_ktx2_is_counted(tmp_path, pano):
+    r = run("env", "diffuse", pano, "-o", tmp_path / "irr.json", "--face-size", "8", "--ktx2-format", "rgba8-srgb")
+    assert r.exit_code == 0, r.output
+    # the sky's radiance is 1-3 everywhere (pano fixture), so E/pi exceeds 1 in every colour sample
+    assert "warning: " in r.output and "of 1152 colour samples" in r.output and "rgba8-srgb" in r.output
+
+
 def test_rotate_and_exposure(tmp_path, pano):
     r = run("env", "convert", pano, "-o", tmp_path / "r.exr", "--rotation", "90", "--exposure", "1", "--bits",
             "float")
