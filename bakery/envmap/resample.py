@@ -319,6 +319,25 @@ def area_resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotat
     return res
 
 
+def reduction_factor(shape: tuple[int, ...], kind: str, dst_kind: str, size: int) -> int:
+    """The power-of-two factor of the exact reductions :func:`resample` applies before its lookups: the
+    source is halved while the output's texels stay at least twice as large as the halved source's (and
+    the size stays even). A caller may reduce by this factor (or a divisor of it) itself beforehand and
+    get the same result."""
+    dst_angle = texel_angle_cube(size) if dst_kind == "cube" else texel_angle_equirect(size, size // 2)
+    factor = 1
+    if kind == "cube":
+        n = shape[1]
+        while n % (2 * factor) == 0 and dst_angle / texel_angle_cube(n // factor) >= 2:
+            factor *= 2
+    else:
+        h, w = shape[:2]
+        while (h % (2 * factor) == 0 and w % (2 * factor) == 0
+               and dst_angle / texel_angle_equirect(w // factor, h // factor) >= 2):
+            factor *= 2
+    return factor
+
+
 def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_deg: float = 0.0,
              filter: str = "auto") -> np.ndarray:
     """Resample a cubemap or panorama to a cubemap of face ``size`` or a panorama of width ``size``.
@@ -361,17 +380,10 @@ def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_d
     ratio0 = _source_ratio(src, kind, dst_angle)
     # the area filter needs an output coarser than the input; enlarging is always bilinear
     use_area = ratio0 > 1 and (filter == "area" or (filter == "auto" and ratio0 > AREA_THRESHOLD))
-    # exact 2x2 reductions while the output is at least twice as coarse
-    while True:
-        ratio = _source_ratio(src, kind, dst_angle)
-        if ratio < 2:
-            break
-        if kind == "cube" and src.shape[1] % 2 == 0:
-            src = reduce_cube(src)
-        elif kind == "equirect" and src.shape[0] % 2 == 0 and src.shape[1] % 2 == 0:
-            src = reduce_equirect(src)
-        else:
-            break
+    # exact 2x2 reductions while the output is at least twice as coarse, done as one reduction
+    factor = reduction_factor(src.shape, kind, dst_kind, size)
+    if factor > 1:
+        src = reduce_cube(src, factor) if kind == "cube" else reduce_equirect(src, factor)
     if use_area and src.size // src.shape[-1] > AREA_MAX_TEXELS:
         import warnings
 

@@ -66,7 +66,7 @@ import numpy as np
 
 from bakery import sphere
 from bakery.envmap.reduce import reduce_equirect
-from bakery.envmap.resample import resample
+from bakery.envmap.resample import reduction_factor, resample
 from bakery.envmap.zonal import funk_hecke_coefficients, zonal_convolve_equirect
 from bakery.errors import BakeryError
 from bakery.microfacet import prefilter_weight, prefilter_weight_inplace
@@ -352,15 +352,6 @@ def brightest_texels(radiance: np.ndarray, omega: np.ndarray, factor: float, max
     return np.sort(cand)
 
 
-def _bright_split(img: np.ndarray, omega_row: np.ndarray, q: Quality) -> tuple[np.ndarray, np.ndarray]:
-    """Flat indices of the texels summed exactly, and the panorama with them removed."""
-    c = img.shape[2]
-    cand = brightest_texels(img, omega_row[:, None], q.bright_factor, q.max_bright)
-    rest = img.copy()
-    rest.reshape(-1, c)[cand] = 0.0
-    return cand, rest
-
-
 def _pad_rings(grid: np.ndarray, pad: int) -> np.ndarray:
     """Pad a ring grid (H, W, C): ``pad`` columns wrap around; ``pad`` rows continue across each pole (the
     row beyond the top is the top row half a turn away)."""
@@ -497,24 +488,12 @@ def prefilter_specular(
         img = src
     h, w, c = img.shape
     omega_row = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)
-    bright, rest = _bright_split(img, omega_row, q)
-    full_rest = rest
+    bright = brightest_texels(img, omega_row[:, None], q.bright_factor, q.max_bright)
     out: list[np.ndarray] = [None] * levels  # type: ignore[list-item]
     say(0.0, "level 0: mirror image")
     band = [0] * levels
     todo = [k for k in range(1, levels) if rough[k] > 0]
-    for k in range(levels):
-        if rough[k] == 0:
-            if kind == "equirect" and len(bright):
-                out[k] = _mirror_level(img, size >> k, bright, omega_row)
-            else:
-                out[k] = resample(src, kind, "cube", size >> k, filter=q.mirror_filter)
-    if not todo:
-        say(1.0, "done")
-        return PrefilterResult(out, rough, lobe, params, band, int(len(bright)))
-    say(0.04, "level 0: mirror image")
-    b_dirs = sphere.equirect_to_dir((bright % w + 0.5) / w, (bright // w + 0.5) / h).astype(np.float64)
-    b_vals = img.reshape(-1, c)[bright].astype(np.float64) * omega_row[bright // w][:, None]
+    mirrors = [k for k in range(levels) if rough[k] == 0]
     cap = w // 2 - 1  # the highest order the rows' Fourier transforms give without aliasing
     kernels, split = [], {}  # split[k] = (cos θc, Z_far) for levels summed partly over a window
     for k in todo:
@@ -524,9 +503,42 @@ def prefilter_specular(
             split[k] = (cos_c, z_far)
         kernels.append(g)
         band[k] = len(g) - 1
+    lmax = max((len(g) - 1 for g in kernels), default=0)
+
+    # One exact area reduction of the panorama serves every level: the transform's panorama is halved while
+    # it keeps ``oversampling`` rings per degree of the band limit (and twice the first level's face size),
+    # the mirror level's by the resampler's own exact reductions; the coarser of the two is reduced further.
+    f_rest, rows = 1, h
+    if todo:
+        while rows % 4 == 0 and rows // 2 >= q.oversampling * lmax and rows // 2 >= 2 * (size >> todo[0]):
+            f_rest, rows = f_rest * 2, rows // 2
+    f_mirror = min((reduction_factor(img.shape, "equirect", "cube", size >> k) for k in mirrors), default=0)
+    f0 = min(f_rest, f_mirror) if (todo and mirrors) else (f_rest if todo else f_mirror)
+    if kind == "cube" or split:
+        f0 = 1
+    red = reduce_equirect(img, f0) if f0 > 1 else img
+    # the bright texels leave the transform's panorama (they are summed exactly) and are filled from their
+    # neighbours in the mirror level's; the reduced blocks holding them are recomputed from the source
+    fill = _bright_fill(img, bright)
+    rest = _patch_blocks(img, red, f0, bright, np.zeros_like(fill), omega_row)
+    for k in mirrors:
+        if kind == "equirect" and len(bright):
+            filled = _patch_blocks(img, red, f0, bright, fill, omega_row)
+            out[k] = _mirror_level(img, filled, size >> k, bright, fill, omega_row)
+        else:
+            out[k] = resample(red if kind == "equirect" else src, kind, "cube", size >> k,
+                              filter=q.mirror_filter)
+    if not todo:
+        say(1.0, "done")
+        return PrefilterResult(out, rough, lobe, params, band, int(len(bright)))
+    say(0.04, "level 0: mirror image")
+    # levels summed partly over a window read the full-resolution panorama (then f0 = 1: such a lobe is
+    # narrower than the panorama's own band limit)
+    full_rest = rest if f0 == 1 else None
+    b_dirs = sphere.equirect_to_dir((bright % w + 0.5) / w, (bright // w + 0.5) / h).astype(np.float64)
+    b_vals = img.reshape(-1, c)[bright].astype(np.float64) * omega_row[bright // w][:, None]
 
     # progress shares: the transform by its multiply-adds, each level by its texels x (1 + summed texels/64)
-    lmax = max(len(g) - 1 for g in kernels)
     t_cost = lmax * lmax * h / 2 * 1e-3
     l_cost, l_win = {}, {}
     for k in todo:
@@ -538,11 +550,8 @@ def prefilter_specular(
     pos = 0.04
     t_end = pos + 0.96 * t_cost / total
     say(pos, f"levels {todo[0]}-{todo[-1]}: spherical harmonics to degree {lmax}")
-    factor, rows = 1, rest.shape[0]
-    while rows % 4 == 0 and rows // 2 >= q.oversampling * lmax and rows // 2 >= 2 * (size >> todo[0]):
-        factor, rows = factor * 2, rows // 2
-    if factor > 1:  # exact area means over factor x factor blocks, in one pass: fewer rings, same band limit
-        rest = reduce_equirect(rest, factor)
+    if f_rest > f0:  # exact area means over blocks, in one pass: fewer rings, same band limit
+        rest = reduce_equirect(rest, f_rest // f0)
 
     def transform_progress(done: int, count: int) -> None:  # order m costs about (L − m) H
         say(pos + (t_end - pos) * (1 - (1 - done / count) ** 2),
@@ -627,25 +636,14 @@ def _two_argument(callback):
     return lines
 
 
-def _mirror_level(img: np.ndarray, size: int, bright: np.ndarray, omega_row: np.ndarray,
-                  sub: int = 8) -> np.ndarray:
-    """The mirror level of a panorama with a few very bright texels (a sun smaller than an output texel).
-
-    The panorama is split exactly into a smooth part — the bright texels replaced by the mean of their
-    non-bright neighbours in a 9 x 9 box — resampled bilinearly (:func:`bakery.envmap.resample.resample`), and
-    the bright texels' excess radiance over that fill, whose energy ``(L − fill) Ω`` is deposited into the
-    output texels under ``sub x sub`` points of each bright texel. So the sun keeps its energy exactly and
-    lands in the texels it covers (close to the source's area average over each texel), while a constant
-    environment (no bright texels) stays exactly constant.
-    """
+def _bright_fill(img: np.ndarray, bright: np.ndarray, pad: int = 4) -> np.ndarray:
+    """The mean of the non-bright texels in the (2 pad + 1)² box around each bright texel (columns wrap
+    around, rows stop at the poles), ``(len(bright), C)`` float32."""
     h, w, c = img.shape
     mask = np.zeros(h * w, bool)
     mask[bright] = True
     mask = mask.reshape(h, w)
-    pad = 4
-    rows, cols = np.nonzero(mask)
-    # the mean of the non-bright texels in the 9 x 9 box around each bright texel (columns wrap around,
-    # rows stop at the poles)
+    rows, cols = bright // w, bright % w
     dr, dc = np.meshgrid(np.arange(-pad, pad + 1), np.arange(-pad, pad + 1), indexing="ij")
     rr = rows[:, None] + dr.ravel()[None, :]
     cc = (cols[:, None] + dc.ravel()[None, :]) % w
@@ -654,10 +652,56 @@ def _mirror_level(img: np.ndarray, size: int, bright: np.ndarray, omega_row: np.
     keep = inside & ~mask[rr, cc]
     nb = img[rr, cc].astype(np.float32) * keep[..., None]
     cnt = keep.sum(axis=1)
-    fill = np.where(cnt[:, None] > 0, nb.sum(axis=1) / np.maximum(cnt, 1)[:, None], 0.0).astype(np.float32)
-    filled = img.copy()
-    filled[rows, cols] = fill
-    base = resample(filled.astype(np.float32), "equirect", "cube", size, filter="bilinear").reshape(-1, c)
+    return np.where(cnt[:, None] > 0, nb.sum(axis=1) / np.maximum(cnt, 1)[:, None], 0.0).astype(np.float32)
+
+
+def _patch_blocks(img: np.ndarray, red: np.ndarray, factor: int, idx: np.ndarray, values: np.ndarray,
+                  omega_row: np.ndarray, chunk: int = 1 << 20) -> np.ndarray:
+    """``red`` (the panorama ``img`` reduced by ``factor``, :func:`bakery.envmap.reduce.reduce_equirect`) as
+    if the texels at flat indices ``idx`` of ``img`` held ``values``: a copy whose blocks holding them are
+    recomputed from ``img`` (solid-angle weighted means, float64), the others kept."""
+    h, w, c = img.shape
+    out = red.copy()
+    if not len(idx):
+        return out
+    if factor == 1:
+        out.reshape(-1, c)[idx] = values
+        return out
+    bw = w // factor
+    r, col = idx // w, idx % w
+    blk = (r // factor) * bw + col // factor
+    blocks, inv = np.unique(blk, return_inverse=True)
+    step = max(1, chunk // (factor * factor * c))
+    off = np.arange(factor)
+    for s in range(0, len(blocks), step):
+        sel = blocks[s:s + step]
+        br, bc = sel // bw, sel % bw
+        rr = br[:, None] * factor + off
+        cc = bc[:, None] * factor + off
+        tex = img[rr[:, :, None], cc[:, None, :]].astype(np.float64)  # (n, f, f, C)
+        mine = (inv >= s) & (inv < s + step)
+        tex[inv[mine] - s, r[mine] % factor, col[mine] % factor] = values[mine]
+        wr = omega_row[rr]  # (n, f)
+        out[br, bc] = (np.einsum("bijc,bi->bc", tex, wr) / (wr.sum(axis=1) * factor)[:, None]
+                       ).astype(np.float32)
+    return out
+
+
+def _mirror_level(img: np.ndarray, filled: np.ndarray, size: int, bright: np.ndarray, fill: np.ndarray,
+                  omega_row: np.ndarray, sub: int = 8) -> np.ndarray:
+    """The mirror level of a panorama with a few very bright texels (a sun smaller than an output texel).
+
+    The panorama is split exactly into a smooth part — the bright texels replaced by ``fill``, the mean of
+    their non-bright neighbours (:func:`_bright_fill`); ``filled`` is that panorama, possibly area-reduced
+    by a power of two — resampled bilinearly (:func:`bakery.envmap.resample.resample`), and the bright
+    texels' excess radiance over the fill, whose energy ``(L − fill) Ω`` is deposited into the output texels
+    under ``sub x sub`` points of each bright texel. So the sun keeps its energy exactly and lands in the
+    texels it covers (close to the source's area average over each texel), while a constant environment (no
+    bright texels) stays exactly constant.
+    """
+    h, w, c = img.shape
+    rows, cols = bright // w, bright % w
+    base = resample(filled, "equirect", "cube", size, filter="bilinear").reshape(-1, c)
     excess = (img[rows, cols].astype(np.float64) - fill) * omega_row[rows][:, None] / (sub * sub)
     off = (np.arange(sub) + 0.5) / sub
     u = (cols[:, None, None] + off[None, None, :]) / w
