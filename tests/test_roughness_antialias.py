@@ -237,3 +237,48 @@ def test_lobe_spread_factor_from_the_lobe_itself(lobe, alpha):
     assert measured == pytest.approx(closed, rel=1e-4)
     if alpha <= 1e-3:
         assert measured == pytest.approx(LOBE_SPREAD[lobe], rel=1e-4)
+
+
+def _rising_to_one(seen):
+    return bool(seen) and seen[-1] == 1.0 and all(a <= b for a, b in zip(seen, seen[1:], strict=False))
+
+
+def test_progress_within_the_chain_and_no_change_to_it():
+    # 2048^2 normals: level 1's reduction reports every 64 strips (16 rows each), then each level
+    normals = vmf_normals(40.0, 2048, seed=5).astype(np.float32)
+    seen = []
+    with_progress = roughness_mips(normals, 0.3, progress=seen.append)
+    plain = roughness_mips(normals, 0.3)
+    assert _rising_to_one(seen) and len(seen) >= 12  # one per level (12) plus the strips of level 1
+    assert sum(f < 0.7 for f in seen) >= 1  # reports inside the first reduction (its share is 0..0.7)
+    for a, b in zip(with_progress, plain, strict=True):
+        assert np.array_equal(a, b)
+
+
+def test_bakes_report_progress_and_write_the_same_bytes(tmp_path):
+    from bakery.bakes import run_bake
+    from bakery.bakes.roughness import AntialiasParams, RoughnessParams
+    from bakery.io import write_image
+
+    n = vmf_normals(40.0, 64, seed=6).astype(np.float32)
+    write_image(tmp_path / "n.png", n * 0.5 + 0.5, bits="16")
+    write_image(tmp_path / "s.png", np.linspace(0, 1, 64 * 64, dtype=np.float32).reshape(64, 64), bits="16")
+    cases = [("antialias", {"normal": tmp_path / "n.png"}, AntialiasParams(roughness=0.4), "png"),
+             ("antialias", {"normal": tmp_path / "n.png"}, AntialiasParams(roughness=0.4, loose=True), "ktx2"),
+             ("roughness", {"specular": tmp_path / "s.png"}, RoughnessParams(source="smoothness"), "png")]
+    for i, (bake, inputs, params, ext) in enumerate(cases):
+        seen = []
+        a = run_bake(bake, inputs, tmp_path / f"a{i}.{ext}", params, progress=lambda f, label, s=seen: s.append(f))
+        b = run_bake(bake, inputs, tmp_path / f"b{i}.{ext}", params)
+        assert _rising_to_one(seen) and len(seen) > 3, (bake, seen)
+        assert a[0].read_bytes() == b[0].read_bytes()
+
+
+def test_progress_within_a_roughness_conversion_changes_nothing():
+    from bakery.roughness.convert import convert_specular
+
+    x = np.linspace(0.0, 1.0, 5_000_000, dtype=np.float32)  # 153 blocks of 32 K values: reports at 64 and 128
+    seen = []
+    a = convert_specular(x, source="smoothness", target="alpha", progress=seen.append)
+    assert len(seen) == 2 and 0 < seen[0] < seen[1] < 1
+    assert np.array_equal(a, convert_specular(x, source="smoothness", target="alpha"))

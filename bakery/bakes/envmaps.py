@@ -158,6 +158,7 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, pr
     from bakery.io.manifest import write_manifest
 
     src = inputs["environment"]
+    progress(0.0, "reading")
     env = read_environment(src, layout=params.input_layout, repair=params.repair)
     kind, lay = output_kind(output, params.output_layout, env.layout)
     if kind == "cube" and params.width is not None:
@@ -173,7 +174,10 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, pr
     size = params.face_size or n_in
     width = params.width or w_in
     target = size if kind == "cube" else width
-    pixels = resample(env.pixels, env.kind, kind, target, rotation_deg=params.rotation, filter=params.filter)
+    progress(0.1, "resampling")
+    pixels = resample(env.pixels, env.kind, kind, target, rotation_deg=params.rotation, filter=params.filter,
+                      progress=lambda f: progress(0.1 + 0.7 * f, "resampling"))
+    progress(0.8, "writing")
     if params.exposure:  # colour channels only, never alpha
         pixels = pixels.copy()
         nc = 3 if pixels.shape[-1] >= 3 else 1
@@ -197,6 +201,7 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, pr
                                                              else "files"),
                              "size": int(target), "levels": 1 + len(mips or [])},
                              **({"quality": quality} if quality else {})})
+    progress(1.0, "done")
     return written + [man]
 
 

@@ -164,6 +164,7 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
     from bakery.roughness.convert import QUANTITIES, convert_specular
 
     src_path = inputs["specular"]
+    progress(0.0, "reading")
     img = read_image(src_path, allow_nonfinite=True)
     source = _source_quantity(params, img.bits, src_path)
     values = pick_channel(img.pixels, params.channel, src_path, "the map")
@@ -192,9 +193,12 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
     else:
         bits = output_bits(output, params.bits, packed.bits if packed is not None else img.bits,
                              bounded=math.isfinite(target.high))
+    # shares of the time (measured on an 8192^2 16-bit PNG, 4.2 s): reading 25 %, converting 10 %, writing 65 %
+    progress(0.25, "converting")
     try:
         result = convert_specular(values, source=source, target=params.target, model=params.model,
-                                  rule=params.rule, exponent_range=params.exponent_range, clamp=params.clamp)
+                                  rule=params.rule, exponent_range=params.exponent_range, clamp=params.clamp,
+                                  progress=lambda f: progress(0.25 + 0.1 * f, "converting"))
     except BakeryError as exc:
         raise _reraise(exc, src_path) from None
     result = clip_for_integers(result, bits, output, params.target)
@@ -210,6 +214,7 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
     else:
         pixels = result
     quality = None
+    progress(0.35, "writing")
     if ktx2:
         from bakery.bakes import bake_threads
         from bakery.io.texcompress import build_levels, resolve_format, write_texture
@@ -236,6 +241,7 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
     if quality:
         extra["quality"] = {output.name: quality}
     manifest = write_manifest(output, bake="roughness", inputs=inputs, params=p, outputs=[output], extra=extra)
+    progress(1.0, "done")
     return [output, manifest]
 
 
@@ -329,6 +335,7 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
                           normal_path)
     if rough_path is not None and params.roughness is not None:
         raise BakeryError("give either a roughness map or --roughness, not both", rough_path)
+    progress(0.0, "reading")
     normals, _ = read_normals(normal_path, "up")  # the Y convention does not change lengths of averages
     source_bits = "16"
     if rough_path is not None:
@@ -354,8 +361,12 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
         fmt = _roughness_format(params.ktx2_format, bits, output)
     else:
         bits = output_bits(output, params.bits, source_bits, bounded=True)
+    # shares of the time (measured on an 8192^2 16-bit normal map with PNG levels, 12 s): reading and the unit
+    # check 65 %, the chain 20 %, writing the levels 15 %
+    progress(0.65, "levels")
     try:
-        chain = roughness_mips(normals, base, levels=params.levels, method=params.method, lobe=params.lobe)
+        chain = roughness_mips(normals, base, levels=params.levels, method=params.method, lobe=params.lobe,
+                               progress=lambda f: progress(0.65 + 0.2 * f, "levels"))
     except BakeryError as exc:
         raise _reraise(exc, normal_path) from None
     paths = level_paths(output, len(chain), params.loose)
@@ -363,15 +374,25 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
     images = paths[1:] if ktx2 else paths
     describe = (f"perceptual roughness r (GGX alpha = r^2, Burley 2012); level k adds the normal spread under its "
                 f"footprint: alpha^2 = mean(alpha_0^2) + c * v(|Na|), method {params.method}, lobe {params.lobe}")
+    # writing: each level's share by its texels (level 0 about three quarters); a KTX2 chain counts as much
+    # as its images
+    sizes = [lv.size for lv in chain]
+    shares = [n / sum(sizes) for n in sizes] if images else []
+    if ktx2:
+        shares = [0.5 * f for f in shares] if images else []
+    done = 0.85
     with contextlib.ExitStack() as stack:  # every file renamed into place only after all were written
-        for level, path in zip(chain, images, strict=False):
+        for level, path, share in zip(chain, images, shares, strict=False):
+            progress(done, f"writing {path.name}")
             tmp = stack.enter_context(atomic_output(path))
             write_image(tmp, level, bits=bits)
+            done += 0.15 * share
         quality = None
         if ktx2:
             from bakery.bakes import bake_threads
             from bakery.io.texcompress import write_texture
 
+            progress(done, f"writing {output.name}")
             tmp = stack.enter_context(atomic_output(output))
             _, quality = write_texture(tmp, [lv[:, :, None] for lv in chain], fmt, kind="data",
                                        key_values={"bakery.roughness": describe}, effort=params.effort,
@@ -384,6 +405,7 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
         extra["quality"] = {output.name: quality}
     manifest = write_manifest(output, bake="antialias", inputs={k: v for k, v in inputs.items() if v},
                               params=params_to_dict(params), outputs=paths, extra=extra)
+    progress(1.0, "done")
     return paths + [manifest]
 
 

