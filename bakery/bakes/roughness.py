@@ -198,7 +198,7 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
     try:
         result = convert_specular(values, source=source, target=params.target, model=params.model,
                                   rule=params.rule, exponent_range=params.exponent_range, clamp=params.clamp,
-                                  progress=lambda f: progress(0.25 + 0.1 * f, "converting"))
+                                  progress=lambda f: progress(0.25 + 0.09 * f, "converting"))
     except BakeryError as exc:
         raise _reraise(exc, src_path) from None
     result = clip_for_integers(result, bits, output, params.target)
@@ -366,7 +366,7 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
     progress(0.65, "levels")
     try:
         chain = roughness_mips(normals, base, levels=params.levels, method=params.method, lobe=params.lobe,
-                               progress=lambda f: progress(0.65 + 0.2 * f, "levels"))
+                               progress=lambda f: progress(0.65 + 0.19 * f, "levels"))
     except BakeryError as exc:
         raise _reraise(exc, normal_path) from None
     paths = level_paths(output, len(chain), params.loose)
