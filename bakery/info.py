@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 import numpy as np
@@ -19,9 +20,7 @@ def describe(path: Path, *, max_pixels: int | None = None) -> list[str]:
     img = read_image(path, max_pixels=max_pixels, allow_nonfinite=True)
     px = img.pixels
     h, w, c = px.shape
-    finite = np.isfinite(px)
-    nan = int(np.count_nonzero(np.isnan(px)))
-    inf = int(np.count_nonzero(np.isinf(px)))
+    lo, hi, mean, nan, inf = channel_stats(px)
     lines = [
         f"{path}",
         f"  format:   {img.format.upper()}",
@@ -31,15 +30,50 @@ def describe(path: Path, *, max_pixels: int | None = None) -> list[str]:
     ]
     names = _channel_names(c).split(", ")
     for ch in range(c):
-        plane = px[:, :, ch][finite[:, :, ch]]
-        if plane.size:
-            lines.append(f"  range {names[ch]}:  {float(plane.min()):.6g} .. {float(plane.max()):.6g}"
-                         f"  (mean {float(plane.mean(dtype=np.float64)):.6g})")
+        if math.isfinite(mean[ch]):
+            lines.append(f"  range {names[ch]}:  {lo[ch]:.6g} .. {hi[ch]:.6g}  (mean {mean[ch]:.6g})")
         else:
             lines.append(f"  range {names[ch]}:  no finite samples")
     lines.append(f"  NaN: {nan}  Inf: {inf}")
     lines.append(f"  looks like: {guess_kind(px, is_float=img.is_float)}")
     return lines
+
+
+#: Samples per strip of :func:`channel_stats`: the temporaries stay a few MB whatever the image size.
+STATS_TEXELS = 1 << 18
+
+
+def channel_stats(pixels: np.ndarray) -> tuple[list[float], list[float], list[float], int, int]:
+    """Per channel the smallest, largest and mean finite sample of ``(..., C)`` pixels (NaN where a channel has
+    no finite sample), and the NaN and Inf counts over all channels; computed in strips of
+    :data:`STATS_TEXELS` texels, so the memory beyond the pixels stays bounded (means summed in float64)."""
+    c = pixels.shape[-1]
+    flat = pixels.reshape(-1, c)
+    lo = np.full(c, np.inf)
+    hi = np.full(c, -np.inf)
+    total = np.zeros(c)
+    count = np.zeros(c, dtype=np.int64)
+    nan = inf = 0
+    for s in range(0, flat.shape[0], STATS_TEXELS):
+        strip = flat[s:s + STATS_TEXELS]
+        if np.isfinite(strip.sum(dtype=np.float64)):  # the common case: no NaN or Inf in the strip
+            lo = np.minimum(lo, strip.min(axis=0))
+            hi = np.maximum(hi, strip.max(axis=0))
+            total += strip.sum(axis=0, dtype=np.float64)
+            count += strip.shape[0]
+            continue
+        nan += int(np.count_nonzero(np.isnan(strip)))
+        inf += int(np.count_nonzero(np.isinf(strip)))
+        for ch in range(c):
+            v = strip[:, ch][np.isfinite(strip[:, ch])]
+            if v.size:
+                lo[ch] = min(lo[ch], float(v.min()))
+                hi[ch] = max(hi[ch], float(v.max()))
+                total[ch] += v.sum(dtype=np.float64)
+                count[ch] += v.size
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.where(count > 0, total / np.maximum(count, 1), np.nan)
+    return lo.tolist(), hi.tolist(), mean.tolist(), nan, inf
 
 
 def _channel_names(c: int) -> str:
@@ -89,13 +123,10 @@ def describe_ktx2(path: Path) -> list[str]:
         else:
             text = f"{len(value)} bytes"
         lines.append(f"  {key}: {text}")
-    finite = np.isfinite(lv0)
+    lo, hi, mean, nan, inf = channel_stats(lv0)
     names = _channel_names(c).split(", ")
     for ch in range(c):
-        plane = lv0[..., ch][finite[..., ch]]
-        if plane.size:
-            lines.append(f"  range {names[ch]}:  {float(plane.min()):.6g} .. {float(plane.max()):.6g}"
-                         f"  (mean {float(plane.mean(dtype=np.float64)):.6g}, level 0)")
-    nan, inf = int(np.count_nonzero(np.isnan(lv0))), int(np.count_nonzero(np.isinf(lv0)))
+        if math.isfinite(mean[ch]):
+            lines.append(f"  range {names[ch]}:  {lo[ch]:.6g} .. {hi[ch]:.6g}  (mean {mean[ch]:.6g}, level 0)")
     lines.append(f"  NaN: {nan}  Inf: {inf}")
     return lines

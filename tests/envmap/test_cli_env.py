@@ -201,3 +201,21 @@ def test_panorama_as_2d_ktx2_with_mips(tmp_path, pano):
     tex = read_ktx2(tmp_path / "p.ktx2")
     assert not tex.cubemap and [lv.shape[:2] for lv in tex.levels][:3] == [(64, 128), (32, 64), (16, 32)]
     assert len(tex.levels) == 8
+
+
+def test_info_statistics_in_strips_match_whole_array_numpy(monkeypatch):
+    import bakery.info as info
+
+    rng = np.random.default_rng(17)
+    px = rng.normal(0.5, 2.0, (37, 29, 3)).astype(np.float32)
+    px[3, 4, 0], px[20, 1, 2], px[30, 28, 1] = np.nan, np.inf, -np.inf
+    px[:, :, 1][px[:, :, 1] > 0] = np.nan  # many NaN in G
+    monkeypatch.setattr(info, "STATS_TEXELS", 100)  # 11 strips, some with and some without NaN
+    lo, hi, mean, nan, inf = info.channel_stats(px)
+    finite = np.where(np.isfinite(px), px, np.nan).astype(np.float64)  # numpy's nan-aware reductions as reference
+    np.testing.assert_array_equal(lo, np.nanmin(finite, axis=(0, 1)))
+    np.testing.assert_array_equal(hi, np.nanmax(finite, axis=(0, 1)))
+    np.testing.assert_allclose(mean, np.nanmean(finite, axis=(0, 1)), rtol=1e-12)  # float64 sums either way
+    assert nan == int(np.isnan(px).sum()) and inf == 2
+    lo, hi, mean, nan, inf = info.channel_stats(np.full((4, 4, 1), np.nan, np.float32))
+    assert np.isnan(mean[0]) and nan == 16 and inf == 0
