@@ -1,8 +1,11 @@
 """The specular prefilter against the brute-force sum of its defining integral, analytic cases and the
 published check values.
 
-The quantity (Karis 2013, split sum, v = r = n): P(n) = ∫ L(l) w dl / ∫ w dl with w = max(n·l, 0) D(h),
-h = normalize(n + l). Check values for L(ω) = max(0, ω·a) are in docs/references.md, section 7
+The quantity (Karis 2013, SIGGRAPH course notes, Physically Based Shading course series, split sum with
+v = r = n): P(n) = ∫ L(l) w dl / ∫ w dl with w = max(n·l, 0) D(h), h = normalize(n + l), D the GGX
+distribution (Walter et al. 2007, EGSR, eq. 33) or normalised Blinn-Phong (eq. 30). The brute-force sum over
+every texel is :func:`tests.envmap.reference.prefilter_reference`, written from those formulas and sharing no
+code with bakery's prefilter. Check values for L(ω) = max(0, ω·a) are in docs/references.md, section 7
 (computed by exact quadrature).
 """
 
@@ -17,6 +20,7 @@ from scipy import integrate
 from bakery import microfacet as mf
 from bakery import sphere
 from bakery.envmap import specular as sp
+from tests.envmap.reference import prefilter_reference
 
 
 def _smooth_env(h: int, seed: int = 3, sun: bool = True) -> np.ndarray:
@@ -60,10 +64,11 @@ def test_against_brute_force_small_sky():
     res = sp.prefilter_specular(env, 32, levels=6)
     for k in range(1, 6):
         d, om = _level_dirs(res.levels[k])
-        ref = sp.brute_force_prefilter(env, d, float(res.params[k]))
+        ref = prefilter_reference(env, d, float(res.params[k]))
         m = sp.error_metrics(res.levels[k].reshape(-1, 3), ref, om)
-        # smoke-check bounds (common practice): relative RMS <= 1 %, 99th percentile <= 3 %
-        assert m["rel_rms"].max() < 0.01 and m["p99"].max() < 0.03, (k, m)
+        # the "final" quality's bounds (0.05 % relative RMS, 0.5 % at the 99th percentile; measured worst
+        # over levels 0.015 % / 0.11 %)
+        assert m["rel_rms"].max() < 5e-4 and m["p99"].max() < 5e-3, (k, m)
 
 
 def test_sh_path_against_brute_force():
@@ -74,9 +79,10 @@ def test_sh_path_against_brute_force():
     assert res.bright_texels > 0
     for k in range(1, 5):
         d, om = _level_dirs(res.levels[k])
-        ref = sp.brute_force_prefilter(env, d, float(res.params[k]))
+        ref = prefilter_reference(env, d, float(res.params[k]))
         m = sp.error_metrics(res.levels[k].reshape(-1, 3), ref, om)
-        assert m["rel_rms"].max() < 2e-3 and m["p99"].max() < 5e-3, (k, m)
+        # measured worst over levels: 0.011 % RMS, 0.059 % p99
+        assert m["rel_rms"].max() < 5e-4 and m["p99"].max() < 2e-3, (k, m)
 
 
 def test_blinn_phong_against_brute_force():
@@ -86,9 +92,10 @@ def test_blinn_phong_against_brute_force():
     assert res.params[2] == pytest.approx(2 / ((2 / 3) ** 2) ** 2 - 2)
     for k in range(1, 4):
         d, om = _level_dirs(res.levels[k])
-        ref = sp.brute_force_prefilter(env, d, float(res.params[k]), lobe="blinn-phong")
+        ref = prefilter_reference(env, d, float(res.params[k]), lobe="blinn-phong")
         m = sp.error_metrics(res.levels[k].reshape(-1, 3), ref, om)
-        assert m["rel_rms"].max() < 5e-3 and m["p99"].max() < 0.02, (k, m)
+        # measured worst over levels: 0.013 % RMS, 0.14 % p99
+        assert m["rel_rms"].max() < 5e-4 and m["p99"].max() < 5e-3, (k, m)
 
 
 @pytest.mark.parametrize(("r", "expected"), [
@@ -99,7 +106,7 @@ def test_clamped_cosine_check_values(r, expected):
     d = sphere.equirect_directions(512, 256, dtype=np.float64)
     env = np.repeat(np.maximum(0, -d[..., 2:3]), 3, axis=2).astype(np.float32)
     # the brute-force sum of the defining integral reproduces the published values (to 1e-5 here) ...
-    ref = sp.brute_force_prefilter(env, np.array([[0.0, 0.0, -1.0]]), r * r)
+    ref = prefilter_reference(env, np.array([[0.0, 0.0, -1.0]]), r * r)
     assert ref[0, 0] == pytest.approx(expected, abs=1e-5)
     # ... and the fast path lands within its truncation error: 5e-4 at "final", 1e-4 at "high" (this
     # environment's kink at the horizon is a hard case for a band-limited transform)
@@ -146,7 +153,7 @@ def test_seams():
     for k in range(1, 4):
         across, inside = sp.seam_metric(res.levels[k])
         d, _ = _level_dirs(res.levels[k])
-        ref = sp.brute_force_prefilter(env, d, float(res.params[k])).reshape(res.levels[k].shape)
+        ref = prefilter_reference(env, d, float(res.params[k])).reshape(res.levels[k].shape)
         ref_across, ref_inside = sp.seam_metric(ref)
         assert across <= 1.05 * ref_across + 1e-3, (k, across, ref_across)
         if res.levels[k].shape[1] >= 16:  # on tiny faces the two sets of pairs sample different places
@@ -220,7 +227,7 @@ def test_demo_sky_against_brute_force():
     for k in range(1, 9):
         d, om = _level_dirs(res.levels[k])
         pick = rng.choice(len(d), min(len(d), 24), replace=False)
-        ref = sp.brute_force_prefilter(env, d[pick], float(res.params[k]), dtype=np.float32)
+        ref = prefilter_reference(env, d[pick], float(res.params[k]))
         m = sp.error_metrics(res.levels[k].reshape(-1, 3)[pick], ref, om[pick])
         assert m["rel_rms"].max() < 0.01 and m["max"].max() < 0.03, (k, m)
 
@@ -235,9 +242,10 @@ def test_cubemap_input():
     a = sp.prefilter_specular(cube, 16, levels=5)
     for k in range(2, 5):
         d, om = _level_dirs(a.levels[k])
-        ref = sp.brute_force_prefilter(env, d, float(a.params[k]))
+        ref = prefilter_reference(env, d, float(a.params[k]))
         m = sp.error_metrics(a.levels[k].reshape(-1, 3), ref, om)
-        assert m["rel_rms"].max() < 5e-3, (k, m)
+        # measured worst over levels 0.027 % (the cube -> panorama resampling comes first)
+        assert m["rel_rms"].max() < 1e-3, (k, m)
 
 
 def test_mirror_level_is_the_source():
@@ -271,3 +279,13 @@ def test_mirror_level_keeps_a_sun():
     f, s, t = sphere.dir_to_face(sphere.equirect_directions(w, h, dtype=np.float64)[40, 170][None])
     peak = np.unravel_index(np.argmax(lv0[..., 0]), lv0.shape[:3])
     assert peak == (int(f[0]), int(t[0] * 16), int(s[0] * 16))
+
+
+def test_benchmark_oracle_is_the_reference_sum():
+    # tests/perf/bench_specular.py judges accuracy with sp.brute_force_prefilter; it is the same sum as the
+    # independent reference (float64 both: agreement to rounding, measured 1e-15 relative)
+    env = _smooth_env(64, seed=2)
+    d = sphere.cube_directions(4, dtype=np.float64).reshape(-1, 3)
+    for lobe, param in (("ggx", 0.02), ("ggx", 0.5), ("blinn-phong", 30.0)):
+        np.testing.assert_allclose(sp.brute_force_prefilter(env, d, param, lobe=lobe),
+                                   prefilter_reference(env, d, param, lobe=lobe), rtol=1e-10)

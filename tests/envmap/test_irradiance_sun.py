@@ -14,16 +14,8 @@ import numpy as np
 import pytest
 
 from bakery.envmap import irradiance as I
-
-
-def texels(w: int, h: int):
-    u = (np.arange(w) + 0.5) / w
-    v = (np.arange(h) + 0.5) / h
-    phi, theta = np.meshgrid(2 * math.pi * (u - 0.5), math.pi * (0.5 - v))
-    d = np.stack([np.sin(phi) * np.cos(theta), np.sin(theta), -np.cos(phi) * np.cos(theta)], -1)
-    edges = math.pi * (0.5 - np.arange(h + 1) / h)
-    om = 2 * math.pi / w * (np.sin(edges[:-1]) - np.sin(edges[1:]))
-    return d, np.repeat(om, w)
+from tests.envmap.reference import irradiance_reference as reference
+from tests.envmap.reference import texels
 
 
 def sun_sky(w: int, sun_dir, radius_deg: float, radiance: float = 2e4, sky: bool = True) -> np.ndarray:
@@ -47,14 +39,6 @@ def sun_sky(w: int, sun_dir, radius_deg: float, radiance: float = 2e4, sky: bool
         dd = np.stack(np.broadcast_arrays(np.sin(phi) * np.cos(th), np.sin(th), -np.cos(phi) * np.cos(th)), -1)
         env[r, c] += radiance * np.mean(dd @ s > cos_r) * np.array([1.0, 0.95, 0.85])
     return env.astype(np.float32)
-
-
-def reference(env: np.ndarray, normals: np.ndarray) -> np.ndarray:
-    h, w, c = env.shape
-    d, om = texels(w, h)
-    lw = env.reshape(-1, c).astype(np.float64) * om[:, None]
-    d = d.reshape(-1, 3)
-    return np.concatenate([np.maximum(normals[i:i + 64] @ d.T, 0) @ lw for i in range(0, len(normals), 64)])
 
 
 def terminator_normals(s, count=48):

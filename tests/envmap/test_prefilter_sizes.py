@@ -8,17 +8,17 @@ sum with v = r = n):
 over every panorama texel t, with D the GGX distribution D = α² / (π ((n·h)² (α² − 1) + 1)²) (Walter et al.
 2007, "Microfacet Models for Refraction through Rough Surfaces", EGSR, eq. 33) and the texel solid angle
 Ω = (2π/W)(sin θ0 − sin θ1) between the row's edge latitudes (exact area of a latitude-longitude cell). The
-reference below computes h and D from these formulas itself; it shares no code with bakery's prefilter.
+reference (tests/envmap/reference.py) computes h and D from these formulas itself; it shares no code with
+bakery's prefilter.
 """
 
 from __future__ import annotations
-
-import math
 
 import numpy as np
 import pytest
 
 from bakery.envmap import specular as sp
+from tests.envmap.reference import prefilter_reference as reference
 
 
 def sky(w: int) -> np.ndarray:
@@ -29,18 +29,6 @@ def sky(w: int) -> np.ndarray:
     return sky_panorama(w)
 
 
-def texel_dirs(w: int, h: int) -> tuple[np.ndarray, np.ndarray]:
-    """Directions (H W, 3) and solid angles (H W,) of panorama texels, from DEVELOPERS.md's orientation:
-    φ = 2π(u − 0.5), θ = π(0.5 − v), d = (sin φ cos θ, sin θ, −cos φ cos θ)."""
-    u = (np.arange(w) + 0.5) / w
-    v = (np.arange(h) + 0.5) / h
-    phi, theta = np.meshgrid(2 * math.pi * (u - 0.5), math.pi * (0.5 - v))
-    d = np.stack([np.sin(phi) * np.cos(theta), np.sin(theta), -np.cos(phi) * np.cos(theta)], -1)
-    edges = math.pi * (0.5 - np.arange(h + 1) / h)
-    om = 2 * math.pi / w * (np.sin(edges[:-1]) - np.sin(edges[1:]))
-    return d.reshape(-1, 3), np.repeat(om, w)
-
-
 def cube_texel_dirs(size: int) -> tuple[np.ndarray, np.ndarray]:
     """Texel centres of a cube level in bakery's directions and their solid angles (via bakery.sphere: the
     face table is tested in tests/envmap/test_sample.py; the reference integral is what matters here)."""
@@ -49,23 +37,6 @@ def cube_texel_dirs(size: int) -> tuple[np.ndarray, np.ndarray]:
     d = sphere.cube_directions(size, dtype=np.float64).reshape(-1, 3)
     om = np.tile(sphere.cube_texel_solid_angles(size, dtype=np.float64).ravel(), 6)
     return d, om
-
-
-def reference(env: np.ndarray, normals: np.ndarray, alpha: float) -> np.ndarray:
-    h, w, c = env.shape
-    l, om = texel_dirs(w, h)
-    vals = env.reshape(-1, c).astype(np.float64)
-    out = np.empty((len(normals), c))
-    for i, n in enumerate(normals):
-        nl = l @ n
-        up = nl > 0
-        hv = n[None, :] + l[up]
-        hv /= np.linalg.norm(hv, axis=1, keepdims=True)
-        noh = hv @ n
-        d = alpha ** 2 / (math.pi * (noh ** 2 * (alpha ** 2 - 1) + 1) ** 2)
-        wgt = nl[up] * d * om[up]
-        out[i] = wgt @ vals[up] / wgt.sum()
-    return out
 
 
 def errors(value, ref, om):

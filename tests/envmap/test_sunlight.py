@@ -18,7 +18,8 @@ from bakery import sphere
 from bakery.envmap import irradiance as I
 from bakery.envmap import specular as sp
 from bakery.envmap import sunlight as sl
-from tests.envmap.test_irradiance_sun import sun_sky, texels
+from tests.envmap.reference import texels
+from tests.envmap.test_irradiance_sun import sun_sky
 
 
 def unit(v):
