@@ -18,7 +18,7 @@ import OpenEXR
 import pytest
 import tifffile
 
-from bakery.bakes import params_from_mapping, get_bake, run_bake
+from bakery.bakes import get_bake, params_from_mapping, run_bake
 from bakery.bakes.pack import PackParams
 from bakery.errors import BakeryError
 from bakery.io import write_image
