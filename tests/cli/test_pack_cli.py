@@ -120,15 +120,16 @@ bake = "pack"
 match = "**/{material}_occlusion.png"
 inputs.g = "{dir}/{material}_roughness.png"
 output = "{dir}/{material}_orm.png"
-params = { r-role = "occlusion", g-role = "roughness", b-constant = 0.0 }
+params = { r-role = "occlusion", g-role = "roughness", b-constant = 0.0, mips = true }
 """)
     code, _, err = cli(["batch", tmp_path / "recipe.toml", "--quiet"], capfd)
     assert code == 0, err
     code, _, err = cli(["pack", "--r", src / "granite_occlusion.png", "--r-role", "occlusion",
                         "--g", src / "granite_roughness.png", "--g-role", "roughness", "--b-constant", "0",
-                        "-o", tmp_path / "granite_orm.png"], capfd)
+                        "--mips", "-o", tmp_path / "granite_orm.png"], capfd)
     assert code == 0, err
-    assert (baked / "rock" / "granite_orm.png").read_bytes() == (tmp_path / "granite_orm.png").read_bytes()
+    for name in ("granite_orm.png", "granite_orm.mip01.png", "granite_orm.mip03.png"):
+        assert (baked / "rock" / name).read_bytes() == (tmp_path / name).read_bytes()
     a = json.loads((baked / "rock" / "granite_orm.png.bakery.json").read_text())
     b = json.loads((tmp_path / "granite_orm.png.bakery.json").read_text())
     assert a["channels"] == b["channels"] and a["params"] == b["params"]
