@@ -36,7 +36,7 @@ from bakery.errors import BakeryError
 
 #: Modules that register bakes when imported.
 BAKE_MODULES: list[str] = ["bakery.bakes.normals", "bakery.bakes.roughness", "bakery.bakes.envmaps",
-                          "bakery.bakes.glossy", "bakery.bakes.relief"]
+                          "bakery.bakes.glossy", "bakery.bakes.relief", "bakery.bakes.pack"]
 
 #: ``progress(fraction, label)``: fraction in [0, 1], rising; label a few words ("level 3", "strips").
 Progress = Callable[[float, str], None]

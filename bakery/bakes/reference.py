@@ -18,6 +18,7 @@ BAKE_COMMANDS = {
     "antialias": "bakery antialias", "env-convert": "bakery env convert", "env-diffuse": "bakery env diffuse",
     "env-specular": "bakery env specular", "env-lut": "bakery env lut", "env-lights": "bakery env lights",
     "occlusion": "bakery occlusion", "curvature": "bakery curvature", "mips": "bakery mips",
+    "pack": "bakery pack",
 }
 
 

@@ -41,7 +41,7 @@ env_app = typer.Typer(help="Environment maps: panoramas, cubemaps, prefiltered l
 #: Command modules, imported in this order (each registers its own commands).
 COMMAND_MODULES = ["bakery.cli.info", "bakery.cli.inspect", "bakery.cli.demo", "bakery.cli.normals",
                    "bakery.cli.relief", "bakery.cli.roughness", "bakery.cli.envmaps", "bakery.cli.envlight",
-                   "bakery.cli.batch", "bakery.cli.preview"]
+                   "bakery.cli.batch", "bakery.cli.preview", "bakery.cli.pack"]
 
 
 def _version(value: bool) -> None:
