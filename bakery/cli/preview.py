@@ -166,16 +166,29 @@ def sheet(
                                       "one (normal, colour and roughness maps).")] = True,
     env: Annotated[Path | None, typer.Option(help="HDR panorama lighting the previews; default: the built-in "
                                              "procedural sky.", dir_okay=False)] = None,
-    title: Annotated[str, typer.Option(help="Title of the page.")] = "bakery contact sheet",
+    title: Annotated[str | None, typer.Option(help="Title of the page.", show_default=False)] = None,
+    compare: Annotated[bool, typer.Option("--compare", help="Compare two folders, old then new: assets paired "
+                                          "by relative path, each shown old, new and as a difference, with "
+                                          "PSNR (angular error for normal maps) per level.")] = False,
 ) -> None:
-    """Make a contact sheet: an HTML page (opens from disk, no server) and a PNG grid with every map, its lit
-    preview, size and the findings of `bakery inspect`."""
-    from bakery.preview.sheet import collect_maps, make_sheet
+    """Make a contact sheet: an HTML page (opens from disk, no server) and a PNG grid with a card per asset
+    (a map with its mip levels, cube faces and KTX2 container), its lit preview, size and the findings of
+    `bakery inspect`."""
+    from bakery.preview.sheet import collect_maps, make_compare_sheet, make_sheet
 
     output_path(output, suffixes=(".html", ".htm"))
+    if compare:
+        if len(sources) != 2:
+            raise BakeryError("--compare takes two folders: the old version, then the new one")
+        written = make_compare_sheet(sources[0], sources[1], output, thumb=thumb, columns=columns,
+                                     recursive=recursive, title=title or "bakery comparison",
+                                     progress=progress_lines("assets"))
+        echo(f"wrote {written[-1]} and {', '.join(p.name for p in written[:-1])}")
+        return
+    title = title or "bakery contact sheet"
     files = collect_maps(sources, output, recursive=recursive)
     written = make_sheet(files, output, source=", ".join(str(s) for s in sources), thumb=thumb,
-                         columns=columns, lit=lit, env=env, title=title, progress=progress_lines("maps"))
+                         columns=columns, lit=lit, env=env, title=title, progress=progress_lines("assets"))
     echo(f"wrote {written[-1]} and {', '.join(p.name for p in written[:-1])}")
 
 

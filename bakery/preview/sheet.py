@@ -371,6 +371,8 @@ def lit_previews(lighting, *, size: int = 160, supersample: int = 2) -> PreviewF
             ball = Material(roughness=0.15, metallic=1.0, base_color=(0.95, 0.95, 0.95))
             img, _ = preview_image(ball, own, size=size, views="ball", supersample=supersample, exposure=None)
             return img, "lit by itself: metal ball, roughness 0.15"
+        if kind == "irradiance":
+            return None, "irradiance: shown as crosses, not on a ball"
         if pixels.ndim != 3:
             return None, f"no lit preview for a cube map of this kind ({kind})"
         try:
