@@ -173,9 +173,9 @@ def test_tables_packed_textures_and_conventions(library, sheet, lighting):
     down = make_entry(library / "extra" / "paving_down.png", preview=fn).preview
     assert np.abs(up - down).max() <= 2.5 / 255
     # read as Y-up instead, the relief turns inside out: the previews differ clearly
+    from bakery.io import read_image
     from bakery.preview.render import preview_image
     from bakery.preview.sheet import material_for
-    from bakery.io import read_image
 
     px = read_image(library / "extra" / "paving_down.png").pixels
     wrong, _ = material_for(px, "normal", "16", "paving_down.png")
