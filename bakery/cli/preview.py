@@ -56,7 +56,16 @@ def preview(
                                                   dir_okay=False)] = None,
     base_color: Annotated[str, typer.Option("--base-color", help="Base colour: a grey level, R,G,B (linear, "
                                             "0-1) or a colour map (8/16-bit files are sRGB).")] = "0.5",
-    metallic: Annotated[float, typer.Option(min=0.0, max=1.0, help="0 = dielectric, 1 = metal.")] = 0.0,
+    metallic: Annotated[str, typer.Option(help="Metalness: a number in [0, 1] (0 = dielectric, 1 = metal) or "
+                                          "a metalness map.")] = "0",
+    occlusion: Annotated[Path | None, typer.Option(help="Ambient-occlusion map (e.g. of `bakery occlusion`): "
+                                                   "darkens the environment's light.", dir_okay=False)] = None,
+    pack: Annotated[Path | None, typer.Option(help="Packed texture: roughness, metalness, occlusion, colour or "
+                                              "height from its channels, laid out as its manifest says (or "
+                                              "--pack-layout).", dir_okay=False)] = None,
+    pack_layout: Annotated[str | None, typer.Option("--pack-layout", help="Roles of the --pack channels in "
+                                                    "r,g,b,a order, e.g. occlusion,roughness,metalness (- for "
+                                                    "an unused channel).", show_default=False)] = None,
     env: Annotated[Path | None, typer.Option(help="HDR environment panorama (equirectangular .hdr/.exr), baked "
                                              "in memory; default: the built-in procedural sky.",
                                              dir_okay=False)] = None,
@@ -68,6 +77,10 @@ def preview(
     lut: Annotated[Path | None, typer.Option(help="Baked lighting: the BRDF table of `bakery env lut` "
                                              "[default: made in memory].", dir_okay=False,
                                              show_default=False)] = None,
+    lights: Annotated[Path | None, typer.Option(help="The lights file of `bakery env lights`: its lights shine "
+                                                "as directional lights (GGX highlight, Lambert diffuse); "
+                                                "without --env, the environment without them that it names "
+                                                "lights the rest.", dir_okay=False)] = None,
     size: Annotated[int, typer.Option(min=8, max=4096, help="Height of the picture in pixels (each view is "
                                       "size x size).")] = 512,
     views: Annotated[Views, typer.Option("--views", help="Which views to draw.")] = Views.both,
@@ -93,29 +106,31 @@ def preview(
     """Render a lit preview of a material: a ball and a flat tile under an HDR environment (split-sum
     specular, spherical-harmonic diffuse, Reinhard tone mapping, sRGB output)."""
     from bakery.io.atomic import check_distinct
-    from bakery.preview.inputs import load_material, parse_value_or_path
+    from bakery.preview.inputs import load_material, parse_pack_layout, parse_value_or_path
     from bakery.preview.lighting import choose_lighting
 
     for name, value in (("--yaw", yaw), ("--pitch", pitch), ("--tile-pitch", tile_pitch), ("--rotation", rotation),
                         ("--tiles", tiles[0]), ("--tiles", tiles[1]), ("--repeat", repeat), ("--white", white),
-                        ("--metallic", metallic), ("--fps", fps), ("--strength", strength)):
+                        ("--fps", fps), ("--strength", strength)):
         if value is not None and not math.isfinite(value):
             raise BakeryError(f"{name} must be a finite number; got {value}")
     anim = turntable is not None
     output_path(output, suffixes=(".gif", ".webp") if anim else (".png",))
     rough = parse_value_or_path(roughness, "--roughness", channels=1)
     color = parse_value_or_path(base_color, "--base-color", channels=3)
+    metal = parse_value_or_path(metallic, "--metallic", channels=1)
+    layout = parse_pack_layout(pack_layout) if pack_layout is not None else None
     ev = _exposure(exposure)
     if white is not None and not white > 0:
         raise BakeryError(f"--white must be a positive luminance; got {white}")
-    inputs = [p for p in (normal, height, exponent, env, specular, diffuse, lut, rough, color)
-              if isinstance(p, Path)]
+    inputs = [p for p in (normal, height, exponent, env, specular, diffuse, lut, lights, rough, color, metal,
+                          occlusion, pack) if isinstance(p, Path)]
     check_distinct([output], inputs)
     limit = None  # read_image applies BAKERY_MAX_PIXELS
     material = load_material(normal=normal, green=y.value, height=height, strength=strength,
-                             roughness=rough, exponent=exponent, base_color=color, metallic=metallic,
-                             max_pixels=limit)
-    lighting = choose_lighting(env, specular=specular, diffuse=diffuse, lut=lut)
+                             roughness=rough, exponent=exponent, base_color=color, metallic=metal,
+                             occlusion=occlusion, pack=pack, pack_layout=layout, max_pixels=limit)
+    lighting = choose_lighting(env, specular=specular, diffuse=diffuse, lut=lut, lights=lights)
     if anim:
         from bakery.io.animation import write_animation
         from bakery.preview.render import turntable_frames
@@ -151,16 +166,29 @@ def sheet(
                                       "one (normal, colour and roughness maps).")] = True,
     env: Annotated[Path | None, typer.Option(help="HDR panorama lighting the previews; default: the built-in "
                                              "procedural sky.", dir_okay=False)] = None,
-    title: Annotated[str, typer.Option(help="Title of the page.")] = "bakery contact sheet",
+    title: Annotated[str | None, typer.Option(help="Title of the page.", show_default=False)] = None,
+    compare: Annotated[bool, typer.Option("--compare", help="Compare two folders, old then new: assets paired "
+                                          "by relative path, each shown old, new and as a difference, with "
+                                          "PSNR (angular error for normal maps) per level.")] = False,
 ) -> None:
-    """Make a contact sheet: an HTML page (opens from disk, no server) and a PNG grid with every map, its lit
-    preview, size and the findings of `bakery inspect`."""
-    from bakery.preview.sheet import collect_maps, make_sheet
+    """Make a contact sheet: an HTML page (opens from disk, no server) and a PNG grid with a card per asset
+    (a map with its mip levels, cube faces and KTX2 container), its lit preview, size and the findings of
+    `bakery inspect`."""
+    from bakery.preview.sheet import collect_maps, make_compare_sheet, make_sheet
 
     output_path(output, suffixes=(".html", ".htm"))
+    if compare:
+        if len(sources) != 2:
+            raise BakeryError("--compare takes two folders: the old version, then the new one")
+        written = make_compare_sheet(sources[0], sources[1], output, thumb=thumb, columns=columns,
+                                     recursive=recursive, title=title or "bakery comparison",
+                                     progress=progress_lines("assets"))
+        echo(f"wrote {written[-1]} and {', '.join(p.name for p in written[:-1])}")
+        return
+    title = title or "bakery contact sheet"
     files = collect_maps(sources, output, recursive=recursive)
     written = make_sheet(files, output, source=", ".join(str(s) for s in sources), thumb=thumb,
-                         columns=columns, lit=lit, env=env, title=title, progress=progress_lines("maps"))
+                         columns=columns, lit=lit, env=env, title=title, progress=progress_lines("assets"))
     echo(f"wrote {written[-1]} and {', '.join(p.name for p in written[:-1])}")
 
 

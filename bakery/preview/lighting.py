@@ -236,20 +236,69 @@ def default_lighting():
     return lighting_from_panorama(sky_panorama(1024, sun_azimuth_deg=145.0))
 
 
-def choose_lighting(env: Path | None, *, specular: Path | None = None, diffuse: Path | None = None,
-              lut: Path | None = None):
-    """The lighting of a preview: baked files (``specular`` + ``diffuse`` [+ ``lut``]), a panorama ``env``, or
-    the built-in sky."""
-    from bakery.preview.lighting import default_lighting, lighting_from_baked, lighting_from_file
+def read_light_file(path: str | os.PathLike) -> tuple[tuple, Path | None]:
+    """The lights of a file written by ``bakery env lights`` as
+    :class:`~bakery.preview.shading.DirectionalLight` objects, and the environment without them named in the
+    file (``environment_without_lights``, beside it) when that file exists."""
+    import json
 
+    from bakery.bakes.envmaps import read_lights
+    from bakery.preview.shading import DirectionalLight
+
+    path = Path(path)
+    lights = tuple(DirectionalLight(tuple(lt.direction), tuple(lt.irradiance)[:3]) for lt in read_lights(path))
+    rest = None
+    try:
+        name = json.loads(path.read_text(encoding="utf-8")).get("environment_without_lights")
+    except (OSError, ValueError, AttributeError):
+        name = None
+    if isinstance(name, str) and name and (path.parent / name).is_file():
+        rest = path.parent / name
+    return lights, rest
+
+
+def _same_environment(env: Path, lights_file: Path) -> bool:
+    """True when ``env`` is the very environment the lights were found in (the manifest of the lights file
+    records its digest), so the light would be counted twice."""
+    from bakery.io.manifest import file_digest, manifest_for
+
+    manifest = manifest_for(lights_file)
+    entry = (manifest or {}).get("inputs", {}).get("environment")
+    return isinstance(entry, dict) and entry.get("digest") == file_digest(env)
+
+
+def choose_lighting(env: Path | None, *, specular: Path | None = None, diffuse: Path | None = None,
+                    lut: Path | None = None, lights: Path | None = None):
+    """The lighting of a preview: baked files (``specular`` + ``diffuse`` [+ ``lut``]), a panorama ``env``, or
+    the built-in sky; plus the directional lights of a ``bakery env lights`` file. With ``lights`` and neither
+    ``env`` nor baked files, the environment is the one without the lights that the file names."""
+    import dataclasses
+    import warnings
+
+    from bakery.errors import BakeryWarning
+
+    found = ()
+    if lights is not None:
+        found, rest = read_light_file(lights)
+        if env is None and specular is None and diffuse is None:
+            if rest is None:
+                raise BakeryError("names no environment without its lights beside it; give --env (the "
+                                  "environment the lights were taken out of, NAME.rest.exr)", lights)
+            env = rest
+        elif env is not None and env.is_file() and _same_environment(env, lights):
+            warnings.warn(f"{env}: the lights of {lights.name} were found in this environment and are still in "
+                          f"it, so they count twice; use the environment without them", BakeryWarning,
+                          stacklevel=2)
     if specular is not None or diffuse is not None:
         if env is not None:
             raise BakeryError("give either a panorama (--env) or baked lighting (--specular, --diffuse), not both")
         if specular is None or diffuse is None:
             raise BakeryError("baked lighting needs both --specular (the KTX2 chain) and --diffuse (the SH JSON)")
-        return lighting_from_baked(specular, diffuse, lut)
-    if lut is not None:
+        base = lighting_from_baked(specular, diffuse, lut)
+    elif lut is not None:
         raise BakeryError("--lut goes with baked lighting (--specular, --diffuse)")
-    if env is None:
-        return default_lighting()
-    return lighting_from_file(env)
+    elif env is None:
+        base = default_lighting()
+    else:
+        base = lighting_from_file(env)
+    return dataclasses.replace(base, lights=found) if found else base

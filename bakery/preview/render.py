@@ -73,7 +73,8 @@ def _check_view(size: int, supersample: int) -> None:
 
 
 def _surface_values(material: Material, u: np.ndarray, v: np.ndarray, lod_fn):
-    """Sample the material's maps at (u, v): tangent-space normals (P, 3), roughness (P,), base colour."""
+    """Sample the material's maps at (u, v): tangent-space normals (P, 3), roughness (P,), base colour,
+    metalness (P,) or a number, occlusion (P,) or None."""
     p = len(u)
     if material.normals is None:
         n_t = np.zeros((p, 3), np.float32)
@@ -82,19 +83,21 @@ def _surface_values(material: Material, u: np.ndarray, v: np.ndarray, lod_fn):
         tex = _texture(material, "normals")
         n_t = tex.sample(u, v, lod_fn(tex))
         n_t /= np.maximum(np.linalg.norm(n_t, axis=1, keepdims=True), np.float32(1e-8))
-    r = material.roughness
-    if r.ndim == 0:
-        rough = np.full(p, float(r), np.float32)
-    else:
-        tex = _texture(material, "roughness")
-        rough = np.clip(tex.sample(u, v, lod_fn(tex))[:, 0], 0, 1)
+
+    def scalar(name: str):
+        value = getattr(material, name)
+        if value is None or value.ndim == 0:
+            return value if value is None else np.full(p, float(value), np.float32)
+        tex = _texture(material, name)
+        return np.clip(tex.sample(u, v, lod_fn(tex))[:, 0], 0, 1)
+
     c = material.base_color
     if c.ndim == 1:
         base = np.broadcast_to(c, (p, 3))
     else:
         tex = _texture(material, "base_color")
         base = tex.sample(u, v, lod_fn(tex))
-    return n_t, rough, base
+    return n_t, scalar("roughness"), base, scalar("metallic"), scalar("occlusion")
 
 
 def _texture(material: Material, name: str) -> _Texture:
@@ -175,7 +178,7 @@ def render_ball(material: Material, lighting: Lighting, *, size: int = 512, yaw:
     u = np.float32(tu) * (phi * np.float32(1 / (2 * np.pi)) + np.float32(0.5))
     v = np.float32(tv) * (lat * np.float32(1 / np.pi) + np.float32(0.5))
     lod_fn = _lod_memo(u, v, hit)
-    n_t, rough, base = _surface_values(material, u[hit], v[hit], lod_fn)
+    n_t, *values = _surface_values(material, u[hit], v[hit], lod_fn)
     # T = dP/du and B = dP/dv normalised, from P = (cos lat sin phi, sin lat, cos lat cos phi)
     normal = p_obj[hit]
     px, py, pz = normal[:, 0], normal[:, 1], normal[:, 2]
@@ -184,7 +187,7 @@ def render_ball(material: Material, lighting: Lighting, *, size: int = 512, yaw:
     bitangent = np.stack([-py * px / cl, cl, -py * pz / cl], axis=-1)
     world = (n_t[:, :1] * tangent + n_t[:, 1:2] * bitangent + n_t[:, 2:] * normal) @ spin_m.T
     world = (world / np.linalg.norm(world, axis=1, keepdims=True)).astype(np.float32)
-    return _shade_view(world, d, hit, rough, base, material, lighting, env_rotation=env_rotation,
+    return _shade_view(world, d, hit, values, lighting, env_rotation=env_rotation,
                        background_roughness=background_roughness, n=n, supersample=supersample)
 
 
@@ -217,19 +220,20 @@ def render_tile(material: Material, lighting: Lighting, *, size: int = 512, yaw:
     v = np.float32(repeat / 2) * (1 - pz)
 
     lod_fn = _lod_memo(u, v, hit)
-    n_t, rough, base = _surface_values(material, u[hit], v[hit], lod_fn)
+    n_t, *values = _surface_values(material, u[hit], v[hit], lod_fn)
     # tangent +X (u), bitangent -Z (v), normal +Y
     world = np.stack([n_t[:, 0], n_t[:, 2], -n_t[:, 1]], axis=-1).astype(np.float32)
-    return _shade_view(world, d, hit, rough, base, material, lighting, env_rotation=env_rotation,
+    return _shade_view(world, d, hit, values, lighting, env_rotation=env_rotation,
                        background_roughness=background_roughness, n=n, supersample=supersample)
 
 
-def _shade_view(world, d, hit, rough, base, material, lighting, *, env_rotation, background_roughness, n,
-                supersample):
-    """Shade the hit pixels of an n x n view, fill the rest with the background, and finish the image."""
+def _shade_view(world, d, hit, values, lighting, *, env_rotation, background_roughness, n, supersample):
+    """Shade the hit pixels of an n x n view (``values``: roughness, base colour, metalness and occlusion
+    there), fill the rest with the background, and finish the image."""
+    rough, base, metal, occlusion = values
     radiance = np.empty((n, n, 3), np.float32)
-    rad, nv = shade(world, (-d[hit]).astype(np.float32), rough, base, material.metallic, lighting,
-                    env_rotation=env_rotation)
+    rad, nv = shade(world, (-d[hit]).astype(np.float32), rough, base, metal, lighting,
+                    env_rotation=env_rotation, occlusion=occlusion)
     radiance[hit] = rad
     radiance[~hit] = _background(d[~hit], lighting, env_rotation, background_roughness)
     nv_full = np.zeros((n, n), np.float32)

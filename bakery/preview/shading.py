@@ -5,7 +5,7 @@
   coefficients of the environment's radiance per channel.
 - :class:`Material`: tangent-space unit normals ``(H, W, 3)`` (+X right = +u, +Y up = +v, +Z out of the surface:
   bakery's convention, glTF 2.0), perceptual roughness ``(H, W)`` or a number, linear base colour ``(H, W, 3)``
-  or an RGB triple, and a metallic factor.
+  or an RGB triple, metalness (a number or an ``(H, W)`` map) and an optional ambient-occlusion map ``(H, W)``.
 
 Shading (image-based lighting with the split-sum approximation, Karis 2013):
 
@@ -17,7 +17,19 @@ from the table, ``E`` is the irradiance from the SH coefficients (Ramamoorthi & 
 Â_0 = π, Â_1 = 2π/3, Â_2 = π/4), ``F0 = 0.04·(1 − m) + base·m`` and ``c_diff = base·(1 − m)`` for metallic m
 (glTF 2.0 specification, appendix B, metal-roughness material). The factor ``1 − (F0·A + B)`` gives the diffuse
 layer the energy the specular layer does not reflect (common practice, a directional-albedo version of the
-glTF ``(1 − F)`` weighting).
+glTF ``(1 − F)`` weighting). An occlusion map ``ao`` multiplies this environment term (glTF 2.0 specification,
+section 3.9.3, occlusionTexture: it applies to indirect lighting only).
+
+Directional lights (the compact lights of ``bakery env lights``, irradiance ``E`` at normal incidence toward
+direction ``l``) add the microfacet BRDF of Walter et al. 2007 (eq. 20) with the GGX distribution (ibid., eq. 33),
+height-correlated Smith visibility (Heitz 2014, eq. 99) and Schlick's Fresnel, over a Lambertian diffuse layer
+(glTF 2.0, appendix B: ``f = F·D·V + (1 − F)·c_diff/π``):
+
+    L_o += (F·D·V + (1 − F)·c_diff/π) · E · max(n·l, 0)
+
+with ``F = F(v·h)``, ``h = normalize(l + v)``. GGX α is kept at least :data:`MIN_LIGHT_ALPHA` so a mirror-like
+surface shows a small bright highlight instead of an infinitely thin one (common practice). Lights are not
+occluded (no shadows).
 
 References
 ----------
@@ -26,7 +38,11 @@ References
 .. [2] Ramamoorthi, R., Hanrahan, P. (2001). An efficient representation for irradiance environment maps.
    SIGGRAPH 2001 (eqs. 3 and 7; basis constants 0.282095, 0.488603, 1.092548, 0.315392, 0.546274).
 .. [3] The Khronos Group. glTF 2.0 Specification, appendix B "BRDF Implementation" (F0 = 0.04 for
-   dielectrics, metal-roughness mixing)."""
+   dielectrics, metal-roughness mixing, the (1 − F) diffuse weight); section 3.9.3 (occlusion).
+.. [4] Walter, B., Marschner, S. R., Li, H., Torrance, K. E. (2007). Microfacet Models for Refraction through
+   Rough Surfaces. EGSR 2007 (eq. 20: the microfacet BRDF; eq. 33: GGX).
+.. [5] Heitz, E. (2014). Understanding the Masking-Shadowing Function in Microfacet-Based BRDFs. JCGT 3(2)
+   (eq. 99)."""
 
 from __future__ import annotations
 
@@ -41,6 +57,29 @@ from bakery.preview.textures import _remap_points
 
 #: Reflectance at normal incidence of dielectrics (glTF 2.0 specification, appendix B).
 DIELECTRIC_F0 = 0.04
+#: Smallest GGX alpha used for directional lights (common practice: keeps a mirror's highlight finite).
+MIN_LIGHT_ALPHA = 2e-3
+
+
+@dataclass(frozen=True)
+class DirectionalLight:
+    """A distant light: unit ``direction`` (3,) from the surface toward the light in the environment's frame
+    (bakery's right-handed, +Y-up directions) and ``irradiance`` (3,) per RGB channel on a surface facing it."""
+
+    direction: tuple[float, float, float]
+    irradiance: tuple[float, float, float]
+
+    def __post_init__(self) -> None:
+        d = np.asarray(self.direction, dtype=np.float64).reshape(-1)
+        e = np.asarray(self.irradiance, dtype=np.float64).reshape(-1)
+        if d.shape != (3,) or not np.all(np.isfinite(d)) or np.linalg.norm(d) < 1e-9:
+            raise BakeryError(f"a light direction needs 3 finite numbers, not all zero; got {self.direction}")
+        if e.shape == (1,):
+            e = np.repeat(e, 3)
+        if e.shape != (3,) or not np.all(np.isfinite(e)) or e.min() < 0:
+            raise BakeryError(f"a light's irradiance needs 1 or 3 finite non-negative numbers; got {self.irradiance}")
+        object.__setattr__(self, "direction", tuple(float(v) for v in d / np.linalg.norm(d)))
+        object.__setattr__(self, "irradiance", tuple(float(v) for v in e))
 
 
 
@@ -63,12 +102,15 @@ class Lighting:
         Hanrahan 2001 (order: Y00; Y1-1 ∝ y, Y10 ∝ z, Y11 ∝ x; Y2-2 ∝ xy, Y2-1 ∝ yz, Y20 ∝ 3z²−1, Y21 ∝ xz,
         Y22 ∝ x²−y²) with x, y, z the components of bakery's right-handed, +Y-up directions. Radiance, not
         irradiance: a constant environment L has L_00 = 2√π·L.
+    lights : tuple of DirectionalLight
+        Distant lights added to the environment (e.g. the sun taken out of it by ``bakery env lights``).
     """
 
     levels: tuple[np.ndarray, ...]
     level_roughness: np.ndarray
     lut: np.ndarray
     sh: np.ndarray
+    lights: tuple[DirectionalLight, ...] = ()
     _atlases: list = field(default_factory=list, repr=False)
 
     def __post_init__(self) -> None:
@@ -98,6 +140,10 @@ class Lighting:
         object.__setattr__(self, "level_roughness", rough)
         object.__setattr__(self, "lut", np.ascontiguousarray(lut[..., :2]))
         object.__setattr__(self, "sh", sh)
+        lights = tuple(self.lights)
+        if not all(isinstance(lt, DirectionalLight) for lt in lights):
+            raise BakeryError("lights must be DirectionalLight objects")
+        object.__setattr__(self, "lights", lights)
         from bakery.envmap.sample import cube_atlas
 
         object.__setattr__(self, "_atlases", [cube_atlas(lv) for lv in levels])
@@ -164,14 +210,17 @@ class Material:
         Perceptual roughness in [0, 1] (GGX α = r², Burley 2012).
     base_color : ndarray (H, W, 3) or sequence of 3 floats
         Linear base colour in [0, 1].
-    metallic : float
-        0 = dielectric (F0 = 0.04), 1 = metal (F0 = base colour).
+    metallic : ndarray (H, W) or float
+        Metalness in [0, 1]: 0 = dielectric (F0 = 0.04), 1 = metal (F0 = base colour).
+    occlusion : ndarray (H, W), optional
+        Ambient occlusion in [0, 1], multiplying the environment's light (not the directional lights).
     """
 
     normals: np.ndarray | None = None
     roughness: np.ndarray | float = 0.5
     base_color: np.ndarray | tuple[float, float, float] = (0.5, 0.5, 0.5)
-    metallic: float = 0.0
+    metallic: np.ndarray | float = 0.0
+    occlusion: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         if self.normals is not None:
@@ -193,8 +242,24 @@ class Material:
         if not np.all(np.isfinite(c)) or c.min() < 0:
             raise BakeryError("base colour must be finite and non-negative")
         object.__setattr__(self, "base_color", c)
-        if not 0.0 <= float(self.metallic) <= 1.0:
-            raise BakeryError(f"metallic must lie in [0, 1]; got {self.metallic}")
+        object.__setattr__(self, "metallic", _unit_map(self.metallic, "metalness"))
+        if self.occlusion is not None:
+            ao = _unit_map(self.occlusion, "occlusion")
+            if ao.ndim != 2:
+                raise BakeryError("occlusion must be an (H, W) map in [0, 1]")
+            object.__setattr__(self, "occlusion", ao)
+
+
+def _unit_map(value, what: str) -> np.ndarray:
+    """A number or an (H, W) / (H, W, 1) map with values in [0, 1], as float32 (0-d or 2-d)."""
+    a = np.asarray(value, dtype=np.float32)
+    if a.ndim == 3 and a.shape[2] == 1:
+        a = a[..., 0]
+    if a.ndim not in (0, 2):
+        raise BakeryError(f"{what} must be a number or an (H, W) map; got shape {a.shape}")
+    if not np.all(np.isfinite(a)) or a.min() < 0 or a.max() > 1:
+        raise BakeryError(f"{what} values must lie in [0, 1]")
+    return a
 
 
 @dataclass(frozen=True)
@@ -221,8 +286,10 @@ class Render:
 
 
 def shade(normals: np.ndarray, view: np.ndarray, roughness: np.ndarray, base_color: np.ndarray,
-          metallic: float, lighting: Lighting, *, env_rotation: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
-    """Split-sum specular plus SH diffuse for a list of surface points (see the module docstring).
+          metallic: np.ndarray | float, lighting: Lighting, *, env_rotation: float = 0.0,
+          occlusion: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Split-sum specular plus SH diffuse, times the occlusion, plus the directional lights, for a list of
+    surface points (see the module docstring).
 
     Parameters
     ----------
@@ -234,10 +301,14 @@ def shade(normals: np.ndarray, view: np.ndarray, roughness: np.ndarray, base_col
         Perceptual roughness in [0, 1].
     base_color : ndarray, float32, (P, 3) or (3,)
         Linear base colour.
-    metallic : float
+    metallic : float or ndarray, float32, (P,)
+        Metalness in [0, 1].
     lighting : Lighting
     env_rotation : float
-        Degrees the environment is turned about the vertical axis (:func:`bakery.sphere.rotation_y`).
+        Degrees the environment (and its lights) is turned about the vertical axis
+        (:func:`bakery.sphere.rotation_y`).
+    occlusion : ndarray, float32, (P,), optional
+        Ambient occlusion in [0, 1] multiplying the environment term.
 
     Returns
     -------
@@ -252,11 +323,61 @@ def shade(normals: np.ndarray, view: np.ndarray, roughness: np.ndarray, base_col
     refl_env = refl @ rot
     n_env = normals @ rot
     a, b = lighting.brdf_terms(nv, roughness)
-    m = np.float32(metallic)
+    m = np.asarray(metallic, dtype=np.float32)
+    m = m[:, None] if m.ndim == 1 else m
     base = np.asarray(base_color, dtype=np.float32)
     f0 = np.float32(DIELECTRIC_F0) * (1 - m) + base * m
+    c_diff = base * (1 - m)
     spec_albedo = f0 * a[:, None] + b[:, None]
     spec = lighting.prefiltered(refl_env, roughness) * spec_albedo
     e = np.maximum(lighting.irradiance(n_env), 0)
-    diffuse = base * (1 - m) * e * np.float32(1 / math.pi) * (1 - spec_albedo)
-    return (spec + diffuse).astype(np.float32), nv
+    out = spec + c_diff * e * np.float32(1 / math.pi) * (1 - spec_albedo)
+    if occlusion is not None:
+        out *= np.asarray(occlusion, dtype=np.float32).reshape(-1, 1)
+    if lighting.lights:
+        out += light_radiance(n_env, view @ rot, roughness, f0, c_diff, lighting.lights)
+    return out.astype(np.float32), nv
+
+
+def light_radiance(normals: np.ndarray, view: np.ndarray, roughness: np.ndarray, f0: np.ndarray,
+                   c_diff: np.ndarray, lights) -> np.ndarray:
+    """Radiance (P, 3) reflected from distant lights: Σ (F·D·V + (1 − F)·c_diff/π) · E · max(n·l, 0)
+    (Walter et al. 2007, eq. 20, GGX eq. 33; Heitz 2014, eq. 99; Schlick 1994; glTF 2.0 appendix B).
+
+    ``normals``, ``view`` (P, 3) unit vectors in the lights' frame; ``roughness`` (P,) perceptual (GGX
+    α = r², at least :data:`MIN_LIGHT_ALPHA`); ``f0`` and ``c_diff`` (P, 3) or (3,) linear.
+
+    Examples
+    --------
+    A white dielectric (F0 = 0.04), α = 1, lit and seen straight on by a light of irradiance π: the diffuse
+    layer gives (1 − 0.04)·1/π·π = 0.96 and the specular one F·D·V·E = 0.04 · (1/π) · (1/4) · π = 0.01:
+
+    >>> n = np.array([[0.0, 1.0, 0.0]], np.float32)
+    >>> lt = DirectionalLight((0.0, 1.0, 0.0), (math.pi,) * 3)
+    >>> out = light_radiance(n, n, np.array([1.0], np.float32), np.full(3, 0.04, np.float32),
+    ...                      np.ones(3, np.float32), [lt])
+    >>> round(float(out[0, 0]), 4)
+    0.97
+    """
+    from bakery.microfacet import d_ggx, fresnel_schlick, vis_smith_correlated
+
+    alpha = np.maximum(np.asarray(roughness, dtype=np.float32) ** 2, np.float32(MIN_LIGHT_ALPHA))
+    cos_v = np.maximum(np.sum(normals * view, axis=-1), np.float32(1e-4))
+    out = np.zeros((len(normals), 3), np.float32)
+    for lt in lights:
+        ld = np.asarray(lt.direction, dtype=np.float32)
+        cos_l = normals @ ld
+        lit = cos_l > 0
+        if not np.any(lit):
+            continue
+        h = view + ld
+        h /= np.maximum(np.linalg.norm(h, axis=-1, keepdims=True), np.float32(1e-8))
+        cos_h = np.clip(np.sum(normals * h, axis=-1), 0, 1)
+        cos_d = np.clip(h @ ld, 0, 1)
+        f = np.asarray(fresnel_schlick(cos_d[:, None], f0), dtype=np.float32)
+        dv = np.asarray(d_ggx(cos_h, alpha) * vis_smith_correlated(cos_v, np.maximum(cos_l, 0), alpha),
+                        dtype=np.float32)
+        brdf = f * dv[:, None] + (1 - f) * c_diff * np.float32(1 / math.pi)
+        e = np.asarray(lt.irradiance, dtype=np.float32)
+        out += np.where(lit[:, None], brdf * e * np.maximum(cos_l, 0)[:, None], 0)
+    return out

@@ -122,7 +122,7 @@ def test_single_channel_maps_are_previewed_by_name():
 
 def test_page_escapes_names_and_links(maps, lighting):
     entries = [make_entry(p, maps, thumb=32) for p in find_maps(maps)]
-    page = sheet_html(entries, title="<b>sheet</b>", thumbs=[("t/a b&c.png", None)] * len(entries), grids=[])
+    page = sheet_html(entries, title="<b>sheet</b>", links=[{"map": "t/a b&c.png"}] * len(entries), grids=[])
     assert "<b>sheet</b>" not in page and "&lt;b&gt;sheet&lt;/b&gt;" in page
     assert "rock normal &amp; dx.png" in page
     assert 'src="t/a%20b%26c.png"' in page
