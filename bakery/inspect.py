@@ -241,6 +241,15 @@ def seam_score(pixels: np.ndarray) -> float:
 SEAM_LIMIT = 1.5
 
 
+def tiling_score(pixels: np.ndarray) -> float:
+    """:func:`seam_score` of a whole map, judged on every k-th texel of large maps (as :func:`inspect_pixels`
+    does): a cheap answer to "does this map tile?" for a bake about to assume it does."""
+    step = _stride(pixels.shape[:2])
+    if step > 1 and all(n % step == 0 for n in pixels.shape[:2]):
+        pixels = pixels[::step, ::step]
+    return seam_score(pixels)
+
+
 def check_tiling(pixels: np.ndarray) -> list[Finding]:
     if min(pixels.shape[:2]) < 4:
         return []
