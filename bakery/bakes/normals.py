@@ -210,7 +210,7 @@ class NormalParams(Params):
     span: tuple[float, ...] = SPAN
     kernel: KernelName = KERNEL
     blur: float = param(0.0, "Gaussian pre-blur of the heights, standard deviation in texels (0.5-1 hides "
-                        "8-bit terraces).", unit="texels", low=0.0, high=256.0)
+                        "8-bit terraces); at most a quarter of the map's shorter side.", unit="texels", low=0.0)
     edges: Edges = edges_param()
     y: YConvention = y_param()
     channels: Literal[2, 3] = param(3, "Channels written: 3 (XYZ) or 2 (XY; readers rebuild Z; .tif or .exr).")
@@ -223,6 +223,16 @@ class NormalParams(Params):
 
     def check(self) -> None:
         check_strength(self)
+
+
+def check_blur(blur: float, rows: int, cols: int, where: Path) -> None:
+    """The pre-blur's kernel reaches 4 standard deviations each way (scipy.ndimage's default truncation):
+    beyond a quarter of the shorter side it spans the whole map, which a blur cannot sensibly mean (and
+    whose halo would not fit in memory for huge values)."""
+    limit = min(rows, cols) / 4
+    if blur > limit:
+        raise BakeryError(f"--blur {blur:g} is too large for a {cols}x{rows} map: at most {limit:g} texels (a "
+                          "quarter of its shorter side)", where)
 
 
 def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress: Progress) -> list[Path]:
@@ -239,6 +249,7 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress:
     src = inputs["height"]
     h, in_bits, (lo, hi) = read_height(src, p.channel, p.stretch)
     rows, cols = h.shape
+    check_blur(p.blur, rows, cols, src)
     sx, sy = resolve_strength(h.shape, p.strength, p.relief, p.span)
     opts = dict(strength=(sx, sy), kernel=p.kernel, blur=p.blur, edges=p.edges)
     extra = {"conventions": _conventions(p.y),
@@ -337,6 +348,15 @@ def run_height(inputs: dict[str, Path], output: Path, p: HeightParams, progress:
     n, img = read_normals(src, p.y)
     sx, sy = resolve_strength(n.shape[:2], p.strength, p.relief, p.span)
     bits = output_bits(output, p.bits, img.bits)
+    if p.edges == "wrap" and min(n.shape[:2]) >= 16:
+        from bakery.inspect import SEAM_LIMIT, tiling_score
+
+        score = tiling_score(n[..., :2])
+        if score > SEAM_LIMIT:
+            warnings.warn(f"{src}: the normal map does not tile (the jump across a wrap edge is {score:.1f}x "
+                          "the largest inside), but --edges wrap integrates it as a tiling map, which bends the "
+                          "relief near the borders; use --edges clamp for a map that does not tile",
+                          BakeryWarning, stacklevel=2)
     z = height_from_normal(n, strength=(sx, sy), kernel=p.kernel, edges=p.edges)
     h, offset, scale = fit_height(z, unit_range=bits in INTEGER_MAX)
     if scale != 1.0:

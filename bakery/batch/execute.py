@@ -129,23 +129,18 @@ def failed(message: str) -> Result:
             "findings": [], "seconds": None}
 
 
-#: Outputs that ``bakery inspect`` reads (KTX2 containers and JSON manifests are not inspected).
-INSPECTED_SUFFIXES = (".png", ".tif", ".tiff", ".exr", ".hdr")
+#: Outputs that ``bakery inspect`` reads (images and KTX2 containers; JSON files are not inspected).
+INSPECTED_SUFFIXES = (".png", ".tif", ".tiff", ".exr", ".hdr", ".ktx2")
 
 
 def inspect_outputs(out_root: Path, written: list[str]) -> list[dict]:
-    """The findings of :func:`bakery.inspect.inspect_pixels` for each image a job wrote, for the report."""
-    from bakery.inspect import inspect_pixels
-    from bakery.io.images import read_image
+    """The findings of ``bakery inspect`` for each image and KTX2 file a job wrote, for the report: kinds and
+    conventions come from the manifests the job wrote beside them (:func:`bakery.inspect_files.inspect_paths`)."""
+    from bakery.inspect_files import inspect_paths
 
-    found = []
-    for rel in written:
-        if Path(rel).suffix.lower() not in INSPECTED_SUFFIXES:
-            continue
-        img = read_image(out_root / rel, allow_nonfinite=True)
-        kind, findings = inspect_pixels(img.pixels, bits=img.bits)
-        found += [{"file": rel, "kind": kind, **f.as_dict()} for f in findings]
-    return found
+    rels = [rel for rel in written if Path(rel).suffix.lower() in INSPECTED_SUFFIXES]
+    reports = inspect_paths([out_root / rel for rel in rels], names=rels)
+    return [{"file": rep.file, "kind": rep.kind, **f.as_dict()} for rep in reports for f in rep.findings]
 
 
 @contextlib.contextmanager
