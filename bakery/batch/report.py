@@ -21,7 +21,10 @@ class JobResult:
     """One job in the report.
 
     ``status`` is ``"ran"``, ``"skipped"``, ``"failed"``, or ``"planned"`` (a dry run's job that would run).
-    ``reason`` says why it ran or was skipped; ``error`` is the one-line message of a failed job.
+    ``reason`` says why it ran or was skipped; ``error`` is the one-line message of a failed job. An input
+    another job makes has ``made_by`` (that job's rule) and the digest ``job:<its key>``; ``after`` lists the
+    outputs of the jobs it needs, ``files`` every file it writes (planned), ``outputs`` the files written (for
+    a skipped job: those written when it ran). ``findings`` of a skipped job are those of its last run.
     """
 
     rule: str
@@ -38,11 +41,16 @@ class JobResult:
     findings: list[dict[str, str]] = field(default_factory=list)
     error: str | None = None
     traceback: str | None = None
+    files: list[str] = field(default_factory=list)
+    after: list[str] = field(default_factory=list)
 
 
 @dataclass
 class BatchReport:
     """The outcome of :func:`bakery.batch.run`.
+
+    ``stale``: files bakery wrote earlier that no job of the recipe writes now (left in place); ``removed``:
+    those deleted by ``remove_stale``.
 
     ``exit_code`` is 0 when every job ran or was skipped and 1 when some failed (a wrong recipe or command
     line raises :class:`~bakery.errors.BakeryError` instead: exit code 2).
@@ -60,6 +68,8 @@ class BatchReport:
     jobs: list[JobResult] = field(default_factory=list)
     unselected: int = 0
     notes: list[str] = field(default_factory=list)
+    stale: list[str] = field(default_factory=list)
+    removed: list[str] = field(default_factory=list)
     path: Path | None = field(default=None, compare=False)
 
     def count(self, status: str) -> int:
@@ -115,19 +125,25 @@ class BatchReport:
         return self.path
 
 
+def shown_input(v: dict[str, str]) -> str:
+    """A source as its path; a file another job makes as ``@RULE/path`` (the recipe's syntax)."""
+    return f"@{v['made_by']}/{v['path']}" if v.get("made_by") else v["path"]
+
+
 def job_line(job: JobResult) -> str:
     """``rule: a.png -> b.png`` (roles named when a job has several inputs)."""
     if not job.inputs:
         src = "(no input)"
     elif len(job.inputs) == 1:
-        src = next(iter(job.inputs.values()))["path"]
+        src = shown_input(next(iter(job.inputs.values())))
     else:
-        src = " + ".join(f"{role}={v['path']}" for role, v in job.inputs.items())
+        src = " + ".join(f"{role}={shown_input(v)}" for role, v in job.inputs.items())
     return f"{job.rule}: {src} -> {job.output}"
 
 
 def format_plan(report: BatchReport) -> list[str]:
-    """The dry-run listing: per job what it reads and writes, its explicit parameters and why it runs."""
+    """The dry-run listing, in graph order: per job what it reads (``@RULE/path`` for another job's file) and
+    writes, why it runs, its explicit parameters, the jobs it waits for and every file it writes."""
     word = {PLANNED: "run ", SKIPPED: "skip", FAILED: "FAIL"}
     lines = []
     for job in report.jobs:
@@ -137,7 +153,15 @@ def format_plan(report: BatchReport) -> list[str]:
         else:
             shown = "bake defaults"
         lines.append(f"      params: {shown}")
-    lines.extend(report.notes)
+        if job.after:
+            lines.append(f"      after: {', '.join(job.after)}")
+        extra = [f for f in job.files if f != job.output]
+        if extra:
+            lines.append(f"      also writes: {', '.join(extra)}")
+    if report.stale:
+        lines.append(f"stale: {len(report.stale)} file(s) from earlier runs that no job writes now: "
+                     + ", ".join(report.stale[:5]) + (" ..." if len(report.stale) > 5 else ""))
+    lines.extend(n for n in report.notes if not n.startswith(f"{len(report.stale)} output(s) from earlier"))
     lines.append(report.summary())
     return lines
 
