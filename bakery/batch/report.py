@@ -167,13 +167,29 @@ def format_plan(report: BatchReport) -> list[str]:
 
 
 class PlainProgress:
-    """Progress as plain lines (for logs and pipes): one line per finished job."""
+    """Progress as plain lines (for logs and pipes): one line per finished job, and for a job running longer
+    than a second its bake's progress (``[3/48] 40 % normals: a.png -> b.png (strips)``), at most one such line
+    a second."""
+
+    #: Seconds a job runs before its progress is printed, and between two progress lines.
+    EVERY = 1.0
 
     def __init__(self, stream: TextIO | None = None, *, quiet: bool = False):
         self.stream = stream or sys.stderr
         self.quiet = quiet
         self.total = 0
         self.done = 0
+        self.started: dict[str, float] = {}
+        self.last_line = 0.0
+
+    def job_progress(self, job: JobResult, fraction: float, label: str) -> None:
+        """A running job's bake progress (``fraction`` rising to 1, ``label`` a few words)."""
+        now = time.monotonic()
+        t0 = self.started.setdefault(job.output, now)
+        if self.quiet or fraction >= 1.0 or now - t0 < self.EVERY or now - self.last_line < self.EVERY:
+            return
+        self.last_line = now
+        self._print(f"[{self.done + 1}/{self.total}] {100 * fraction:3.0f} % {job_line(job)} ({label})")
 
     def start(self, total: int, skipped: int, executor: str, workers: int) -> None:
         self.total = total
@@ -182,6 +198,7 @@ class PlainProgress:
 
     def update(self, job: JobResult) -> None:
         self.done += 1
+        self.started.pop(job.output, None)
         if job.status == FAILED:
             self._print(f"[{self.done}/{self.total}] FAILED {job_line(job)}: {job.error}")
         elif not self.quiet:
@@ -198,7 +215,8 @@ class PlainProgress:
 
 
 class BarProgress(PlainProgress):
-    """A progress bar on a terminal (rich); failures and warnings are printed above it."""
+    """A progress bar on a terminal (rich): the batch's, and one per running job with its bake's progress;
+    failures and warnings are printed above them."""
 
     def start(self, total: int, skipped: int, executor: str, workers: int) -> None:
         from rich.console import Console
@@ -207,14 +225,26 @@ class BarProgress(PlainProgress):
         self.total = total
         self.failures = 0
         self.console = Console(file=self.stream)
-        self.bar = Progress(TextColumn("batch"), BarColumn(), MofNCompleteColumn(), TextColumn("{task.fields[info]}"),
+        self.bar = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TextColumn("{task.fields[info]}"),
                             TimeRemainingColumn(), console=self.console, transient=True)
         self.task = self.bar.add_task("batch", total=total, info="")
+        self.running: dict[str, Any] = {}
         self.console.print(start_line(total, skipped, executor, workers), markup=False, highlight=False)
         self.bar.start()
 
+    def job_progress(self, job: JobResult, fraction: float, label: str) -> None:
+        task = self.running.get(job.output)
+        if task is None:
+            line = job_line(job)
+            task = self.running[job.output] = self.bar.add_task("  " + (line if len(line) < 60 else "..." + line[-57:]),
+                                                                total=100, info="")
+        self.bar.update(task, completed=round(100 * min(max(fraction, 0.0), 1.0)), info=label)
+
     def update(self, job: JobResult) -> None:
         self.done += 1
+        task = self.running.pop(job.output, None)
+        if task is not None:
+            self.bar.remove_task(task)
         if job.status == FAILED:
             self.failures += 1
             self.console.print(f"FAILED {job_line(job)}: {job.error}", markup=False, highlight=False)
