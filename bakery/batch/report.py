@@ -225,7 +225,8 @@ class BarProgress(PlainProgress):
         self.total = total
         self.failures = 0
         self.console = Console(file=self.stream)
-        self.bar = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TextColumn("{task.fields[info]}"),
+        self.bar = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+                            TextColumn("{task.fields[info]}"),
                             TimeRemainingColumn(), console=self.console, transient=True)
         self.task = self.bar.add_task("batch", total=total, info="")
         self.running: dict[str, Any] = {}
@@ -236,8 +237,8 @@ class BarProgress(PlainProgress):
         task = self.running.get(job.output)
         if task is None:
             line = job_line(job)
-            task = self.running[job.output] = self.bar.add_task("  " + (line if len(line) < 60 else "..." + line[-57:]),
-                                                                total=100, info="")
+            name = "  " + (line if len(line) < 60 else "..." + line[-57:])
+            task = self.running[job.output] = self.bar.add_task(name, total=100, info="")
         self.bar.update(task, completed=round(100 * min(max(fraction, 0.0), 1.0)), info=label)
 
     def update(self, job: JobResult) -> None:

@@ -124,7 +124,8 @@ def _plain_options(args: list[str]) -> dict | None:
     positional = None
     for name in inspect.signature(fn).parameters:
         base, info = typing.get_args(hints[name])[:2]
-        kinds = [a for a in typing.get_args(base) if a is not type(None)] if isinstance(base, types.UnionType) else [base]
+        union = isinstance(base, types.UnionType)
+        kinds = [a for a in typing.get_args(base) if a is not type(None)] if union else [base]
         kind = kinds[0]
         info_of[name] = info
         if isinstance(info, typer.models.ArgumentInfo):

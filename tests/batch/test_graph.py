@@ -15,7 +15,7 @@ from bakery.batch.plan import make_plan
 from bakery.batch.recipe import load_recipe
 from bakery.errors import BakeryError
 from bakery.io import read_image, write_image
-from tests.batch.conftest import RECIPE, outputs
+from tests.batch.conftest import RECIPE
 
 #: inv (sources) -> twice (@inv) -> mixed (@twice + a partner from @inv): three chained steps.
 CHAIN = RECIPE + '''
@@ -261,7 +261,8 @@ def test_plain_command_line_matches_the_option_parser(chain, tmp_path, capfd):
         "stone/stone_inv.png", "stone/stone_inv_twice.png", "stone/stone_mixed.png"]
     assert cli(["batch", str(chain), "--dry-run", "--only", "stone/**"]) == 0
     out = capfd.readouterr().out
-    assert "skip  mixed: base=@twice/stone/stone_inv_twice.png" in out and "plan: 1 to run, 3 skipped, 0 failing (4 jobs)" in out
+    assert "skip  mixed: base=@twice/stone/stone_inv_twice.png" in out
+    assert "plan: 1 to run, 3 skipped, 0 failing (4 jobs)" in out
     # what the plain reader does not take on trust goes to the option parser, with its messages
     assert cli(["batch", str(chain), "--jobs", "0"]) == 2
     assert "error: --jobs:" in capfd.readouterr().err

@@ -22,7 +22,8 @@ from tests.batch.conftest import outputs
 ROOT = Path(__file__).resolve().parents[2]
 
 
-COMMANDS = {"normal": ["normal"], "normal-mips": ["normal-mips"], "roughness": ["roughness"], "blend": ["blend"], "antialias": ["antialias"],
+COMMANDS = {"normal": ["normal"], "normal-mips": ["normal-mips"],
+            "roughness": ["roughness"], "blend": ["blend"], "antialias": ["antialias"],
             "env-convert": ["env", "convert"], "env-diffuse": ["env", "diffuse"], "env-specular": ["env", "specular"],
             "env-lut": ["env", "lut"]}
 
