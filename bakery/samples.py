@@ -352,7 +352,7 @@ def library(folder: str | Path, *, size: int = 256, sky_width: int = 512,
 LIBRARY_RECIPE = """\
 # A batch recipe over the sample library (see docs/batch.md).
 #   python -m bakery.samples --library samples/library   # writes the library (invented, procedural)
-#   bakery batch samples/library.toml --dry-run           # the plan
+#   bakery batch samples/library.toml --dry-run           # the plan (a graph: "@normals" reads rule normals' outputs)
 #   bakery batch samples/library.toml                     # bake it; run it again: nothing to do
 # samples/library/stone/bakery-folder.toml overrides a parameter for the stone materials.
 
@@ -378,6 +378,24 @@ bake = "roughness"
 match = "**/{material}_exponent.exr"
 output = "{dir}/{material}_roughness.png"
 params = { bits = "8" }
+
+# Chained: every normal map the "normals" rule makes -> its mip chain, block-compressed (BC5) in one KTX2 file,
+# with the averaged-normal lengths beside it (NAME.length.ktx2).
+[[rule]]
+name = "normal-chains"
+bake = "normal-mips"
+match = "@normals"
+output = "{dir}/{stem}.ktx2"
+params = { ktx2-format = "compressed" }
+
+# Chained: the normal map of "normals" + the roughness map of "roughness" (paired by material) -> anti-aliased
+# roughness mips (NAME.png, NAME.mip01.png ...): each level widened by the normals the level averages.
+[[rule]]
+name = "roughness-chains"
+bake = "antialias"
+match = "@normals/**/{material}_normal.png"
+inputs.roughness = "@roughness/{dir}/{material}_roughness.png"
+output = "{dir}/{material}_roughness_aa.png"
 
 # Authored materials: the crackle detail layered over each normal map (one fixed partner for all).
 [[rule]]

@@ -45,7 +45,8 @@ def default_jobs() -> int:
 
 def run(recipe: str | os.PathLike | Recipe, *, jobs: int | None = None, force: bool = False,
         only: tuple[str, ...] | list[str] = (), dry_run: bool = False, cluster: str | None = None,
-        report: str | os.PathLike | None = None, progress: Any = None, inspect: bool = True) -> BatchReport:
+        report: str | os.PathLike | None = None, progress: Any = None, inspect: bool = True,
+        remove_stale: bool = False) -> BatchReport:
     """Run a batch recipe and return its report.
 
     Parameters
@@ -58,7 +59,7 @@ def run(recipe: str | os.PathLike | Recipe, *, jobs: int | None = None, force: b
         Run every job, even the up-to-date ones.
     only : sequence of str
         Keep only jobs whose rule name, input or output path matches one of these (a rule name, a file name,
-        or a pattern with ``*``/``**``).
+        or a pattern with ``*``/``**``), and the jobs that make their inputs.
     dry_run : bool
         Plan only: nothing is written (not even the cache); the report lists what would run and why.
     cluster : str, optional
@@ -70,9 +71,12 @@ def run(recipe: str | os.PathLike | Recipe, *, jobs: int | None = None, force: b
         Check every image a job writes with :func:`bakery.inspect.inspect_pixels` and list the findings in the
         report (default). False skips the re-read, for speed.
     progress : object, optional
-        A progress display with ``start(total, skipped, executor, workers)``, ``update(job_result)`` and
-        ``stop()`` (:class:`bakery.batch.report.PlainProgress`, :class:`~bakery.batch.report.BarProgress`);
-        default: silent.
+        A progress display with ``start(total, skipped, executor, workers)``, ``update(job_result)``,
+        ``job_progress(job_result, fraction, label)`` (a running job's bake progress) and ``stop()``
+        (:class:`bakery.batch.report.PlainProgress`, :class:`~bakery.batch.report.BarProgress`); default: silent.
+    remove_stale : bool
+        Delete the stale outputs: files the cache says bakery wrote (unchanged since) that no job of the recipe
+        writes now, inside the output root only. Without it they are listed in the report and left in place.
 
     Returns
     -------
@@ -101,6 +105,7 @@ def run(recipe: str | os.PathLike | Recipe, *, jobs: int | None = None, force: b
     if dry_run:
         plan = make_plan(recipe, force=force, only=only)
         rep = _report(recipe, plan, __version__, "dry run", 0, True, started)
+        _stale_notes(rep, plan.stale(), [], [])
         rep.seconds = time.perf_counter() - t0
         if report is not None:
             rep.write(report)
@@ -114,16 +119,17 @@ def run(recipe: str | os.PathLike | Recipe, *, jobs: int | None = None, force: b
     try:
         return _run(recipe, plan_args={"force": force, "only": only}, jobs=jobs or default_jobs(), client=client,
                     cluster=cluster, report=report, progress=progress, t0=t0, started=started, version=__version__,
-                    inspect=inspect)
+                    inspect=inspect, remove_stale=remove_stale)
     finally:
         if client is not None:
             client.close()
 
 
 def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: str | None, report: Any,
-         progress: Any, t0: float, started: str, version: str, inspect: bool = True) -> BatchReport:
+         progress: Any, t0: float, started: str, version: str, inspect: bool = True,
+         remove_stale: bool = False) -> BatchReport:
     from bakery.batch.cache import STATE_DIR, Cache, run_lock
-    from bakery.batch.plan import FAIL, cache_entry, make_plan
+    from bakery.batch.plan import FAIL, cache_entry, make_plan, refresh_files
 
     made = [p for p in (recipe.output, recipe.output / STATE_DIR) if not p.exists()]
     recipe.output.mkdir(parents=True, exist_ok=True)
@@ -159,7 +165,8 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
                     cache.record(job.output, None, [])
             if progress is not None:
                 progress.start(len(to_run), len(plan.jobs) - len(to_run), executor, workers)
-            specs = [_spec(recipe, job, inspect) for job in to_run]
+            position = {j.output: i for i, j in enumerate(to_run)}
+            specs = [_spec(recipe, job, inspect, i, position) for i, job in enumerate(to_run)]
 
             def on_result(i: int, res: dict) -> None:
                 job = to_run[i]
@@ -169,13 +176,28 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
                 jr.warnings, jr.seconds = res["warnings"], res["seconds"]
                 jr.findings = res.get("findings", [])
                 jr.outputs = sorted(res["written"])
-                sources = [str(recipe.source / rel) for rel in job.inputs.values()]
+                sources = [str(recipe.source / rel) for role, rel in job.inputs.items() if role not in job.upstream]
                 if jr.status == RAN:
-                    cache.record(job.output, cache_entry(job, res["written"], version), sources)
+                    cache.record(job.output, cache_entry(job, res["written"], version,
+                                                         jr.findings if inspect else None), sources)
                 else:
                     cache.record(job.output, None, sources)
                 if progress is not None:
                     progress.update(jr)
+
+            def on_progress(i: int, fraction: float, label: str) -> None:
+                if hasattr(progress, "job_progress"):
+                    progress.job_progress(results[id(to_run[i])], fraction, label)
+
+            def prepare(i: int) -> dict | None:
+                job = to_run[i]
+                problem = refresh_files(job, recipe, plan)
+                if problem is not None:
+                    from bakery.batch.execute import failed
+
+                    return failed(problem)
+                specs[i]["files"] = job.files
+                return None
 
             try:
                 if not specs:
@@ -183,19 +205,18 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
                 elif client is not None:
                     from bakery.batch.execute import run_dask
 
-                    run_dask(specs, client, on_result)
+                    run_dask(specs, client, on_result, on_progress if progress is not None else None)
                 else:
                     from bakery.batch.execute import run_local
 
-                    run_local(specs, workers, on_result)
+                    run_local(specs, workers, on_result, on_progress if progress is not None else None, prepare)
             finally:
                 if progress is not None:
                     progress.stop()
-            stale = sorted(set(cache.jobs) - plan.all_outputs)
-            if stale:
-                rep.notes.append(f"{len(stale)} output(s) from earlier runs are made by no rule now and were left "
-                                 f"in place, e.g. {stale[0]}")
-            cache.save(keep_outputs=plan.all_outputs)
+            stale = plan.stale()
+            removed, kept = cache.remove_stale(stale) if remove_stale else ([], [])
+            _stale_notes(rep, stale, removed, kept)
+            cache.save(keep_outputs=plan.all_outputs, planned=plan.writers)
         finally:
             cache.close()
     rep.seconds = time.perf_counter() - t0
@@ -203,13 +224,33 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
     return rep
 
 
-def _spec(recipe: Recipe, job: Any, inspect: bool = True) -> dict[str, Any]:
+def _stale_notes(rep: BatchReport, stale: dict[str, list], removed: list[str], kept: list[str]) -> None:
+    """List the stale outputs in the report (and a note): removed, or left in place and why."""
+    rep.stale = [f for f in stale if f not in removed]
+    rep.removed = removed
+    if removed:
+        rep.notes.append(f"removed {len(removed)} stale output(s) that no rule makes now, e.g. {removed[0]}")
+    changed = [f for f in kept if Path(rep.output, f).exists()]
+    if changed:
+        rep.notes.append(f"{len(changed)} stale output(s) changed since bakery wrote them and were kept, e.g. "
+                         f"{changed[0]}")
+    left = [f for f in rep.stale if f not in kept]
+    if left:
+        rep.notes.append(f"{len(left)} output(s) from earlier runs are made by no rule now and were left in place, "
+                         f"e.g. {left[0]} (--remove-stale deletes them)")
+
+
+def _spec(recipe: Recipe, job: Any, inspect: bool, index: int, position: dict[str, int]) -> dict[str, Any]:
+    """What a worker needs to run ``job``; ``deps``: the positions of the jobs that make its inputs and run
+    too (an up-to-date upstream job's files are there already)."""
     rule = next(r for r in recipe.rules if r.name == job.rule)
     first = next(iter(job.inputs.values()), None)
+    deps = sorted({position[o] for o in job.upstream.values() if o in position})
     return {"bake": job.bake, "module": job.module, "output": job.output, "out_root": str(recipe.output),
-            "inputs": {role: str(recipe.source / rel) for role, rel in job.inputs.items()},
+            "inputs": {role: str((recipe.output if role in job.upstream else recipe.source) / rel)
+                       for role, rel in job.inputs.items()},
             "values": job.values, "where": f"{rule.where}: params" + (f" for {first}" if first else ""),
-            "inspect": inspect}
+            "inspect": inspect, "index": index, "deps": deps, "files": job.files}
 
 
 def _report(recipe: Recipe, plan: Any, version: str, executor: str, workers: int, dry_run: bool,
@@ -225,11 +266,17 @@ def _report(recipe: Recipe, plan: Any, version: str, executor: str, workers: int
             status = FAILED
         else:
             status = SKIPPED
-        rep.jobs.append(JobResult(
-            job.rule, job.bake,
-            {role: {"path": rel, "digest": job.digests.get(role, "")} for role, rel in job.inputs.items()},
-            job.output, job.params, status, job.reason, job.origins,
-            error=job.reason if job.action == FAIL else None))
+        inputs = {role: {"path": rel, "digest": job.digests.get(role, "")} for role, rel in job.inputs.items()}
+        for role, rule in job.upstream_rules.items():
+            inputs[role]["made_by"] = rule
+        jr = JobResult(job.rule, job.bake, inputs, job.output, job.params, status, job.reason, job.origins,
+                       error=job.reason if job.action == FAIL else None, files=list(job.files),
+                       after=sorted(set(job.upstream.values())))
+        if status == SKIPPED and job.key:  # up to date: what inspect found when it ran still holds
+            entry = plan.cache.jobs.get(job.output, {})
+            jr.outputs = sorted(entry.get("outputs", {}))
+            jr.findings = list(entry.get("findings") or [])
+        rep.jobs.append(jr)
     return rep
 
 

@@ -65,6 +65,7 @@ class Cache:
     root: Path
     sources: dict[str, list] = field(default_factory=dict)  # source path (as given) -> [size, mtime_ns, digest]
     jobs: dict[str, dict[str, Any]] = field(default_factory=dict)  # output rel path -> entry
+    stale: dict[str, list] = field(default_factory=dict)  # file bakery wrote that no job writes now -> signature
     interrupted: bool = False  # the journal held lines: the last run did not finish
     _journal: Any = None
 
@@ -83,6 +84,7 @@ class Cache:
             if data.get("format") == CACHE_FORMAT:
                 cache.sources = {k: v for k, v in data.get("sources", {}).items() if isinstance(v, list)}
                 cache.jobs = {k: v for k, v in data.get("jobs", {}).items() if isinstance(v, dict)}
+                cache.stale = {k: v for k, v in data.get("stale", {}).items() if isinstance(v, list)}
         except (OSError, ValueError, AttributeError):
             pass
         journal = cache.folder / "journal.jsonl"
@@ -106,10 +108,18 @@ class Cache:
         out = rec.get("output")
         if not isinstance(out, str):
             return
+        old = self.jobs.get(out) or {}
         if isinstance(rec.get("entry"), dict):
             self.jobs[out] = rec["entry"]
+            new = rec["entry"].get("outputs", {})
         else:
             self.jobs.pop(out, None)
+            new = {}
+        for rel, sig in old.get("outputs", {}).items():  # files the job's earlier run wrote and this one did not
+            if rel not in new and isinstance(sig, list):
+                self.stale[rel] = sig
+        for rel in new:
+            self.stale.pop(rel, None)
         for k, v in rec.get("sources", {}).items():
             self.sources[k] = v
 
@@ -151,10 +161,12 @@ class Cache:
         self._journal.write(json.dumps(rec, sort_keys=True).encode("utf-8") + b"\n")
         self._journal.flush()
 
-    def save(self, keep_outputs: set[str] | None = None) -> None:
+    def save(self, keep_outputs: set[str] | None = None, planned: set[str] | dict | None = None) -> None:
         """Write the snapshot atomically, then empty the journal.
 
-        ``keep_outputs``: forget the jobs of outputs not in this set (no rule makes them any more).
+        ``keep_outputs``: forget the jobs of outputs not in this set (no rule makes them any more); the files
+        they wrote are kept as stale (listed, removable) until they are removed or a job writes them again.
+        ``planned``: every file the recipe's jobs write (those are not stale).
         """
         from bakery.io.manifest import write_json
 
@@ -162,14 +174,43 @@ class Cache:
             self._journal.close()
             self._journal = None
         if keep_outputs is not None:
-            self.jobs = {k: v for k, v in self.jobs.items() if k in keep_outputs}
+            for k in [k for k in self.jobs if k not in keep_outputs]:
+                for rel, sig in self.jobs.pop(k).get("outputs", {}).items():
+                    if isinstance(sig, list):
+                        self.stale[rel] = sig
+        planned = planned or ()
+        self.stale = {k: v for k, v in sorted(self.stale.items())
+                      if k not in planned and os.path.lexists(self.root / k)}  # forgotten once gone
         self.sources = {k: v for k, v in self.sources.items() if os.path.exists(k)}  # forget deleted sources
         self.folder.mkdir(parents=True, exist_ok=True)
         write_json(self.folder / "cache.json", {"format": CACHE_FORMAT, "sources": self.sources,
-                                                "jobs": self.jobs})
+                                                "jobs": self.jobs, "stale": self.stale})
         with contextlib.suppress(FileNotFoundError):
             os.truncate(self.folder / "journal.jsonl", 0)
         self.interrupted = False
+
+    def remove_stale(self, files: dict[str, list]) -> tuple[list[str], list[str]]:
+        """Delete stale files that are still exactly what bakery wrote (same size and modification time), only
+        inside the output root and never in its ``.bakery`` folder. Returns (removed, kept: changed since)."""
+        removed, kept = [], []
+        root = self.root.resolve()
+        for rel, sig in files.items():
+            path = self.root / rel
+            inside = path.resolve().is_relative_to(root) and rel.split("/", 1)[0] != STATE_DIR
+            now = stat_signature(path) if inside and not path.is_symlink() else None
+            if now is None or list(now) != list(sig):
+                kept.append(rel)
+                continue
+            try:
+                path.unlink()
+            except OSError:
+                kept.append(rel)
+                continue
+            removed.append(rel)
+            self.stale.pop(rel, None)
+            for entry in self.jobs.values():
+                entry.get("outputs", {}).pop(rel, None)
+        return removed, kept
 
     def close(self) -> None:
         if self._journal is not None:

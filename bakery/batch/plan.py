@@ -1,13 +1,25 @@
-"""Planning a batch: which jobs a recipe makes from the files on disk, and which of them must run.
+"""Planning a batch: the graph of jobs a recipe makes from the files on disk, and which of them must run.
 
-:func:`make_plan` walks the source root once, matches every rule, pairs each rule's other inputs by their
+:func:`make_plan` walks the source root once and takes the rules in the recipe's graph order (a rule after
+the rules whose outputs it reads, :func:`bakery.batch.recipe.load_recipe`). Per rule it matches source
+files, or the files the jobs of an upstream rule will write (``@RULE``), pairs the other inputs by their
 templates, resolves parameters (recipe defaults, then the rule, then folder files from the source root down
-to the matched file's folder: in each folder ``[bake.<bake>]`` first, then ``[rule.<rule>]``), checks every
-output path (inside the output root, not in its ``.bakery`` folder, no link leading out, no two jobs on one
-file) and then decides per job with the cache whether it runs and why. Everything is checked before any job
-runs; problems raise :class:`BakeryError` naming the file and the key.
+to the matched file's folder: in each folder ``[bake.<bake>]`` first, then ``[rule.<rule>]``) and decides
+with the cache whether the job runs and why. A job's key covers its source inputs' content digests and the
+keys of the jobs that make its other inputs, so a changed source re-runs exactly the jobs downstream of it.
 
-Nothing here imports heavy libraries: a run with nothing to do must start fast.
+Every file of every job (main output, manifest, mip levels, faces, side files) is known before anything
+runs: for an up-to-date job the cache holds the files it wrote; otherwise the bake declares them
+(:func:`bakery.bakes.planned_outputs`). Every file must stay inside the output root (not in its ``.bakery``
+folder, no link leading out) and no two jobs may write one file. Problems raise :class:`BakeryError` naming
+the rule, the file and the key, before any job runs.
+
+A bake may need the size of an input to name its files (mip levels); for an input that an upstream job has
+not written yet, the upstream job's own first input stands in (the bakes that write images from images keep
+the size), and the job is marked ``assumed``: :func:`refresh_files` checks its files again against the real
+input once the upstream job ran.
+
+Nothing here imports heavy libraries when nothing needs to run: a run with nothing to do must start fast.
 """
 
 from __future__ import annotations
@@ -23,6 +35,9 @@ from bakery.errors import BakeryError
 
 RUN, SKIP, FAIL = "run", "skip", "fail"
 
+#: Manifests (``NAME.ext.bakery.json``, :func:`bakery.io.manifest.manifest_path`) are never another rule's input.
+MANIFEST_SUFFIX = ".bakery.json"
+
 
 @dataclass
 class Job:
@@ -35,7 +50,7 @@ class Job:
     module : str
         The module that registers the bake (workers import it before running).
     inputs : dict of str to str
-        Input role -> path relative to the source root.
+        Input role -> path, relative to the source root, or to the output root for a role in ``upstream``.
     output : str
         Output path relative to the output root (it also identifies the job).
     values : dict
@@ -46,13 +61,20 @@ class Job:
     origins : dict of str to str
         Parameter -> where its value came from (for the plan).
     digests : dict of str to str
-        Input role -> content digest.
+        Input role -> content digest (``job:<key>`` for a file another job makes: the key that determines it).
     key : str
         The job key (see :mod:`bakery.batch.cache`).
     action : {"run", "skip", "fail"}
-        ``"fail"`` is decided at planning (an input missing with ``unpaired = "fail"``).
+        ``"fail"`` is decided at planning (an input missing with ``unpaired = "fail"``, an unreadable input, an
+        upstream job that cannot run).
     reason : str
         Why the job runs, is skipped or failed, in words.
+    upstream : dict of str to str
+        Input role -> the output (job id) of the job that makes that input.
+    files : list of str
+        Every file the job writes, relative to the output root, sorted.
+    assumed : bool
+        The files were named with a stand-in for an input not written yet (see the module notes).
     """
 
     rule: str
@@ -67,21 +89,45 @@ class Job:
     key: str = ""
     action: str = RUN
     reason: str = ""
+    upstream: dict[str, str] = field(default_factory=dict)
+    files: list[str] = field(default_factory=list)
+    assumed: bool = False
+
+    def shown(self, role: str) -> str:
+        """An input as the plan shows it: ``path`` for a source, ``@RULE/path`` for another job's file."""
+        return f"@{self.upstream_rules[role]}/{self.inputs[role]}" if role in self.upstream else self.inputs[role]
+
+    upstream_rules: dict[str, str] = field(default_factory=dict)  # role -> rule of the job that makes it
 
 
 @dataclass
 class Plan:
-    """The jobs of a recipe in a stable order (rule order, then output path), decided against the cache."""
+    """The jobs of a recipe in graph order (rules in the recipe's graph order, then output path), decided
+    against the cache; every job comes after the jobs that make its inputs."""
 
     recipe: Recipe
     jobs: list[Job]
     cache: Cache
     unselected: int = 0
     all_outputs: set[str] = field(default_factory=set)  # outputs of every job, selected by --only or not
+    writers: dict[str, str] = field(default_factory=dict)  # every planned file -> the output of its job
 
     @property
     def to_run(self) -> list[Job]:
         return [j for j in self.jobs if j.action == RUN]
+
+    def stale(self) -> dict[str, list]:
+        """Files the cache says bakery wrote that no job of the recipe writes now: file -> [size, mtime_ns]
+        as written (from rules, sources or parameters that changed)."""
+        out: dict[str, list] = {}
+        for entry in self.cache.jobs.values():
+            for rel, sig in entry.get("outputs", {}).items():
+                if rel not in self.writers:
+                    out[rel] = sig
+        for rel, sig in self.cache.stale.items():
+            if rel not in self.writers:
+                out[rel] = sig
+        return dict(sorted(out.items()))
 
 
 def scan_sources(root: Path) -> tuple[list[str], list[str]]:
@@ -125,31 +171,46 @@ def make_plan(recipe: Recipe, *, force: bool = False, only: tuple[str, ...] = ()
     only_patterns = _only_patterns(only)
     out_root = recipe.output.resolve()
     jobs: list[Job] = []
-    unselected = 0
-    for rule in recipe.rules:
+    by_rule: dict[str, list[Job]] = {}
+    by_output: dict[str, Job] = {}
+    writers: dict[str, Job] = {}  # every planned file -> its job
+    objs: dict[int, Any] = {}  # id(job) -> its parameter object (to ask the bake for its files)
+    for rule in recipe.rules:  # graph order: upstream rules first
         bake = get_bake(rule.bake)
         rule_jobs = []
-        for rel in files if rule.match is not None else [None]:
+        for rel, producer in _candidates(rule, bake, files, by_rule):
             if rel is None:  # a bake without inputs: one job
-                values, job_inputs = {"rule": rule.name}, {}
+                values, job_inputs, upstream = {"rule": rule.name}, {}, {}
             else:
-                fields = rule.match.match(rel)
+                fields = rule.match.match(rel) if rule.match is not None else {}
                 if fields is None or any(e.match(rel) is not None for e in rule.exclude):
                     continue
                 values = _path_fields(rel, rule) | fields
-                job_inputs = {bake.inputs[0].rstrip("?"): rel}
+                first = bake.inputs[0].rstrip("?")
+                job_inputs = {first: rel}
+                upstream = {first: producer} if producer is not None else {}
             missing: list[str] = []
             for role, tmpl in rule.inputs.items():
                 try:
                     other = tmpl.render(values)
                 except BakeryError as exc:
                     raise BakeryError(f"{rule.where}: key 'inputs.{role}': {exc}") from None
-                if (recipe.source / other).is_file():
+                up_rule = rule.inputs_from.get(role)
+                if up_rule is not None:
+                    maker = writers.get(other)
+                    if maker is None or maker.rule != up_rule:
+                        by = f" (job {maker.output} of rule {maker.rule!r} writes it)" if maker else ""
+                        raise BakeryError(f"{rule.where}: key 'inputs.{role}': rule {up_rule!r} writes no file "
+                                          f"{other}{by}, which the job for {rel} needs; no job has run")
+                    job_inputs[role], upstream[role] = other, maker
+                elif (recipe.source / other).is_file():
                     job_inputs[role] = other
+                    upstream.pop(role, None)
                 elif role in bake.required_inputs:
                     missing.append(f"no {role} input {other}")
                 else:
                     job_inputs.pop(role, None)
+                    upstream.pop(role, None)
             try:
                 output = rule.output.render(values)
             except BakeryError as exc:
@@ -157,33 +218,179 @@ def make_plan(recipe: Recipe, *, force: bool = False, only: tuple[str, ...] = ()
             check_output(out_root, output, rule)
             merged, origins = _resolve_values(rule, recipe, settings, rel)
             params_obj = params_from_mapping(bake, merged, f"{rule.where}: params" + (f" for {rel}" if rel else ""))
-            ordered = {r: job_inputs[r] for r in (x.rstrip("?") for x in bake.inputs) if r in job_inputs}
-            job = Job(rule.name, bake.name, bake.run.__module__, ordered, output, merged, params_to_dict(params_obj),
-                      origins)
+            roles = [r for r in (x.rstrip("?") for x in bake.inputs) if r in job_inputs]
+            job = Job(rule.name, bake.name, bake.run.__module__, {r: job_inputs[r] for r in roles}, output, merged,
+                      params_to_dict(params_obj), origins)
+            job.upstream = {r: upstream[r].output for r in roles if r in upstream}
+            job.upstream_rules = {r: upstream[r].rule for r in roles if r in upstream}
+            objs[id(job)] = params_obj
             if missing:
                 job.action = SKIP if rule.unpaired == "skip" else FAIL
                 job.reason = "; ".join(missing)
             rule_jobs.append(job)
         rule_jobs.sort(key=lambda j: j.output)
+        for job in rule_jobs:
+            if job.output in by_output:
+                _two_writers(job.output, by_output[job.output], job, recipe)
+            by_output[job.output] = job
+            _decide_job(job, recipe, cache, by_output, force, __version__)
+            job.files = _files(job, recipe, cache, by_output, objs.pop(id(job)))
+            for rel in job.files:
+                check_output(out_root, rel, next(r for r in recipe.rules if r.name == job.rule))
+                other = writers.get(rel)
+                if other is not None and other is not job:
+                    _two_writers(rel, other, job, recipe)
+                writers[rel] = job
+        by_rule[rule.name] = rule_jobs
         jobs += rule_jobs
-    _check_unique(jobs)  # over every job, selected or not: the recipe itself must be sound
     all_outputs = {j.output for j in jobs}
+    unselected = 0
     if only_patterns:
-        selected = [j for j in jobs if _selected(j, only_patterns)]
+        keep = {id(j) for j in jobs if _selected(j, only_patterns)}
+        for job in reversed(jobs):  # pull in what the chosen jobs need: downstream jobs come later in the list
+            if id(job) in keep:
+                keep.update(id(by_output[o]) for o in job.upstream.values())
+        selected = [j for j in jobs if id(j) in keep]
         unselected, jobs = len(jobs) - len(selected), selected
-    for job in jobs:
-        if job.reason:  # unpaired: decided already
-            continue
+    return Plan(recipe, jobs, cache, unselected, all_outputs, {f: j.output for f, j in writers.items()})
+
+
+def _candidates(rule: Rule, bake: Any, files: list[str], by_rule: dict[str, list[Job]]):
+    """(path, the job that makes it or None) for every file the rule's pattern is tried on."""
+    if rule.match_from is None:
+        if rule.match is None:  # a bake without inputs
+            return [(None, None)]
+        return [(rel, None) for rel in files]
+    ups = by_rule[rule.match_from]
+    if rule.match is None:  # "@RULE": every main output of that rule
+        return [(j.output, j) for j in ups]
+    return [(rel, j) for j in ups for rel in j.files if not rel.endswith(MANIFEST_SUFFIX)]
+
+
+def _two_writers(rel: str, a: Job, b: Job, recipe: Recipe) -> None:
+    def side(j: Job) -> str:
+        return "" if j.output == rel else f" (beside its output {j.output})"
+
+    raise BakeryError(f"two jobs write {rel}: rule {a.rule!r} from {_first(a)}{side(a)} and rule {b.rule!r} from "
+                      f"{_first(b)}{side(b)}; make the output templates differ")
+
+
+def _first(job: Job) -> str:
+    return job.shown(next(iter(job.inputs))) if job.inputs else "no input"
+
+
+def _decide_job(job: Job, recipe: Recipe, cache: Cache, by_output: dict[str, Job], force: bool,
+                version: str) -> None:
+    """Digests, key, action and reason of one job; the jobs that make its inputs are decided already."""
+    if job.reason:  # unpaired: decided already
+        return
+    for role, out in job.upstream.items():
+        maker = by_output[out]
+        if maker.action == FAIL:
+            job.action, job.reason = FAIL, (f"its {role} input {job.shown(role)} cannot be made: "
+                                            f"{maker.reason}")
+            return
+        if not maker.key:  # skipped for want of an input: nothing to read
+            job.action, job.reason = SKIP, (f"its {role} input {job.shown(role)} is not made "
+                                            f"({maker.reason})")
+            return
+    try:
+        job.digests = {role: ("job:" + by_output[job.upstream[role]].key if role in job.upstream
+                              else cache.digest(recipe.source / rel)) for role, rel in job.inputs.items()}
+    except BakeryError as exc:  # an unreadable input fails its own job, not the batch
+        job.action, job.reason = FAIL, str(exc)
+        return
+    named = {role: (Path(rel).name, job.digests[role]) for role, rel in job.inputs.items()}
+    encoder = _encoder() if job.output.lower().endswith(".ktx2") else None
+    job.key = job_key(job.bake, named, job.params, version, encoder)
+    job.action, job.reason = _decide(job, cache, recipe.output, force, version)
+
+
+def _files(job: Job, recipe: Recipe, cache: Cache, by_output: dict[str, Job], params: Any) -> list[str]:
+    """Every file of the job, relative to the output root: from the cache when the job's key is the recorded
+    one (the same key writes the same files), else as the bake declares them."""
+    entry = cache.jobs.get(job.output)
+    if job.key and entry is not None and entry.get("key") == job.key and entry.get("outputs"):
+        return sorted(entry["outputs"])
+    paths: dict[str, Path] = {}
+    for role, rel in job.inputs.items():
+        if role in job.upstream:
+            maker = by_output[job.upstream[role]]
+            real = recipe.output / rel
+            if maker.action == RUN or not real.is_file():
+                stand_in = _stand_in(maker, recipe, by_output)
+                if stand_in is not None:
+                    paths[role], job.assumed = stand_in, True
+                    continue
+            paths[role] = real
+        else:
+            paths[role] = recipe.source / rel
+    return _declared(job, paths, recipe, params)
+
+
+def _declared(job: Job, paths: dict[str, Path], recipe: Recipe, params: Any) -> list[str]:
+    from bakery.bakes import planned_outputs
+
+    out_root = recipe.output
+    try:
+        declared = planned_outputs(job.bake, paths, out_root / job.output, params)
+    except BakeryError as exc:
+        rule = next(r for r in recipe.rules if r.name == job.rule)
+        if exc.path is not None and exc.path in {str(p) for p in paths.values()}:
+            if job.action == RUN:  # an input whose header cannot be read fails its own job when it runs
+                job.action, job.reason = FAIL, str(exc)
+            return [job.output]
+        raise BakeryError(f"{rule.where}: key 'output': {exc}") from None
+    rels = []
+    for p in declared:
         try:
-            job.digests = {role: cache.digest(recipe.source / rel) for role, rel in job.inputs.items()}
-        except BakeryError as exc:  # an unreadable input fails its own job, not the batch
-            job.action, job.reason = FAIL, str(exc)
-            continue
-        named = {role: (Path(rel).name, job.digests[role]) for role, rel in job.inputs.items()}
-        encoder = _encoder() if job.output.lower().endswith(".ktx2") else None
-        job.key = job_key(job.bake, named, job.params, __version__, encoder)
-        job.action, job.reason = _decide(job, cache, recipe.output, force, __version__)
-    return Plan(recipe, jobs, cache, unselected, all_outputs)
+            rels.append(Path(os.path.normpath(p)).relative_to(os.path.normpath(out_root)).as_posix())
+        except ValueError:
+            rule = next(r for r in recipe.rules if r.name == job.rule)
+            raise BakeryError(f"{rule.where}: key 'output': bake {job.bake!r} would write {p}, outside the output "
+                              "root") from None
+    return sorted(set(rels))
+
+
+def _stand_in(maker: Job, recipe: Recipe, by_output: dict[str, Job]) -> Path | None:
+    """An existing file with the size that ``maker``'s main output will have: its own first input (recursively
+    when that is made by another job that runs too)."""
+    if not maker.inputs:
+        return None
+    role, rel = next(iter(maker.inputs.items()))
+    if role not in maker.upstream:
+        return recipe.source / rel
+    up = by_output[maker.upstream[role]]
+    if up.action != RUN and (recipe.output / rel).is_file():
+        return recipe.output / rel
+    return _stand_in(up, recipe, by_output)
+
+
+def refresh_files(job: Job, recipe: Recipe, plan: Plan) -> str | None:
+    """Name the files of an ``assumed`` job again from its real inputs (its upstream jobs have run); returns a
+    message when it would now write a file that another job writes, else None (``job.files`` is updated)."""
+    from bakery.bakes import get_bake, params_from_mapping
+
+    if not job.assumed:
+        return None
+    bake = get_bake(job.bake)
+    paths = {role: (recipe.output if role in job.upstream else recipe.source) / rel for role, rel in job.inputs.items()}
+    params = params_from_mapping(bake, job.values, f"rule {job.rule!r}")
+    try:
+        files = _declared(job, paths, recipe, params)
+    except BakeryError as exc:
+        return str(exc)
+    for rel in files:
+        other = plan.writers.get(rel)
+        if other is not None and other != job.output:
+            return (f"would write {rel}, which the job for {other} writes (its files follow the size of "
+                    f"{job.shown(next(iter(job.inputs)))}, known only now)")
+    for rel in job.files:
+        plan.writers.pop(rel, None)
+    for rel in files:
+        plan.writers[rel] = job.output
+    job.files, job.assumed = files, False
+    return None
 
 
 def _shown(recipe: Recipe, folder: str) -> str:
@@ -241,18 +448,6 @@ def check_output(out_root: Path, rel: str, rule: Rule) -> None:
                           f"(through a link to {resolved.parent}); outputs must stay inside it")
 
 
-def _check_unique(jobs: list[Job]) -> None:
-    seen: dict[str, Job] = {}
-    for job in jobs:
-        other = seen.get(job.output)
-        if other is not None:
-            a = next(iter(other.inputs.values()), "no input")
-            b = next(iter(job.inputs.values()), "no input")
-            raise BakeryError(f"two jobs write {job.output}: rule {other.rule!r} from {a} and rule {job.rule!r} "
-                              f"from {b}; make the output templates differ")
-        seen[job.output] = job
-
-
 def _only_patterns(only: tuple[str, ...]) -> list[Any]:
     from bakery.batch.recipe import compile_pattern
 
@@ -266,7 +461,7 @@ def _only_patterns(only: tuple[str, ...]) -> list[Any]:
 
 
 def _selected(job: Job, patterns: list[Any]) -> bool:
-    paths = [*job.inputs.values(), job.output]
+    paths = [*job.inputs.values(), job.output]  # inputs made by other jobs count by their path too
     for p in patterns:
         if isinstance(p, str):
             if p == job.rule or any(x == p or x.rsplit("/", 1)[-1] == p for x in paths):
@@ -298,14 +493,14 @@ def _explain_change(job: Job, entry: dict[str, Any], version: str) -> str:
     if entry.get("bake") != job.bake:
         reasons.append(f"bake changed from {entry.get('bake')!r}")
     old_inputs = entry.get("inputs", {})
-    for role, rel in job.inputs.items():
-        old = old_inputs.get(role)
+    for role in job.inputs:
+        old, rel = old_inputs.get(role), job.shown(role)
         if old is None:
             reasons.append(f"new {role} input")
         elif old[0] != rel:
             reasons.append(f"{role} input is now {rel}")
         elif old[1] != job.digests[role]:
-            reasons.append(f"{role} input {rel} changed")
+            reasons.append(f"{role} input {rel} changed" + (" upstream" if role in job.upstream else ""))
     for role in old_inputs:
         if role not in job.inputs:
             reasons.append(f"{role} input gone")
@@ -318,8 +513,10 @@ def _explain_change(job: Job, entry: dict[str, Any], version: str) -> str:
     return "; ".join(reasons) or "job key changed"
 
 
-def cache_entry(job: Job, outputs: dict[str, list[int]], version: str) -> dict[str, Any]:
-    """The cache record of a job that ran: its key, what went into it and the files it wrote."""
+def cache_entry(job: Job, outputs: dict[str, list[int]], version: str,
+                findings: list[dict] | None = None) -> dict[str, Any]:
+    """The cache record of a job that ran: its key, what went into it, the files it wrote and what
+    ``bakery inspect`` found in them (None: not inspected), so later runs that skip it still report them."""
     return {"key": job.key, "bake": job.bake, "rule": job.rule,
-            "inputs": {r: [rel, job.digests[r]] for r, rel in job.inputs.items()},
-            "params": job.params, "bakery": version, "outputs": outputs}
+            "inputs": {r: [job.shown(r), job.digests[r]] for r in job.inputs},
+            "params": job.params, "bakery": version, "outputs": outputs, "findings": findings}

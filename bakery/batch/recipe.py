@@ -16,6 +16,12 @@ Templates (output names and the paths of a rule's other inputs)
     (the suffix without its dot), ``parent`` (the name of the matched file's folder), ``rule`` (the rule
     name) and every ``{field}`` of the rule's pattern. Empty and ``.`` segments are dropped after filling
     in, so ``{dir}/{stem}_n.png`` works at the root. Absolute paths and ``..`` are refused.
+Chained rules (another rule's outputs as inputs)
+    ``@RULE`` in ``match`` takes the main output of every job of rule ``RULE``; ``@RULE/PATTERN`` the files
+    those jobs write (main and side outputs, never manifests) that match ``PATTERN``, relative to the output
+    root. A partner template ``inputs.ROLE = "@RULE/TEMPLATE"`` names a file that rule ``RULE`` writes (a
+    file it does not write is refused before any job runs). The rules form a graph: a cycle is refused with
+    the rules named, and the plan runs them in its topological order.
 
 Nothing here imports heavy libraries: a run with nothing to do must start fast.
 """
@@ -24,7 +30,7 @@ from __future__ import annotations
 
 import re
 import tomllib
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -38,6 +44,7 @@ PATH_FIELDS = ("path", "dir", "name", "stem", "ext", "parent", "rule")
 
 _FIELD = re.compile(r"\{([A-Za-z_][A-Za-z0-9_]*)\}")
 _RULE_KEYS = {"name", "bake", "match", "exclude", "output", "inputs", "params", "unpaired"}
+_NAME = re.compile(r"[A-Za-z0-9][A-Za-z0-9_.-]*")
 _TOP_KEYS = {"source", "output", "defaults", "rule"}
 
 
@@ -85,7 +92,8 @@ class Rule:
         A registered bake (:func:`bakery.bakes.get_bake`).
     match : Pattern or None
         Selects the files that fill the bake's first input role (one job per matched file). None for a bake
-        without inputs: the rule makes exactly one job.
+        without inputs (the rule makes exactly one job) and for ``match = "@RULE"`` (every main output of
+        ``RULE``).
     exclude : tuple of Pattern
         Files matched by any of these are left out.
     output : Template
@@ -100,6 +108,10 @@ class Rule:
         listed as such) or fails.
     where : str
         ``"recipe.toml: rule 'name'"`` for messages.
+    match_from : str or None
+        The rule whose outputs ``match`` selects from (``@RULE``), or None: the source root.
+    inputs_from : dict of str to str
+        Input role -> the rule whose output its template names (``@RULE/...``); other roles are source files.
     """
 
     name: str
@@ -111,6 +123,14 @@ class Rule:
     params: dict[str, Any]
     unpaired: str
     where: str
+    match_from: str | None = None
+    inputs_from: dict[str, str] = field(default_factory=dict)
+
+    @property
+    def upstream(self) -> tuple[str, ...]:
+        """The rules whose outputs this rule reads."""
+        names = ([self.match_from] if self.match_from else []) + list(self.inputs_from.values())
+        return tuple(dict.fromkeys(names))
 
 
 @dataclass(frozen=True)
@@ -268,7 +288,53 @@ def load_recipe(path: str | Path) -> Recipe:
             raise BakeryError(f"{rule.where}: another rule has the name {rule.name!r}; names must be unique")
         names.add(rule.name)
         rules.append(rule)
+    rules = _check_graph(rules)
     return Recipe(path.resolve(), source, output, defaults, tuple(rules))
+
+
+def _check_graph(rules: list[Rule]) -> list[Rule]:
+    """The rules in an order where every rule comes after the rules whose outputs it reads (recipe order where
+    that allows); unknown rule names, a rule reading its own outputs and cycles are refused."""
+    by_name = {r.name: r for r in rules}
+    for r in rules:
+        for up in r.upstream:
+            key = "match" if up == r.match_from else next(f"inputs.{k}" for k, v in r.inputs_from.items() if v == up)
+            if up not in by_name:
+                raise BakeryError(f"{r.where}: key {key!r}: no rule is named {up!r}; the rules are: "
+                                  f"{', '.join(by_name)}")
+            if up == r.name:
+                raise BakeryError(f"{r.where}: key {key!r}: the rule reads its own outputs (@{up}); a rule cannot "
+                                  "consume what it writes")
+    order: list[Rule] = []
+    state: dict[str, int] = {}  # 1: on the current path, 2: placed
+
+    def visit(r: Rule, path: list[str]) -> None:
+        if state.get(r.name) == 2:
+            return
+        if state.get(r.name) == 1:
+            cycle = path[path.index(r.name):] + [r.name]
+            raise BakeryError(f"{r.where}: the rules form a cycle: {' -> '.join(cycle)} (each reads the outputs of "
+                              "the next); no job can run first")
+        state[r.name] = 1
+        for up in r.upstream:
+            visit(by_name[up], path + [r.name])
+        state[r.name] = 2
+        order.append(r)
+
+    for r in rules:
+        visit(r, [])
+    return order
+
+
+def split_ref(text: Any, where: str) -> tuple[str | None, Any]:
+    """``"@RULE/rest"`` -> ("RULE", "rest"); ``"@RULE"`` -> ("RULE", None); anything else -> (None, text)."""
+    if not isinstance(text, str) or not text.startswith("@"):
+        return None, text
+    head, sep, rest = text[1:].partition("/")
+    if not _NAME.fullmatch(head):
+        raise BakeryError(f"{where}: {text!r}: '@' must be followed by a rule name, as in \"@normals\" or "
+                          "\"@normals/**/*_normal.png\"")
+    return head, (rest if sep else None)
 
 
 def _root(data: dict, key: str, base: Path, where: str) -> Path:
@@ -290,7 +356,7 @@ def _rule(raw: Any, index: int, where: str, defaults: dict) -> Rule:
         raise BakeryError(f"{w}: expected a table")
     name = raw.get("name", None)
     if name is not None:
-        if not isinstance(name, str) or not re.fullmatch(r"[A-Za-z0-9][A-Za-z0-9_.-]*", name):
+        if not isinstance(name, str) or not _NAME.fullmatch(name):
             raise BakeryError(f"{w}: key 'name': expected letters, digits, '-', '_' or '.'; got {name!r}")
         w = f"{where}: rule {name!r}"
     unknown = sorted(set(raw) - _RULE_KEYS)
@@ -318,31 +384,39 @@ def _rule(raw: Any, index: int, where: str, defaults: dict) -> Rule:
     if "match" not in raw:
         raise BakeryError(f"{w}: missing key 'match' (the pattern of the files for input "
                           f"{bake.inputs[0].rstrip('?')!r})")
-    match = compile_pattern(raw["match"], f"{w}: key 'match'")
+    match_from, match_text = split_ref(raw["match"], f"{w}: key 'match'")
+    match = None if match_from and match_text is None else compile_pattern(match_text, f"{w}: key 'match'")
     excl_raw = raw.get("exclude", [])
     if isinstance(excl_raw, str):
         excl_raw = [excl_raw]
     if not isinstance(excl_raw, list):
         raise BakeryError(f"{w}: key 'exclude': expected a pattern or a list of patterns")
     exclude = tuple(compile_pattern(e, f"{w}: key 'exclude'") for e in excl_raw)
-    available = PATH_FIELDS + match.fields
+    available = PATH_FIELDS + (match.fields if match is not None else ())
     output = compile_template(raw["output"], available, f"{w}: key 'output'")
     roles = [r.rstrip("?") for r in bake.inputs]
     inputs_raw = raw.get("inputs", {})
     if not isinstance(inputs_raw, dict):
         raise BakeryError(f"{w}: key 'inputs': expected a table of role = \"template\"")
     inputs = {}
+    inputs_from = {}
     for role, text in inputs_raw.items():
         if role not in roles:
             raise BakeryError(f"{w}: key 'inputs.{role}': bake {bake.name!r} has no input {role!r}; its inputs "
                               f"are: {', '.join(bake.inputs)}")
+        up, text = split_ref(text, f"{w}: key 'inputs.{role}'")
+        if up is not None:
+            if text is None:
+                raise BakeryError(f"{w}: key 'inputs.{role}': name the file of rule {up!r}, as in "
+                                  f"\"@{up}/{{dir}}/{{material}}_{role}.png\"")
+            inputs_from[role] = up
         inputs[role] = compile_template(text, available, f"{w}: key 'inputs.{role}'")
     missing = [r for r in bake.required_inputs if r != roles[0] and r not in inputs]
     if missing:
         raise BakeryError(f"{w}: bake {bake.name!r} needs input {missing[0]!r} too; name it with "
                           f"inputs.{missing[0]} = \"<template>\", e.g. \"{{dir}}/{{stem}}_{missing[0]}.png\"")
     return Rule(name, bake.name, match, exclude, output, inputs, _params(raw, bake, defaults, w),
-                _unpaired(raw, w), w)
+                _unpaired(raw, w), w, match_from, inputs_from)
 
 
 def _params(raw: dict, bake: Any, defaults: dict, w: str) -> dict[str, Any]:

@@ -21,7 +21,10 @@ class JobResult:
     """One job in the report.
 
     ``status`` is ``"ran"``, ``"skipped"``, ``"failed"``, or ``"planned"`` (a dry run's job that would run).
-    ``reason`` says why it ran or was skipped; ``error`` is the one-line message of a failed job.
+    ``reason`` says why it ran or was skipped; ``error`` is the one-line message of a failed job. An input
+    another job makes has ``made_by`` (that job's rule) and the digest ``job:<its key>``; ``after`` lists the
+    outputs of the jobs it needs, ``files`` every file it writes (planned), ``outputs`` the files written (for
+    a skipped job: those written when it ran). ``findings`` of a skipped job are those of its last run.
     """
 
     rule: str
@@ -38,11 +41,16 @@ class JobResult:
     findings: list[dict[str, str]] = field(default_factory=list)
     error: str | None = None
     traceback: str | None = None
+    files: list[str] = field(default_factory=list)
+    after: list[str] = field(default_factory=list)
 
 
 @dataclass
 class BatchReport:
     """The outcome of :func:`bakery.batch.run`.
+
+    ``stale``: files bakery wrote earlier that no job of the recipe writes now (left in place); ``removed``:
+    those deleted by ``remove_stale``.
 
     ``exit_code`` is 0 when every job ran or was skipped and 1 when some failed (a wrong recipe or command
     line raises :class:`~bakery.errors.BakeryError` instead: exit code 2).
@@ -60,6 +68,8 @@ class BatchReport:
     jobs: list[JobResult] = field(default_factory=list)
     unselected: int = 0
     notes: list[str] = field(default_factory=list)
+    stale: list[str] = field(default_factory=list)
+    removed: list[str] = field(default_factory=list)
     path: Path | None = field(default=None, compare=False)
 
     def count(self, status: str) -> int:
@@ -115,19 +125,25 @@ class BatchReport:
         return self.path
 
 
+def shown_input(v: dict[str, str]) -> str:
+    """A source as its path; a file another job makes as ``@RULE/path`` (the recipe's syntax)."""
+    return f"@{v['made_by']}/{v['path']}" if v.get("made_by") else v["path"]
+
+
 def job_line(job: JobResult) -> str:
     """``rule: a.png -> b.png`` (roles named when a job has several inputs)."""
     if not job.inputs:
         src = "(no input)"
     elif len(job.inputs) == 1:
-        src = next(iter(job.inputs.values()))["path"]
+        src = shown_input(next(iter(job.inputs.values())))
     else:
-        src = " + ".join(f"{role}={v['path']}" for role, v in job.inputs.items())
+        src = " + ".join(f"{role}={shown_input(v)}" for role, v in job.inputs.items())
     return f"{job.rule}: {src} -> {job.output}"
 
 
 def format_plan(report: BatchReport) -> list[str]:
-    """The dry-run listing: per job what it reads and writes, its explicit parameters and why it runs."""
+    """The dry-run listing, in graph order: per job what it reads (``@RULE/path`` for another job's file) and
+    writes, why it runs, its explicit parameters, the jobs it waits for and every file it writes."""
     word = {PLANNED: "run ", SKIPPED: "skip", FAILED: "FAIL"}
     lines = []
     for job in report.jobs:
@@ -137,19 +153,43 @@ def format_plan(report: BatchReport) -> list[str]:
         else:
             shown = "bake defaults"
         lines.append(f"      params: {shown}")
-    lines.extend(report.notes)
+        if job.after:
+            lines.append(f"      after: {', '.join(job.after)}")
+        extra = [f for f in job.files if f != job.output]
+        if extra:
+            lines.append(f"      also writes: {', '.join(extra)}")
+    if report.stale:
+        lines.append(f"stale: {len(report.stale)} file(s) from earlier runs that no job writes now: "
+                     + ", ".join(report.stale[:5]) + (" ..." if len(report.stale) > 5 else ""))
+    lines.extend(n for n in report.notes if not n.startswith(f"{len(report.stale)} output(s) from earlier"))
     lines.append(report.summary())
     return lines
 
 
 class PlainProgress:
-    """Progress as plain lines (for logs and pipes): one line per finished job."""
+    """Progress as plain lines (for logs and pipes): one line per finished job, and for a job running longer
+    than a second its bake's progress (``[3/48] 40 % normals: a.png -> b.png (strips)``), at most one such line
+    a second."""
+
+    #: Seconds a job runs before its progress is printed, and between two progress lines.
+    EVERY = 1.0
 
     def __init__(self, stream: TextIO | None = None, *, quiet: bool = False):
         self.stream = stream or sys.stderr
         self.quiet = quiet
         self.total = 0
         self.done = 0
+        self.started: dict[str, float] = {}
+        self.last_line = 0.0
+
+    def job_progress(self, job: JobResult, fraction: float, label: str) -> None:
+        """A running job's bake progress (``fraction`` rising to 1, ``label`` a few words)."""
+        now = time.monotonic()
+        t0 = self.started.setdefault(job.output, now)
+        if self.quiet or fraction >= 1.0 or now - t0 < self.EVERY or now - self.last_line < self.EVERY:
+            return
+        self.last_line = now
+        self._print(f"[{self.done + 1}/{self.total}] {100 * fraction:3.0f} % {job_line(job)} ({label})")
 
     def start(self, total: int, skipped: int, executor: str, workers: int) -> None:
         self.total = total
@@ -158,6 +198,7 @@ class PlainProgress:
 
     def update(self, job: JobResult) -> None:
         self.done += 1
+        self.started.pop(job.output, None)
         if job.status == FAILED:
             self._print(f"[{self.done}/{self.total}] FAILED {job_line(job)}: {job.error}")
         elif not self.quiet:
@@ -174,7 +215,8 @@ class PlainProgress:
 
 
 class BarProgress(PlainProgress):
-    """A progress bar on a terminal (rich); failures and warnings are printed above it."""
+    """A progress bar on a terminal (rich): the batch's, and one per running job with its bake's progress;
+    failures and warnings are printed above them."""
 
     def start(self, total: int, skipped: int, executor: str, workers: int) -> None:
         from rich.console import Console
@@ -183,14 +225,27 @@ class BarProgress(PlainProgress):
         self.total = total
         self.failures = 0
         self.console = Console(file=self.stream)
-        self.bar = Progress(TextColumn("batch"), BarColumn(), MofNCompleteColumn(), TextColumn("{task.fields[info]}"),
+        self.bar = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+                            TextColumn("{task.fields[info]}"),
                             TimeRemainingColumn(), console=self.console, transient=True)
         self.task = self.bar.add_task("batch", total=total, info="")
+        self.running: dict[str, Any] = {}
         self.console.print(start_line(total, skipped, executor, workers), markup=False, highlight=False)
         self.bar.start()
 
+    def job_progress(self, job: JobResult, fraction: float, label: str) -> None:
+        task = self.running.get(job.output)
+        if task is None:
+            line = job_line(job)
+            name = "  " + (line if len(line) < 60 else "..." + line[-57:])
+            task = self.running[job.output] = self.bar.add_task(name, total=100, info="")
+        self.bar.update(task, completed=round(100 * min(max(fraction, 0.0), 1.0)), info=label)
+
     def update(self, job: JobResult) -> None:
         self.done += 1
+        task = self.running.pop(job.output, None)
+        if task is not None:
+            self.bar.remove_task(task)
         if job.status == FAILED:
             self.failures += 1
             self.console.print(f"FAILED {job_line(job)}: {job.error}", markup=False, highlight=False)

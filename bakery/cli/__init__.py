@@ -101,6 +101,11 @@ def run(args: list[str] | None = None) -> int:
     if "--" not in argv:  # the program's own flags anywhere on the line (``bakery batch r.toml --quiet``)
         argv = [a for a in argv if a in GLOBAL_FLAGS] + [a for a in argv if a not in GLOBAL_FLAGS]
     debug = "--debug" in argv[:argv.index("--")] if "--" in argv else "--debug" in argv
+    from bakery.cli.batch import run_plain
+
+    rv = run_plain(argv)  # a plain batch line skips the option parser's set-up (a no-change run is start-up only)
+    if rv is not None:
+        return rv
     try:
         rv = app(args=argv, prog_name="bakery", standalone_mode=False)
     except errors.UsageError as exc:

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import sys
 from pathlib import Path
-from typing import Annotated
+from typing import Annotated, Any
 
 import typer
 
@@ -38,6 +38,9 @@ def batch(
     inspect: Annotated[bool, typer.Option(
         "--inspect/--no-inspect", help="Check every image written with `bakery inspect` and list the findings in "
         "the report (--no-inspect saves re-reading the outputs).")] = True,
+    remove_stale: Annotated[bool, typer.Option(
+        "--remove-stale", help="Delete the stale outputs: files bakery wrote in the output root (unchanged since) "
+                               "that no job of the recipe writes now. Without it they are listed and kept.")] = False,
     sheet: Annotated[bool, typer.Option(
         "--sheet", help="After the run, write a contact sheet of the output folder (OUTPUT/.bakery/sheet.html "
                         "and sheet.png): every map, its lit preview and the findings of `bakery inspect`.")] = False,
@@ -66,7 +69,7 @@ def batch(
         cls = BarProgress if sys.stderr.isatty() and not STATE["quiet"] else PlainProgress
         progress = cls(sys.stderr, quiet=STATE["quiet"])
     rep = run(recipe, jobs=jobs, force=force, only=tuple(only or ()), dry_run=dry_run, cluster=cluster,
-              report=report, progress=progress, inspect=inspect)
+              report=report, progress=progress, inspect=inspect, remove_stale=remove_stale)
     if dry_run:
         for line in format_plan(rep):
             echo(line)
@@ -80,6 +83,116 @@ def batch(
         _contact_sheet(Path(rep.output))
     if rep.exit_code:
         raise typer.Exit(rep.exit_code)
+
+
+def run_plain(argv: list[str]) -> int | None:
+    """Run ``[--quiet] [--debug] batch RECIPE [OPTIONS]`` with its options read straight from the declaration
+    above (the signature of :func:`batch`), without the option parser's type machinery, whose set-up costs
+    more than a batch with nothing to do. Returns the exit code, or None when the line holds anything this
+    reader does not take on trust (another command, ``--help``, an unknown, repeated or malformed option, a
+    value out of range): the full parser then handles it, with its own messages."""
+    import typer
+
+    argv = list(argv)
+    flags = set()
+    while argv and argv[0] in ("--quiet", "-q", "--debug"):
+        flags.add(argv.pop(0))
+    if not argv or argv[0] != "batch":
+        return None
+    kwargs = _plain_options(argv[1:])
+    if kwargs is None:
+        return None
+    from bakery.cli import _root
+
+    _root(version=False, debug="--debug" in flags, quiet=bool(flags & {"--quiet", "-q"}))
+    try:
+        batch(**kwargs)
+    except typer.Exit as exc:
+        return exc.exit_code
+    return 0
+
+
+def _plain_options(args: list[str]) -> dict | None:
+    import inspect
+    import types
+    import typing
+
+    fn = batch.__wrapped__
+    hints = typing.get_type_hints(fn, include_extras=True)
+    names: dict[str, tuple[str, type, bool | None]] = {}  # option -> (parameter, type, flag value)
+    info_of: dict[str, Any] = {}
+    positional = None
+    for name in inspect.signature(fn).parameters:
+        base, info = typing.get_args(hints[name])[:2]
+        union = isinstance(base, types.UnionType)
+        kinds = [a for a in typing.get_args(base) if a is not type(None)] if union else [base]
+        kind = kinds[0]
+        info_of[name] = info
+        if isinstance(info, typer.models.ArgumentInfo):
+            positional = (name, kind)
+            continue
+        for decl in info.param_decls:
+            on, _, off = decl.partition("/")
+            names[on] = (name, kind, True if kind is bool else None)
+            if off:
+                names[off] = (name, kind, False)
+    kwargs: dict[str, Any] = {}
+    i = 0
+    while i < len(args):
+        a = args[i]
+        if a.startswith("--"):
+            opt, eq, value = a.partition("=")
+        elif a.startswith("-") and len(a) > 2:  # -j2
+            opt, eq, value = a[:2], "=", a[2:]
+        else:
+            opt, eq, value = a, "", ""
+        if a == "--" or opt in ("--help", "-h"):
+            return None
+        if not a.startswith("-") or a == "-":
+            if positional is None or positional[0] in kwargs:
+                return None
+            kwargs[positional[0]] = Path(a)
+            i += 1
+            continue
+        if opt not in names:
+            return None
+        name, kind, flag = names[opt]
+        if kind is bool:
+            if eq or name in kwargs:
+                return None
+            kwargs[name] = flag
+            i += 1
+            continue
+        if not eq:
+            if i + 1 >= len(args):
+                return None
+            value = args[i + 1]
+            i += 1
+        i += 1
+        origin = typing.get_origin(kind)
+        if origin is list:
+            kwargs.setdefault(name, []).append(value)
+            continue
+        if name in kwargs:
+            return None
+        if kind is int:
+            try:
+                number = int(value)
+            except ValueError:
+                return None
+            low = getattr(info_of[name], "min", None)
+            if low is not None and number < low:
+                return None
+            kwargs[name] = number
+        elif kind is Path:
+            if Path(value).is_dir() and getattr(info_of[name], "dir_okay", True) is False:
+                return None
+            kwargs[name] = Path(value)
+        elif kind is str:
+            kwargs[name] = value
+        else:
+            return None
+    return kwargs
 
 
 def _contact_sheet(output: Path) -> None:

@@ -28,12 +28,15 @@ def _invert(inputs: dict[str, Path], output: Path, params: InvertParams, progres
     from bakery.io import read_image, write_image, write_manifest
 
     img = read_image(inputs["source"])
+    progress(0.25, "read")
     if params.delay:
         time.sleep(params.delay)
+    progress(0.75, "inverted")
     if params.crash:
         os._exit(params.crash)
     write_image(output, params.gain * (1.0 - img.pixels), bits=img.bits if img.bits != "float" else None)
     m = write_manifest(output, bake="test-invert", inputs=inputs, params=params_to_dict(params), outputs=[output])
+    progress(1.0, "written")
     return [output, m]
 
 

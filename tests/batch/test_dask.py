@@ -10,6 +10,7 @@ from bakery.batch import run
 from bakery.batch.execute import connect
 from bakery.errors import BakeryError
 from tests.batch.conftest import outputs
+from tests.batch.test_graph import CHAIN
 
 distributed = pytest.importorskip("distributed")
 
@@ -39,6 +40,53 @@ def test_dask_equals_local_pool(library, tmp_path, cluster):
     assert set(data["env"].values()) == {"1"}
 
 
+def test_chained_rules_on_dask_equal_one_and_two_local_workers(library, tmp_path, cluster):
+    """Dask futures depend on the futures of the jobs they need: the same bytes as --jobs 1 and --jobs 2; a
+    failed job fails its dependents with the cause named, the other branches run."""
+    library.write_text(CHAIN, encoding="utf-8")
+    got = {}
+    for name, kw in (("jobs1", {"jobs": 1}), ("jobs2", {"jobs": 2}), ("dask", {"cluster": cluster.scheduler_address})):
+        rep = run(library, **kw)
+        assert (rep.ran, rep.failed) == (15, 0)
+        got[name] = outputs(tmp_path / "out")
+        (tmp_path / "out").rename(tmp_path / name)
+    assert got["jobs1"] == got["jobs2"] == got["dask"] and len(got["dask"]) == 30
+    bad = tmp_path / "lib" / "stone" / "stone_height.png"
+    bad.write_bytes(bad.read_bytes()[:200])
+    rep = run(library, cluster=cluster.scheduler_address)
+    failed = {j.output: j.error for j in rep.jobs if j.status == "failed"}
+    assert set(failed) == {"stone/stone_inv.png", "stone/stone_mix.png", "stone/stone_inv_twice.png",
+                           "stone/stone_mixed.png"} and rep.ran == 11
+    assert failed["stone/stone_mixed.png"].startswith("not run: an input comes from a job that failed "
+                                                      "(stone/stone_inv.png: ")
+
+
 def test_unreachable_scheduler():
     with pytest.raises(BakeryError, match=r"cannot reach the Dask scheduler at 'tcp://127.0.0.1:9'"):
         connect("tcp://127.0.0.1:9", timeout=0.5)
+
+
+def test_sample_library_same_bytes_with_one_two_workers_and_dask(tmp_path, cluster):
+    """samples/library.toml (chained rules, real bakes): --jobs 1, --jobs 2 and a local Dask cluster write the
+    same bytes; Dask workers forward their jobs' progress as events."""
+    import shutil
+    from pathlib import Path
+
+    from bakery.samples import library
+    from tests.batch.test_graph import _Recorder
+
+    root = Path(__file__).resolve().parents[2]
+    shutil.copy(root / "samples" / "library.toml", tmp_path / "library.toml")
+    library(tmp_path / "library", size=32, sky_width=64)
+    shutil.copy(root / "samples" / "library" / "stone" / "bakery-folder.toml", tmp_path / "library" / "stone")
+    recipe, out = tmp_path / "library.toml", tmp_path / "library-baked"
+    got = {}
+    rec = _Recorder()
+    for name, kw in (("jobs1", {"jobs": 1}), ("jobs2", {"jobs": 2}),
+                     ("dask", {"cluster": cluster.scheduler_address, "progress": rec})):
+        rep = run(recipe, **kw)
+        assert rep.failed == 0 and rep.ran == len(rep.jobs) >= 40
+        got[name] = outputs(out)
+        out.rename(tmp_path / name)
+    assert got["jobs1"] == got["jobs2"] == got["dask"]
+    assert any(f == 0.0 for calls in rec.calls.values() for f, _ in calls)

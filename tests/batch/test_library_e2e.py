@@ -1,5 +1,6 @@
-"""End to end on the sample library (bakery.samples.library + samples/library.toml) with the real bakes:
-the batch writes exactly the planned files, byte-identical to the same bakes run one by one from the CLI."""
+"""End to end on the sample library (bakery.samples.library + samples/library.toml) with the real bakes and
+chained rules: the batch writes exactly the planned files, byte-identical to the same commands run by hand in
+the plan's order; a changed source re-runs exactly the jobs downstream of it."""
 
 from __future__ import annotations
 
@@ -21,21 +22,28 @@ from tests.batch.conftest import outputs
 ROOT = Path(__file__).resolve().parents[2]
 
 
-COMMANDS = {"normal": ["normal"], "roughness": ["roughness"], "blend": ["blend"], "antialias": ["antialias"],
+COMMANDS = {"normal": ["normal"], "normal-mips": ["normal-mips"],
+            "roughness": ["roughness"], "blend": ["blend"], "antialias": ["antialias"],
             "env-convert": ["env", "convert"], "env-diffuse": ["env", "diffuse"], "env-specular": ["env", "specular"],
             "env-lut": ["env", "lut"]}
 
 
 def _cli_args(job, src: Path, out: Path) -> list[str]:
     """The command line that makes the same output as one batch job of samples/library.toml: the job's
-    parameters, each as the option of the same name (one declaration per parameter)."""
+    parameters, each as the option of the same name (one declaration per parameter); an input made by another
+    job is that job's file in ``out`` (the commands run in the plan's order)."""
     from bakery.bakes import get_bake
     from bakery.bakes.params import specs
 
     bake = get_bake(job.bake)
+
+    def where(role: str) -> str:
+        v = job.inputs[role]
+        return str((out if v.get("made_by") else src) / v["path"])
+
     args = list(COMMANDS[job.bake])
-    args += [str(src / job.inputs[r]["path"]) for r in bake.required_inputs]
-    args += [str(src / job.inputs[r]["path"]) for r in bake.optional_inputs if r in job.inputs]
+    args += [where(r) for r in bake.required_inputs]
+    args += [where(r) for r in bake.optional_inputs if r in job.inputs]
     args += ["-o", str(out / job.output)]
     for spec in specs(bake.params):
         v = job.params[spec.name]
@@ -67,16 +75,22 @@ def test_sample_library_batch_equals_the_cli(tmp_path):
     baked = tmp_path / "library-baked"
     got = outputs(baked)
     report = json.loads((baked / ".bakery" / "report.json").read_text())
-    # exactly the planned files: each job's output (or, for mip chains, its NAME.mipNN levels) and manifest
+    # exactly the planned files, known before anything ran: each job's output, manifest, mip levels, side files
     written = set()
     for job in report["jobs"]:
         written |= set(job["outputs"])
     assert written == set(got)
+    assert {f for job in plan.jobs for f in job.files} == set(got)
     for job in plan.jobs:
-        stem = job.output.rsplit(".", 1)[0]
-        assert job.output + ".bakery.json" in got
-        assert job.output in got or any(k.startswith(stem + ".mip") for k in got)
-    # byte-identical to the bakes run one by one from the command line
+        assert job.output + ".bakery.json" in job.files
+    chained = [j for j in plan.jobs if any(v.get("made_by") for v in j.inputs.values())]
+    assert {j.rule for j in chained} == {"normal-chains", "roughness-chains"} and len(chained) == 18
+    ktx = next(j for j in plan.jobs if j.output == "stone/cobble_normal.ktx2")
+    assert ktx.files == ["stone/cobble_normal.ktx2", "stone/cobble_normal.ktx2.bakery.json",
+                         "stone/cobble_normal.length.ktx2"]
+    aa = next(j for j in plan.jobs if j.output == "stone/cobble_roughness_aa.png")
+    assert len([f for f in aa.files if ".mip" in f]) == 6  # 64² -> 1²: levels 1-6 beside level 0
+    # byte-identical to the commands run by hand, in the plan's order (every job after those it needs)
     cli_out = tmp_path / "cli"
     runner = CliRunner()
     for job in plan.jobs:
@@ -91,8 +105,13 @@ def test_sample_library_batch_equals_the_cli(tmp_path):
     from bakery.io import read_image
 
     write_image(src, 1.0 - read_image(src).pixels, bits="16")
-    rep = run(recipe, jobs=1)
-    assert [j.output for j in rep.jobs if j.status == "ran"] == ["stone/cobble_normal.png"]
+    rep = run(recipe, jobs=2)
+    assert [j.output for j in rep.jobs if j.status == "ran"] == [
+        "stone/cobble_normal.png", "stone/cobble_normal.ktx2", "stone/cobble_roughness_aa.png"]
+    assert [j.reason for j in rep.jobs if j.status == "ran"][1:] == [
+        "normal input @normals/stone/cobble_normal.png changed upstream"] * 2
+    # the skipped jobs keep the findings of their last run: the report describes the whole library
+    assert sum(len(j.findings) for j in rep.jobs) == sum(len(j["findings"]) for j in report["jobs"])
     # change one rule parameter: only that rule's jobs
     recipe.write_text(recipe.read_text().replace("detail-strength = 0.5", "detail-strength = 0.75"))
     rep = run(recipe, jobs=1)

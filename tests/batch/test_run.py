@@ -148,11 +148,10 @@ def test_no_change_run_imports_nothing_heavy(library):
     code = (
         "import sys\n"
         "import tests.batch.bakes_for_tests\n"
-        "from bakery.cli import app\n"
-        f"try:\n    app(['batch', {str(library)!r}], standalone_mode=False)\n"
-        "except SystemExit:\n    pass\n"
-        "heavy = ['cv2', 'OpenEXR', 'scipy', 'skimage', 'tifffile', 'imageio', 'dask', 'distributed', 'numba',\n"
-        "         'rich']\n"
+        "from bakery.cli import run\n"
+        f"run(['batch', {str(library)!r}])\n"
+        "heavy = ['numpy', 'cv2', 'OpenEXR', 'scipy', 'skimage', 'tifffile', 'imageio', 'dask', 'distributed',\n"
+        "         'numba', 'rich', 'PIL']\n"
         "print('HEAVY', [m for m in heavy if m in sys.modules])\n"
     )
     env = {**os.environ, "PYTHONPATH": str(ROOT)}
