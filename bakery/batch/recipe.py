@@ -38,7 +38,7 @@ PATH_FIELDS = ("path", "dir", "name", "stem", "ext", "parent", "rule")
 
 _FIELD = re.compile(r"\{([A-Za-z_][A-Za-z0-9_]*)\}")
 _RULE_KEYS = {"name", "bake", "match", "exclude", "output", "inputs", "params", "unpaired"}
-_TOP_KEYS = {"source", "output", "defaults", "rule"}
+_TOP_KEYS = {"source", "output", "profile", "defaults", "rule"}
 
 
 @dataclass(frozen=True)
@@ -122,6 +122,7 @@ class Recipe:
     output: Path
     defaults: dict[str, dict[str, Any]]
     rules: tuple[Rule, ...]
+    profile: Any = None  # a bakery.profiles.Profile (the recipe's ``profile`` key), or None
 
 
 # ---------------------------------------------------------------------------------------------- parsing
@@ -240,8 +241,8 @@ def load_recipe(path: str | Path) -> Recipe:
     base = path.resolve().parent
     unknown = sorted(set(data) - _TOP_KEYS)
     if unknown:
-        raise BakeryError(f"{where}: unknown key {unknown[0]!r}; a recipe has: source, output, [defaults.<bake>] "
-                          "tables and [[rule]] entries")
+        raise BakeryError(f"{where}: unknown key {unknown[0]!r}; a recipe has: source, output, profile, "
+                          "[defaults.<bake>] tables and [[rule]] entries")
     source = _root(data, "source", base, where)
     output = _root(data, "output", base, where)
     if not source.is_dir():
@@ -251,6 +252,7 @@ def load_recipe(path: str | Path) -> Recipe:
     if output == source or _inside(output, source) or _inside(source, output):
         raise BakeryError(f"{where}: key 'output': the output root {output} and the source root {source} must "
                           "not contain each other (outputs would mix with sources)")
+    profile = _profile(data, base, where)
     defaults_raw = data.get("defaults", {})
     if not isinstance(defaults_raw, dict):
         raise BakeryError(f"{where}: key 'defaults': expected tables like [defaults.normal]")
@@ -268,7 +270,23 @@ def load_recipe(path: str | Path) -> Recipe:
             raise BakeryError(f"{rule.where}: another rule has the name {rule.name!r}; names must be unique")
         names.add(rule.name)
         rules.append(rule)
-    return Recipe(path.resolve(), source, output, defaults, tuple(rules))
+    return Recipe(path.resolve(), source, output, defaults, tuple(rules), profile)
+
+
+def _profile(data: dict, base: Path, where: str) -> Any:
+    """The recipe's target profile (key ``profile``: a .toml file relative to the recipe's folder), or None."""
+    value = data.get("profile")
+    if value is None:
+        return None
+    if not isinstance(value, str) or not value.strip():
+        raise BakeryError(f"{where}: key 'profile': expected the path of a profile .toml file (relative to the "
+                          "recipe's folder)")
+    from bakery.profiles import load_profile
+
+    try:
+        return load_profile(base / Path(value).expanduser())
+    except BakeryError as exc:
+        raise BakeryError(f"{where}: key 'profile': {exc}") from None
 
 
 def _root(data: dict, key: str, base: Path, where: str) -> Path:

@@ -230,7 +230,8 @@ def bake_command(app: typer.Typer, command_name: str, bake_name: str, doc: str, 
 
     body.__signature__ = inspect.Signature(parameters)
     body.__annotations__ = annotations
-    body.__doc__ = doc
+    body.__doc__ = doc if many or len(required) == 0 else (
+        doc.rstrip() + "\n\nTakes one file per input; a batch recipe pairs many files by name (docs/batch.md).")
     body.__name__ = command_name.replace("-", "_")
     app.command(command_name)(command(body))
 
@@ -281,8 +282,8 @@ def check_jobs(bake_name: str, jobs: list[FileJob]) -> None:
                                   "them into different folders")
             writers[key] = job
             if key in inputs:
-                raise BakeryError(f"would overwrite the input {inputs[key].source} (written by {job.source}); "
-                                  "choose another output folder", path)
+                raise BakeryError(f"the output of {job.source} would overwrite an input; choose another output "
+                                  "folder", path)
 
 
 def run_many(bake, jobs: list[FileJob], workers: int | None) -> int:
@@ -304,7 +305,8 @@ def run_many(bake, jobs: list[FileJob], workers: int | None) -> int:
             typer.echo(f"[{state['done']}/{total}] error: {shown}", err=True)
             return
         more = len(written) - 1
-        echo(f"[{state['done']}/{total}] wrote {job.output}" + (f" (+{more} more files)" if more > 0 else ""))
+        also = f" (+{more} more file{'s' if more > 1 else ''})" if more > 0 else ""
+        echo(f"[{state['done']}/{total}] wrote {job.output}{also}")
         quality_lines(written)
 
     if workers <= 1:
