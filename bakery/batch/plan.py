@@ -406,7 +406,8 @@ def _path_fields(rel: str, rule: Rule) -> dict[str, str]:
 
 def _resolve_values(rule: Rule, recipe: Recipe, settings: dict[str, FolderSettings],
                     rel: str | None) -> tuple[dict[str, Any], dict[str, str]]:
-    """Merge parameter values: recipe defaults < rule < folder files from the root down (bake, then rule)."""
+    """Merge parameter values: profile < recipe defaults < rule < folder files from the root down (bake, then
+    rule). The profile's values reach the bakes they apply to (:meth:`bakery.profiles.Profile.defaults_for`)."""
     merged: dict[str, Any] = {}
     origins: dict[str, str] = {}
 
@@ -416,6 +417,17 @@ def _resolve_values(rule: Rule, recipe: Recipe, settings: dict[str, FolderSettin
             merged[name] = v
             origins[name] = origin
 
+    profile = getattr(recipe, "profile", None)
+    if profile is not None:
+        output = None  # the job's output path decides whether a stated layout applies
+        try:
+            if rel is None:
+                output = rule.output.render({"rule": rule.name})
+            elif rule.match is not None and (fields := rule.match.match(rel)) is not None:
+                output = rule.output.render(_path_fields(rel, rule) | fields)
+        except (BakeryError, KeyError):
+            output = None
+        put(profile.defaults_for(rule.bake, output), f"profile {profile.path.name}")
     put(recipe.defaults.get(rule.bake, {}), f"recipe [defaults.{rule.bake}]")
     put(rule.params, f"rule {rule.name!r}")
     parts = Path(rel).parent.parts if rel is not None else None

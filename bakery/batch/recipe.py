@@ -45,7 +45,7 @@ PATH_FIELDS = ("path", "dir", "name", "stem", "ext", "parent", "rule")
 _FIELD = re.compile(r"\{([A-Za-z_][A-Za-z0-9_]*)\}")
 _RULE_KEYS = {"name", "bake", "match", "exclude", "output", "inputs", "params", "unpaired"}
 _NAME = re.compile(r"[A-Za-z0-9][A-Za-z0-9_.-]*")
-_TOP_KEYS = {"source", "output", "defaults", "rule"}
+_TOP_KEYS = {"source", "output", "profile", "defaults", "rule"}
 
 
 @dataclass(frozen=True)
@@ -142,6 +142,7 @@ class Recipe:
     output: Path
     defaults: dict[str, dict[str, Any]]
     rules: tuple[Rule, ...]
+    profile: Any = None  # a bakery.profiles.Profile (the recipe's ``profile`` key), or None
 
 
 # ---------------------------------------------------------------------------------------------- parsing
@@ -260,8 +261,8 @@ def load_recipe(path: str | Path) -> Recipe:
     base = path.resolve().parent
     unknown = sorted(set(data) - _TOP_KEYS)
     if unknown:
-        raise BakeryError(f"{where}: unknown key {unknown[0]!r}; a recipe has: source, output, [defaults.<bake>] "
-                          "tables and [[rule]] entries")
+        raise BakeryError(f"{where}: unknown key {unknown[0]!r}; a recipe has: source, output, profile, "
+                          "[defaults.<bake>] tables and [[rule]] entries")
     source = _root(data, "source", base, where)
     output = _root(data, "output", base, where)
     if not source.is_dir():
@@ -271,6 +272,7 @@ def load_recipe(path: str | Path) -> Recipe:
     if output == source or _inside(output, source) or _inside(source, output):
         raise BakeryError(f"{where}: key 'output': the output root {output} and the source root {source} must "
                           "not contain each other (outputs would mix with sources)")
+    profile = _profile(data, base, where)
     defaults_raw = data.get("defaults", {})
     if not isinstance(defaults_raw, dict):
         raise BakeryError(f"{where}: key 'defaults': expected tables like [defaults.normal]")
@@ -289,7 +291,23 @@ def load_recipe(path: str | Path) -> Recipe:
         names.add(rule.name)
         rules.append(rule)
     rules = _check_graph(rules)
-    return Recipe(path.resolve(), source, output, defaults, tuple(rules))
+    return Recipe(path.resolve(), source, output, defaults, tuple(rules), profile)
+
+
+def _profile(data: dict, base: Path, where: str) -> Any:
+    """The recipe's target profile (key ``profile``: a .toml file relative to the recipe's folder), or None."""
+    value = data.get("profile")
+    if value is None:
+        return None
+    if not isinstance(value, str) or not value.strip():
+        raise BakeryError(f"{where}: key 'profile': expected the path of a profile .toml file (relative to the "
+                          "recipe's folder)")
+    from bakery.profiles import load_profile
+
+    try:
+        return load_profile(base / Path(value).expanduser())
+    except BakeryError as exc:
+        raise BakeryError(f"{where}: key 'profile': {exc}") from None
 
 
 def _check_graph(rules: list[Rule]) -> list[Rule]:

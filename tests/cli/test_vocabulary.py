@@ -46,7 +46,7 @@ def test_every_bake_has_a_command_and_every_command_option_is_a_parameter():
             if p.param_type_name == "option" and not (p.name or "").startswith("in_"):  # in_*: input files
                 long = [o for o in p.opts if o.startswith("--")][0]
                 options[long] = p
-        command_only = {"--output", "--help"}
+        command_only = {"--output", "--help", "--profile", "--jobs"}
         declared = {f"--{s.option}" for s in specs(bake.params)}
         assert set(options) - command_only == declared, name
         for s in specs(bake.params):  # the same help text, from the one declaration
