@@ -270,6 +270,8 @@ def check_normal_map(pixels: np.ndarray, *, bits: str, facts: MapFacts | None = 
     """Unit length, negative Z, sRGB encoding and the green (and red) channel convention of a normal map."""
     facts = facts or MapFacts()
     out: list[Finding] = []
+    if pixels.shape[2] < 2:  # a one-channel map is no normal map; the channel check reports it
+        return out
     n = pixels[..., :3] * 2.0 - 1.0
     if pixels.shape[2] == 2:  # XY maps: readers rebuild z = sqrt(1 - x^2 - y^2)
         xy = pixels[..., :2] * 2.0 - 1.0

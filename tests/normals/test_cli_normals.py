@@ -67,6 +67,7 @@ def test_cli_matches_core_and_run_bake(tmp_path, height_png):
     assert (tmp_path / "a.png").read_bytes() == (tmp_path / "b.png").read_bytes()
     ma, mb = (json.loads((tmp_path / f"{k}.png.bakery.json").read_text()) for k in "ab")
     assert ma.pop("outputs") == ["a.png"] and mb.pop("outputs") == ["b.png"]
+    assert list(ma.pop("output_digests").values()) == list(mb.pop("output_digests").values())
     assert ma == mb
     # and the file holds the core's normals, Y-down applied before quantisation
     h = read_image(height_png).pixels[:, :, 0]
