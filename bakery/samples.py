@@ -364,6 +364,10 @@ output = "library-baked"
 strength = 6.0
 kernel = "scharr"
 
+# The occlusion sees the relief the normal maps show.
+[defaults.occlusion]
+strength = 6.0
+
 # Legacy materials: height maps -> tangent-space normal maps (16-bit, like their heights).
 [[rule]]
 name = "normals"
@@ -396,6 +400,23 @@ bake = "antialias"
 match = "@normals/**/{material}_normal.png"
 inputs.roughness = "@roughness/{dir}/{material}_roughness.png"
 output = "{dir}/{material}_roughness_aa.png"
+
+# Legacy materials: ambient occlusion from the same heights (the normal bake's strength, from the defaults below).
+[[rule]]
+name = "occlusion"
+bake = "occlusion"
+match = "**/{material}_height.png"
+output = "{dir}/{material}_occlusion.png"
+
+# Legacy materials: occlusion (R), the anti-aliased roughness chain (G) and no metal (B) in one texture with mips;
+# each level's G is the chain's own level, R is averaged.
+[[rule]]
+name = "orm"
+bake = "pack"
+match = "@occlusion/**/{material}_occlusion.png"
+inputs.g = "@roughness-chains/{dir}/{material}_roughness_aa.png"
+output = "{dir}/{material}_orm.png"
+params = { g-role = "roughness", b-constant = 0.0, b-role = "metalness", mips = true }
 
 # Authored materials: the crackle detail layered over each normal map (one fixed partner for all).
 [[rule]]

@@ -25,7 +25,7 @@ ROOT = Path(__file__).resolve().parents[2]
 COMMANDS = {"normal": ["normal"], "normal-mips": ["normal-mips"],
             "roughness": ["roughness"], "blend": ["blend"], "antialias": ["antialias"],
             "env-convert": ["env", "convert"], "env-diffuse": ["env", "diffuse"], "env-specular": ["env", "specular"],
-            "env-lut": ["env", "lut"]}
+            "env-lut": ["env", "lut"], "occlusion": ["occlusion"], "pack": ["pack"]}
 
 
 def _cli_args(job, src: Path, out: Path) -> list[str]:
@@ -43,7 +43,10 @@ def _cli_args(job, src: Path, out: Path) -> list[str]:
 
     args = list(COMMANDS[job.bake])
     args += [where(r) for r in bake.required_inputs]
-    args += [where(r) for r in bake.optional_inputs if r in job.inputs]
+    if bake.required_inputs:
+        args += [where(r) for r in bake.optional_inputs if r in job.inputs]
+    else:  # a bake with only optional inputs takes each as the option of its role (bakery pack --r FILE)
+        args += [a for r in bake.optional_inputs if r in job.inputs for a in (f"--{r}", where(r))]
     args += ["-o", str(out / job.output)]
     for spec in specs(bake.params):
         v = job.params[spec.name]
@@ -84,7 +87,7 @@ def test_sample_library_batch_equals_the_cli(tmp_path):
     for job in plan.jobs:
         assert job.output + ".bakery.json" in job.files
     chained = [j for j in plan.jobs if any(v.get("made_by") for v in j.inputs.values())]
-    assert {j.rule for j in chained} == {"normal-chains", "roughness-chains"} and len(chained) == 18
+    assert {j.rule for j in chained} == {"normal-chains", "roughness-chains", "orm"} and len(chained) == 27
     ktx = next(j for j in plan.jobs if j.output == "stone/cobble_normal.ktx2")
     assert ktx.files == ["stone/cobble_normal.ktx2", "stone/cobble_normal.ktx2.bakery.json",
                          "stone/cobble_normal.length.ktx2"]
@@ -106,10 +109,14 @@ def test_sample_library_batch_equals_the_cli(tmp_path):
 
     write_image(src, 1.0 - read_image(src).pixels, bits="16")
     rep = run(recipe, jobs=2)
-    assert [j.output for j in rep.jobs if j.status == "ran"] == [
-        "stone/cobble_normal.png", "stone/cobble_normal.ktx2", "stone/cobble_roughness_aa.png"]
-    assert [j.reason for j in rep.jobs if j.status == "ran"][1:] == [
-        "normal input @normals/stone/cobble_normal.png changed upstream"] * 2
+    assert sorted(j.output for j in rep.jobs if j.status == "ran") == sorted([
+        "stone/cobble_normal.png", "stone/cobble_normal.ktx2", "stone/cobble_roughness_aa.png",
+        "stone/cobble_occlusion.png", "stone/cobble_orm.png"])
+    reasons = {j.output: j.reason for j in rep.jobs if j.status == "ran"}
+    for out in ("stone/cobble_normal.ktx2", "stone/cobble_roughness_aa.png"):
+        assert reasons[out] == "normal input @normals/stone/cobble_normal.png changed upstream"
+    assert reasons["stone/cobble_occlusion.png"] == "height input stone/cobble_height.png changed"
+    assert "changed upstream" in reasons["stone/cobble_orm.png"]
     # the skipped jobs keep the findings of their last run: the report describes the whole library
     assert sum(len(j.findings) for j in rep.jobs) == sum(len(j["findings"]) for j in report["jobs"])
     # change one rule parameter: only that rule's jobs
