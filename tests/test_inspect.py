@@ -4,14 +4,17 @@ Normal maps for these checks are made independently of bakery's normal baker: sl
 (central differences) and n = normalize(-dh/dx, -dh/dy, 1) (Blinn 1978, "Simulation of Wrinkled Surfaces").
 """
 
+import contextlib
+import io
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
 from typer.testing import CliRunner
 
 from bakery import samples
-from bakery.cli import app
+from bakery.cli import app, run
 from bakery.inspect import green_convention, inspect_pixels, seam_score
 from bakery.io import write_image
 
@@ -192,3 +195,23 @@ def test_large_maps_are_judged_on_a_stride_with_the_same_answers(y_down):
     assert "not-tiling" not in codes
     crop = px[37:37 + 1024 - 100, 91:91 + 1024 - 60]
     assert "not-tiling" in _codes(inspect_pixels(crop, bits="16", kind="normal")[1])
+
+
+@pytest.mark.parametrize("profile, flagged", [("y-up-16bit-uncompressed", "down.png"),
+                                              ("y-down-8bit-block-compressed", "up.png")])
+def test_a_profile_sets_the_expected_green_convention(tmp_path, profile, flagged):
+    """Normals from numpy gradients of a height field (Blinn 1978, the perturbed normal), written in both
+    conventions: with a target profile only the map in the other convention is the finding."""
+    root = Path(__file__).resolve().parents[1]
+    h = samples.paving_height(256) * 40
+    write_image(tmp_path / "up.png", _normals(h), bits="16")
+    write_image(tmp_path / "down.png", _normals(h, y_down=True), bits="16")
+    prof = root / "samples" / "profiles" / f"{profile}.toml"
+    buf = io.StringIO()
+    with contextlib.redirect_stdout(buf):
+        code = run(["inspect", "--json", "--profile", str(prof), str(tmp_path / "up.png"),
+                    str(tmp_path / "down.png")])
+    assert code == 0
+    reports = {Path(r["file"]).name: {f["code"] for f in r["findings"]} for r in json.loads(buf.getvalue())}
+    green = {name for name, codes in reports.items() if codes & {"green-y-up", "green-y-down"}}
+    assert green == {flagged}

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 from enum import StrEnum
+from pathlib import Path
 from typing import Annotated
 
 import typer
@@ -41,6 +42,9 @@ def inspect(
     expect_y: Annotated[Y | None, typer.Option("--expect-y", help="The green-channel convention the target "
                                                "expects: normal maps in the other one are the finding "
                                                "(default: what each manifest records, else up).")] = None,
+    profile: Annotated[Path | None, typer.Option("--profile", help="A target profile (docs/profiles.md): its "
+                                                 "green-channel convention is the one expected (--expect-y "
+                                                 "wins).", metavar="FILE", show_default=False)] = None,
     manifests: Annotated[bool, typer.Option(help="Take kinds and conventions from the manifests bakery wrote "
                                             "beside its outputs.")] = True,
     strict: Annotated[bool, typer.Option(help="Exit with code 1 when any finding is a warning or error.")]
@@ -53,6 +57,10 @@ def inspect(
     from bakery.errors import BakeryError
     from bakery.inspect_files import collect, inspect_paths
 
+    if expect_y is None and profile is not None:
+        from bakery.profiles import load_profile
+
+        expect_y = Y(load_profile(profile).y)
     maps, skipped = collect(paths, recursive=recursive)
     if not maps:
         raise BakeryError(f"no maps to inspect ({len(skipped)} file(s) that are not images skipped)",
