@@ -17,25 +17,11 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parents[1]))
 
+from make_derived_images import label  # noqa: E402  (the same panel labels as the derived-map pictures)
+
 from bakery.bakes import get_bake, params_from_mapping, run_bake  # noqa: E402
 from bakery.io import read_image, write_image  # noqa: E402
 from bakery.samples import paving_exponent, paving_height  # noqa: E402
-
-PANEL = 160
-
-
-def label(img: np.ndarray, text: str, size: int = PANEL) -> np.ndarray:
-    import cv2
-
-    out = np.ascontiguousarray(np.clip(img, 0, 1), dtype=np.float32)
-    if out.ndim == 2:
-        out = np.repeat(out[:, :, None], 3, axis=2)
-    interp = cv2.INTER_AREA if out.shape[0] > size else cv2.INTER_NEAREST
-    out = cv2.resize(out, (size, size), interpolation=interp)
-    out = np.ascontiguousarray((out * 255 + 0.5).astype(np.uint8))
-    cv2.rectangle(out, (0, 0), (out.shape[1], 18), (0, 0, 0), -1)
-    cv2.putText(out, text, (4, 13), cv2.FONT_HERSHEY_SIMPLEX, 0.42, (255, 255, 255), 1, cv2.LINE_AA)
-    return out
 
 
 def write(name: str, rows: list[list[np.ndarray]]) -> None:
