@@ -276,3 +276,19 @@ def test_recipe_values_match_the_command_line(tmp_path, height_png):
     assert (tmp_path / "r.png").read_bytes() == (tmp_path / "c.png").read_bytes()
     mr, mc = (json.loads((tmp_path / f"{k}.png.bakery.json").read_text()) for k in "rc")
     assert mr["params"] == mc["params"]
+
+
+def test_blur_limit_follows_the_map_size(tmp_path, capsys):
+    """A Gaussian truncated at 4 standard deviations (scipy.ndimage.gaussian_filter's default) spans the whole
+    map beyond a quarter of its shorter side: refused there with the size named, accepted below it."""
+    import numpy as np
+
+    from bakery.cli import run
+    from bakery.io import write_image
+
+    write_image(tmp_path / "h.png", np.linspace(0, 1, 64 * 96, dtype=np.float32).reshape(64, 96), bits="16")
+    assert run(["normal", str(tmp_path / "h.png"), "-o", str(tmp_path / "ok.png"), "--blur", "16"]) == 0
+    assert run(["normal", str(tmp_path / "h.png"), "-o", str(tmp_path / "no.png"), "--blur", "16.5"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and err[0].startswith("error:") and "--blur" in err[0] and "96x64" in err[0]
+    assert not (tmp_path / "no.png").exists()
