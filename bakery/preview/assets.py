@@ -29,6 +29,8 @@ from bakery.errors import BakeryError
 #: Cube face tokens in face order +X, -X, +Y, -Y, +Z, -Z.
 FACE_TOKENS = ("x+", "x-", "y+", "y-", "z+", "z-")
 _MIP = re.compile(r"mip(\d\d)")
+#: Side data written beside a map without a level number (``NAME.length.ktx2``: the normal lengths' chain).
+SIDE_TAGS = ("length",)
 _FACE_SUFFIX = re.compile(r"(.*)[_-](x\+|x-|y\+|y-|z\+|z-)", re.IGNORECASE)
 
 #: Bakes whose outputs are tangent-space normal maps.
@@ -64,6 +66,8 @@ def parse_name(name: str) -> NameParts:
     NameParts(base='rock_normal', level=3, face=None, tag='length', ext='.png')
     >>> parse_name("sky_specular.mip02.z-.exr")
     NameParts(base='sky_specular', level=2, face='z-', tag=None, ext='.exr')
+    >>> parse_name("rock_normal.length.ktx2").tag
+    'length'
     >>> parse_name("sky_x+.exr").base
     'sky_cube'
     """
@@ -81,6 +85,8 @@ def parse_name(name: str) -> NameParts:
         parts.pop()
         if len(parts) > 1 and face is None:
             tag = parts.pop()
+    elif len(parts) > 1 and face is None and parts[-1] in SIDE_TAGS:
+        tag = parts.pop()
     return NameParts(".".join(parts), level, face, tag, ext.lower())
 
 
@@ -286,7 +292,9 @@ def read_forms(asset: Asset, *, max_pixels: int | None = None) -> list[Form]:
     forms = []
     for key, members in groups.items():
         if key[0] == "ktx2":
-            forms.append(_ktx2_form(members[0].path, max_pixels))
+            form = _ktx2_form(members[0].path, max_pixels)
+            form.tag = members[0].parts.tag
+            forms.append(form)
         elif key[0] == "faces":
             forms.append(_faces_form(members, max_pixels))
         else:

@@ -484,7 +484,13 @@ def make_asset_entry(asset, *, thumb: int = 160, preview: PreviewFn | None = Non
             guessed, found = inspect_pixels(px, bits=bits, kind=INSPECT_KINDS.get(know.kind or "",
                                                                                    "data" if know.kind else None))
             kind = know.kind or guessed
-            if know.y == "down":  # baked Y-down on purpose, as its manifest records
+            # the findings of `bakery inspect`: judged with the map's manifest when one still matches it
+            from bakery.inspect_files import inspect_paths
+
+            report = inspect_paths([main], max_pixels=max_pixels)[0]
+            if report.kind != "unreadable":
+                found = report.findings
+            elif know.y == "down":  # baked Y-down on purpose, as its manifest records
                 found = [f for f in found if f.code != "green-y-down"]
             entry.findings += found
     entry.kind, entry.bits = kind, bits

@@ -82,8 +82,8 @@ def sheet(library, lighting, tmp_path_factory) -> Path:
 
 def _expected_assets(root: Path) -> Counter:
     """Asset keys by the naming rules, written out here: NAME.mipKK.ext and NAME.TAG.mipKK.ext are levels of
-    NAME, NAME.FACE.ext and NAME.mipKK.FACE.ext faces of NAME, NAME_FACE.ext faces of NAME_cube; the extension
-    (image or .ktx2) does not make another asset."""
+    NAME, NAME.FACE.ext and NAME.mipKK.FACE.ext faces of NAME, NAME_FACE.ext faces of NAME_cube, NAME.length.ext
+    the normal lengths of NAME; the extension (image or .ktx2) does not make another asset."""
     keys: Counter = Counter()
     for p in root.rglob("*"):
         if not p.is_file() or p.suffix.lower() not in MAP_ENDINGS or p.name.startswith("."):
@@ -94,6 +94,7 @@ def _expected_assets(root: Path) -> Counter:
         m = re.fullmatch(r"(.+?)(\.[^.]+)?\.mip\d\d", stem)
         if m:
             stem = m.group(1)
+        stem = re.sub(r"\.length$", "", stem)
         keys[(p.parent.relative_to(root).as_posix(), stem)] += 1
     return keys
 
@@ -141,7 +142,8 @@ def test_ktx2_levels_and_cube_crosses_are_shown(library, sheet):
     assert len(ktx2) > 3  # and the compressed normal-map chains
     for path in ktx2:
         levels, faces = _ktx2_levels(path)
-        body = next(b for n, b in cards.items() if n.startswith(path.relative_to(library).as_posix()[:-5]))
+        stem = path.relative_to(library).as_posix()[:-5].removesuffix(".length")
+        body = next(b for n, b in cards.items() if n.startswith(stem))
         m = re.search(r'data-form="ktx2" data-levels="(\d+)"', body)
         assert m and int(m.group(1)) == levels, path.name
         if path in skies:
