@@ -160,9 +160,9 @@ class Profile:
         (``ktx2-format``), as :func:`bakery.bakes.params_from_mapping` accepts them.
 
         Only parameters the bake has are returned. ``levels = "full"`` becomes each bake's own way to say
-        "down to 1x1"; a bake with a ``mips`` switch (env convert) takes ``levels`` as on (more than one level)
-        or off. With ``output`` given, ``output-layout`` is left out when the path decides the layout (``.ktx2``,
-        a ``{face}`` pattern).
+        "down to 1x1"; a bake with a ``mips`` switch (env convert, pack) takes ``levels`` as on (more than one
+        level) or off, and pack its count with it. With ``output`` given, ``output-layout`` is left out when the
+        path decides the layout (``.ktx2``, a ``{face}`` pattern).
         """
         from bakery.bakes import get_bake
         from bakery.bakes.params import specs
@@ -175,11 +175,16 @@ class Profile:
         out: dict[str, Any] = {}
         for word, value in self.statements(BAKE_KINDS.get(bake_name)).items():
             if word == "levels":
-                if "levels" in by_name:
+                switch = "mips" in by_name and by_name["mips"].base is bool
+                if switch and "levels" in by_name:  # pack: a mips switch and a count that goes with it
+                    out["mips"] = value == "full" or value > 1
+                    if out["mips"] and value != "full":
+                        out["levels"] = value
+                elif "levels" in by_name:
                     spec = by_name["levels"]
                     full = 0 if spec.default == 0 else None  # env specular: 0 = down to 1x1
                     out["levels"] = full if value == "full" else value
-                elif "mips" in by_name and by_name["mips"].base is bool:
+                elif switch:
                     out["mips"] = value == "full" or value > 1
                 continue
             if word == "output-layout" and output is not None and _path_decides_layout(Path(output)):
@@ -266,13 +271,22 @@ def _check_against_bakes(profile: Profile, where: str) -> None:
     from bakery.bakes import all_bakes
 
     for name, bake in all_bakes().items():
-        values = profile.defaults_for(name)
+        values = {w.replace("-", "_"): v for w, v in profile.defaults_for(name).items()}
+        try:
+            bake.params(**values)  # together: some values go with others (pack's levels with its mips)
+            continue
+        except BakeryError as exc:
+            problem = exc
+        culprit = next(iter(values))
         for word, value in values.items():
+            alone = {word: value, **({"mips": values["mips"]} if "mips" in values and word != "mips" else {})}
             try:
-                bake.params(**{word.replace("-", "_"): value})
+                bake.params(**alone)
             except BakeryError as exc:
-                key = profile.where(word, name).split(", key ", 1)[1]
-                raise BakeryError(f"{where}: key {key!r}: bake {name!r} refuses it: {exc}") from None
+                culprit, problem = word, exc
+                break
+        key = profile.where(culprit.replace("_", "-"), name).split(", key ", 1)[1]
+        raise BakeryError(f"{where}: key {key!r}: bake {name!r} refuses it: {problem}") from None
         try:
             bake.params(**{w.replace("-", "_"): v for w, v in values.items()})
         except BakeryError as exc:
