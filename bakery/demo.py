@@ -6,6 +6,7 @@ and returns a list of ``(description, path)`` pairs for the summary.
 
 from __future__ import annotations
 
+import json
 import os
 from collections.abc import Callable
 from pathlib import Path
@@ -159,10 +160,12 @@ def _step_envmaps(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
     return made
 
 
-def specular_levels_sheet(levels: list, *, exposure: float = 1.0):
+def specular_levels_sheet(levels: list, *, roughness: list | None = None, exposure: float = 1.0):
     """A contact sheet of a prefiltered chain for viewing: each level as a horizontal cross, enlarged to the
-    size of level 0 (nearest texel), side by side in two rows; tone-mapped x/(1 + x) after ``exposure`` and
-    sRGB-encoded by the writer. Returns float32 (H, W, 3) in [0, 1]."""
+    size of level 0 (nearest texel), side by side in two rows, each captioned with its level and (when
+    ``roughness`` gives one per level) its roughness; tone-mapped x/(1 + x) after ``exposure`` and sRGB-encoded
+    by the writer. Returns float32 (H, W, 3) in [0, 1]."""
+    import cv2
     import numpy as np
 
     from bakery.io.layouts import assemble
@@ -174,7 +177,13 @@ def specular_levels_sheet(levels: list, *, exposure: float = 1.0):
         rep = n0 // f.shape[1]
         f = np.repeat(np.repeat(f, rep, axis=1), rep, axis=2)
         cross = assemble(f, "cross-wide")
-        tiles.append(cross / (1 + cross))
+        cross = np.ascontiguousarray(cross / (1 + cross))
+        k = len(tiles)
+        text = f"level {k}" + (f"  r = {roughness[k]:.2f}" if roughness is not None else "")
+        band = np.zeros((20, cross.shape[1]), np.uint8)  # OpenCV draws text into 8-bit images only
+        cv2.putText(band, text, (4, 14), cv2.FONT_HERSHEY_SIMPLEX, 0.42, 255, 1, cv2.LINE_AA)
+        band = np.repeat(band[..., None] / np.float32(255), 3, axis=2)
+        tiles.append(np.concatenate([band, cross], axis=0))
     h, w, _ = tiles[0].shape
     pad = max(2, n0 // 16)
     cols = (len(tiles) + 1) // 2
@@ -193,6 +202,7 @@ def _step_specular(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]
     from bakery.bakes.glossy import LutParams, SpecularParams
     from bakery.io.images import write_image
     from bakery.io.ktx2 import read_ktx2
+    from bakery.io.manifest import manifest_path
 
     folder = out / "envlight"
     folder.mkdir(parents=True, exist_ok=True)
@@ -200,7 +210,8 @@ def _step_specular(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]
     spec = folder / "sky_specular.ktx2"
     run_bake("env-specular", {"environment": inputs["sky"]}, spec, SpecularParams(face_size=size))
     sheet = folder / "sky_specular_levels.png"
-    write_image(sheet, specular_levels_sheet(read_ktx2(spec).levels), color="srgb")
+    rough = json.loads(manifest_path(spec).read_text())["roughness_per_level"]["roughness"]
+    write_image(sheet, specular_levels_sheet(read_ktx2(spec).levels, roughness=rough), color="srgb")
     lut = folder / "brdf_lut.png"
     run_bake("env-lut", {}, lut, LutParams(size=128))
     return [("specular prefiltered chain, GGX, roughness linear in mip (bakery env specular)", spec),
