@@ -7,7 +7,9 @@ the options that belong to the command alone (:data:`COMMAND_OPTIONS`): the inpu
 
 The ``-o`` rule, the same for every command: an ``-o`` that ends in ``/`` or names an existing folder is an
 output folder, and each output takes its input's file name (with the bake's own extension where the input's
-cannot be written); otherwise ``-o`` is the output file. Several inputs need an output folder.
+cannot be written); an ``-o`` holding ``{stem}``, ``{name}`` or ``{ext}`` is a name template filled in from
+each input (``-o "normals/{stem}_normal.ktx2"``: the folder must exist, the extension picks the format);
+otherwise ``-o`` is the output file. Several inputs need an output folder or a name template.
 
 Several inputs: a command whose bake has one required input takes several files and folders (a folder stands
 for the image files directly inside it, not those in its subfolders) and bakes them in parallel worker processes
@@ -118,10 +120,13 @@ def resolve_params(bake, explicit: dict[str, Any], profile, output: Path | None)
 def output_for(bake, source: Path | None, out_text: str, many: bool) -> Path:
     """The -o rule (see the module notes): the output file for one input."""
     out = Path(out_text)
+    if _template_fields(out_text) - {"face", "index"}:
+        return _from_template(source, out_text)
     is_folder = out_text.endswith(("/", "\\")) or out.is_dir()
     if not is_folder:
         if many:
-            raise BakeryError("several inputs need an output folder: end -o with / (the folder must exist)", out)
+            raise BakeryError("several inputs need an output folder (end -o with /; the folder must exist) or a "
+                              "name template such as out/{stem}_normal.png", out)
         return out
     if not out.is_dir():
         raise BakeryError("output folder does not exist", out)
@@ -133,6 +138,45 @@ def output_for(bake, source: Path | None, out_text: str, many: bool) -> Path:
     if suffix == ".png" and Path(name).suffix.lower() in IMAGE_SUFFIXES:
         suffix = Path(name).suffix
     return out / f"{stem}{suffix}"
+
+
+#: Fields of an -o name template, for an input ``stone/granite_height.png``. (``{face}`` and ``{index}`` are
+#: not template fields: they name the six faces of a cube output, see :mod:`bakery.io.envfiles`.)
+TEMPLATE_FIELDS = {"stem": "granite_height", "name": "granite_height.png", "ext": "png"}
+
+
+def _template_fields(out_text: str) -> set[str]:
+    """The ``{field}`` names in an -o value (empty for a plain path)."""
+    import string
+
+    if "{" not in out_text and "}" not in out_text:
+        return set()
+    try:
+        return {f for _, f, _, _ in string.Formatter().parse(out_text) if f is not None}
+    except ValueError:
+        raise BakeryError("-o template has a stray brace; fields look like {stem}", Path(out_text)) from None
+
+
+def _from_template(source: Path | None, out_text: str) -> Path:
+    """The output an -o name template gives for one input (see the module notes)."""
+    if source is None:
+        raise BakeryError("this command makes one file from no input: give -o a file name, not a template",
+                          Path(out_text))
+    bad = sorted(_template_fields(out_text) - set(TEMPLATE_FIELDS) - {"face", "index"})
+    if bad:
+        raise BakeryError(f"-o template field {{{bad[0]}}} is unknown; fields are "
+                          + ", ".join(f"{{{f}}}" for f in TEMPLATE_FIELDS), Path(out_text))
+    name = source.name.replace("{face}", "cube").replace("{index}", "cube")
+    values = {"stem": Path(name).stem, "name": name, "ext": Path(name).suffix.lstrip(".")}
+    text = out_text
+    for field, value in values.items():
+        text = text.replace(f"{{{field}}}", value)
+    out = Path(text)
+    if text.endswith(("/", "\\")) or out.name in ("", ".", ".."):
+        raise BakeryError("-o template must end in a file name such as {stem}_normal.png", Path(out_text))
+    if not out.parent.is_dir():
+        raise BakeryError("output folder does not exist", out.parent)
+    return out
 
 
 def bake_command(app: typer.Typer, command_name: str, bake_name: str, doc: str, *, inputs_help: dict[str, str],

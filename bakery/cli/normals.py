@@ -10,7 +10,8 @@ from bakery.cli._build import bake_command
 
 HEIGHT = "Height map (.png, .tif, .exr; 8/16-bit or float; gray, or pick a channel)."
 NORMAL = "Normal map (.png, .tif, .exr; RGB, RGBA or two-channel XY)."
-IMAGE_OUT = "Output file (.png, .tif, .exr), or a folder ending in / (names from the inputs)."
+IMAGE_OUT = ("Output file (.png, .tif, .exr), a folder ending in / (names from the inputs), or a name template "
+             "such as out/{stem}_normal.png.")
 
 bake_command(app, "normal", "normal", "Make a tangent-space normal map from a height map (Blinn 1978).",
              inputs_help={"height": HEIGHT}, output_help=IMAGE_OUT)
