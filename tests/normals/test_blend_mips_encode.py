@@ -21,7 +21,7 @@ def flat(shape):
 
 
 def test_reoriented_flat_inputs_return_the_other():
-    # Issue check / Barre-Brisebois & Hill 2012: RNM of a detail over a flat base returns the detail, and a
+    # Barre-Brisebois & Hill 2012: RNM of a detail over a flat base returns the detail, and a
     # flat detail returns the base.
     d = random_normals((16, 12), 1)
     assert np.abs(blend_normals(flat((16, 12)), d) - d).max() < 1e-6

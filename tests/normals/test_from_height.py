@@ -82,7 +82,7 @@ def test_isotropy_at_period_8(kernel, ratio):
 def test_sinusoid_angular_error(kernel):
     # h = A sin(wx) cos(wy), period 64, exact normal from Blinn 1978: normalize(-s dh/dx, -s dh/dy, 1).
     # Kernel slope error <= 1 - sin(w)/w * (b + 2a cos w) ~ w^2/6 + w^2/4 = 4e-3 (w = 2 pi / 64) of a slope of
-    # at most s A w = 0.39, i.e. <= 0.09 degrees; float32 adds < 0.01. Issue target: mean well under 0.5.
+    # at most s A w = 0.39, i.e. <= 0.09 degrees; float32 adds < 0.01. Bound: mean well under 0.5.
     x, y = grid(128)
     w, a, s = 2 * math.pi / 64, 0.5, 8.0
     h = a * np.sin(w * x) * np.cos(w * y)
@@ -139,7 +139,7 @@ def test_physical_strength():
 @pytest.mark.parametrize("kernel", KERNEL_NAMES)
 @pytest.mark.parametrize("blur", [0.0, 1.3])
 def test_tiling_is_bit_exact(kernel, blur):
-    # Tiling (wrap) check of the issue: normal map of a 2x2 tiled height == 2x2 tile of its normal map, bit for
+    # Tiling (wrap) check: normal map of a 2x2 tiled height == 2x2 tile of its normal map, bit for
     # bit (common practice for tileable textures). Non-square, with strips and threads.
     rng = np.random.default_rng(3)
     h = rng.random((40, 56), dtype=np.float32)
@@ -172,7 +172,7 @@ def test_edge_modes(edges):
 
 
 def test_y_down_equals_negated_y_before_encoding():
-    # Issue check: Y-down output equals the Y-up output with the normal's y negated before encoding, exactly.
+    # Y-down output equals the Y-up output with the normal's y negated before encoding, exactly.
     from bakery.io.images import quantize
 
     rng = np.random.default_rng(5)

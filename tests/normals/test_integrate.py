@@ -27,7 +27,7 @@ def corr(a, b):
 
 @pytest.mark.parametrize("kernel", ["central", "sobel", "scharr", "prewitt"])
 def test_round_trip_tiling(kernel):
-    # Issue check: height -> normal -> height recovers a smooth tiling height field with correlation >= 0.999
+    # Round trip: height -> normal -> height recovers a smooth tiling height field with correlation >= 0.999
     # (Frankot & Chellappa 1988, eq. 21, with the kernel's own frequency response in place of j w; with the
     # matching operator the sheet computed recovery to ~1e-15 in float64, section 2; float32 here).
     h = smooth_periodic(64, 96, seed=1)

@@ -1,4 +1,4 @@
-"""Benchmarks for height -> normal conversion (issue: normal maps). Not collected by pytest.
+"""Benchmarks for height -> normal conversion. Not collected by pytest.
 
     python tests/perf/bench_normals.py            # 4096^2 core and end to end, 8192^2 peak memory
     python tests/perf/bench_normals.py --huge     # also 16384^2 (several minutes)
