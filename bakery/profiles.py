@@ -12,7 +12,7 @@ A statement reaches a bake when the bake has that parameter and writes that kind
 Precedence of parameter values, highest first: command option > folder file > rule parameters > recipe
 defaults > profile > the bake's own default.
 
-This module imports neither numpy nor OpenCV, except to check a KTX2 format name a profile states.
+This module imports neither numpy nor OpenCV.
 """
 
 from __future__ import annotations
@@ -78,7 +78,7 @@ def _ktx2_format(v: Any) -> Any:
         raise ValueError(f"must be a KTX2 format name or compressed; got {v!r}")
     if v.lower() == "compressed":
         return "compressed"
-    from bakery.io.ktx2 import get_format
+    from bakery.io.ktx2_formats import get_format
 
     try:
         get_format(v)

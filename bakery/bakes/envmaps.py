@@ -72,7 +72,7 @@ class ConvertParams(Params):
         if self.width is not None and self.width % 2:
             raise BakeryError(f"width must be even; got {self.width}")
         if self.ktx2_format is not None:
-            from bakery.io.ktx2 import get_format
+            from bakery.io.ktx2_formats import get_format
 
             get_format(self.ktx2_format) if self.ktx2_format.lower() != "compressed" else None
 
@@ -233,7 +233,7 @@ class DiffuseParams(Params):
     repair: bool = REPAIR
 
     def check(self) -> None:
-        from bakery.io.ktx2 import get_format
+        from bakery.io.ktx2_formats import get_format
 
         if self.ktx2_format.lower() != "compressed":
             get_format(self.ktx2_format)

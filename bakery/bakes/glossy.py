@@ -68,7 +68,7 @@ class LutParams(Params):
 
 def check_specular_params(p: SpecularParams) -> None:
     """Refuse bad parameters before any work, with one-line messages."""
-    from bakery.envmap.specular import MAPPINGS, level_roughness
+    from bakery.envmap.levels import MAPPING_NAMES, roughness_values
 
     if p.face_size & (p.face_size - 1):
         raise BakeryError(f"face-size must be a power of two (cube faces halve at every level); got {p.face_size}")
@@ -78,11 +78,11 @@ def check_specular_params(p: SpecularParams) -> None:
     if p.ktx2_format not in SPECULAR_FORMATS:
         raise BakeryError(f"ktx2-format must be one of {', '.join(SPECULAR_FORMATS)}; got {p.ktx2_format!r}")
     rough = p.level_roughness
-    if isinstance(rough, str) and rough not in MAPPINGS:
-        raise BakeryError(f"level-roughness must be one of {', '.join(MAPPINGS)} or a list of numbers; "
+    if isinstance(rough, str) and rough not in MAPPING_NAMES:
+        raise BakeryError(f"level-roughness must be one of {', '.join(MAPPING_NAMES)} or a list of numbers; "
                           f"got {rough!r}")
     try:
-        level_roughness(p.levels or full, rough if isinstance(rough, str) else list(rough))
+        roughness_values(p.levels or full, rough if isinstance(rough, str) else list(rough))
     except (ValueError, BakeryError) as exc:
         raise BakeryError(f"level-roughness: {exc}") from None
 

@@ -109,7 +109,7 @@ class PackParams(Params):
                     raise BakeryError(f"{x}-invert applies to a map; write the inverted constant with "
                                       f"{x}-constant")
         if self.ktx2_format is not None and self.ktx2_format.lower() != "compressed":
-            from bakery.io.ktx2 import get_format
+            from bakery.io.ktx2_formats import get_format
 
             get_format(self.ktx2_format)
 

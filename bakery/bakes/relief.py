@@ -244,7 +244,7 @@ class ColorMipsParams(Params):
         if self.alpha_cutoff >= 1.0:
             raise BakeryError(f"alpha-cutoff must be below 1; got {self.alpha_cutoff:g}")
         if self.ktx2_format is not None:
-            from bakery.io.ktx2 import get_format
+            from bakery.io.ktx2_formats import get_format
 
             get_format(self.ktx2_format)
 
@@ -281,7 +281,7 @@ def _refuse_normal_map(pixels, is_float: bool, path: Path) -> None:
 
 
 def _ktx2_format(p: ColorMipsParams, transfer: str, in_bits: str, output: Path):
-    from bakery.io.ktx2 import get_format
+    from bakery.io.ktx2_formats import get_format
 
     name = p.ktx2_format
     if name is None:

@@ -65,6 +65,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from bakery import sphere
+from bakery.envmap.levels import roughness_values
 from bakery.envmap.reduce import reduce_equirect
 from bakery.envmap.resample import reduction_factor, resample
 from bakery.envmap.zonal import funk_hecke_coefficients, zonal_convolve_equirect
@@ -72,7 +73,6 @@ from bakery.errors import BakeryError
 from bakery.microfacet import prefilter_weight, prefilter_weight_inplace
 
 __all__ = [
-    "MAPPINGS",
     "QUALITY",
     "PrefilterResult",
     "Quality",
@@ -83,12 +83,6 @@ __all__ = [
     "prefilter_specular",
     "seam_metric",
 ]
-
-#: Roughness-per-level mappings by name: level index k of n levels -> perceptual roughness.
-MAPPINGS: dict[str, Callable[[np.ndarray, int], np.ndarray]] = {
-    "linear": lambda k, n: k / max(n - 1, 1),
-    "quadratic": lambda k, n: (k / max(n - 1, 1)) ** 2,
-}
 
 PREFILTER_LOBES = ("ggx", "blinn-phong")
 
@@ -183,24 +177,7 @@ def level_roughness(levels: int, mapping: str | Sequence[float] = "linear") -> n
     >>> level_roughness(3, "quadratic").tolist()
     [0.0, 0.25, 1.0]
     """
-    if levels < 1:
-        raise BakeryError(f"levels must be at least 1; got {levels}")
-    if isinstance(mapping, str):
-        if mapping not in MAPPINGS:
-            names = ", ".join(map(repr, MAPPINGS))
-            raise BakeryError(f"roughness mapping must be one of {names} or a list of values; got {mapping!r}")
-        return np.asarray(MAPPINGS[mapping](np.arange(levels, dtype=np.float64), levels), dtype=np.float64)
-    r = np.asarray(list(mapping), dtype=np.float64)
-    if r.shape != (levels,):
-        raise BakeryError(f"the roughness list needs one value per level ({levels}); got {r.size}")
-    if not np.all(np.isfinite(r)) or np.any((r < 0) | (r > 1)):
-        bad = [float(v) for v in r if not (0 <= v <= 1)]
-        raise BakeryError(f"roughness values must lie in [0, 1]; got {bad}")
-    if r[0] != 0:
-        raise BakeryError(f"level 0 is the mirror image: its roughness must be 0; got {r[0]}")
-    if np.any(np.diff(r) < 0):
-        raise BakeryError("roughness values must not decrease from level to level")
-    return r
+    return np.asarray(roughness_values(levels, mapping), dtype=np.float64)
 
 
 def lobe_parameter(roughness, lobe: str = "ggx") -> np.ndarray:
