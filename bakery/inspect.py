@@ -533,7 +533,8 @@ BAKE_KINDS = {
     "env-lut": "table",
 }
 
-#: Bakes that record the green convention they wrote in their ``y`` parameter.
+#: Bakes that record the green convention they wrote in their ``y`` parameter (``normal-fix`` records it as
+#: ``"y"`` in its manifest when its input's manifest gave it).
 Y_BAKES = ("normal", "blend", "normal-mips", "occlusion")
 
 
@@ -553,6 +554,8 @@ def facts_from_manifest(manifest: dict, name: str) -> MapFacts | None:
     if kind is None:
         return None
     y = params.get("y") if bake in Y_BAKES and params.get("y") in ("up", "down") else None
+    if bake == "normal-fix" and manifest.get("y") in ("up", "down"):  # known when its input's manifest told
+        y = manifest["y"]
     gradient = True
     role = "main"
     outputs = manifest.get("outputs")

@@ -71,22 +71,38 @@ def is_map(path: Path) -> bool:
     return path.suffix.lower() in MAP_SUFFIXES and not path.name.startswith(".")
 
 
+def sheet_picture(path: Path, root: Path) -> bool:
+    """Whether ``path`` (found under the folder ``root``) belongs to a contact sheet ``NAME.html``: a file
+    inside ``NAME_files/`` or one of its page pictures ``NAME.png`` / ``NAME-K.png`` beside it. These are
+    thumbnails, not maps."""
+    stem = re.sub(r"-\d+$", "", path.stem)
+    if path.suffix.lower() == ".png" and (path.parent / f"{stem}.html").is_file():
+        return True
+    for folder in path.relative_to(root).parents:
+        d = root / folder
+        if d.name.endswith("_files") and (d.parent / f"{d.name[:-6]}.html").is_file():
+            return True
+    return False
+
+
 def collect(args: list[str | os.PathLike], *, recursive: bool = False) -> tuple[list[Path], list[Path]]:
-    """The maps named by ``args`` and the files skipped because they are not images.
+    """The maps named by ``args`` and the files skipped because they are not maps.
 
     Each argument is a file, a folder (its files; with ``recursive`` also those of its subfolders, hidden
     ones left out) or a glob pattern (``*``, ``?``, ``[...]``; ``**`` matches folders when ``recursive``).
-    A missing file, or a pattern that matches nothing, is a :class:`BakeryError`.
+    Files that are not images (manifests, reports, recipes) are skipped, and in folders also the pictures of
+    contact sheets (:func:`sheet_picture`). A missing file, or a pattern that matches nothing, is a
+    :class:`BakeryError`.
     """
     maps: list[Path] = []
     skipped: list[Path] = []
     seen: set[Path] = set()
 
-    def add(p: Path) -> None:
+    def add(p: Path, picture: bool = False) -> None:
         if p in seen:
             return
         seen.add(p)
-        (maps if is_map(p) else skipped).append(p)
+        (maps if is_map(p) and not picture else skipped).append(p)
 
     for arg in args:
         text = os.fspath(arg)
@@ -96,7 +112,7 @@ def collect(args: list[str | os.PathLike], *, recursive: bool = False) -> tuple[
             for p in sorted(walker):
                 rel = p.relative_to(path).parts
                 if p.is_file() and not any(part.startswith(".") for part in rel):
-                    add(p)
+                    add(p, sheet_picture(p, path))
         elif path.is_file():
             add(path)
         elif glob.has_magic(text):

@@ -583,10 +583,24 @@ def run_fix(inputs: dict[str, Path], output: Path, p: FixParams, progress: Progr
             np.subtract(np.float32(1.0), enc[:, :, 1], out=enc[:, :, 1])
     if alpha is not None:
         enc = np.concatenate([enc, alpha], axis=2)
+    extra = {"encoding": ENCODING, "sample_type": bits}
+    y_in = recorded_y(src)
+    if y_in:  # the input's manifest records its convention: record the one written
+        extra["y"] = {"up": "down", "down": "up"}[y_in] if p.flip_y else y_in
     write_image(output, enc, bits=bits)
     manifest = write_manifest(output, bake="normal-fix", inputs={"normal": src}, params=params_to_dict(p),
-                              outputs=[output], extra={"encoding": ENCODING, "sample_type": bits})
+                              outputs=[output], extra=extra)
     return [output, manifest]
+
+
+def recorded_y(path: Path) -> str | None:
+    """The green-channel convention the manifest of the normal map ``path`` records, if one still matches it."""
+    from bakery.inspect import facts_from_manifest
+    from bakery.io.manifest import manifest_for
+
+    data = manifest_for(path)
+    facts = facts_from_manifest(data, path.name) if data else None
+    return facts.y if facts else None
 
 
 register(Bake("normal", "height map -> tangent-space normal map (Blinn 1978)", ("height",), NormalParams,

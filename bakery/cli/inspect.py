@@ -53,7 +53,7 @@ def inspect(
     """Check maps for common mistakes: non-unit or sRGB-encoded normals, the green- and red-channel
     conventions, terraced or clipped heights, seams at the wrap edges, sizes, and HDR environments that are
     not HDR. Folders and KTX2 files (every level and face) are inspected; files that are not images
-    (manifests, reports, recipes) are skipped."""
+    (manifests, reports, recipes) and, in folders, the pictures of contact sheets are skipped."""
     from bakery.errors import BakeryError
     from bakery.inspect_files import collect, inspect_paths
 
@@ -63,7 +63,7 @@ def inspect(
         expect_y = Y(load_profile(profile).y)
     maps, skipped = collect(paths, recursive=recursive)
     if not maps:
-        raise BakeryError(f"no maps to inspect ({len(skipped)} file(s) that are not images skipped)",
+        raise BakeryError(f"no maps to inspect ({len(skipped)} file(s) that are not maps skipped)",
                           paths[0] if len(paths) == 1 else None)
     reports = inspect_paths(maps, expect_y=expect_y.value if expect_y else None,
                             kind=kind.value if kind else None, manifests=manifests)
@@ -84,7 +84,7 @@ def inspect(
                 echo(f"      hint: {f.hint}")
     total = sum(len(r.findings) for r in reports)
     summary = (f"inspected {len(reports)} map(s), {total} finding(s)"
-               + (f"; skipped {len(skipped)} file(s) that are not images" if skipped else ""))
+               + (f"; skipped {len(skipped)} file(s) that are not maps" if skipped else ""))
     if not as_json and (len(reports) > 1 or skipped):
         echo()
         echo(summary)
