@@ -75,3 +75,33 @@ def test_normal_fix_records_the_convention_it_writes(tmp_path):
     assert r.exit_code == 0, r.output
     codes, rep = _codes(fixed)
     assert "y" not in rep and "green-y-down" in codes, rep
+
+
+def test_sheet_judges_and_previews_against_the_target(tmp_path):
+    from bakery.preview.lighting import choose_lighting
+    from bakery.preview.sheet import lit_previews, make_entries
+
+    down = tmp_path / "maps" / "tile_normal.png"
+    down.parent.mkdir()
+    _normal_map(down, y_down=True)  # no manifest: only the pixels and the target say anything
+    fn = lit_previews(choose_lighting(None), size=48)
+    (plain,) = make_entries([(down, down.parent)], thumb=48, preview=fn)
+    assert "green-y-down" in [f.code for f in plain.findings]
+    assert "read as Y-up" in plain.preview_note
+    (target,) = make_entries([(down, down.parent)], thumb=48, preview=fn, expect_y="down")
+    assert not [f for f in target.findings if f.code.startswith("green")], target.findings
+    assert "read as Y-down as the target expects" in target.preview_note
+    # the lit previews of the Y-down map read as Y-down and of the same map stored Y-up read as Y-up agree
+    up = tmp_path / "up" / "tile_normal.png"
+    up.parent.mkdir()
+    _normal_map(up, y_down=False)
+    (ref,) = make_entries([(up, up.parent)], thumb=48, preview=fn)
+    assert np.abs(np.asarray(ref.preview, np.float32) - np.asarray(target.preview, np.float32)).max() <= 2 / 255
+
+    page = tmp_path / "sheet.html"
+    profile = Path(__file__).resolve().parents[1] / "samples" / "profiles" / "y-down-8bit-block-compressed.toml"
+    r = runner.invoke(app, ["sheet", str(down.parent), "-o", str(page), "--profile", str(profile), "--no-lit"])
+    assert r.exit_code == 0, r.output
+    assert "green channel looks" not in page.read_text()
+    r = runner.invoke(app, ["sheet", str(down.parent), "-o", str(page), "--no-lit"])
+    assert r.exit_code == 0 and "green channel looks Y-down" in page.read_text()

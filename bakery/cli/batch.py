@@ -80,7 +80,10 @@ def batch(
     if rep.path is not None:
         echo(f"report: {rep.path}")
     if sheet:
-        _contact_sheet(Path(rep.output))
+        from bakery.batch.recipe import load_recipe
+
+        profile = load_recipe(recipe).profile
+        _contact_sheet(Path(rep.output), expect_y=profile.y if profile is not None else None)
     if rep.exit_code:
         raise typer.Exit(rep.exit_code)
 
@@ -195,9 +198,9 @@ def _plain_options(args: list[str]) -> dict | None:
     return kwargs
 
 
-def _contact_sheet(output: Path) -> None:
+def _contact_sheet(output: Path, *, expect_y: str | None = None) -> None:
     """The contact sheet of a batch's output folder, in OUTPUT/.bakery/ (a hidden folder, so later sheets and
-    runs never take its pictures for maps)."""
+    runs never take its pictures for maps), judged against the recipe's profile (``expect_y``)."""
     from bakery.cli._common import progress_lines
     from bakery.preview.sheet import collect_maps, find_maps, make_sheet
 
@@ -207,5 +210,5 @@ def _contact_sheet(output: Path) -> None:
         return
     page.parent.mkdir(exist_ok=True)
     make_sheet(collect_maps([output], page), page, source=str(output), title=f"bakery batch: {output.name}",
-               progress=progress_lines("maps"))
+               progress=progress_lines("maps"), expect_y=expect_y)
     echo(f"contact sheet: {page}")

@@ -170,6 +170,10 @@ def sheet(
     compare: Annotated[bool, typer.Option("--compare", help="Compare two folders, old then new: assets paired "
                                           "by relative path, each shown old, new and as a difference, with "
                                           "PSNR (angular error for normal maps) per level.")] = False,
+    profile: Annotated[Path | None, typer.Option("--profile", help="A target profile (docs/profiles.md): "
+                                                 "findings are judged against its green-channel convention, and "
+                                                 "normal maps without a manifest that says theirs are previewed "
+                                                 "in it.", metavar="FILE", show_default=False)] = None,
 ) -> None:
     """Make a contact sheet: an HTML page (opens from disk, no server) and a PNG grid with a card per asset
     (a map with its mip levels, cube faces and KTX2 container), its lit preview, size and the findings of
@@ -187,8 +191,14 @@ def sheet(
         return
     title = title or "bakery contact sheet"
     files = collect_maps(sources, output, recursive=recursive)
+    expect_y = None
+    if profile is not None:
+        from bakery.profiles import load_profile
+
+        expect_y = load_profile(profile).y
     written = make_sheet(files, output, source=", ".join(str(s) for s in sources), thumb=thumb,
-                         columns=columns, lit=lit, env=env, title=title, progress=progress_lines("assets"))
+                         columns=columns, lit=lit, env=env, title=title, progress=progress_lines("assets"),
+                         expect_y=expect_y)
     echo(f"wrote {written[-1]} and {', '.join(p.name for p in written[:-1])}")
 
 

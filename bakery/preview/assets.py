@@ -151,6 +151,9 @@ class Knowledge:
         Sheet kind: normal, height, roughness, occlusion, mask, color, environment, irradiance, table, pack.
     y : {"up", "down"} or None
         Green-channel convention of a normal map.
+    y_from : {"manifest", "target"}
+        Where ``y`` comes from: the manifest, or the target's convention for a map whose manifest does not
+        say (contact sheets with a profile).
     transfer : {"srgb", "linear"} or None
         Colour encoding of a colour map.
     level_roughness : list of float or None
@@ -164,6 +167,7 @@ class Knowledge:
     bake: str | None = None
     kind: str | None = None
     y: str | None = None
+    y_from: str = "manifest"
     transfer: str | None = None
     level_roughness: list[float] | None = None
     layout: dict[str, str] | None = None
@@ -221,13 +225,13 @@ def _param(m: dict, name: str):
 
 
 def manifest_y(m: dict, folder: Path) -> str | None:
-    """The green-channel convention a normal-map bake's manifest records: its ``y`` parameter (or
-    ``conventions.y``); for ``normal-fix`` the input's convention (from the input's own manifest in the same
-    folder), switched when ``flip_y`` is set. None when the manifest does not say."""
+    """The green-channel convention a normal-map bake's manifest records: its ``y`` parameter (or ``y``, or
+    ``conventions.y``); for ``normal-fix`` manifests without it the input's convention (from the input's own
+    manifest in the same folder), switched when ``flip_y`` is set. None when the manifest does not say."""
     from bakery.io.manifest import manifest_for
 
     conv = m.get("conventions")
-    y = _param(m, "y") or (conv.get("y") if isinstance(conv, dict) else None)
+    y = _param(m, "y") or m.get("y") or (conv.get("y") if isinstance(conv, dict) else None)
     if y in ("up", "down"):
         return y
     if m.get("bake") == "normal-fix":

@@ -21,6 +21,7 @@ Y-down, a packed texture through its channel layout).
 
 from __future__ import annotations
 
+import dataclasses
 import html
 import math
 import os
@@ -293,9 +294,10 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=
     if kind == "normal":
         from bakery.preview.inputs import decode_normal_pixels
 
-        y = (knowledge.y if known else None) or "up"
+        y = (knowledge.y if knowledge is not None else None) or "up"
         n = decode_normal_pixels(px, green=y)
-        said = "as its manifest says" if known and knowledge.y else "(no manifest says otherwise)"
+        said = ("as the target expects" if knowledge is not None and knowledge.y_from == "target" else
+                "as its manifest says" if known and knowledge.y else "(no manifest says otherwise)")
         return (Material(normals=n.astype(np.float32), roughness=0.35),
                 f"lit: normal map read as Y-{y} {said}")
     if kind == "pack":
@@ -456,8 +458,10 @@ def _channel_strip(px: np.ndarray, kind: str, knowledge, *, size: int) -> Strip:
 
 
 def make_asset_entry(asset, *, thumb: int = 160, preview: PreviewFn | None = None,
-                     max_pixels: int | None = None) -> SheetEntry:
-    """Read an asset (:class:`bakery.preview.assets.Asset`) and make its card."""
+                     max_pixels: int | None = None, expect_y: str | None = None) -> SheetEntry:
+    """Read an asset (:class:`bakery.preview.assets.Asset`) and make its card. ``expect_y`` is the target's
+    green-channel convention: findings are judged against it, and normal maps whose manifest does not say
+    theirs are previewed in it."""
     from bakery.inspect import inspect_pixels
     from bakery.preview.assets import INSPECT_KINDS, knowledge, read_forms
 
@@ -487,7 +491,7 @@ def make_asset_entry(asset, *, thumb: int = 160, preview: PreviewFn | None = Non
             # the findings of `bakery inspect`: judged with the map's manifest when one still matches it
             from bakery.inspect_files import inspect_paths
 
-            report = inspect_paths([main], max_pixels=max_pixels)[0]
+            report = inspect_paths([main], max_pixels=max_pixels, expect_y=expect_y)[0]
             if report.kind != "unreadable":
                 found = report.findings
             elif know.y == "down":  # baked Y-down on purpose, as its manifest records
@@ -501,6 +505,8 @@ def make_asset_entry(asset, *, thumb: int = 160, preview: PreviewFn | None = Non
     elif not np.all(np.isfinite(px)):
         entry.preview_note = "no preview: the map holds NaN or Inf"
     else:
+        if expect_y and kind == "normal" and not know.y:  # nothing recorded: read it as the target's
+            know = dataclasses.replace(know, y=expect_y, y_from="target")
         entry.preview, entry.preview_note = preview(px, kind, bits, entry.name, know)
     return entry
 
@@ -809,7 +815,7 @@ def collect_maps(sources: list[Path], output: Path, *, recursive: bool = True,
 
 
 def make_entries(files: list[tuple[Path, Path]], *, thumb: int = 160, preview: PreviewFn | None = None,
-                 progress=None, max_pixels: int | None = None) -> list[SheetEntry]:
+                 progress=None, max_pixels: int | None = None, expect_y: str | None = None) -> list[SheetEntry]:
     """The cards of ``files`` ((map, folder its name is relative to) pairs): one per asset
     (:func:`bakery.preview.assets.group_assets`); with several folders, names start with the folder's name."""
     from bakery.preview.assets import group_assets
@@ -818,7 +824,7 @@ def make_entries(files: list[tuple[Path, Path]], *, thumb: int = 160, preview: P
     many_roots = len({root for _, root in files}) > 1
     entries = []
     for i, asset in enumerate(assets):
-        e = make_asset_entry(asset, thumb=thumb, preview=preview, max_pixels=max_pixels)
+        e = make_asset_entry(asset, thumb=thumb, preview=preview, max_pixels=max_pixels, expect_y=expect_y)
         if progress is not None:
             progress((i + 1) / len(assets), asset.main.name)
         if many_roots:
@@ -830,15 +836,16 @@ def make_entries(files: list[tuple[Path, Path]], *, thumb: int = 160, preview: P
 
 def make_sheet(files: list[tuple[Path, Path]], output: Path, *, source: str = "", thumb: int = 160,
                columns: int = 4, lit: bool = True, env: Path | None = None, title: str = "bakery contact sheet",
-               progress=None) -> list[Path]:
+               progress=None, expect_y: str | None = None) -> list[Path]:
     """The work of ``bakery sheet`` (also run after a batch): ``files`` holds (map, folder its card name is
-    relative to) pairs, see :func:`collect_maps`."""
+    relative to) pairs, see :func:`collect_maps`; ``expect_y``: the target's green-channel convention
+    (:func:`make_asset_entry`)."""
     from bakery.preview.lighting import choose_lighting
 
     if output.suffix.lower() not in (".html", ".htm"):
         raise BakeryError("output must end in .html or .htm", output)
     fn = lit_previews(choose_lighting(env), size=thumb) if lit else None
-    entries = make_entries(files, thumb=thumb, preview=fn, progress=progress)
+    entries = make_entries(files, thumb=thumb, preview=fn, progress=progress, expect_y=expect_y)
     return write_sheet(entries, output, title=title, source=source, columns=columns, thumb=thumb)
 
 
