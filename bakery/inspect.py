@@ -150,7 +150,7 @@ def inspect_pixels(pixels: np.ndarray, *, bits: str, kind: str | None = None, fa
     elif kind == "height" and not small:
         findings += check_height_map(finite[..., 0], bits=bits)
     elif kind == "environment":
-        findings += check_environment(finite, bits=bits, filled=facts.filled)
+        findings += check_environment(finite, bits=bits, filled=facts.filled, baked=facts.source == "manifest")
     findings += check_size(pixels.shape[1], pixels.shape[0], kind)
     findings += _check_channels(pixels, kind)
     if kind in TILING_KINDS and not small and facts.tiles is not False:
@@ -491,8 +491,10 @@ def _terracing(h: np.ndarray) -> str | None:
 # ------------------------------------------------------------------------------------------ environments
 
 
-def check_environment(px: np.ndarray, *, bits: str, filled: bool = False) -> list[Finding]:
-    """Negative values, clipped highlights (an LDR source), aspect ratio."""
+def check_environment(px: np.ndarray, *, bits: str, filled: bool = False, baked: bool = False) -> list[Finding]:
+    """Negative values, clipped highlights (an LDR source), aspect ratio. ``baked``: bakery wrote the file
+    (its manifest says so), so an 8- or 16-bit file is an LDR picture made on purpose (the bake warned about
+    the values it clipped) and is not judged as a light source."""
     out: list[Finding] = []
     neg = int(np.count_nonzero(px[..., :3] < 0))
     if neg:
@@ -502,7 +504,9 @@ def check_environment(px: np.ndarray, *, bits: str, filled: bool = False) -> lis
     vmax = float(px[..., :3].max())
     # a float cube face may well stay below 1 (a face looking at the ground): only whole panoramas, layouts
     # and cubes are judged by their largest value
-    if bits in ("8", "16") or (vmax <= 1.0 and w != h):
+    if bits in ("8", "16") and baked:  # an LDR picture made on purpose
+        pass
+    elif bits in ("8", "16") or (vmax <= 1.0 and w != h):
         out.append(Finding("env-ldr", "warning", f"highest value is {vmax:.3g}: this looks like a low dynamic "
                            "range image", "use an HDR source (.hdr/.exr); a clipped sun lights far too weakly"))
     elif not filled:

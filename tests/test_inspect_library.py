@@ -105,3 +105,20 @@ def test_sheet_judges_and_previews_against_the_target(tmp_path):
     assert "green channel looks" not in page.read_text()
     r = runner.invoke(app, ["sheet", str(down.parent), "-o", str(page), "--no-lit"])
     assert r.exit_code == 0 and "green channel looks Y-down" in page.read_text()
+
+
+def test_an_ldr_picture_bakery_wrote_is_not_an_ldr_light_source(tmp_path):
+    import shutil
+
+    sky = Path(__file__).resolve().parents[1] / "samples" / "sky.hdr"
+    pic = tmp_path / "cross.png"
+    r = runner.invoke(app, ["env", "convert", str(sky), "-o", str(pic), "--output-layout", "cross-wide",
+                            "--face-size", "32", "--exposure", "-4"])
+    assert r.exit_code == 0, r.output
+    codes, rep = _codes(pic)
+    assert rep["from"] == "manifest" and "env-ldr" not in codes, rep
+    loose = tmp_path / "loose" / "cross.png"  # the same picture without its manifest: judged as a source
+    loose.parent.mkdir()
+    shutil.copy(pic, loose)
+    r = runner.invoke(app, ["inspect", str(loose), "--json", "--kind", "environment"])
+    assert "env-ldr" in r.output, r.output
