@@ -122,3 +122,30 @@ def test_an_ldr_picture_bakery_wrote_is_not_an_ldr_light_source(tmp_path):
     shutil.copy(pic, loose)
     r = runner.invoke(app, ["inspect", str(loose), "--json", "--kind", "environment"])
     assert "env-ldr" in r.output, r.output
+
+
+def test_preview_reads_the_green_convention_from_the_manifest_then_the_profile(tmp_path):
+    from bakery.io import read_image
+
+    heights = tmp_path / "h.png"
+    write_image(heights, samples.paving_height(128), bits="16")
+    up, down = tmp_path / "n.png", tmp_path / "n_down.png"
+    assert runner.invoke(app, ["normal", str(heights), "-o", str(up)]).exit_code == 0
+    assert runner.invoke(app, ["normal-fix", str(up), "--flip-y", "-o", str(down)]).exit_code == 0
+
+    def shot(normal, *extra):
+        out = tmp_path / f"shot{len(list(tmp_path.glob('shot*')))}.png"
+        r = runner.invoke(app, ["preview", "-o", str(out), "--normal", str(normal), "--size", "96",
+                                "--supersample", "1", *extra])
+        assert r.exit_code == 0, r.output
+        return read_image(out).pixels
+
+    ref = shot(up)
+    assert np.abs(shot(down) - ref).max() <= 1 / 255  # the manifest says Y-down
+    assert np.abs(shot(down, "--y", "up") - ref).max() > 0.05  # an explicit --y wins
+    loose = tmp_path / "loose" / "n_down.png"  # no manifest: the profile decides
+    loose.parent.mkdir()
+    loose.write_bytes(down.read_bytes())
+    profile = Path(__file__).resolve().parents[1] / "samples" / "profiles" / "y-down-8bit-block-compressed.toml"
+    assert np.abs(shot(loose, "--profile", str(profile)) - ref).max() <= 1 / 255
+    assert np.abs(shot(loose) - ref).max() > 0.05

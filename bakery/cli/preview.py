@@ -43,8 +43,14 @@ def preview(
     output: Annotated[Path, typer.Option("--output", "-o", help="Picture to write: .png, or .gif/.webp with "
                                          "--turntable.", show_default=False)],
     normal: Annotated[Path | None, typer.Option(help="Normal map (tangent space).", dir_okay=False)] = None,
-    y: Annotated[Green, typer.Option("--y", help="Green-channel convention of the normal map file: up "
-                                     "(OpenGL-style, glTF 2.0) or down (DirectX-style).")] = Green.up,
+    y: Annotated[Green | None, typer.Option("--y", help="Green-channel convention of the normal map file: up "
+                                            "(OpenGL-style, glTF 2.0) or down (DirectX-style); default: what "
+                                            "its manifest records, else the --profile's, else up.",
+                                            show_default=False)] = None,
+    profile: Annotated[Path | None, typer.Option("--profile", help="A target profile (docs/profiles.md): "
+                                                 "its green-channel convention reads a normal map whose "
+                                                 "manifest does not record one.", metavar="FILE",
+                                                 show_default=False)] = None,
     height: Annotated[Path | None, typer.Option(help="Height map instead of --normal: normals are baked from "
                                                 "it in memory (as `bakery normal` does).", dir_okay=False)] = None,
     strength: Annotated[float | None, typer.Option(help="Strength of the --height bake, texels per height unit "
@@ -127,7 +133,8 @@ def preview(
                           occlusion, pack) if isinstance(p, Path)]
     check_distinct([output], inputs)
     limit = None  # read_image applies BAKERY_MAX_PIXELS
-    material = load_material(normal=normal, green=y.value, height=height, strength=strength,
+    green = y.value if y is not None else _normal_y(normal, profile)
+    material = load_material(normal=normal, green=green, height=height, strength=strength,
                              roughness=rough, exponent=exponent, base_color=color, metallic=metal,
                              occlusion=occlusion, pack=pack, pack_layout=layout, max_pixels=limit)
     lighting = choose_lighting(env, specular=specular, diffuse=diffuse, lut=lut, lights=lights)
@@ -151,6 +158,22 @@ def preview(
                               exposure=ev, white=white, views=views.value)
     write_image(output, img, bits="8")
     echo(f"wrote {output} ({img.shape[1]}x{img.shape[0]}, exposure {used:+.2f} EV)")
+
+
+def _normal_y(normal: Path | None, profile: Path | None) -> str:
+    """The green convention a normal map is read in when --y is not given: its manifest's, else the
+    profile's, else up."""
+    if normal is not None:
+        from bakery.preview.assets import knowledge
+
+        recorded = knowledge(normal).y
+        if recorded:
+            return recorded
+    if profile is not None:
+        from bakery.profiles import load_profile
+
+        return load_profile(profile).y
+    return "up"
 
 
 @app.command("sheet")
