@@ -504,12 +504,11 @@ def check_environment(px: np.ndarray, *, bits: str, filled: bool = False, baked:
     vmax = float(px[..., :3].max())
     # a float cube face may well stay below 1 (a face looking at the ground): only whole panoramas, layouts
     # and cubes are judged by their largest value
-    if bits in ("8", "16") and baked:  # an LDR picture made on purpose
-        pass
-    elif bits in ("8", "16") or (vmax <= 1.0 and w != h):
+    picture = baked and bits in ("8", "16")  # an LDR picture made on purpose: not judged as a light source
+    if not picture and (bits in ("8", "16") or (vmax <= 1.0 and w != h)):
         out.append(Finding("env-ldr", "warning", f"highest value is {vmax:.3g}: this looks like a low dynamic "
                            "range image", "use an HDR source (.hdr/.exr); a clipped sun lights far too weakly"))
-    elif not filled:
+    elif not (filled or picture):
         # a clipped capture saturates: many texels hold exactly the same top value (a smooth peak does not)
         peak = px[..., :3].max(axis=-1)
         at_max = int(np.count_nonzero(peak == vmax))
