@@ -149,3 +149,16 @@ def test_preview_reads_the_green_convention_from_the_manifest_then_the_profile(t
     profile = Path(__file__).resolve().parents[1] / "samples" / "profiles" / "y-down-8bit-block-compressed.toml"
     assert np.abs(shot(loose, "--profile", str(profile)) - ref).max() <= 1 / 255
     assert np.abs(shot(loose) - ref).max() > 0.05
+
+
+def test_preview_refuses_a_bad_profile_even_when_the_manifest_decides(tmp_path):
+    heights = tmp_path / "h.png"
+    write_image(heights, samples.paving_height(64), bits="16")
+    normal = tmp_path / "n.png"
+    assert runner.invoke(app, ["normal", str(heights), "-o", str(normal)]).exit_code == 0
+    bad = tmp_path / "bad.toml"
+    bad.write_text('[normal]\ny = "sideways"\n')
+    out = tmp_path / "shot.png"
+    r = runner.invoke(app, ["preview", "-o", str(out), "--normal", str(normal), "--profile", str(bad)])
+    assert r.exit_code == 2 and "error:" in r.output and "bad.toml" in r.output, r.output
+    assert not out.exists()

@@ -133,7 +133,12 @@ def preview(
                           occlusion, pack) if isinstance(p, Path)]
     check_distinct([output], inputs)
     limit = None  # read_image applies BAKERY_MAX_PIXELS
-    green = y.value if y is not None else _normal_y(normal, profile)
+    target_y = None
+    if profile is not None:  # checked even when --y or the manifest decides
+        from bakery.profiles import load_profile
+
+        target_y = load_profile(profile).y
+    green = y.value if y is not None else _normal_y(normal, target_y)
     material = load_material(normal=normal, green=green, height=height, strength=strength,
                              roughness=rough, exponent=exponent, base_color=color, metallic=metal,
                              occlusion=occlusion, pack=pack, pack_layout=layout, max_pixels=limit)
@@ -160,20 +165,16 @@ def preview(
     echo(f"wrote {output} ({img.shape[1]}x{img.shape[0]}, exposure {used:+.2f} EV)")
 
 
-def _normal_y(normal: Path | None, profile: Path | None) -> str:
+def _normal_y(normal: Path | None, target_y: str | None) -> str:
     """The green convention a normal map is read in when --y is not given: its manifest's, else the
-    profile's, else up."""
+    target's (the profile's), else up."""
     if normal is not None:
         from bakery.preview.assets import knowledge
 
         recorded = knowledge(normal).y
         if recorded:
             return recorded
-    if profile is not None:
-        from bakery.profiles import load_profile
-
-        return load_profile(profile).y
-    return "up"
+    return target_y or "up"
 
 
 @app.command("sheet")
