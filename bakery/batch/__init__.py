@@ -205,7 +205,7 @@ def _run(recipe: Recipe, *, plan_args: dict, jobs: int, client: Any, cluster: st
                 elif client is not None:
                     from bakery.batch.execute import run_dask
 
-                    run_dask(specs, client, on_result, on_progress if progress is not None else None)
+                    run_dask(specs, client, on_result, on_progress if progress is not None else None, plan.writers)
                 else:
                     from bakery.batch.execute import run_local
 
@@ -250,7 +250,8 @@ def _spec(recipe: Recipe, job: Any, inspect: bool, index: int, position: dict[st
             "inputs": {role: str((recipe.output if role in job.upstream else recipe.source) / rel)
                        for role, rel in job.inputs.items()},
             "values": job.values, "where": f"{rule.where}: params" + (f" for {first}" if first else ""),
-            "inspect": inspect, "index": index, "deps": deps, "files": job.files}
+            "inspect": inspect, "index": index, "deps": deps, "files": job.files, "assumed": job.assumed,
+            "first": job.shown(next(iter(job.inputs))) if job.inputs else ""}
 
 
 def _report(recipe: Recipe, plan: Any, version: str, executor: str, workers: int, dry_run: bool,

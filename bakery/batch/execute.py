@@ -316,12 +316,18 @@ def connect(address: str, *, timeout: float = 10.0) -> Any:
         raise BakeryError(f"cannot reach the Dask scheduler at {address!r} ({exc})") from None
 
 
-def run_after(spec: Spec, topic: str, *upstream: Result) -> Result:
+def run_after(spec: Spec, topic: str, writers: dict[str, str], *upstream: Result) -> Result:
     """A Dask task: run ``spec`` once the jobs it needs returned ``upstream`` (it does not run when one failed)
-    and send its progress as events on ``topic``."""
+    and send its progress as events on ``topic``. A job whose files were named from a stand-in input is
+    named again from its real inputs first, and fails when it would write a file of another job
+    (``writers``: every planned file -> its job's output)."""
     for dep, res in zip(spec.get("deps", ()), upstream, strict=True):
         if res["status"] == "failed":
             return downstream_failure({"output": spec["dep_outputs"][dep]}, res)
+    if spec.get("assumed"):
+        problem = files_again(spec, writers)
+        if problem is not None:
+            return failed(problem)
 
     def send(msg: Any) -> None:
         from distributed import get_worker
@@ -331,9 +337,30 @@ def run_after(spec: Spec, topic: str, *upstream: Result) -> Result:
     return run_job(spec, send, every=0.5)
 
 
-def run_dask(specs: list[Spec], client: Any, on_result: OnResult, on_progress: OnProgress | None = None) -> None:
+def files_again(spec: Spec, writers: dict[str, str]) -> str | None:
+    """Name the files of ``spec`` again from its real inputs (in the worker, once its upstream jobs ran); the
+    refusal when one of them belongs to another job, else None."""
+    import importlib
+
+    from bakery.bakes import get_bake, params_from_mapping
+    from bakery.batch.plan import declared_files, taken_by_another
+
+    try:
+        importlib.import_module(spec["module"])
+        params = params_from_mapping(get_bake(spec["bake"]), spec["values"], spec["where"])
+        inputs = {role: Path(p) for role, p in spec["inputs"].items()}
+        files = declared_files(spec["bake"], inputs, Path(spec["out_root"]), spec["output"], params)
+    except BakeryError as exc:
+        return str(exc)
+    return taken_by_another(files, spec["output"], writers, spec["first"])
+
+
+def run_dask(specs: list[Spec], client: Any, on_result: OnResult, on_progress: OnProgress | None = None,
+             writers: dict[str, str] | None = None) -> None:
     """Run ``specs`` on a Dask cluster: every job is submitted at once, a job's future depending on the
     futures of the jobs it needs, so the scheduler starts it when they are done (see the module notes).
+    ``writers`` (every planned file -> its job's output) goes to every worker once, for the jobs whose
+    files are named again when they start.
 
     Workers need bakery (and any module that registers a bake the recipe uses) installed, and must see the
     source and output roots at the same paths; they write the outputs themselves, atomically.
@@ -348,13 +375,15 @@ def run_dask(specs: list[Spec], client: Any, on_result: OnResult, on_progress: O
     events: queues.SimpleQueue = queues.SimpleQueue()
     if on_progress is not None:
         client.subscribe_topic(topic, lambda event: events.put(event[1]))
+    # (a dict given to scatter is scattered value by value: wrap it in a list to send it whole)
+    shared = client.scatter([writers or {}], broadcast=True)[0] if any(s.get("assumed") for s in specs) else {}
     futures: dict[int, Any] = {}
     index: dict[str, int] = {}
     finished: set[int] = set()
     for i, spec in enumerate(specs):
         deps = list(spec.get("deps", ()))
         spec = {**spec, "dep_outputs": {d: specs[d]["output"] for d in deps}}
-        fut = client.submit(run_after, spec, topic, *[futures[d] for d in deps], pure=False,
+        fut = client.submit(run_after, spec, topic, shared, *[futures[d] for d in deps], pure=False,
                             key=f"bakery-job-{i}-{token}")
         futures[i] = fut
         index[fut.key] = i

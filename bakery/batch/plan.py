@@ -30,7 +30,7 @@ from pathlib import Path
 from typing import Any
 
 from bakery.batch.cache import STATE_DIR, Cache, job_key, stat_signature
-from bakery.batch.recipe import FOLDER_FILE, FolderSettings, Recipe, Rule, load_folder_file
+from bakery.batch.recipe import FOLDER_FILE, FolderSettings, Recipe, Rule, graph_order, load_folder_file
 from bakery.errors import BakeryError
 
 RUN, SKIP, FAIL = "run", "skip", "fail"
@@ -161,24 +161,48 @@ def scan_sources(root: Path) -> tuple[list[str], list[str]]:
 def make_plan(recipe: Recipe, *, force: bool = False, only: tuple[str, ...] = (),
               cache: Cache | None = None) -> Plan:
     """Build every job of ``recipe`` and decide which run; see the module notes."""
-    from bakery import __version__
-    from bakery.bakes import get_bake, params_from_mapping, params_to_dict
-
     cache = Cache.load(recipe.output) if cache is None else cache
     files, folders = scan_sources(recipe.source)
     settings = {d: load_folder_file(recipe.source / d / FOLDER_FILE, recipe, _shown(recipe, d))
                 for d in folders}
     only_patterns = _only_patterns(only)
     out_root = recipe.output.resolve()
+    matched: dict[str, set[str]] = {}  # rule -> rules whose main outputs its plain pattern matches
+    while True:  # plan in graph order; a plain pattern matching a later rule's outputs adds an edge, re-plan
+        order = graph_order(recipe.rules, matched)
+        jobs, by_output, writers = _plan_rules(order, recipe, files, settings, cache, force, out_root)
+        late = _late_matches(order, jobs)
+        if not late:
+            break
+        for rule, producers in late.items():
+            matched.setdefault(rule, set()).update(producers)
+    all_outputs = {j.output for j in jobs}
+    unselected = 0
+    if only_patterns:
+        keep = {id(j) for j in jobs if _selected(j, only_patterns)}
+        for job in reversed(jobs):  # pull in what the chosen jobs need: downstream jobs come later in the list
+            if id(job) in keep:
+                keep.update(id(by_output[o]) for o in job.upstream.values())
+        selected = [j for j in jobs if id(j) in keep]
+        unselected, jobs = len(jobs) - len(selected), selected
+    return Plan(recipe, jobs, cache, unselected, all_outputs, {f: j.output for f, j in writers.items()})
+
+
+def _plan_rules(order: list[Rule], recipe: Recipe, files: list[str], settings: dict[str, FolderSettings],
+                cache: Cache, force: bool, out_root: Path) -> tuple[list[Job], dict[str, Job], dict[str, Job]]:
+    """Every job of the rules in ``order``: (jobs in graph order, main output -> job, every file -> job)."""
+    from bakery import __version__
+    from bakery.bakes import get_bake, params_from_mapping, params_to_dict
+
     jobs: list[Job] = []
     by_rule: dict[str, list[Job]] = {}
     by_output: dict[str, Job] = {}
     writers: dict[str, Job] = {}  # every planned file -> its job
     objs: dict[int, Any] = {}  # id(job) -> its parameter object (to ask the bake for its files)
-    for rule in recipe.rules:  # graph order: upstream rules first
+    for rule in order:  # graph order: upstream rules first
         bake = get_bake(rule.bake)
         rule_jobs = []
-        for rel, producer in _candidates(rule, bake, files, by_rule):
+        for rel, producer in _candidates(rule, files, by_rule):
             if rel is None:  # a bake without inputs: one job
                 values, job_inputs, upstream = {"rule": rule.name}, {}, {}
             else:
@@ -243,24 +267,31 @@ def make_plan(recipe: Recipe, *, force: bool = False, only: tuple[str, ...] = ()
                 writers[rel] = job
         by_rule[rule.name] = rule_jobs
         jobs += rule_jobs
-    all_outputs = {j.output for j in jobs}
-    unselected = 0
-    if only_patterns:
-        keep = {id(j) for j in jobs if _selected(j, only_patterns)}
-        for job in reversed(jobs):  # pull in what the chosen jobs need: downstream jobs come later in the list
-            if id(job) in keep:
-                keep.update(id(by_output[o]) for o in job.upstream.values())
-        selected = [j for j in jobs if id(j) in keep]
-        unselected, jobs = len(jobs) - len(selected), selected
-    return Plan(recipe, jobs, cache, unselected, all_outputs, {f: j.output for f, j in writers.items()})
+    return jobs, by_output, writers
 
 
-def _candidates(rule: Rule, bake: Any, files: list[str], by_rule: dict[str, list[Job]]):
-    """(path, the job that makes it or None) for every file the rule's pattern is tried on."""
+def _late_matches(order: list[Rule], jobs: list[Job]) -> dict[str, set[str]]:
+    """Rule -> the rules after it in ``order`` whose main outputs its plain pattern matches (it must come after
+    them: the plan is made again in the new order)."""
+    position = {r.name: i for i, r in enumerate(order)}
+    late: dict[str, set[str]] = {}
+    for rule in order:
+        if rule.match_from is not None or rule.match is None:
+            continue
+        for job in jobs:
+            if position[job.rule] > position[rule.name] and rule.match.match(job.output) is not None \
+                    and not any(e.match(job.output) is not None for e in rule.exclude):
+                late.setdefault(rule.name, set()).add(job.rule)
+    return late
+
+
+def _candidates(rule: Rule, files: list[str], by_rule: dict[str, list[Job]]):
+    """(path, the job that makes it or None) for every file the rule's pattern is tried on: for a plain
+    pattern the source files and the main outputs of the rules planned before it."""
     if rule.match_from is None:
-        if rule.match is None:  # a bake without inputs
+        if rule.match is None:  # a bake without inputs: one job
             return [(None, None)]
-        return [(rel, None) for rel in files]
+        return [(rel, None) for rel in files] + [(j.output, j) for ups in by_rule.values() for j in ups]
     ups = by_rule[rule.match_from]
     if rule.match is None:  # "@RULE": every main output of that rule
         return [(j.output, j) for j in ups]
@@ -329,11 +360,8 @@ def _files(job: Job, recipe: Recipe, cache: Cache, by_output: dict[str, Job], pa
 
 
 def _declared(job: Job, paths: dict[str, Path], recipe: Recipe, params: Any) -> list[str]:
-    from bakery.bakes import planned_outputs
-
-    out_root = recipe.output
     try:
-        declared = planned_outputs(job.bake, paths, out_root / job.output, params)
+        return declared_files(job.bake, paths, recipe.output, job.output, params)
     except BakeryError as exc:
         rule = next(r for r in recipe.rules if r.name == job.rule)
         if exc.path is not None and exc.path in {str(p) for p in paths.values()}:
@@ -341,15 +369,31 @@ def _declared(job: Job, paths: dict[str, Path], recipe: Recipe, params: Any) -> 
                 job.action, job.reason = FAIL, str(exc)
             return [job.output]
         raise BakeryError(f"{rule.where}: key 'output': {exc}") from None
+
+
+def declared_files(bake: str, paths: dict[str, Path], out_root: Path, output: str, params: Any) -> list[str]:
+    """Every file ``bake`` declares for these inputs, relative to the output root, sorted. Raises
+    :class:`BakeryError` (naming the input when its header cannot be read, or a file outside the root)."""
+    from bakery.bakes import planned_outputs
+
     rels = []
-    for p in declared:
+    for p in planned_outputs(bake, paths, out_root / output, params):
         try:
             rels.append(Path(os.path.normpath(p)).relative_to(os.path.normpath(out_root)).as_posix())
         except ValueError:
-            rule = next(r for r in recipe.rules if r.name == job.rule)
-            raise BakeryError(f"{rule.where}: key 'output': bake {job.bake!r} would write {p}, outside the output "
-                              "root") from None
+            raise BakeryError(f"bake {bake!r} would write {p}, outside the output root") from None
     return sorted(set(rels))
+
+
+def taken_by_another(files: list[str], output: str, writers: dict[str, str], first: str) -> str | None:
+    """The refusal when a job renamed from its real inputs (its files follow the size of ``first``) would
+    write a file that another job writes (``writers``: file -> that job's output); else None."""
+    for rel in files:
+        other = writers.get(rel)
+        if other is not None and other != output:
+            return (f"would write {rel}, which the job for {other} writes (its files follow the size of "
+                    f"{first}, known only now)")
+    return None
 
 
 def _stand_in(maker: Job, recipe: Recipe, by_output: dict[str, Job]) -> Path | None:
@@ -380,11 +424,9 @@ def refresh_files(job: Job, recipe: Recipe, plan: Plan) -> str | None:
         files = _declared(job, paths, recipe, params)
     except BakeryError as exc:
         return str(exc)
-    for rel in files:
-        other = plan.writers.get(rel)
-        if other is not None and other != job.output:
-            return (f"would write {rel}, which the job for {other} writes (its files follow the size of "
-                    f"{job.shown(next(iter(job.inputs)))}, known only now)")
+    problem = taken_by_another(files, job.output, plan.writers, job.shown(next(iter(job.inputs))))
+    if problem is not None:
+        return problem
     for rel in job.files:
         plan.writers.pop(rel, None)
     for rel in files:

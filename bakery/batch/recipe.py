@@ -20,7 +20,9 @@ Chained rules (another rule's outputs as inputs)
     ``@RULE`` in ``match`` takes the main output of every job of rule ``RULE``; ``@RULE/PATTERN`` the files
     those jobs write (main and side outputs, never manifests) that match ``PATTERN``, relative to the output
     root. A partner template ``inputs.ROLE = "@RULE/TEMPLATE"`` names a file that rule ``RULE`` writes (a
-    file it does not write is refused before any job runs). The rules form a graph: a cycle is refused with
+    file it does not write is refused before any job runs). A plain pattern also matches the main outputs
+    of the other rules' jobs (never side outputs or manifests, never the rule's own outputs), so a rule over
+    ``*_normal.png`` takes the normal maps another rule makes. The rules form a graph: a cycle is refused with
     the rules named, and the plan runs them in its topological order.
 
 Nothing here imports heavy libraries: a run with nothing to do must start fast.
@@ -311,8 +313,8 @@ def _profile(data: dict, base: Path, where: str) -> Any:
 
 
 def _check_graph(rules: list[Rule]) -> list[Rule]:
-    """The rules in an order where every rule comes after the rules whose outputs it reads (recipe order where
-    that allows); unknown rule names, a rule reading its own outputs and cycles are refused."""
+    """The rules in graph order (:func:`graph_order`); unknown rule names, a rule reading its own outputs and
+    cycles are refused."""
     by_name = {r.name: r for r in rules}
     for r in rules:
         for up in r.upstream:
@@ -323,18 +325,33 @@ def _check_graph(rules: list[Rule]) -> list[Rule]:
             if up == r.name:
                 raise BakeryError(f"{r.where}: key {key!r}: the rule reads its own outputs (@{up}); a rule cannot "
                                   "consume what it writes")
+    return graph_order(rules)
+
+
+def graph_order(rules: list[Rule] | tuple[Rule, ...], matched: dict[str, set[str]] | None = None) -> list[Rule]:
+    """The rules in an order where every rule comes after the rules whose outputs it reads (recipe order where
+    that allows). ``matched``: rule -> the rules whose planned outputs its plain pattern matches (found when
+    planning). A cycle is refused with the rules named."""
+    by_name = {r.name: r for r in rules}
+    matched = matched or {}
     order: list[Rule] = []
     state: dict[str, int] = {}  # 1: on the current path, 2: placed
+
+    def ups(r: Rule) -> list[str]:
+        return list(r.upstream) + sorted(matched.get(r.name, set()) - set(r.upstream))
 
     def visit(r: Rule, path: list[str]) -> None:
         if state.get(r.name) == 2:
             return
         if state.get(r.name) == 1:
             cycle = path[path.index(r.name):] + [r.name]
+            how = [f"{a!r} matches files {b!r} writes" for a, b in zip(cycle, cycle[1:], strict=False)
+                   if b in matched.get(a, set()) and b not in by_name[a].upstream]
+            note = f"; by pattern: {', '.join(how)} (narrow the pattern or add an exclude)" if how else ""
             raise BakeryError(f"{r.where}: the rules form a cycle: {' -> '.join(cycle)} (each reads the outputs of "
-                              "the next); no job can run first")
+                              f"the next){note}; no job can run first")
         state[r.name] = 1
-        for up in r.upstream:
+        for up in ups(r):
             visit(by_name[up], path + [r.name])
         state[r.name] = 2
         order.append(r)

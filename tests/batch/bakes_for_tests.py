@@ -115,3 +115,59 @@ def _probe(inputs: dict[str, Path], output: Path, params: ProbeParams, progress=
 
 
 PROBE = register(Bake("test-probe", "thread settings of a worker (batch tests)", (), ProbeParams, _just, _probe))
+
+
+@dataclass(frozen=True)
+class ResizeParams(Params):
+    """Nearest-texel resampling to ``size`` × ``size`` texels (changes the size a chained rule sees)."""
+
+    size: int = param(32, "Texels.", low=1)
+
+
+def _resize(inputs: dict[str, Path], output: Path, params: ResizeParams, progress=None) -> list[Path]:
+    import numpy as np
+
+    from bakery.io import read_image, write_image, write_manifest
+
+    img = read_image(inputs["source"])
+    h, w = img.pixels.shape[:2]
+    rows = np.arange(params.size) * h // params.size
+    cols = np.arange(params.size) * w // params.size
+    write_image(output, img.pixels[rows][:, cols], bits="16")
+    m = write_manifest(output, bake="test-resize", inputs=inputs, params=params_to_dict(params), outputs=[output])
+    return [output, m]
+
+
+RESIZE = register(Bake("test-resize", "nearest-texel resize (batch tests)", ("source",), ResizeParams,
+                       _image_and_manifest, _resize))
+
+
+@dataclass(frozen=True)
+class LevelsParams(Params):
+    """Halvings of the input down to 1 texel, one file each (``NAME.lvK.png``): files that follow its size."""
+
+
+def _level_files(inputs: dict[str, Path], output: Path, params) -> list[Path]:
+    from bakery.io.images import image_size
+    from bakery.io.manifest import manifest_path
+
+    w, h = image_size(inputs["source"])
+    count = max(min(w, h).bit_length() - 1, 0)
+    return [output, manifest_path(output)] + [output.with_name(f"{output.stem}.lv{k}{output.suffix}")
+                                              for k in range(1, count + 1)]
+
+
+def _levels(inputs: dict[str, Path], output: Path, params: LevelsParams, progress=None) -> list[Path]:
+    from bakery.io import read_image, write_image, write_manifest
+
+    img = read_image(inputs["source"]).pixels
+    files = _level_files(inputs, output, params)
+    write_image(output, img, bits="16")
+    for k, path in enumerate(files[2:], 1):
+        write_image(path, img[:: 2**k, :: 2**k], bits="16")
+    write_manifest(output, bake="test-levels", inputs=inputs, params=params_to_dict(params), outputs=[output])
+    return files
+
+
+LEVELS = register(Bake("test-levels", "one file per halving (batch tests)", ("source",), LevelsParams,
+                       _level_files, _levels))

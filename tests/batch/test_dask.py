@@ -90,3 +90,22 @@ def test_sample_library_same_bytes_with_one_two_workers_and_dask(tmp_path, clust
         out.rename(tmp_path / name)
     assert got["jobs1"] == got["jobs2"] == got["dask"]
     assert any(f == 0.0 for calls in rec.calls.values() for f, _ in calls)
+
+
+def test_dask_names_the_files_of_a_chained_job_again_before_it_starts(library, tmp_path, cluster):
+    """The level files follow the size of an input that an upstream job makes: named from the real input in
+    the worker, like the local pool does; a file of another job is refused there too."""
+    from tests.batch.test_graph import RESIZED, TAKEN
+
+    library.write_text(RESIZED, encoding="utf-8")
+    rep = run(library, cluster=cluster.scheduler_address)
+    assert (rep.ran, rep.failed) == (8, 0)
+    done = next(j for j in rep.jobs if j.output == "stone/stone_big_lv.png")
+    assert [f for f in done.outputs if ".lv" in f] == [f"stone/stone_big_lv.lv{k}.png" for k in range(1, 6)]
+    library.write_text(TAKEN, encoding="utf-8")
+    (tmp_path / "out").rename(tmp_path / "out-first")  # a new output root: the plan cannot know the fifth level
+    rep = run(library, cluster=cluster.scheduler_address)
+    failed = {j.output: j.error for j in rep.jobs if j.status == "failed"}
+    assert list(failed) == ["stone/stone_big_lv.png"]
+    assert failed["stone/stone_big_lv.png"].startswith("would write stone/stone_big_lv.lv5.png, which the job for")
+    assert rep.ran == 8 and not (tmp_path / "out" / "stone" / "stone_big_lv.png").exists()
