@@ -1,6 +1,7 @@
 """Benchmark: a batch of 48 normal-map jobs of 1024² on this machine, and a no-change re-run.
 
     python tests/perf/bench_batch.py [--bake normal] [--size 1024] [--count 48]
+    python tests/perf/bench_batch.py --chained 24 [--size 1024]
 
 Prints, each from runs of the ``bakery batch`` command in this same session:
 - the speed-up of ``--jobs 2`` over ``--jobs 1`` (target: at least 1.7 on 2 cores), beside its floor: the
@@ -12,6 +13,10 @@ Prints, each from runs of the ``bakery batch`` command in this same session:
 - the time of a no-change re-run as a fraction of the full run (target: under 5 %), by the command (with
   Python start-up) beside its floor, the same command on a recipe whose rule matches no file (start-up,
   command line, recipe, cache; no job), and by the ``bakery.batch.run`` call alone (as a build script sees it).
+``--chained N`` runs instead a chained recipe over N heights (height -> normal map -> normal-map mip chain
+as BC5 KTX2, and height -> occlusion beside it) with ``--jobs 1`` and ``--jobs 2`` and prints the speed-up
+and the idle fraction of the two workers: 1 - (sum of the job times) / (2 x the run's wall time), from the
+run report (planning and start-up count as idle).
 The load average is printed too: the machine is shared, and other work on it shrinks every speed-up.
 The bake must take one input (its first role is the matched file) and write PNG; ``--bake`` picks another
 registered bake (e.g. ``--bake test-invert --module tests.batch.bakes_for_tests`` to check the harness).
@@ -96,15 +101,65 @@ def command_time(args: list[str]) -> float:
     return dt
 
 
+CHAINED = """source = "lib"
+output = "out"
+
+[[rule]]
+name = "normals"
+bake = "normal"
+match = "**/{m}_height.png"
+output = "{dir}/{m}_normal.png"
+
+[[rule]]
+name = "chains"
+bake = "normal-mips"
+match = "@normals"
+output = "{dir}/{stem}.ktx2"
+
+[[rule]]
+name = "occlusion"
+bake = "occlusion"
+match = "**/{m}_height.png"
+output = "{dir}/{m}_occlusion.png"
+"""
+
+
+def chained(tmp: Path, size: int, count: int) -> None:
+    import json
+
+    print(f"making {count} height maps of {size}² in {tmp} ...", flush=True)
+    make_library(tmp / "lib", size, count)
+    recipe = tmp / "chained.toml"
+    recipe.write_text(CHAINED, encoding="utf-8")
+    walls = {}
+    for jobs in (1, 2):
+        shutil.rmtree(tmp / "out", ignore_errors=True)
+        walls[jobs] = bakery_cmd(["batch", str(recipe), "--jobs", str(jobs)], None)
+        rep = json.loads((tmp / "out" / ".bakery" / "report.json").read_text())
+        busy = sum(j.get("seconds") or 0.0 for j in rep["jobs"])
+        ran = sum(j["status"] == "ran" for j in rep["jobs"])
+        idle = 1 - busy / (jobs * rep["seconds"])
+        print(f"chained, --jobs {jobs}: {ran} jobs in {rep['seconds']:.2f} s (command {walls[jobs]:.2f} s); "
+              f"job time {busy:.2f} s; idle fraction of the workers {100 * idle:.1f} %", flush=True)
+    print(f"chained speed-up --jobs 2 / --jobs 1: {walls[1] / walls[2]:.2f}x (by the command)")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--bake", default="normal")
     ap.add_argument("--module", default=None, help="a module to import first (registers a test bake)")
     ap.add_argument("--size", type=int, default=1024)
     ap.add_argument("--count", type=int, default=48)
+    ap.add_argument("--chained", type=int, default=0, metavar="N", help="the chained benchmark over N heights")
     args = ap.parse_args()
     tmp = Path(tempfile.mkdtemp(prefix="bench-batch-"))
     print(f"load average at the start: {', '.join(f'{x:.1f}' for x in os.getloadavg())} on {os.cpu_count()} cores")
+    if args.chained:
+        try:
+            chained(tmp, args.size, args.chained)
+        finally:
+            shutil.rmtree(tmp, ignore_errors=True)
+        return
     try:
         print(f"making {args.count} height maps of {args.size}² in {tmp} ...", flush=True)
         make_library(tmp / "lib", args.size, args.count)
