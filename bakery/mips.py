@@ -163,10 +163,18 @@ def _horner8(p, t):
 def _decode_flat(x, out, poly, srgb, alpha_mask):
     """``out[k]`` = stored value ``x[k]`` decoded to linear (sRGB, IEC 61966-2-1) unless ``k`` is an alpha
     position (``k & alpha_mask == alpha_mask``, C = 2 or 4; alpha_mask = -1 for none) or ``srgb`` is off.
-    Stored values are clipped to [0, 1] first."""
+    Stored values are clipped to [0, 1] first (for sRGB). Returns the sum of ``|x - clip(x, 0, 1)|`` over
+    all values: 0 when every value lies in [0, 1], not finite when one is NaN or infinite (one pass that
+    vectorises, unlike a running min and max)."""
+    off = np.float32(0.0)
     if not srgb:
-        out[:] = x
-        return
+        for k in range(x.size):
+            c = x[k]
+            d = c if c > np.float32(0.0) else np.float32(0.0)
+            d = d if d < np.float32(1.0) else np.float32(1.0)
+            off += abs(c - d)
+            out[k] = c
+        return off
     p = (poly[0, 0], poly[0, 1], poly[0, 2], poly[0, 3], poly[0, 4], poly[0, 5], poly[0, 6], poly[0, 7],
          poly[0, 8])
     mid = poly[1, 0]
@@ -175,10 +183,12 @@ def _decode_flat(x, out, poly, srgb, alpha_mask):
         c = x[k]
         c = c if c > np.float32(0.0) else np.float32(0.0)  # selects, not min/max: these vectorise
         c = c if c < np.float32(1.0) else np.float32(1.0)
+        off += abs(x[k] - c)
         z = np.sqrt(np.sqrt((c + np.float32(0.055)) * np.float32(1.0 / 1.055)))
         v = _horner8(p, (z - mid) * sc)
         v = v if c > np.float32(0.04045) else c * np.float32(1.0 / 12.92)
         out[k] = x[k] if (k & alpha_mask) == alpha_mask else v
+    return off
 
 
 def _encode_flat(x, out, inv, poly, srgb, alpha_mask, kscale):
@@ -205,33 +215,21 @@ def _encode_flat(x, out, inv, poly, srgb, alpha_mask, kscale):
         out[k] = v
 
 
-def _stats_flat(x, stats):
-    """Smallest and largest value of ``x`` into stats[0], stats[1]; stats[2] = 1 if a NaN is seen."""
-    lo = stats[0]
-    hi = stats[1]
-    nan = 0
-    for k in range(x.size):
-        v = x[k]
-        lo = v if v < lo else lo
-        hi = v if v > hi else hi
-        nan += 1 if v != v else 0
-    stats[0] = lo
-    stats[1] = hi
-    if nan:
-        stats[2] = 1.0
-
-
-def _decode_rows(src, dst, i0, i1, poly, srgb, alpha_mask, box, buf, stats):
+def _decode_rows(src, dst, i0, i1, poly, srgb, alpha_mask, box, buf):
     """Rows ``i0 <= i < i1`` of ``dst``: stored ``src`` decoded and premultiplied by alpha; with ``box`` each
-    dst texel is the mean of a 2x2 block (even sizes). ``buf``: scratch for two decoded source rows."""
+    dst texel is the mean of a 2x2 block (even sizes). ``buf``: scratch for two decoded source rows. Returns
+    the sum of the clipping of ``src`` to [0, 1] (see :func:`_decode_flat`)."""
     W = src.shape[1]
     C = src.shape[2]
     q = np.float32(0.25)
     rows = 2 if box else 1
+    off = np.float32(0.0)
     for i in range(i0, i1):
         flat = src[rows * i:rows * i + rows].reshape(-1)
-        _stats_flat(flat, stats)
-        _decode_flat(flat, buf[:rows * W * C], poly, srgb, alpha_mask)
+        off += _decode_flat(flat, buf[:rows * W * C], poly, srgb, alpha_mask)
+        if box and C == 4 and alpha_mask >= 0:
+            _box_rgba(buf, dst[i], W)
+            continue
         b = buf[:rows * W * C].reshape(rows, W, C)
         if box:
             for j in range(dst.shape[1]):
@@ -253,6 +251,26 @@ def _decode_rows(src, dst, i0, i1, poly, srgb, alpha_mask, box, buf, stats):
                 a = b[0, j, C - 1] if alpha_mask >= 0 else np.float32(1.0)
                 for ch in range(C):
                     dst[i, j, ch] = b[0, j, ch] * a if (alpha_mask < 0 or ch < C - 1) else b[0, j, ch]
+    return off
+
+
+def _box_rgba(buf, row, W):
+    """One output row of the premultiplied 2x2 mean of two decoded RGBA rows held flat in ``buf`` (the same
+    arithmetic as the general loop, written with the channel count fixed so that it vectorises)."""
+    q = np.float32(0.25)
+    top = buf[:4 * W]
+    bot = buf[4 * W:8 * W]
+    out = row.reshape(-1)
+    for j in range(W // 2):
+        s = 8 * j
+        a0 = top[s + 3]
+        a1 = top[s + 7]
+        a2 = bot[s + 3]
+        a3 = bot[s + 7]
+        out[4 * j] = q * (top[s] * a0 + top[s + 4] * a1 + bot[s] * a2 + bot[s + 4] * a3)
+        out[4 * j + 1] = q * (top[s + 1] * a0 + top[s + 5] * a1 + bot[s + 1] * a2 + bot[s + 5] * a3)
+        out[4 * j + 2] = q * (top[s + 2] * a0 + top[s + 6] * a1 + bot[s + 2] * a2 + bot[s + 6] * a3)
+        out[4 * j + 3] = q * (a0 + a1 + a2 + a3)
 
 
 def _encode_rows(src, dst, i0, i1, poly, srgb, alpha_mask, kscale, inv):
@@ -273,7 +291,7 @@ _COLOR_KERNELS: dict | None = None
 def _compiled() -> dict:
     """The per-texel passes of :func:`color_mips`, compiled by numba on first use (numba is imported here: a
     plain numpy sRGB decode of a 4096^2 RGBA map took longer than the whole target, tests/perf/bench_mips.py)."""
-    global _COLOR_KERNELS, _decode_flat, _encode_flat, _stats_flat, _horner8
+    global _COLOR_KERNELS, _decode_flat, _encode_flat, _box_rgba, _horner8
     if _COLOR_KERNELS is None:
         from bakery.jit import numba
 
@@ -289,7 +307,7 @@ def _compiled() -> dict:
 
         # callees first: a jitted function binds the globals it calls when it is compiled
         _horner8 = njit(inline="always")(_horner8)
-        _decode_flat, _encode_flat, _stats_flat = jit(_decode_flat), jit(_encode_flat), jit(_stats_flat)
+        _decode_flat, _encode_flat, _box_rgba = jit(_decode_flat), jit(_encode_flat), jit(_box_rgba)
         _COLOR_KERNELS = {"decode": jit(_decode_rows), "encode": jit(_encode_rows), "poly": _srgb_polynomials(),
                           "decode_flat": _decode_flat, "encode_flat": _encode_flat}
     return _COLOR_KERNELS
@@ -429,17 +447,16 @@ def color_mips(
     first = np.empty(((h // 2, w // 2) if fused else (h, w)) + (C,), np.float32)
 
     def decode(i0, i1):
-        stats = np.array([np.inf, -np.inf, 0.0], np.float32)
-        k["decode"](img, first, i0, i1, poly, srgb, amask, fused, np.empty(2 * w * C, np.float32), stats)
-        return stats
+        return k["decode"](img, first, i0, i1, poly, srgb, amask, fused, np.empty(2 * w * C, np.float32))
 
-    stats = np.array(_rows_parallel(decode, first.shape[0], nthreads))
-    lo, hi = float(stats[:, 0].min()), float(stats[:, 1].max())
-    if stats[:, 2].any() or not (np.isfinite(lo) and np.isfinite(hi)):
-        raise BakeryError("colour map has NaN or infinite values")
-    if (srgb or alpha) and (lo < 0.0 or hi > 1.0):
-        warnings.warn(f"colour map values run from {lo:g} to {hi:g}, outside [0, 1]: clipped", BakeryWarning,
-                      stacklevel=2)
+    off = float(sum(_rows_parallel(decode, first.shape[0], nthreads)))
+    if off != 0.0:  # some value outside [0, 1], or not finite: the exact figures (rare, so a second pass)
+        if not np.isfinite(img).all():
+            raise BakeryError("colour map has NaN or infinite values")
+        lo, hi = float(img.min()), float(img.max())
+        if (srgb or alpha) and (lo < 0.0 or hi > 1.0):
+            warnings.warn(f"colour map values run from {lo:g} to {hi:g}, outside [0, 1]: clipped", BakeryWarning,
+                          stacklevel=2)
     target = coverage(img[:, :, C - 1], cut) if alpha_cutoff is not None else None
 
     def reduce(a: np.ndarray) -> np.ndarray:

@@ -164,3 +164,27 @@ def test_bad_input():
         color_mips(bad)
     with pytest.warns(BakeryWarning, match="outside"):
         color_mips(rgb + 1.5)
+
+
+@pytest.mark.parametrize("shape", [(8, 8, 4), (7, 9, 4), (8, 8, 3), (6, 10, 2)])
+@pytest.mark.parametrize("transfer", ["srgb", "linear"])
+def test_color_mips_finds_every_bad_value(shape, transfer):
+    """One NaN or infinity anywhere (colour or alpha, even or odd sizes) is refused; one value just outside
+    [0, 1] in an sRGB or alpha channel is reported; a map inside [0, 1] passes without a word."""
+    import warnings
+
+    good = np.random.default_rng(3).random(shape, dtype=np.float32)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        color_mips(good, transfer=transfer)
+    for bad_value in (np.nan, np.inf, -np.inf):
+        for ch in range(shape[2]):
+            bad = good.copy()
+            bad[shape[0] - 1, shape[1] - 1, ch] = bad_value
+            with pytest.raises(BakeryError, match="NaN or infinite"):
+                color_mips(bad, transfer=transfer)
+    bad = good.copy()
+    bad[0, shape[1] - 1, shape[2] - 1] = 1.001  # the last channel: alpha, or colour
+    if transfer == "srgb" or shape[2] in (2, 4):
+        with pytest.warns(BakeryWarning, match="run from 0.* to 1.001, outside"):
+            color_mips(bad, transfer=transfer)
