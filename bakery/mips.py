@@ -273,8 +273,39 @@ def _box_rgba(buf, row, W):
         out[4 * j + 3] = q * (a0 + a1 + a2 + a3)
 
 
+def _encode_one(v, p, mid, sc):
+    """Linear ``v`` -> sRGB (IEC 61966-2-1), clipped to [0, 1] first (:func:`_encode_flat`, one value)."""
+    v = v if v > np.float32(0.0) else np.float32(0.0)
+    v = v if v < np.float32(1.0) else np.float32(1.0)
+    e = _horner8(p, (np.sqrt(np.sqrt(np.sqrt(v))) - mid) * sc)
+    return e if v > np.float32(0.0031308) else v * np.float32(12.92)
+
+
+def _encode_rgba(x, out, poly, kscale):
+    """:func:`_encode_flat` for premultiplied sRGB RGBA texels, written per texel with the channel count
+    fixed (the loop then vectorises over texels, and 1/alpha needs no scratch)."""
+    p = (poly[2, 0], poly[2, 1], poly[2, 2], poly[2, 3], poly[2, 4], poly[2, 5], poly[2, 6], poly[2, 7],
+         poly[2, 8])
+    mid = poly[3, 0]
+    sc = poly[3, 1]
+    for j in range(x.size // 4):
+        s = 4 * j
+        a = x[s + 3]
+        r = np.float32(1.0) / a if a > np.float32(0.0) else np.float32(0.0)
+        out[s] = _encode_one(x[s] * r, p, mid, sc)
+        out[s + 1] = _encode_one(x[s + 1] * r, p, mid, sc)
+        out[s + 2] = _encode_one(x[s + 2] * r, p, mid, sc)
+        k = a * kscale
+        k = k if k > np.float32(0.0) else np.float32(0.0)
+        out[s + 3] = k if k < np.float32(1.0) else np.float32(1.0)
+
+
 def _encode_rows(src, dst, i0, i1, poly, srgb, alpha_mask, kscale, inv):
     C = src.shape[2]
+    if srgb and C == 4 and alpha_mask >= 0:
+        for i in range(i0, i1):
+            _encode_rgba(src[i].reshape(-1), dst[i].reshape(-1), poly, kscale)
+        return
     for i in range(i0, i1):
         if alpha_mask >= 0:
             for j in range(src.shape[1]):
@@ -291,7 +322,7 @@ _COLOR_KERNELS: dict | None = None
 def _compiled() -> dict:
     """The per-texel passes of :func:`color_mips`, compiled by numba on first use (numba is imported here: a
     plain numpy sRGB decode of a 4096^2 RGBA map took longer than the whole target, tests/perf/bench_mips.py)."""
-    global _COLOR_KERNELS, _decode_flat, _encode_flat, _box_rgba, _horner8
+    global _COLOR_KERNELS, _decode_flat, _encode_flat, _box_rgba, _encode_rgba, _encode_one, _horner8
     if _COLOR_KERNELS is None:
         from bakery.jit import numba
 
@@ -307,7 +338,9 @@ def _compiled() -> dict:
 
         # callees first: a jitted function binds the globals it calls when it is compiled
         _horner8 = njit(inline="always")(_horner8)
+        _encode_one = njit(inline="always")(_encode_one)
         _decode_flat, _encode_flat, _box_rgba = jit(_decode_flat), jit(_encode_flat), jit(_box_rgba)
+        _encode_rgba = jit(_encode_rgba)
         _COLOR_KERNELS = {"decode": jit(_decode_rows), "encode": jit(_encode_rows), "poly": _srgb_polynomials(),
                           "decode_flat": _decode_flat, "encode_flat": _encode_flat}
     return _COLOR_KERNELS
