@@ -140,7 +140,7 @@ def _resample_axis(a: np.ndarray, axis: int, m: int, name: str, edges: str) -> n
     lo = int(idx.min())
     fold = edge_index(lo, int(idx.max()) + 1, n, edges)
     idx = fold[idx - lo]
-    a = np.moveaxis(a, axis, 0)
+    a = np.ascontiguousarray(np.moveaxis(a, axis, 0))  # whole rows per tap: contiguous copies, not strides
     shape = (m,) + (1,) * (a.ndim - 1)
     out = np.zeros((m,) + a.shape[1:], np.float32)
     for t in range(taps):
