@@ -160,34 +160,35 @@ def _sweep(A, T, r0, r1, nwarm, nout, colk, flk, fk, rowfold, rowbase, nmin, wra
                     T[rowfold[raw + rowbase], c] = t
 
 
-def _shear(A, B, r0, r1, flm, fk, colk, nmin):
-    """Wrap edges: ``B[r, k]`` = sample k of line r, ``(1 - f) A[r + fl, col] + f A[r + fl + 1, col]`` (rows
-    modulo ``nmin``): the lines of one azimuth as contiguous rows. Blocks of 256 steps keep the rows of ``A``
-    that a block of lines reads in the cache."""
-    nk = B.shape[1]
-    for kb in range(0, nk, 256):
-        for r in range(r0, r1):
-            for k in range(kb, min(nk, kb + 256)):
-                m0 = r + flm[k]
-                if m0 >= nmin:
-                    m0 -= nmin
-                m1 = m0 + 1
-                if m1 == nmin:
-                    m1 = 0
-                f = fk[k]
-                B[r, k] = (1.0 - f) * A[m0, colk[k]] + f * A[m1, colk[k]]
+def _shear(AT, BT, k0, k1, flm, fk, colk, nmin):
+    """Wrap edges: sample k of line r is ``(1 - f) A[r + fl, col] + f A[r + fl + 1, col]`` (rows modulo
+    ``nmin``). Written transposed, ``BT[k, r]`` from row ``col`` of ``AT`` (= A transposed), so each step k of
+    all the lines is a cyclic shift of one contiguous row: two plain loops that vectorise."""
+    for k in range(k0, k1):
+        a = AT[colk[k]]
+        b = BT[k]
+        sh = flm[k]
+        f = np.float32(fk[k])
+        g = np.float32(1.0) - f
+        n1 = nmin - 1 - sh  # r < n1: both rows inside
+        for r in range(n1):
+            b[r] = g * a[r + sh] + f * a[r + sh + 1]
+        b[n1] = g * a[nmin - 1] + f * a[0]
+        for r in range(n1 + 1, nmin):
+            b[r] = g * a[r + sh - nmin] + f * a[r + sh + 1 - nmin]
 
 
-def _unshear(Tb, T, r0, r1, rndm, colk, nmin):
-    """Each texel takes the horizon of the line sample nearest to it: ``T[r + rnd, col] = Tb[r, k]``."""
-    nk = Tb.shape[1]
-    for kb in range(0, nk, 256):
-        for r in range(r0, r1):
-            for k in range(kb, min(nk, kb + 256)):
-                m = r + rndm[k]
-                if m >= nmin:
-                    m -= nmin
-                T[m, colk[k]] = Tb[r, k]
+def _unshear(TbT, TT, k0, k1, rndm, colk, nmin):
+    """Each texel takes the horizon of the line sample nearest to it: ``T[r + rnd, col] = Tb[r, k]``, written
+    transposed (``TT[col]`` is a cyclic shift of ``TbT[k]``)."""
+    for k in range(k0, k1):
+        src = TbT[k]
+        dst = TT[colk[k]]
+        sh = rndm[k]
+        for r in range(nmin - sh):
+            dst[r + sh] = src[r]
+        for r in range(nmin - sh, nmin):
+            dst[r + sh - nmin] = src[r]
 
 
 def _walk(B, Tb, tasks, t0, t1, q, nmin, per_cycle, inv_len, stack_k, stack_y):
@@ -276,7 +277,8 @@ def _kernels() -> dict:
         fast = {"nsz", "arcp", "contract", "afn", "reassoc"}  # no nnan/ninf: 1/0 = inf is relied on
         _atan = jit(_atan, fastmath=fast)
         _bent_terms = jit(_bent_terms, fastmath=fast)
-        _KERNELS = {"sweep": jit(_sweep), "gather": jit(_gather, fastmath=fast), "shear": jit(_shear),
+        _KERNELS = {"sweep": jit(_sweep), "gather": jit(_gather, fastmath=fast),
+                    "shear": jit(_shear, fastmath=fast),
                     "unshear": jit(_unshear), "walk": jit(_walk)}
     return _KERNELS
 
@@ -486,25 +488,41 @@ def occlusion_from_height(
             for f in [pool.submit(fn, a, b, *args) for a, b in ranges]:
                 f.result()
 
+    import cv2
+
+    # The sweeps index [minor, major]: the map as is, or transposed (one contiguous copy, made once); the
+    # horizons of a transposed sweep go to a transposed buffer, turned back by one blocked transpose.
+    hT = cv2.transpose(h)
+    tanT = np.empty((W, H), np.float32)
+
     try:
         for d in range(n):
             p = _plan(2.0 * math.pi * d / n, sx, sy, (H, W), edges, max_distance)
-            A, T = (h.T, tan.T) if p["transposed"] else (h, tan)  # the sweeps index [minor, major]
+            A, AT, T, TT = (hT, h, tanT, tan) if p["transposed"] else (h, hT, tan, tanT)
             if p["kind"] == "walk":
+                nmin, nmaj = p["nmin"], p["nmaj"]
                 if p["transposed"] not in lines:
-                    lines[p["transposed"]] = (np.empty(A.shape, np.float32), np.empty(A.shape, np.float32))
-                B, Tb = lines[p["transposed"]]
-                blocks = [(r0, min(p["nmin"], r0 + 64)) for r0 in range(0, p["nmin"], 64)]
-                each(lambda r0, r1, A=A, B=B, p=p: kern["shear"](A, B, r0, r1, p["flm"], p["fk"], p["colk"],
-                                                                 p["nmin"]), blocks)
+                    lines[p["transposed"]] = (np.empty((nmaj, nmin), np.float32),
+                                              np.empty((nmin, nmaj), np.float32),
+                                              np.empty((nmin, nmaj), np.float32))
+                BT, B, Tb = lines[p["transposed"]]
+                steps = [(k0, min(nmaj, k0 + 64)) for k0 in range(0, nmaj, 64)]
+                each(lambda k0, k1, AT=AT, BT=BT, p=p: kern["shear"](AT, BT, k0, k1, p["flm"], p["fk"],
+                                                                     p["colk"], p["nmin"]), steps)
+                cv2.transpose(BT, B)
                 per = max(1, len(p["tasks"]) // (4 * nthreads))
                 each(walk, [(t0, min(len(p["tasks"]), t0 + per)) for t0 in range(0, len(p["tasks"]), per)],
                      p, B, Tb)
-                each(lambda r0, r1, T=T, Tb=Tb, p=p: kern["unshear"](Tb, T, r0, r1, p["rndm"], p["colk"],
-                                                                     p["nmin"]), blocks)
+                cv2.transpose(Tb, BT)
+                each(lambda k0, k1, TT=TT, BT=BT, p=p: kern["unshear"](BT, TT, k0, k1, p["rndm"], p["colk"],
+                                                                       p["nmin"]), steps)
+                if TT is tanT:
+                    cv2.transpose(tanT, tan)
             else:
                 each(sweep, [(r0, min(p["r_hi"], r0 + LANES)) for r0 in range(p["r_lo"], p["r_hi"], LANES)],
                      p, A, T)
+                if T is tanT:
+                    cv2.transpose(tanT, tan)
             each(gather, rows, p)
             if progress is not None:
                 progress((d + 1) / n, f"occlusion: azimuth {d + 1} of {n}")
