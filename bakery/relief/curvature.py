@@ -87,22 +87,24 @@ def _texel_derivatives(h: np.ndarray, scale: float, edges: str, kernel: str):
         w0, w1, w2 = gaussian_derivative_kernels(scale)
         r = len(w0) // 2
         # y runs up: each derivative along the rows changes sign once
-        return (_correlate(h, r, w0, w1, edges), -_correlate(h, r, w1, w0, edges), _correlate(h, r, w0, w2, edges),
-                -_correlate(h, r, w1, w1, edges), _correlate(h, r, w2, w0, edges))
+        p = pad(h, r, edges)
+        return (_correlate(p, r, w0, w1), -_correlate(p, r, w1, w0), _correlate(p, r, w0, w2),
+                -_correlate(p, r, w1, w1), _correlate(p, r, w2, w0))
     k = get_kernel(kernel)
     s = np.asarray(k.smooth, np.float64)
     d1 = np.array([-0.5, 0.0, 0.5])
     d2 = np.array([1.0, -2.0, 1.0])
-    return (_correlate(h, 1, s, d1, edges), -_correlate(h, 1, d1, s, edges), _correlate(h, 1, s, d2, edges),
-            -_correlate(h, 1, d1, d1, edges), _correlate(h, 1, d2, s, edges))
+    p = pad(h, 1, edges)
+    return (_correlate(p, 1, s, d1), -_correlate(p, 1, d1, s), _correlate(p, 1, s, d2),
+            -_correlate(p, 1, d1, d1), _correlate(p, 1, d2, s))
 
 
-def _correlate(h: np.ndarray, r: int, ky: np.ndarray, kx: np.ndarray, edges: str) -> np.ndarray:
-    """Separable correlation of ``h`` (float64) with rows weighted by ``ky`` and columns by ``kx`` (each of
-    length 2r + 1), past the borders by the edge mode; OpenCV's sepFilter2D in float64 on a padded copy."""
+def _correlate(p: np.ndarray, r: int, ky: np.ndarray, kx: np.ndarray) -> np.ndarray:
+    """Separable correlation of the height ``p`` (float64, padded by ``r`` texels past the borders by the edge
+    mode) with rows weighted by ``ky`` and columns by ``kx`` (each of length 2r + 1): OpenCV's sepFilter2D in
+    float64, the padding cut off again."""
     import cv2
 
-    p = np.ascontiguousarray(pad(h, r, edges))
     return cv2.sepFilter2D(p, cv2.CV_64F, kx, ky, borderType=cv2.BORDER_REPLICATE)[r:-r, r:-r]
 
 
@@ -167,9 +169,11 @@ def mean_curvature(
     # lengths in units of R: one texel is 1/s_x wide, 1/s_y tall
     hx, hy = hx * sx, hy * sy
     hxx, hxy, hyy = hxx * sx * sx, hxy * sx * sy, hyy * sy * sy
-    num = (1 + hx * hx) * hyy - 2 * hx * hy * hxy + (1 + hy * hy) * hxx
-    den = 2 * (1 + hx * hx + hy * hy) ** 1.5
-    return (num / den / d).astype(np.float32)
+    hx2, hy2 = hx * hx, hy * hy
+    num = (1 + hx2) * hyy - 2 * hx * hy * hxy + (1 + hy2) * hxx
+    t = 1 + hx2 + hy2
+    t *= np.sqrt(t)  # (1 + h_x^2 + h_y^2)^(3/2) without a general power
+    return (num / (2 * d * t)).astype(np.float32)
 
 
 def curvature_maps(
