@@ -486,7 +486,7 @@ def _resolve_values(rule: Rule, recipe: Recipe, settings: dict[str, FolderSettin
 
 
 def _encoder() -> str:
-    from bakery.io.blockcodec import encoder_version  # reads package metadata; loads no encoder
+    from bakery.io.ktx2_formats import encoder_version  # reads package metadata; loads no encoder
 
     return encoder_version()
 

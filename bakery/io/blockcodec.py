@@ -34,6 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from bakery.errors import BakeryError
+from bakery.io.ktx2_formats import encoder_version  # noqa: F401  (numpy-free: a batch plan reads it)
 
 BLOCK = 4
 QUALITIES = ("fast", "balanced", "best")
@@ -65,14 +66,6 @@ CODECS: dict[str, Codec] = {c.name: c for c in (
     Codec("bc6h", 16, 3, 8, hdr=True, decode_id=6),
     Codec("bc7", 16, 4, 4, decode_id=7),
 )}
-
-
-def encoder_version() -> str:
-    """Name and version of the block encoder, e.g. ``"ispc-texcomp 1.0.1"`` (part of a batch job key: a new
-    encoder re-bakes). Read from the installed package's metadata, so planning a batch loads no encoder."""
-    from importlib.metadata import version
-
-    return f"ispc-texcomp {version('ispc-texcomp')}"
 
 
 def check_quality(quality: str) -> str:

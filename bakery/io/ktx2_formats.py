@@ -103,3 +103,12 @@ def get_format(name: str | int) -> Format:
         raise BakeryError(f"unknown KTX2 format {name!r}; use one of {', '.join(FORMAT_ALIASES)} or "
                           + ", ".join(FORMATS))
     return FORMATS[key]
+
+
+def encoder_version() -> str:
+    """Name and version of the block encoder, e.g. ``"ispc-texcomp 1.0.1"`` (part of a batch job key: a new
+    encoder re-bakes). Read from the installed package's metadata, so planning a batch loads no encoder
+    and no array library."""
+    from importlib.metadata import version
+
+    return f"ispc-texcomp {version('ispc-texcomp')}"
