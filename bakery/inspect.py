@@ -356,6 +356,11 @@ def relief_sign(n: np.ndarray, y: str = "up") -> tuple[str, float]:
     over a period). The sign is a prior, not a proof: a surface made of isolated pits in a connected plateau
     reads as inverted.
 
+    The identity holds for smooth slopes. Where the slope jumps (a sphere cap meeting the plane at an angle,
+    a bevel's edge) central differences weigh the jump by the slope on one side only and can outweigh the
+    rest of the map, so the slopes are first smoothed by one pass of the binomial kernel [1, 2, 1] / 4 along
+    each axis (common practice), which turns a kink into a ramp the identity holds for.
+
     Returns
     -------
     relief : {"raised", "sunken", "unsure"}
@@ -364,7 +369,7 @@ def relief_sign(n: np.ndarray, y: str = "up") -> tuple[str, float]:
     """
     if min(n.shape[:2]) < RELIEF_MIN_SIZE:
         return "unsure", 0.0
-    p, q = _slopes(n, y)
+    p, q = (_binomial(a) for a in _slopes(n, y))
     lap = (np.roll(p, -1, axis=1) - np.roll(p, 1, axis=1)) / 2 - (np.roll(q, -1, axis=0) - np.roll(q, 1, axis=0)) / 2
     g2 = p * p + q * q
     scale = float(np.mean(g2)) * float(np.sqrt(np.mean(lap * lap)))
@@ -380,6 +385,12 @@ def relief_sign(n: np.ndarray, y: str = "up") -> tuple[str, float]:
 #: side (a few features say little); chosen on procedural maps, common practice.
 RELIEF_LIMIT = 0.05
 RELIEF_MIN_SIZE = 64
+
+
+def _binomial(a: np.ndarray) -> np.ndarray:
+    """One pass of [1, 2, 1] / 4 along each axis, wrapping at the edges."""
+    a = (np.roll(a, 1, axis=0) + 2 * a + np.roll(a, -1, axis=0)) / 4
+    return (np.roll(a, 1, axis=1) + 2 * a + np.roll(a, -1, axis=1)) / 4
 
 
 def _slopes(n: np.ndarray, y: str) -> tuple[np.ndarray, np.ndarray]:
