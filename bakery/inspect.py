@@ -138,7 +138,7 @@ def inspect_pixels(pixels: np.ndarray, *, bits: str, kind: str | None = None, fa
     findings: list[Finding] = []
     nonfinite = _check_finite(pixels, kind)
     findings += nonfinite
-    finite = np.nan_to_num(pixels, nan=0.0, posinf=0.0, neginf=0.0) if nonfinite else pixels
+    finite = _fill_nonfinite(pixels, kind) if nonfinite else pixels
     small = min(pixels.shape[:2]) < MIN_STATISTICS_SIZE
     # vector statistics and the seam score are judged on every step-th texel of large maps: the same answers
     # (curl and seams compare texels one step apart on both sides) at a fraction of the cost
@@ -180,6 +180,16 @@ def _check_finite(pixels: np.ndarray, kind: str) -> list[Finding]:
         return [Finding("non-finite", "error", f"{nan} NaN and {inf} Inf sample(s)",
                         "repair the source; bakes refuse files holding NaN or Inf")]
     return []
+
+
+def _fill_nonfinite(pixels: np.ndarray, kind: str) -> np.ndarray:
+    """The pixels with NaN and Inf samples replaced, so the other checks judge the rest of the map: by the
+    encoded flat normal (0.5, 0.5, 1) in a normal map (a zero there would be a vector pointing into the surface
+    with slopes of 20 that drown the curl statistics), else by 0."""
+    fill = np.zeros(pixels.shape[2], np.float32)
+    if kind == "normal":
+        fill[:] = np.array([0.5, 0.5, 1.0, 1.0], np.float32)[: pixels.shape[2]]
+    return np.where(np.isfinite(pixels), pixels, fill).astype(np.float32)
 
 
 def check_size(width: int, height: int, kind: str) -> list[Finding]:

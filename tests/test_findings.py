@@ -306,16 +306,17 @@ def case_env_aspect(tmp):
         ["--kind", "environment"]
 
 
-def baked_normal(tmp: Path, name: str) -> Path:
-    """`bakery normal` on a height of sphere caps (its manifest beside it)."""
+def baked_normal(tmp: Path, name: str, suffix: str = ".png", *options: str) -> Path:
+    """`bakery normal` (a 16-bit PNG, or a float EXR) on a height of sphere caps, its manifest beside it."""
     rows, cols = np.mgrid[0:128, 0:128].astype(np.float64)
     h = np.zeros((128, 128))
     for cx, cy, r, d in CAPS:
         h = np.maximum(h, np.sqrt(np.maximum(r * r - (cols - cx) ** 2 - (rows - cy) ** 2, 0)) - d)
     src = png(tmp / f"{name}_height.png", h / h.max())
-    out = tmp / f"{name}.png"
-    assert run(["normal", str(src), "-o", str(out), "--quiet"]) == 0
-    assert (tmp / f"{name}.png.bakery.json").is_file()
+    out = tmp / f"{name}{suffix}"
+    bits = ["--bits", "float"] if suffix == ".exr" else []
+    assert run(["normal", str(src), "-o", str(out), "--quiet", *bits, *options]) == 0
+    assert (tmp / f"{name}{suffix}.bakery.json").is_file()
     return out
 
 
@@ -381,3 +382,56 @@ def test_warnings_exit_0_without_strict(tmp_path, capfd):
     assert run(["inspect", "--json", str(down)]) == 0
     (report,) = json.loads(capfd.readouterr().out)
     assert [f["code"] for f in report["findings"]] == ["green-y-down"]
+
+
+# ------------------------------------------------------------------------------------------ stale manifests
+# A map bakery baked, then replaced by a broken file while its manifest stayed: the manifest is stale
+# (its recorded hash no longer matches), so inspect says so and judges the map on its own pixels.
+
+
+def _flip_green(path: Path) -> None:
+    bgr = cv2.imread(str(path), cv2.IMREAD_UNCHANGED)
+    bgr[..., 1] = np.iinfo(bgr.dtype).max - bgr[..., 1]
+    assert cv2.imwrite(str(path), bgr)
+
+
+def _srgb_encoded(path: Path) -> None:
+    bgr = cv2.imread(str(path), cv2.IMREAD_UNCHANGED)
+    top = np.iinfo(bgr.dtype).max
+    assert cv2.imwrite(str(path), np.rint(srgb_encode(bgr / top) * top).astype(bgr.dtype))
+
+
+def _nan_texels(path: Path) -> None:
+    from bakery.io import read_image
+
+    px = read_image(path).pixels.copy()
+    px[5, 7] = np.nan
+    px[60, 90, 2] = np.nan
+    exr(path, px)
+
+
+@pytest.mark.parametrize("plant, suffix, planted", [(_flip_green, ".png", "green-y-down"),
+                                                    (_srgb_encoded, ".png", "normal-srgb"),
+                                                    (_nan_texels, ".exr", "non-finite")])
+def test_a_planted_mistake_under_a_stale_manifest_is_found(plant, suffix, planted, tmp_path, capfd):
+    baked = baked_normal(tmp_path, "kept", suffix)
+    broken = baked_normal(tmp_path, "broken", suffix)
+    manifest = (tmp_path / f"broken{suffix}.bakery.json").read_bytes()
+    plant(broken)
+    assert (tmp_path / f"broken{suffix}.bakery.json").read_bytes() == manifest  # left as the bake wrote it
+    _, (kept, judged), _ = inspect_json(capfd, [baked, broken], [])
+    assert kept["from"] == "manifest" and kept["kind"] == "normal" and kept["findings"] == [], kept
+    assert judged["from"] == "pixels" and judged["kind"] == "normal", judged
+    assert {f["code"] for f in judged["findings"]} == {"manifest-stale", planted}, judged
+
+
+def test_a_stale_manifest_does_not_give_its_convention(tmp_path, capfd):
+    """Baked Y-down, then replaced by the same normals stored Y-up: judged on the pixels against the default
+    Y-up there is nothing wrong but the stale manifest; trusted, the manifest's Y-down would have made the
+    Y-up pixels the finding."""
+    down = baked_normal(tmp_path, "down", ".png", "--y", "down")
+    _, (report,), _ = inspect_json(capfd, [down], [])
+    assert report["y"] == "down" and report["findings"] == [], report
+    _flip_green(down)
+    _, (report,), _ = inspect_json(capfd, [down], [])
+    assert "y" not in report and [f["code"] for f in report["findings"]] == ["manifest-stale"], report
