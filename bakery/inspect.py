@@ -64,7 +64,8 @@ class MapFacts:
     kind : str or None
         One of :data:`bakery.classify.KINDS` plus ``"table"`` (a lookup table such as the split-sum BRDF
         table), ``"mask"`` (occlusion, curvature, normal lengths: data in [0, 1] with no height statistics)
-        and ``"packed"`` (channels holding different maps); None: guess from the pixels.
+        and ``"packed"`` (channels holding different maps), and ``"picture"`` (an image bakery wrote for people
+        to look at, as its manifest says: only checked for NaN and Inf); None: guess from the pixels.
     y : {"up", "down"} or None
         The green-channel convention a normal map was written in.
     tiles : bool or None
@@ -139,6 +140,8 @@ def inspect_pixels(pixels: np.ndarray, *, bits: str, kind: str | None = None, fa
     nonfinite = _check_finite(pixels, kind)
     findings += nonfinite
     finite = _fill_nonfinite(pixels, kind) if nonfinite else pixels
+    if kind == "picture":  # an image for a screen: decoded and finite is all that matters
+        return kind, findings
     small = min(pixels.shape[:2]) < MIN_STATISTICS_SIZE
     # vector statistics and the seam score are judged on every step-th texel of large maps: the same answers
     # (curl and seams compare texels one step apart on both sides) at a fraction of the cost
@@ -566,6 +569,7 @@ def facts_from_manifest(manifest: dict, name: str) -> MapFacts | None:
     """What a bake's manifest says about its output file ``name`` (a name relative to the manifest's folder),
     or None when the manifest does not describe an image of a bake this module knows.
 
+    A manifest with ``"picture": true`` (:mod:`bakery.preview.picture`) describes a picture, whatever made it.
     Kinds follow :data:`BAKE_KINDS`, with these outputs apart: normal lengths of ``normal-mips``
     (``NAME.length.mipKK``) are masks; the bent normals of ``occlusion`` are unit vectors but not the
     gradient of a surface; the ``roughness`` bake's exponent output is data. A map made with ``edges`` other
@@ -573,6 +577,9 @@ def facts_from_manifest(manifest: dict, name: str) -> MapFacts | None:
     sphere and say nothing about tiling.
     """
     bake = manifest.get("bake")
+    if manifest.get("picture") is True:  # a picture for people to look at (bakery.preview.picture)
+        return MapFacts(kind="picture", source="manifest", bake=bake if isinstance(bake, str) else None,
+                        role="picture")
     params = manifest.get("params") if isinstance(manifest.get("params"), dict) else {}
     kind = BAKE_KINDS.get(bake) if isinstance(bake, str) else None
     if kind is None:

@@ -435,3 +435,16 @@ def test_a_stale_manifest_does_not_give_its_convention(tmp_path, capfd):
     _flip_green(down)
     _, (report,), _ = inspect_json(capfd, [down], [])
     assert "y" not in report and [f["code"] for f in report["findings"]] == ["manifest-stale"], report
+
+
+def test_a_picture_is_judged_only_for_being_finite():
+    """A picture bakery wrote for people (its manifest says ``"picture": true``): a 300x200 size is no
+    finding, NaN still is."""
+    from bakery.inspect import facts_from_manifest, inspect_pixels
+
+    facts = facts_from_manifest({"bake": "preview", "picture": True}, "shot.png")
+    assert facts.kind == "picture" and facts.source == "manifest"
+    px = np.full((200, 300, 3), 0.5, np.float32)
+    assert inspect_pixels(px, bits="8", facts=facts) == ("picture", [])
+    px[3, 4, 0] = np.nan
+    assert [f.code for f in inspect_pixels(px, bits="half", facts=facts)[1]] == ["non-finite"]
