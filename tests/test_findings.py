@@ -193,6 +193,8 @@ def case_normal_srgb(tmp):
 
 
 def case_normal_not_unit(tmp):
+    # vectors of length 0.8 (a mip level averaged without renormalising); the limits (off by over 0.03 in
+    # more than 1% of texels) are common practice
     n = cap_normals()
     return png(tmp / "short.png", encode(0.8 * n)), png(tmp / "unit.png", encode(n)), ["--kind", "normal"]
 
@@ -201,17 +203,22 @@ def case_normal_negative_z(tmp):
     n = cap_normals()
     into = n.copy()
     into[:16, :, 2] *= -1  # the top 16 rows (12.5% of the map, flat there) point into the surface
+    # (tangent-space z >= 0, glTF 2.0; the 0.1% limit is common practice)
     return png(tmp / "into.png", encode(into)), png(tmp / "out.png", encode(n)), ["--kind", "normal"]
 
 
 def case_green_y_up(tmp):
-    # a Y-up map judged against a Y-down target; the negative is the same surface stored Y-down
+    # a Y-up map judged against a Y-down target; the negative is the same surface stored Y-down. The guess
+    # rests on integrability (Frankot & Chellappa 1988, section II): the exact normals of a height field are
+    # integrable only when read in the convention they were stored in
     n = cap_normals()
     return (png(tmp / "up.png", encode(n)), png(tmp / "down.png", encode(n, y_down=True)),
             ["--kind", "normal", "--expect-y", "down"])
 
 
 def case_green_y_down(tmp):
+    # raised caps stored Y-down (g' = 1 - g): integrable read Y-down, and the relief comes out raised, so it is
+    # the green channel (not the red one) that differs from the Y-up default (glTF 2.0)
     n = cap_normals()
     return png(tmp / "down.png", encode(n, y_down=True)), png(tmp / "up.png", encode(n)), ["--kind", "normal"]
 
@@ -223,7 +230,8 @@ def case_green_unsure(tmp):
 
 
 def case_normal_x_flipped(tmp):
-    # red inverted: read with either green convention the relief is no longer raised caps everywhere
+    # red inverted (x -> -x): integrable only read with green flipped too, and then the caps come out as pits
+    # (the relief sign, docs/references.md section 19)
     n = cap_normals()
     flipped = n.copy()
     flipped[..., 0] *= -1
@@ -231,6 +239,7 @@ def case_normal_x_flipped(tmp):
 
 
 def case_normal_alpha(tmp):
+    # an alpha below 1 beside the normals (a packed height or a mask the engine may not expect)
     rgb = encode(cap_normals())
     alpha = np.ones(rgb.shape[:2] + (1,))
     opaque = np.concatenate([rgb, alpha], axis=-1)
@@ -241,7 +250,7 @@ def case_normal_alpha(tmp):
 
 def case_height_terraced(tmp):
     # a gentle smooth field (under one 8-bit level per texel) stored as 8-bit integers: runs of equal texels
-    # and single-level steps; the same field in 16 bits is smooth
+    # and single-level steps; the same field in 16 bits is smooth (the 30% / 60% limits are common practice)
     h = 0.3 + 0.1 * field(periods=(1, 1))
     return png(tmp / "h8.png", h, 8), png(tmp / "h16.png", h, 16), ["--kind", "height"]
 
@@ -260,6 +269,7 @@ def case_height_low_range(tmp):
 
 
 def case_height_colour(tmp):
+    # heights are one value per texel: an RGB file judged as heights must hold it in all three channels
     h = 0.5 + 0.3 * field(periods=(2, 1))
     grey = np.stack([h, h, h], axis=-1)
     tinted = np.stack([h, h, 1.0 - h], axis=-1)
@@ -267,12 +277,14 @@ def case_height_colour(tmp):
 
 
 def case_not_tiling(tmp):
-    # whole periods across the map wrap smoothly; 2.6 x 1.7 periods jump at the wrap edges
+    # whole periods across the map wrap smoothly; 2.6 x 1.7 periods jump at the wrap edges (seam score over
+    # 1.5: common practice)
     return (png(tmp / "crop.png", 0.5 + 0.3 * field(periods=(2.6, 1.7), phase=(0.4, 0.9))),
             png(tmp / "tile.png", 0.5 + 0.3 * field(periods=(3, 2), phase=(0.4, 0.9))), ["--kind", "height"])
 
 
 def case_non_power_of_two(tmp):
+    # 300 x 200: neither axis halves down to 1 (mip chains, Williams 1983, "Pyramidal Parametrics")
     def colour(h, w):
         return np.stack([0.5 + 0.3 * field((h, w), (2, 1)), 0.4 + 0.2 * field((h, w), (1, 3)),
                          np.full((h, w), 0.3)], axis=-1)
@@ -282,6 +294,7 @@ def case_non_power_of_two(tmp):
 
 
 def case_env_negative(tmp):
+    # radiance is never negative (a physical quantity); one texel of -0.25
     sky = panorama()
     bad = sky.copy()
     bad[40, 10, 2] = -0.25
@@ -289,6 +302,8 @@ def case_env_negative(tmp):
 
 
 def case_env_ldr(tmp):
+    # the HDR sky clipped to 1, as a low dynamic range capture stores it (a sun of 40 held as 1: common
+    # practice to call this LDR)
     sky = panorama()
     return exr(tmp / "ldr.exr", np.minimum(sky, 1.0)), exr(tmp / "sky.exr", sky), ["--kind", "environment"]
 
@@ -301,6 +316,7 @@ def case_env_clipped(tmp):
 
 
 def case_env_aspect(tmp):
+    # an equirectangular panorama spans 360 x 180 degrees: 2:1 (DEVELOPERS.md, equirectangular orientation)
     # 3:2 is neither 2:1 (equirectangular), a cube layout (4:3, 3:4, 6:1, 1:6) nor a square face
     return exr(tmp / "wide.exr", panorama(96, 64)), exr(tmp / "sky.exr", panorama(128, 64)), \
         ["--kind", "environment"]
@@ -332,7 +348,9 @@ def case_manifest_stale(tmp):
 def case_unreadable(tmp):
     whole = png(tmp / "whole.png", encode(cap_normals()))
     cut = tmp / "cut.png"
-    cut.write_bytes(whole.read_bytes()[: whole.stat().st_size // 2])  # a PNG truncated half-way
+    # a PNG truncated half-way: it lacks its IEND chunk and part of its image data (W3C, "Portable Network
+    # Graphics (PNG) Specification", 2003, section 5.6, chunk ordering: IEND comes last; section from memory)
+    cut.write_bytes(whole.read_bytes()[: whole.stat().st_size // 2])
     return cut, whole, []
 
 
