@@ -466,3 +466,16 @@ def test_a_picture_is_judged_only_for_being_finite():
     assert inspect_pixels(px, bits="8", facts=facts) == ("picture", [])
     px[3, 4, 0] = np.nan
     assert [f.code for f in inspect_pixels(px, bits="half", facts=facts)[1]] == ["non-finite"]
+
+
+@pytest.mark.parametrize("fmt, found", [("R8G8B8A8_SRGB", ["normal-srgb"]), ("R8G8B8A8_UNORM", [])])
+def test_a_normal_map_in_an_srgb_texel_format_is_the_srgb_finding(fmt, found, tmp_path, capfd):
+    """The other way a normal map gets an sRGB encoding: a KTX2 file whose texel format is an ``*_SRGB`` one,
+    which the GPU decodes through the sRGB curve on sampling (KTX 2.0 and Vulkan, VK_FORMAT_R8G8B8A8_SRGB)."""
+    from bakery.io.ktx2 import write_ktx2
+
+    rgba = np.concatenate([encode(cap_normals()), np.ones((128, 128, 1))], axis=-1).astype(np.float32)
+    path = write_ktx2(tmp_path / "n.ktx2", [rgba], fmt, cubemap=False)
+    rc, (report,), _ = inspect_json(capfd, [path], ["--kind", "normal"])
+    assert [f["code"] for f in report["findings"]] == found, report
+    assert rc == (1 if found else 0)
