@@ -203,6 +203,7 @@ def _step_specular(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]
     from bakery.io.images import write_image
     from bakery.io.ktx2 import read_ktx2
     from bakery.io.manifest import manifest_path
+    from bakery.preview.picture import picture_manifest
 
     folder = out / "envlight"
     folder.mkdir(parents=True, exist_ok=True)
@@ -212,6 +213,7 @@ def _step_specular(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]
     sheet = folder / "sky_specular_levels.png"
     rough = json.loads(manifest_path(spec).read_text())["roughness_per_level"]["roughness"]
     write_image(sheet, specular_levels_sheet(read_ktx2(spec).levels, roughness=rough), color="srgb")
+    picture_manifest(sheet, made_by="demo", inputs={"specular": spec}, params={"roughness": rough})
     lut = folder / "brdf_lut.png"
     run_bake("env-lut", {}, lut, LutParams(size=128))
     return [("specular prefiltered chain, GGX, roughness linear in mip (bakery env specular)", spec),
@@ -248,6 +250,7 @@ def _step_preview(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
     from bakery.io.images import write_image
     from bakery.preview.inputs import load_material
     from bakery.preview.lighting import lighting_from_file
+    from bakery.preview.picture import picture_manifest
     from bakery.preview.render import preview_image, turntable_frames
 
     folder = out / "preview"
@@ -256,9 +259,13 @@ def _step_preview(inputs: dict[str, Path], out: Path) -> list[tuple[str, Path]]:
     light = lighting_from_file(inputs["sky"])
     size = int(min(384, max(96, 1.5 * material.normals.shape[1])))  # follows the demo's map size
     img, _ = preview_image(material, light, size=size, env_rotation=85.0)
+    shown = {"height": inputs["height"], "exponent": inputs["exponent"], "environment": inputs["sky"]}
     still = write_image(folder / "paving.png", img, bits="8")
+    picture_manifest(still, made_by="preview", inputs=shown, params={"size": size, "rotation": 85.0})
     frames, _ = turntable_frames(material, light, 24, size=size // 2, env_rotation=85.0)
     spin = write_animation(folder / "paving_turntable.webp", frames, fps=12)
+    picture_manifest(spin, made_by="preview", inputs=shown, params={"size": size // 2, "rotation": 85.0,
+                                                                    "turntable": 24, "fps": 12})
     return [("the paving stones lit by the sky, ball and tile (bakery preview)", still),
             ("the ball turning under the sky (bakery preview --turntable 24)", spin)]
 

@@ -64,7 +64,8 @@ class MapFacts:
     kind : str or None
         One of :data:`bakery.classify.KINDS` plus ``"table"`` (a lookup table such as the split-sum BRDF
         table), ``"mask"`` (occlusion, curvature, normal lengths: data in [0, 1] with no height statistics)
-        and ``"packed"`` (channels holding different maps); None: guess from the pixels.
+        and ``"packed"`` (channels holding different maps), and ``"picture"`` (an image bakery wrote for people
+        to look at, as its manifest says: only checked for NaN and Inf); None: guess from the pixels.
     y : {"up", "down"} or None
         The green-channel convention a normal map was written in.
     tiles : bool or None
@@ -138,7 +139,9 @@ def inspect_pixels(pixels: np.ndarray, *, bits: str, kind: str | None = None, fa
     findings: list[Finding] = []
     nonfinite = _check_finite(pixels, kind)
     findings += nonfinite
-    finite = np.nan_to_num(pixels, nan=0.0, posinf=0.0, neginf=0.0) if nonfinite else pixels
+    finite = _fill_nonfinite(pixels, kind) if nonfinite else pixels
+    if kind == "picture":  # an image for a screen: decoded and finite is all that matters
+        return kind, findings
     small = min(pixels.shape[:2]) < MIN_STATISTICS_SIZE
     # vector statistics and the seam score are judged on every step-th texel of large maps: the same answers
     # (curl and seams compare texels one step apart on both sides) at a fraction of the cost
@@ -180,6 +183,16 @@ def _check_finite(pixels: np.ndarray, kind: str) -> list[Finding]:
         return [Finding("non-finite", "error", f"{nan} NaN and {inf} Inf sample(s)",
                         "repair the source; bakes refuse files holding NaN or Inf")]
     return []
+
+
+def _fill_nonfinite(pixels: np.ndarray, kind: str) -> np.ndarray:
+    """The pixels with NaN and Inf samples replaced, so the other checks judge the rest of the map: by the
+    encoded flat normal (0.5, 0.5, 1) in a normal map (a zero there would be a vector pointing into the surface
+    with slopes of 20 that drown the curl statistics), else by 0."""
+    fill = np.zeros(pixels.shape[2], np.float32)
+    if kind == "normal":
+        fill[:] = np.array([0.5, 0.5, 1.0, 1.0], np.float32)[: pixels.shape[2]]
+    return np.where(np.isfinite(pixels), pixels, fill).astype(np.float32)
 
 
 def check_size(width: int, height: int, kind: str) -> list[Finding]:
@@ -356,6 +369,11 @@ def relief_sign(n: np.ndarray, y: str = "up") -> tuple[str, float]:
     over a period). The sign is a prior, not a proof: a surface made of isolated pits in a connected plateau
     reads as inverted.
 
+    The identity holds for smooth slopes. Where the slope jumps (a sphere cap meeting the plane at an angle,
+    a bevel's edge) central differences weigh the jump by the slope on one side only and can outweigh the
+    rest of the map, so the slopes are first smoothed by one pass of the binomial kernel [1, 2, 1] / 4 along
+    each axis (common practice), which turns a kink into a ramp the identity holds for.
+
     Returns
     -------
     relief : {"raised", "sunken", "unsure"}
@@ -364,7 +382,7 @@ def relief_sign(n: np.ndarray, y: str = "up") -> tuple[str, float]:
     """
     if min(n.shape[:2]) < RELIEF_MIN_SIZE:
         return "unsure", 0.0
-    p, q = _slopes(n, y)
+    p, q = (_binomial(a) for a in _slopes(n, y))
     lap = (np.roll(p, -1, axis=1) - np.roll(p, 1, axis=1)) / 2 - (np.roll(q, -1, axis=0) - np.roll(q, 1, axis=0)) / 2
     g2 = p * p + q * q
     scale = float(np.mean(g2)) * float(np.sqrt(np.mean(lap * lap)))
@@ -380,6 +398,12 @@ def relief_sign(n: np.ndarray, y: str = "up") -> tuple[str, float]:
 #: side (a few features say little); chosen on procedural maps, common practice.
 RELIEF_LIMIT = 0.05
 RELIEF_MIN_SIZE = 64
+
+
+def _binomial(a: np.ndarray) -> np.ndarray:
+    """One pass of [1, 2, 1] / 4 along each axis, wrapping at the edges."""
+    a = (np.roll(a, 1, axis=0) + 2 * a + np.roll(a, -1, axis=0)) / 4
+    return (np.roll(a, 1, axis=1) + 2 * a + np.roll(a, -1, axis=1)) / 4
 
 
 def _slopes(n: np.ndarray, y: str) -> tuple[np.ndarray, np.ndarray]:
@@ -545,6 +569,7 @@ def facts_from_manifest(manifest: dict, name: str) -> MapFacts | None:
     """What a bake's manifest says about its output file ``name`` (a name relative to the manifest's folder),
     or None when the manifest does not describe an image of a bake this module knows.
 
+    A manifest with ``"picture": true`` (:mod:`bakery.preview.picture`) describes a picture, whatever made it.
     Kinds follow :data:`BAKE_KINDS`, with these outputs apart: normal lengths of ``normal-mips``
     (``NAME.length.mipKK``) are masks; the bent normals of ``occlusion`` are unit vectors but not the
     gradient of a surface; the ``roughness`` bake's exponent output is data. A map made with ``edges`` other
@@ -552,6 +577,9 @@ def facts_from_manifest(manifest: dict, name: str) -> MapFacts | None:
     sphere and say nothing about tiling.
     """
     bake = manifest.get("bake")
+    if manifest.get("picture") is True:  # a picture for people to look at (bakery.preview.picture)
+        return MapFacts(kind="picture", source="manifest", bake=bake if isinstance(bake, str) else None,
+                        role="picture")
     params = manifest.get("params") if isinstance(manifest.get("params"), dict) else {}
     kind = BAKE_KINDS.get(bake) if isinstance(bake, str) else None
     if kind is None:

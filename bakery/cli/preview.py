@@ -129,9 +129,16 @@ def preview(
     ev = _exposure(exposure)
     if white is not None and not white > 0:
         raise BakeryError(f"--white must be a positive luminance; got {white}")
-    inputs = [p for p in (normal, height, exponent, env, specular, diffuse, lut, lights, rough, color, metal,
-                          occlusion, pack) if isinstance(p, Path)]
-    check_distinct([output], inputs)
+    roles = {"normal": normal, "height": height, "exponent": exponent, "environment": env, "specular": specular,
+             "diffuse": diffuse, "lut": lut, "lights": lights, "roughness": rough, "color": color,
+             "metallic": metal, "occlusion": occlusion, "pack": pack}
+    roles = {role: p for role, p in roles.items() if isinstance(p, Path)}
+    from bakery.io.atomic import check_output_folder
+    from bakery.io.manifest import manifest_path
+
+    written = [output, manifest_path(output)]  # the picture and its manifest (docs/preview.md)
+    check_output_folder(written)
+    check_distinct(written, roles.values())
     limit = None  # read_image applies BAKERY_MAX_PIXELS
     target_y = None
     if profile is not None:  # checked even when --y or the manifest decides
@@ -143,6 +150,10 @@ def preview(
                              roughness=rough, exponent=exponent, base_color=color, metallic=metal,
                              occlusion=occlusion, pack=pack, pack_layout=layout, max_pixels=limit)
     lighting = choose_lighting(env, specular=specular, diffuse=diffuse, lut=lut, lights=lights)
+    settings = {"size": size, "y": green, "yaw": yaw, "pitch": pitch, "rotation": rotation, "tiles": list(tiles),
+                "exposure": exposure, "white": white, "supersample": supersample, "strength": strength,
+                "pack_layout": pack_layout, **{name: value for name, value in (
+                    ("roughness", rough), ("base_color", color), ("metallic", metal)) if not isinstance(value, Path)}}
     if anim:
         from bakery.io.animation import write_animation
         from bakery.preview.render import turntable_frames
@@ -153,6 +164,7 @@ def preview(
                                         exposure=ev, white=white,
                                         progress=lambda i: display((i + 1) / turntable, f"frame {i + 1}"))
         write_animation(output, frames, fps=fps)
+        _record(output, used, settings | {"turntable": turntable, "fps": fps}, roles)
         echo(f"wrote {output} ({turntable} frames, {size}x{size}, exposure {used:+.2f} EV)")
         return
     from bakery.io.images import write_image
@@ -162,7 +174,15 @@ def preview(
                               tiles=tiles, repeat=repeat, tile_pitch=tile_pitch, supersample=supersample,
                               exposure=ev, white=white, views=views.value)
     write_image(output, img, bits="8")
+    _record(output, used, settings | {"repeat": repeat, "tile_pitch": tile_pitch, "views": views.value}, roles)
     echo(f"wrote {output} ({img.shape[1]}x{img.shape[0]}, exposure {used:+.2f} EV)")
+
+
+def _record(output: Path, used_ev: float, settings: dict, roles: dict[str, Path]) -> None:
+    """The picture's manifest: it is a picture (``inspect`` judges it as one), what it shows and how."""
+    from bakery.preview.picture import picture_manifest
+
+    picture_manifest(output, made_by="preview", inputs=roles, params=settings | {"exposure_used": used_ev})
 
 
 def _normal_y(normal: Path | None, target_y: str | None) -> str:

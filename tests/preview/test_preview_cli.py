@@ -216,3 +216,48 @@ def test_baked_lighting_errors(baked_sky, maps):
         r = runner.invoke(app, ["preview", "-o", out, "--size", "16", *args])
         assert r.exit_code == 2 and message in r.output, (args, r.output)
     assert not (maps / "o.png").exists()
+
+
+def _inspect(path):
+    import json
+
+    r = runner.invoke(app, ["inspect", "--json", str(path)])
+    assert r.exit_code == 0, r.output
+    (report,) = json.loads(r.output)
+    return report
+
+
+@pytest.mark.parametrize("extra, name", [([], "shot.png"), (["--turntable", "3"], "spin.webp")])
+def test_preview_writes_a_manifest_that_calls_it_a_picture(maps, extra, name):
+    """A 96x48 picture is no power of two in width; as a picture bakery wrote it is judged only for being
+    decodable and finite. The same PNG without its manifest, or changed since, is judged as any image."""
+    import json
+    import shutil
+
+    out = maps / name
+    r = runner.invoke(app, ["preview", "-o", str(out), "--normal", str(maps / "n.png"), "--roughness",
+                            str(maps / "r.png"), "--size", "48", "--supersample", "1", *extra])
+    assert r.exit_code == 0, r.output
+    manifest = json.loads((maps / f"{name}.bakery.json").read_text())
+    assert manifest["picture"] is True and manifest["bake"] == "preview"
+    assert set(manifest["inputs"]) == {"normal", "roughness"} and manifest["params"]["size"] == 48
+    assert list(manifest["output_digests"]) == [name]
+    if not name.endswith(".png"):
+        return
+    report = _inspect(out)
+    assert report["kind"] == "picture" and report["from"] == "manifest" and report["findings"] == [], report
+    loose = maps / "loose" / name
+    loose.parent.mkdir()
+    shutil.copy(out, loose)
+    assert [f["code"] for f in _inspect(loose)["findings"]] == ["non-power-of-two"]
+    img = read_image(out).pixels
+    write_image(out, 1.0 - img, bits="8")  # changed after it was written: the manifest is stale
+    assert sorted(f["code"] for f in _inspect(out)["findings"]) == ["manifest-stale", "non-power-of-two"]
+
+
+def test_preview_checks_the_manifest_path_before_any_work(maps):
+    (maps / "shot.png.bakery.json").mkdir()
+    r = runner.invoke(app, ["preview", "-o", str(maps / "shot.png"), "--normal", str(maps / "n.png"),
+                            "--size", "16"])
+    assert r.exit_code == 2 and "shot.png.bakery.json" in r.output, r.output
+    assert not (maps / "shot.png").exists()
