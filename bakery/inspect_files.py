@@ -194,6 +194,12 @@ def ktx2_bits(fmt) -> str:
     return "16" if fmt.kind == "unorm" and fmt.bits == 16 else "8"
 
 
+#: Block-compressed KTX2 levels smaller than this (texels, either axis) get no seam judgement: with fewer than
+#: 8 blocks across, the jumps between 4x4 blocks outweigh the wrap edge's (seen on BC5 normal maps of tiling
+#: heights whose 16x16 level scored 1.5 while its other levels scored about 1; common practice).
+BLOCK_SEAM_MIN = 32
+
+
 def _inspect_ktx2(path: Path, name: str, facts: MapFacts, *, expect_y, kind, max_pixels) -> MapReport:
     from bakery.classify import faces_kind, map_kind
     from bakery.io.envfiles import read_ktx2_limited
@@ -217,6 +223,8 @@ def _inspect_ktx2(path: Path, name: str, facts: MapFacts, *, expect_y, kind, max
         for where, px in units:
             # levels past 0 average the normals: the integrability checks are for level 0
             lf = facts if level == 0 else dataclasses.replace(facts, gradient=False)
+            if tex.format.block is not None and min(px.shape[:2]) < BLOCK_SEAM_MIN:
+                lf = dataclasses.replace(lf, tiles=False)  # the 4x4 blocks dominate the jumps: no seam judged
             _, found = inspect_pixels(px, bits=bits, kind=kind, facts=lf, expect_y=expect_y,
                                       srgb_format=tex.format.srgb)
             for f in found:

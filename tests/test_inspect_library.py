@@ -162,3 +162,25 @@ def test_preview_refuses_a_bad_profile_even_when_the_manifest_decides(tmp_path):
     r = runner.invoke(app, ["preview", "-o", str(out), "--normal", str(normal), "--profile", str(bad)])
     assert r.exit_code == 2 and "error:" in r.output and "bad.toml" in r.output, r.output
     assert not out.exists()
+
+
+def test_small_block_compressed_levels_get_no_seam_judgement(tmp_path):
+    """A map that does not tile (a ramp across x: the wrap edge jumps the whole range) is found at every
+    level of 32 texels and more; levels under 32 of a block-compressed file are not judged (their 4x4 blocks
+    outweigh the wrap edge), while the same small level stored uncompressed still is."""
+    from bakery.io.texcompress import write_texture
+    from bakery.mips import downsample
+
+    x = np.linspace(0.0, 1.0, 64, dtype=np.float32)
+    ramp = np.repeat(np.stack([x, np.full(64, 0.5, np.float32)], -1)[None], 64, axis=0)  # (64, 64, 2)
+    levels = [ramp]
+    while levels[-1].shape[0] > 4:
+        levels.append(downsample(levels[-1]))
+    for fmt, judged in (("bc5", "level 0 (and 1 other level(s)/face(s))"), ("rg8", "level 0 (and 2 other")):
+        path = tmp_path / f"ramp_{fmt}.ktx2"
+        write_texture(path, levels, fmt, kind="data")
+        r = CliRunner().invoke(app, ["inspect", str(path), "--json", "--kind", "height"])
+        assert r.exit_code == 0, r.output
+        (rep,) = json.loads(r.output)
+        seams = [f["message"] for f in rep["findings"] if f["code"] == "not-tiling"]
+        assert len(seams) == 1 and seams[0].startswith(judged), (fmt, rep["findings"])

@@ -86,6 +86,12 @@ def test_sample_library_batch_equals_the_cli(tmp_path):
     assert {f for job in plan.jobs for f in job.files} == set(got)
     for job in plan.jobs:
         assert job.output + ".bakery.json" in job.files
+    # a clean library is clean: no finding in the batch report, none from inspect over the whole output
+    assert [f for job in report["jobs"] for f in job["findings"]] == []
+    res = CliRunner().invoke(app, ["inspect", "-r", str(baked), "--json"])
+    assert res.exit_code == 0, res.output
+    maps = json.loads(res.output)
+    assert len(maps) >= 100 and [f for m in maps for f in m["findings"]] == []
     chained = [j for j in plan.jobs if any(v.get("made_by") for v in j.inputs.values())]
     assert {j.rule for j in chained} == {"normal-chains", "roughness-chains", "orm"} and len(chained) == 27
     ktx = next(j for j in plan.jobs if j.output == "stone/cobble_normal.ktx2")
