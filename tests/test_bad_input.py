@@ -256,7 +256,7 @@ def test_folder_in_place_of_the_output(command, good, tmp_path, capfd):
     # the manifest, NAME.ext.bakery.json (a face pattern's is NAME_cube.ext.bakery.json)
     taken = out / (target.name.replace("_{face}", "_cube") + ".bakery.json")
     if command in ("sheet", "preview", "preview-env"):
-        taken = out / "o.png"  # the sheet's grid picture; the preview picture (previews have no manifest)
+        taken = out / "o.png"  # the sheet's grid picture; the preview picture itself
     taken.mkdir()
     _check(args, capfd, [taken.name], good, out)
 

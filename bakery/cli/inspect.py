@@ -77,8 +77,11 @@ def inspect(
             if i:
                 echo()
             known = f"from its manifest, bake {rep.facts.bake}" if rep.facts.source == "manifest" else ""
+            if rep.kind == "picture":
+                known = f"from its manifest, made by {rep.facts.bake}"
             notes = "; ".join(n for n in (rep.layout, known) if n)
-            echo(f"{rep.file}: {rep.kind} map{f' ({notes})' if notes else ''}, {len(rep.findings)} finding(s)")
+            what = "picture" if rep.kind == "picture" else f"{rep.kind} map"
+            echo(f"{rep.file}: {what}{f' ({notes})' if notes else ''}, {len(rep.findings)} finding(s)")
             for f in rep.findings:
                 echo(f"  [{f.severity}] {f.code}: {f.message}")
                 echo(f"      hint: {f.hint}")

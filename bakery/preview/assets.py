@@ -42,7 +42,7 @@ BAKE_KINDS = {**dict.fromkeys(NORMAL_BAKES, "normal"), "height": "height", "roug
               "env-lut": "table", "pack": "pack"}
 #: The kind :func:`bakery.inspect.inspect_pixels` judges a sheet kind as.
 INSPECT_KINDS = {"normal": "normal", "height": "height", "color": "color", "environment": "environment",
-                 "irradiance": "environment"}
+                 "irradiance": "environment", "picture": "picture"}
 
 
 @dataclass(frozen=True)
@@ -177,7 +177,7 @@ class Knowledge:
     def note(self) -> str:
         if self.bake is None:
             return "no manifest: kind guessed from the pixels"
-        bits = [f"made by {self.bake}"]
+        bits = [f"{'a picture ' if self.kind == 'picture' else ''}made by {self.bake}"]
         if self.y:
             bits.append(f"Y-{self.y}")
         if self.transfer:
@@ -201,6 +201,8 @@ def knowledge(path: str | os.PathLike) -> Knowledge:
     layout = pack_layout_from_manifest(m)
     if layout is not None:
         kind = "pack"
+    if m.get("picture") is True:  # a picture bakery made for people to look at (bakery.preview.picture)
+        kind = "picture"
     if bake == "occlusion" and ".bent." in path.name:  # the bent normals beside the occlusion
         kind = "normal"
     k = Knowledge(bake=bake, kind=kind, layout=layout)

@@ -344,6 +344,8 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=
         return Material(normals=n, roughness=0.35), "lit: normals baked from the heights (relief = width/32)"
     if kind == "table":
         return None, "a table: shown as its channels, not on a ball"
+    if kind == "picture":
+        return None, "a picture: shown as it is, not on a ball"
     if kind == "irradiance":
         return None, "irradiance: shown as crosses, not on a ball"
     return None, f"no lit preview for this kind of map ({kind})"

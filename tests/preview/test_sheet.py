@@ -97,6 +97,29 @@ def test_entries_carry_kind_size_findings_and_previews(maps, lighting):
     assert broken.thumbnail is None
 
 
+def test_a_picture_bakery_made_is_shown_as_it_is(tmp_path, lighting):
+    """A picture with its manifest (bakery.preview.picture) gets a flat card, not a ball, and none of the map
+    findings (its 300x200 size is no power of two); the same PNG without the manifest is a colour map again."""
+    from bakery.preview.picture import picture_manifest
+
+    rng = np.random.default_rng(7)
+    img = rng.random((200, 300, 3), dtype=np.float32)
+    fn = lit_previews(lighting, size=32, supersample=1)
+    for with_manifest in (True, False):
+        folder = tmp_path / str(with_manifest)
+        folder.mkdir()
+        path = write_image(folder / "look.png", img, bits="8")
+        if with_manifest:
+            picture_manifest(path, made_by="preview", inputs={}, params={})
+        e = make_entry(path, folder, thumb=48, preview=fn)
+        if with_manifest:
+            assert (e.kind, e.preview, e.preview_note) == ("picture", None, "a picture: shown as it is, not on a ball")
+            assert e.findings == [] and e.thumbnail is not None
+        else:
+            assert e.kind == "color" and e.preview is not None
+            assert "non-power-of-two" in [f.code for f in e.findings]
+
+
 def test_material_for_reads_normals_as_y_up():
     # Encoding n·0.5 + 0.5 (docs/references.md, section 1, glTF 2.0 normalTexture): (0.65, 0.70, 0.933013)
     # is (0.3, 0.4, 0.866)
