@@ -235,6 +235,12 @@ def check_blur(blur: float, rows: int, cols: int, where: Path) -> None:
                           "quarter of its shorter side)", where)
 
 
+#: Where each step of an integer ``normal`` bake starts on the progress scale, in proportion to the time it took
+#: for an 8192^2 16-bit PNG in and out (measured: read 1.8 s, strips 0.6 s, PNG write 3.9 s, manifest hashes
+#: 0.55 s), so the bar moves at an even pace.
+NORMAL_STEPS = {"strips": 0.25, "writing": 0.35, "manifest": 0.93}
+
+
 def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress: Progress) -> list[Path]:
     import numpy as np
 
@@ -247,7 +253,9 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress:
     if not ktx2:
         check_output(output)
     src = inputs["height"]
+    progress(0.0, "reading")
     h, in_bits, (lo, hi) = read_height(src, p.channel, p.stretch)
+    progress(NORMAL_STEPS["strips"], "reading")
     rows, cols = h.shape
     check_blur(p.blur, rows, cols, src)
     sx, sy = resolve_strength(h.shape, p.strength, p.relief, p.span)
@@ -278,6 +286,7 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress:
         import threading
 
         lock, done = threading.Lock(), [0]
+        start, end = NORMAL_STEPS["strips"], NORMAL_STEPS["writing"]
 
         def finish(r0: int, r1: int, block: np.ndarray) -> None:
             import threading
@@ -290,7 +299,7 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress:
             q[r0:r1] = quantize(e, bits)
             with lock:
                 done[0] += r1 - r0
-                progress(0.9 * done[0] / rows, "strips")
+                progress(start + (end - start) * done[0] / rows, "strips")
 
         blocks: dict[int, np.ndarray] = {}
 
@@ -305,16 +314,19 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress:
 
         run_strips(h, target=target, finish=finish, threads=bake_threads(), **opts)
         del h
-        progress(0.9, "writing")
-        write_image(output, q)
-        progress(1.0, "done")
+        start, end = NORMAL_STEPS["writing"], NORMAL_STEPS["manifest"]
+        progress(start, "writing")
+        write_image(output, q, threads=bake_threads(),
+                    progress=lambda f, what: progress(start + (end - start) * f, what))
     else:
         n = normal_from_height(h, threads=bake_threads(), **opts)
         del h
         write_image(output, encode_normals(n, y=p.y, channels=p.channels), bits=bits)
     extra["sample_type"] = bits
+    progress(NORMAL_STEPS["manifest"], "manifest")
     manifest = write_manifest(output, bake="normal", inputs={"height": src}, params=params_to_dict(p),
                               outputs=[output], extra=extra)
+    progress(1.0, "done")
     return [output, manifest]
 
 
