@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
-from bakery.bakes import Bake, Progress, bake_threads, level_path, one_output, params_to_dict, register
+from bakery.bakes import Bake, Progress, bake_threads, level_path, one_output, params_to_dict, register, within
 from bakery.bakes.normals import (
     HEIGHT_CHANNEL,
     KERNEL,
@@ -196,7 +196,8 @@ def run_curvature(inputs: dict[str, Path], output: Path, p: CurvatureParams, pro
     maps = curvature_maps(h, strength=(sx, sy), relief=relief, scale=p.scale, radius=p.radius, edges=p.edges,
                           kernel=p.kernel)
     chosen = maps.encoded if p.map == "curvature" else getattr(maps, p.map)
-    written = [write_image(output, chosen, bits=bits)]
+    progress(0.5, "writing")
+    written = [write_image(output, chosen, bits=bits, progress=within(progress, 0.5, 0.95), threads=bake_threads())]
     radius = p.radius if p.radius is not None else 4.0 / max(abs(sx), abs(sy)) * relief
     extra = {"map": p.map, "encoding": CURVATURE_MAPS[p.map],
              "mean_curvature": "H of the graph z = h(x, y) (do Carmo 1976, section 3-3); a dome has H < 0",

@@ -226,7 +226,10 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
                                    zstd=params.zstd, threads=bake_threads(),
                                    key_values={"bakery.roughness": target.summary})
     else:
-        write_image(output, pixels, bits=bits)  # data, never sRGB-encoded
+        from bakery.bakes import bake_threads, within
+
+        write_image(output, pixels, bits=bits, progress=within(progress, 0.35, 0.95),  # data, never sRGB-encoded
+                    threads=bake_threads())
     p = params_to_dict(params)
     p["source"] = source
     conventions = {
