@@ -120,7 +120,7 @@ def run_occlusion(inputs: dict[str, Path], output: Path, p: OcclusionParams, pro
                                 edges=p.edges, kernel=p.kernel, bent_normals=p.bent_normals,
                                 threads=bake_threads(), progress=progress)
     ao, bent = res if p.bent_normals else (res, None)
-    written = [write_image(output, ao, bits=bits)]
+    written = [write_image(output, ao, bits=bits, threads=bake_threads())]
     extra = {"meaning": "ambient occlusion: cosine-weighted visible sky over each texel, 1 = open, 0 = closed "
                         "(Jimenez et al. 2016, eq. 10, on horizons of the height field)",
              "strength_used": {"x": sx, "y": sy}, "directions": p.directions,
@@ -332,7 +332,7 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
     with contextlib.ExitStack() as stack:  # every file renamed into place only after all were written
         for level, path in zip(chain, images, strict=False):
             tmp = stack.enter_context(atomic_output(path))
-            write_image(tmp, level, bits=bits)
+            write_image(tmp, level, bits=bits, threads=bake_threads())
         if ktx2:
             levels = chain
             if fmt.srgb or fmt.is_float:  # these formats take linear colour (sRGB formats encode it on writing)
