@@ -10,7 +10,10 @@ Every speed is printed as a ratio to a floor measured in the same run, on the sa
 2. end to end: 4096^2 16-bit PNG height -> 16-bit PNG normal map through ``run_bake`` (what the CLI does), vs the
    floor "read that height PNG + write a 16-bit RGB PNG of the same size" (the same normal pixels, same codec
    and settings). Target <= 1.5x.
-3. memory: 8192^2 16-bit PNG -> 16-bit PNG normal map in a fresh process; peak resident memory from
+3. PNG write: ``bakery.io.png.write_png`` (row strips, progress per strip) of an 8192^2 16-bit RGB normal map, vs
+   the floor ``cv2.imwrite`` of the same array (OpenCV's default PNG settings), alternated in rounds; also the
+   two file sizes. Target: ratio <= 1 and size within 10 %.
+4. memory: 8192^2 16-bit PNG -> 16-bit PNG normal map in a fresh process; peak resident memory from
    ``getrusage(RUSAGE_CHILDREN).ru_maxrss``. Target < 2 GiB. ``--huge`` also runs 16384^2 (must work).
 
 Each timing is the best of a few runs (the machine is shared; best-of is the least noisy estimate); the end-to-end
@@ -28,7 +31,7 @@ import time
 from pathlib import Path
 
 import numpy as np
-from timing import best  # noqa: E402  (tests/perf/timing.py, beside this script)
+from timing import best, ratio_rounds  # noqa: E402  (tests/perf/timing.py, beside this script)
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
@@ -88,6 +91,27 @@ def bench_end_to_end(n: int, repeat: int, folder: Path) -> None:
           f"ratios {paired[len(paired) // 2]:5.2f}  (target <= 1.5)")
 
 
+def bench_png_write(n: int, folder: Path, rounds: int) -> None:
+    import cv2
+
+    from bakery.io.images import quantize
+    from bakery.io.png import write_png
+    from bakery.normals import normal_from_height
+    from bakery.normals.encode import encode_normals
+
+    q = quantize(encode_normals(normal_from_height(height_field(n), strength=16.0)), "16")
+    bgr = cv2.cvtColor(q, cv2.COLOR_RGB2BGR)  # what cv2.imwrite takes for the same file
+    ours, theirs = folder / "ours.png", folder / "cv2.png"
+    med, lo, hi, t, floor = ratio_rounds(lambda: write_png(ours, q), lambda: cv2.imwrite(str(theirs), bgr),
+                                         rounds=rounds, repeat=1)
+    size, cv_size = ours.stat().st_size, theirs.stat().st_size
+    print(f"PNG write {n}^2 16-bit RGB: strips {t:6.2f} s  floor (cv2.imwrite) {floor:6.2f} s  median ratio "
+          f"{med:5.2f} ({lo:.2f}..{hi:.2f}, {rounds} rounds; target <= 1)  size {size >> 20} MiB vs "
+          f"{cv_size >> 20} MiB, ratio {size / cv_size:5.3f} (target within 10 %)")
+    ours.unlink()
+    theirs.unlink()
+
+
 CHILD = """
 import sys, resource
 sys.path.insert(0, {root!r})
@@ -124,12 +148,17 @@ def main() -> None:
     ap.add_argument("--size", type=int, default=4096)
     ap.add_argument("--repeat", type=int, default=5)
     ap.add_argument("--huge", action="store_true", help="also 16384^2 (memory run)")
+    ap.add_argument("--only-png", action="store_true", help="only the PNG write line")
     args = ap.parse_args()
     print(f"{os.cpu_count()} CPUs, numpy {np.__version__}; load average {os.getloadavg()[0]:.2f}")
-    bench_core(args.size, args.repeat)
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
+        if args.only_png:
+            bench_png_write(8192, folder, 3)
+            return
+        bench_core(args.size, args.repeat)
         bench_end_to_end(args.size, max(5, args.repeat), folder)
+        bench_png_write(8192, folder, 3)
         bench_memory(8192, folder)
         if args.huge:
             bench_memory(16384, folder)
