@@ -16,7 +16,7 @@ thread count or on the progress callback.
 
 Compression: deflate level 1 with the run-length strategy (``Z_RLE``) and the Sub filter. That is what OpenCV
 hands libpng by default (observed: every row filtered Sub, zlib header ``78 01``); measured on an 8192^2 16-bit
-normal map it gives the same size as ``cv2.imwrite`` within 1 % (tests/perf/bench_normals.py). Run-length
+normal map it gives the same size as ``cv2.imwrite`` within 0.2 % (tests/perf/bench_normals.py). Run-length
 matches reach back one byte, so compressing strips apart costs almost nothing.
 """
 

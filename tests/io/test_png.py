@@ -173,8 +173,8 @@ def test_write_image_png_round_trips_and_reports(bits, tmp_path):
 
 
 def test_size_close_to_opencv_default(tmp_path):
-    """Same filter and deflate settings as OpenCV's default PNG write: within 1 % of its size on a smooth
-    16-bit map with noise (measured: 0.1-0.2 % smaller; the 8192^2 figure is in tests/perf/bench_normals.py)."""
+    """Same filter and deflate settings as OpenCV's default PNG write: within 0.5 % of its size on a smooth
+    16-bit map with noise (measured: 0.14 % smaller; at 8192^2 0.1 %, tests/perf/bench_normals.py)."""
     import cv2
 
     r, c = np.mgrid[0:256, 0:256].astype(np.float32)
@@ -184,7 +184,7 @@ def test_size_close_to_opencv_default(tmp_path):
     ours = write_png(tmp_path / "a.png", q).stat().st_size
     cv2.imwrite(str(tmp_path / "cv.png"), cv2.cvtColor(q, cv2.COLOR_RGB2BGR))
     theirs = (tmp_path / "cv.png").stat().st_size
-    assert abs(ours / theirs - 1) < 0.01, (ours, theirs)
+    assert abs(ours / theirs - 1) < 0.005, (ours, theirs)
 
 
 @pytest.mark.parametrize(("array", "words"), [
