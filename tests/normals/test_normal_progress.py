@@ -50,7 +50,7 @@ def test_bake_reports_within_every_step_and_ends_at_one(height, tmp_path):
     labels = [w for _, w in seen]
     assert labels[0] == "reading" and labels[-1] == "done"
     writing = [f for f, w in seen if w == "writing"]
-    assert len(writing) >= 12  # one per strip (and the step's start)
+    assert len(writing) == 13  # the step's start, then one per strip
     assert writing[0] == NORMAL_STEPS["writing"] and writing[-1] == pytest.approx(NORMAL_STEPS["manifest"])
 
 
@@ -66,3 +66,23 @@ def test_cli_prints_lines_while_writing_and_none_when_quiet(height, tmp_path, ca
     code, (out, err) = run_cli(["normal", height, "-o", tmp_path / "b.png", "--quiet"], capfd)
     assert code == 0 and err == "" and out == ""
     assert (tmp_path / "a.png").read_bytes() == (tmp_path / "b.png").read_bytes()
+
+
+@pytest.mark.parametrize(("bake", "params", "strips"), [
+    ("normal-fix", {"flip_y": True}, 12),
+    ("blend", {}, 12),
+    ("height", {}, 4),  # one 16-bit channel: 24 rows a strip
+])
+def test_other_normal_bakes_report_their_writes(bake, params, strips, height, tmp_path):
+    """Bakes whose long step is the write report it strip by strip, rising to 1."""
+    from bakery.bakes import get_bake
+
+    normal = run_bake("normal", {"height": height}, tmp_path / "n.png", NormalParams())[0]
+    inputs = {"base": normal, "detail": normal} if bake == "blend" else {"normal": normal}
+    seen = []
+    run_bake(bake, inputs, tmp_path / "out.png", get_bake(bake).params(**params),
+             progress=lambda f, w: seen.append((f, w)))
+    fractions = [f for f, _ in seen]
+    assert all(x <= y for x, y in zip(fractions, fractions[1:], strict=False)) and fractions[-1] == 1.0
+    assert seen[0] == (0.0, "reading")
+    assert len([w for _, w in seen if w == "writing"]) == strips + 1  # the step's start, then each strip
