@@ -37,6 +37,7 @@ from bakery.errors import BakeryError
 SIGNATURE = b"\x89PNG\r\n\x1a\n"
 #: PNG colour type per channel count: grey 0, RGB 2, RGBA 6 (§11.2.2).
 COLOR_TYPES = {1: 0, 3: 2, 4: 6}
+#: Deflate level and strategy: OpenCV's default PNG settings (see above).
 LEVEL = 1
 STRATEGY = zlib.Z_RLE
 #: Unfiltered bytes per strip (about): the unit of work, of progress and of an IDAT chunk.
