@@ -46,6 +46,16 @@ def no_progress(fraction: float, label: str) -> None:
     """The progress callback that reports nothing."""
 
 
+def within(progress: Progress, start: float, end: float) -> Progress:
+    """``progress`` for one step of a bake: the step's fractions 0..1 land on ``start..end`` of the bake's.
+
+    >>> seen = []
+    >>> within(lambda f, w: seen.append((f, w)), 0.5, 0.9)(0.5, "writing"); seen
+    [(0.7, 'writing')]
+    """
+    return lambda fraction, label: progress(start + (end - start) * fraction, label)
+
+
 @dataclass(frozen=True)
 class Bake:
     """One registered capability.

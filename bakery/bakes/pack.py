@@ -384,7 +384,7 @@ def run_pack(inputs: dict[str, Path], output: Path, p: PackParams, progress: Pro
     else:
         with contextlib.ExitStack() as stack:  # every level renamed into place only after all were written
             for lv, path in zip(levels, paths, strict=True):
-                write_image(stack.enter_context(atomic_output(path)), lv, bits=bits)
+                write_image(stack.enter_context(atomic_output(path)), lv, bits=bits, threads=bake_threads())
     extra = {
         "channels": described,
         "mip_rules": rules,

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
-from bakery.bakes import Bake, Progress, bake_threads, level_path, one_output, params_to_dict, register
+from bakery.bakes import Bake, Progress, bake_threads, level_path, one_output, params_to_dict, register, within
 from bakery.bakes.normals import (
     HEIGHT_CHANNEL,
     KERNEL,
@@ -120,7 +120,7 @@ def run_occlusion(inputs: dict[str, Path], output: Path, p: OcclusionParams, pro
                                 edges=p.edges, kernel=p.kernel, bent_normals=p.bent_normals,
                                 threads=bake_threads(), progress=progress)
     ao, bent = res if p.bent_normals else (res, None)
-    written = [write_image(output, ao, bits=bits)]
+    written = [write_image(output, ao, bits=bits, threads=bake_threads())]
     extra = {"meaning": "ambient occlusion: cosine-weighted visible sky over each texel, 1 = open, 0 = closed "
                         "(Jimenez et al. 2016, eq. 10, on horizons of the height field)",
              "strength_used": {"x": sx, "y": sy}, "directions": p.directions,
@@ -196,7 +196,8 @@ def run_curvature(inputs: dict[str, Path], output: Path, p: CurvatureParams, pro
     maps = curvature_maps(h, strength=(sx, sy), relief=relief, scale=p.scale, radius=p.radius, edges=p.edges,
                           kernel=p.kernel)
     chosen = maps.encoded if p.map == "curvature" else getattr(maps, p.map)
-    written = [write_image(output, chosen, bits=bits)]
+    progress(0.5, "writing")
+    written = [write_image(output, chosen, bits=bits, progress=within(progress, 0.5, 0.95), threads=bake_threads())]
     radius = p.radius if p.radius is not None else 4.0 / max(abs(sx), abs(sy)) * relief
     extra = {"map": p.map, "encoding": CURVATURE_MAPS[p.map],
              "mean_curvature": "H of the graph z = h(x, y) (do Carmo 1976, section 3-3); a dome has H < 0",
@@ -331,7 +332,7 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
     with contextlib.ExitStack() as stack:  # every file renamed into place only after all were written
         for level, path in zip(chain, images, strict=False):
             tmp = stack.enter_context(atomic_output(path))
-            write_image(tmp, level, bits=bits)
+            write_image(tmp, level, bits=bits, threads=bake_threads())
         if ktx2:
             levels = chain
             if fmt.srgb or fmt.is_float:  # these formats take linear colour (sRGB formats encode it on writing)

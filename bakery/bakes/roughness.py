@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Literal
 
-from bakery.bakes import Bake, Progress, level_path, one_output, params_to_dict, register
+from bakery.bakes import Bake, Progress, bake_threads, level_path, one_output, params_to_dict, register, within
 from bakery.bakes.params import (
     Bits,
     Channel,
@@ -216,7 +216,6 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
     quality = None
     progress(0.35, "writing")
     if ktx2:
-        from bakery.bakes import bake_threads
         from bakery.io.texcompress import build_levels, resolve_format, write_texture
 
         px = pixels if pixels.ndim == 3 else pixels[:, :, None]
@@ -226,7 +225,8 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
                                    zstd=params.zstd, threads=bake_threads(),
                                    key_values={"bakery.roughness": target.summary})
     else:
-        write_image(output, pixels, bits=bits)  # data, never sRGB-encoded
+        write_image(output, pixels, bits=bits, progress=within(progress, 0.35, 0.95),  # data, never sRGB-encoded
+                    threads=bake_threads())
     p = params_to_dict(params)
     p["source"] = source
     conventions = {
@@ -385,11 +385,10 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
         for level, path, share in zip(chain, images, shares, strict=False):
             progress(done, f"writing {path.name}")
             tmp = stack.enter_context(atomic_output(path))
-            write_image(tmp, level, bits=bits)
+            write_image(tmp, level, bits=bits, threads=bake_threads())
             done += 0.15 * share
         quality = None
         if ktx2:
-            from bakery.bakes import bake_threads
             from bakery.io.texcompress import write_texture
 
             progress(done, f"writing {output.name}")

@@ -9,7 +9,7 @@ Backends (chosen per format, never by guessing from the extension inside a libra
 ========  ==========================  ============================================
 format    read                        write
 ========  ==========================  ============================================
-PNG       OpenCV (8/16-bit, 1/3/4 ch)  OpenCV (8/16-bit, 1/3/4 ch)
+PNG       OpenCV (8/16-bit, 1/3/4 ch)  :mod:`bakery.io.png` (8/16-bit, 1/3/4 ch)
 TIFF      tifffile (+imagecodecs)      tifffile, deflate (8/16-bit, float32)
 OpenEXR   ASWF ``OpenEXR``             ``OpenEXR``, ZIP, half or float
 HDR       OpenCV (float32)             OpenCV (RGBE, Ward 1991)
@@ -29,7 +29,7 @@ import struct
 import sys
 import threading
 import warnings
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
@@ -454,6 +454,8 @@ def write_image(
     *,
     bits: Bits | None = None,
     color: Color = "data",
+    progress: Callable[[float, str], None] | None = None,
+    threads: int | None = None,
 ) -> Path:
     """Write float32 ``(H, W)`` or ``(H, W, C)`` RGB(A) pixels atomically.
 
@@ -469,6 +471,12 @@ def write_image(
         Sample type; default per format: PNG u8, TIFF u16, EXR f16, HDR (RGBE) f32.
     color : {"data", "srgb"}
         ``"srgb"`` encodes colour channels with the IEC 61966-2-1 curve before quantising (never alpha).
+    progress : callable, optional
+        ``progress(fraction, "writing")`` as the file is written, fractions rising to 1 (PNG reports once per
+        strip of rows, other formats once at the end). Default: silent. The bytes never depend on it.
+    threads : int, optional
+        Threads a PNG write may compress on (default: the CPU count; bakes pass ``bakes.bake_threads()``).
+        The bytes never depend on it.
 
     Returns
     -------
@@ -504,7 +512,12 @@ def write_image(
     if bits == "half":
         a = clamp_to_half(a, path)
     with atomic_output(path) as tmp:
-        _WRITERS[fmt](tmp, a, bits)
+        if fmt == "png":
+            _WRITERS["png"](tmp, a, bits, progress=progress, threads=threads)
+        else:
+            _WRITERS[fmt](tmp, a, bits)
+    if progress is not None and fmt != "png":
+        progress(1.0, "writing")
     return path
 
 
@@ -520,11 +533,11 @@ def quantize(a: np.ndarray, bits: Bits) -> np.ndarray:
     return out
 
 
-def _write_png(tmp: Path, a: np.ndarray, bits: str) -> None:
-    cv2 = _cv2()
-    q = _bgr_to_rgb(quantize(a, bits))  # the same swap turns RGB(A) into BGR(A)
-    if not cv2.imwrite(str(tmp), np.ascontiguousarray(q)):
-        raise BakeryError("OpenCV failed to write the PNG file", tmp)
+def _write_png(tmp: Path, a: np.ndarray, bits: str, *, progress: Callable[[float, str], None] | None = None,
+               threads: int | None = None) -> None:
+    from bakery.io.png import write_png
+
+    write_png(tmp, quantize(a, bits), progress=progress, threads=threads)
 
 
 def _write_tiff(tmp: Path, a: np.ndarray, bits: str) -> None:

@@ -41,8 +41,8 @@ def _failing_png_writer(exc):
 
     real = images._WRITERS["png"]
 
-    def write(tmp, a, bits):
-        real(tmp, a, bits)  # the data is on disk under the temporary name when the fault strikes
+    def write(tmp, a, bits, **options):
+        real(tmp, a, bits, **options)  # the data is on disk under the temporary name when the fault strikes
         raise exc
 
     return write

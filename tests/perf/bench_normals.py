@@ -2,6 +2,7 @@
 
     python tests/perf/bench_normals.py            # 4096^2 core and end to end, 8192^2 peak memory
     python tests/perf/bench_normals.py --huge     # also 16384^2 (several minutes)
+    python tests/perf/bench_normals.py --only-png # only the PNG write lines
 
 Every speed is printed as a ratio to a floor measured in the same run, on the same machine:
 
@@ -10,8 +11,11 @@ Every speed is printed as a ratio to a floor measured in the same run, on the sa
 2. end to end: 4096^2 16-bit PNG height -> 16-bit PNG normal map through ``run_bake`` (what the CLI does), vs the
    floor "read that height PNG + write a 16-bit RGB PNG of the same size" (the same normal pixels, same codec
    and settings). Target <= 1.5x.
-3. memory: 8192^2 16-bit PNG -> 16-bit PNG normal map in a fresh process; peak resident memory from
-   ``getrusage(RUSAGE_CHILDREN).ru_maxrss``. Target < 2 GiB. ``--huge`` also runs 16384^2 (must work).
+3. PNG write: ``bakery.io.png.write_png`` (row strips, progress per strip) of an 8192^2 16-bit (then 8-bit) RGB
+   normal map, vs the floor ``cv2.imwrite`` of the same array (OpenCV's default PNG settings), alternated in
+   rounds; also the two file sizes. Target: ratio <= 1 and size within 10 %.
+4. memory: 8192^2 16-bit PNG -> 16-bit PNG normal map in a fresh process; peak resident memory, its
+   ``VmHWM`` (``ru_maxrss`` where /proc is missing). Target < 2 GiB. ``--huge`` also runs 16384^2 (must work).
 
 Each timing is the best of a few runs (the machine is shared; best-of is the least noisy estimate); the end-to-end
 runs alternate floor and bake and also print the median of the paired ratios, which is steadier under load.
@@ -28,7 +32,7 @@ import time
 from pathlib import Path
 
 import numpy as np
-from timing import best  # noqa: E402  (tests/perf/timing.py, beside this script)
+from timing import best, ratio_rounds  # noqa: E402  (tests/perf/timing.py, beside this script)
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
@@ -88,13 +92,38 @@ def bench_end_to_end(n: int, repeat: int, folder: Path) -> None:
           f"ratios {paired[len(paired) // 2]:5.2f}  (target <= 1.5)")
 
 
+def bench_png_write(n: int, folder: Path, rounds: int, bits: str = "16") -> None:
+    import cv2
+
+    from bakery.io.images import quantize
+    from bakery.io.png import write_png
+    from bakery.normals import normal_from_height
+    from bakery.normals.encode import encode_normals
+
+    q = quantize(encode_normals(normal_from_height(height_field(n), strength=16.0)), bits)
+    bgr = cv2.cvtColor(q, cv2.COLOR_RGB2BGR)  # what cv2.imwrite takes for the same file
+    ours, theirs = folder / "ours.png", folder / "cv2.png"
+    med, lo, hi, t, floor = ratio_rounds(lambda: write_png(ours, q), lambda: cv2.imwrite(str(theirs), bgr),
+                                         rounds=rounds, repeat=1)
+    size, cv_size = ours.stat().st_size, theirs.stat().st_size
+    print(f"PNG write {n}^2 {bits}-bit RGB: strips {t:6.2f} s  floor (cv2.imwrite) {floor:6.2f} s  median ratio "
+          f"{med:5.2f} ({lo:.2f}..{hi:.2f}, {rounds} rounds; target <= 1)  size {size >> 20} MiB vs "
+          f"{cv_size >> 20} MiB, ratio {size / cv_size:5.3f} (target within 10 %)")
+    ours.unlink()
+    theirs.unlink()
+
+
 CHILD = """
 import sys, resource
 sys.path.insert(0, {root!r})
 from bakery.bakes import run_bake
 from bakery.bakes.normals import NormalParams
 run_bake("normal", {{"height": {src!r}}}, {out!r}, NormalParams(strength=16.0))
-print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+try:  # VmHWM starts afresh at exec; ru_maxrss keeps the forking parent's size (getrusage(2): kept across execve)
+    with open("/proc/self/status") as f:
+        print(next(line.split()[1] for line in f if line.startswith("VmHWM:")))
+except OSError:
+    print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
 """
 
 
@@ -124,12 +153,19 @@ def main() -> None:
     ap.add_argument("--size", type=int, default=4096)
     ap.add_argument("--repeat", type=int, default=5)
     ap.add_argument("--huge", action="store_true", help="also 16384^2 (memory run)")
+    ap.add_argument("--only-png", action="store_true", help="only the PNG write line")
     args = ap.parse_args()
     print(f"{os.cpu_count()} CPUs, numpy {np.__version__}; load average {os.getloadavg()[0]:.2f}")
-    bench_core(args.size, args.repeat)
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
+        if args.only_png:
+            for bits in ("16", "8"):
+                bench_png_write(8192, folder, 3, bits)
+            return
+        bench_core(args.size, args.repeat)
         bench_end_to_end(args.size, max(5, args.repeat), folder)
+        for bits in ("16", "8"):
+            bench_png_write(8192, folder, 3, bits)
         bench_memory(8192, folder)
         if args.huge:
             bench_memory(16384, folder)
