@@ -2,7 +2,8 @@
 
 Uses the procedural demo scene (bakery.samples): paving-stone heights baked to normals in memory
 (bakery.normals), exponents converted to roughness (bakery.roughness), the built-in sky. The contact-sheet
-picture is a screenshot of a sheet in headless Chromium (Debian's ``chromium`` package).
+picture is a screenshot, in headless Chromium (Debian's ``chromium`` package), of ``bakery sheet`` over the
+sample library baked by its recipe (``bakery batch``): one card per asset, KTX2 levels as strips.
 """
 
 from __future__ import annotations
@@ -19,11 +20,11 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parents[1]))
 
 from bakery.io import write_image  # noqa: E402
-from bakery.normals import encode_normals, normal_from_height  # noqa: E402
+from bakery.normals import normal_from_height  # noqa: E402
 from bakery.preview.lighting import default_lighting  # noqa: E402
 from bakery.preview.render import Material, preview_image, turntable_frames  # noqa: E402
 from bakery.roughness import roughness_from_exponent  # noqa: E402
-from bakery.samples import paving_exponent, paving_height, sky_panorama  # noqa: E402
+from bakery.samples import paving_exponent, paving_height  # noqa: E402
 
 STRENGTH = 8.0  # texels per height unit for the demo stones (our own choice)
 
@@ -51,33 +52,33 @@ def main() -> None:
     h, n, r, color = paving()
     mat = Material(normals=n, roughness=r, base_color=color)
     img, _ = preview_image(mat, light, size=320)
-    write_image(HERE / "preview_paving.png", img, depth="u8")
+    write_image(HERE / "preview_paving.png", img, bits="8")
 
     down = n * np.array([1, -1, 1], np.float32)  # what a Y-down file decodes to when read as Y-up
     a, _ = preview_image(Material(normals=n, roughness=0.35), light, size=256, views="ball")
     b, _ = preview_image(Material(normals=down, roughness=0.35), light, size=256, views="ball")
     write_image(HERE / "preview_y_conventions.png",
                 np.concatenate([label(a, "Y-up map read as Y-up"), label(b, "Y-down map read as Y-up")], 1),
-                depth="u8")
+                bits="8")
 
     frames, _ = turntable_frames(mat, light, 16, size=192)
     strip = [label(frames[i], f"spin {22.5 * i:g} deg") for i in (0, 1, 2, 3)]
-    write_image(HERE / "preview_turntable.png", np.concatenate(strip, 1), depth="u8")
+    write_image(HERE / "preview_turntable.png", np.concatenate(strip, 1), bits="8")
 
     with tempfile.TemporaryDirectory() as tmp:
-        maps = Path(tmp) / "maps"
-        maps.mkdir()
-        write_image(maps / "paving_normal.png", encode_normals(n), depth="u8")
-        write_image(maps / "paving_normal_dx.png", encode_normals(n, y="down"), depth="u8")
-        write_image(maps / "paving_rough.png", r[..., None], depth="u8")
-        write_image(maps / "paving_height.png", h[..., None], depth="u16")
-        write_image(maps / "paving_albedo.png", color, depth="u8", color="srgb")
-        write_image(maps / "paving_exponent.exr", paving_exponent(h)[..., None], depth="f16")
-        write_image(maps / "sky.hdr", sky_panorama(256))
-        from bakery.cli.preview import collect_maps, make_sheet
+        from bakery.batch import run
+        from bakery.cli import run as cli
+        from bakery.samples import library, write_library_recipe
 
+        library(Path(tmp) / "library", size=64, sky_width=128)
+        report = run(write_library_recipe(Path(tmp) / "library"), jobs=2)
+        if report.exit_code != 0:
+            sys.exit("the sample library did not bake")
         out = Path(tmp) / "sheet.html"
-        make_sheet(collect_maps([maps], out), out, source="maps", show_progress=False)
+        code = cli(["sheet", str(Path(tmp) / "library-baked"), "-o", str(out), "--title", "sample library",
+                    "--quiet"])
+        if code != 0:
+            sys.exit("bakery sheet failed")
         exe = shutil.which("chromium")
         if exe is None:
             print("chromium not installed: preview_sheet.png not rebuilt")
@@ -86,7 +87,7 @@ def main() -> None:
         profile = Path(tmp) / "profile"
         subprocess.run([exe, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
                         "--disable-background-networking", "--disable-component-update", "--disable-sync",
-                        f"--user-data-dir={profile}", "--window-size=1200,860", f"--screenshot={shot}",
+                        f"--user-data-dir={profile}", "--window-size=1280,1000", f"--screenshot={shot}",
                         out.as_uri()], check=True, capture_output=True, timeout=120)
         shutil.copyfile(shot, HERE / "preview_sheet.png")
 
