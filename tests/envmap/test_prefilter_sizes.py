@@ -45,13 +45,15 @@ def errors(value, ref, om):
     return float(rms), float(np.percentile(rel, 99))
 
 
-#: Bounds per quality: "final" (the default) holds 0.05 % relative RMS and 0.5 % at the 99th percentile;
-#: "draft" and "high" are judged at the figures docs/envlight.md states for them (measured, rounded up).
-BOUNDS = {"draft": (2e-3, 1.5e-2), "final": (5e-4, 5e-3), "high": (5e-4, 5e-3)}
+#: Bounds per quality (relative RMS, 99th percentile): "final" (the default) promises 0.05 % and 0.5 %; the
+#: bounds here are the figures measured on these panoramas (docs/envlight.md), about doubled: worst 0.010 % /
+#: 0.051 % for "final" and "high", 0.15 % / 0.97 % for "draft".
+BOUNDS = {"draft": (2e-3, 1.5e-2), "final": (2e-4, 1e-3), "high": (2e-4, 1e-3)}
 
 
 @pytest.mark.parametrize("quality", ["draft", "final", "high"])
-@pytest.mark.parametrize(("width", "size"), [(128, 64), (256, 128), (512, 256), (128, 256), (512, 64)])
+@pytest.mark.parametrize("size", [64, 128, 256])
+@pytest.mark.parametrize("width", [128, 256, 512])
 def test_any_size_against_the_brute_force(quality, width, size):
     env = sky(width)
     res = sp.prefilter_specular(env, size, quality=quality)
