@@ -438,7 +438,8 @@ def prefilter_specular(
         Roughness per level, see :func:`level_roughness`.
     lobe : {"ggx", "blinn-phong"}
     quality : {"draft", "final", "high"} or Quality
-        The quality knob (:data:`QUALITY`); "final" (default) reached 0.01 % relative RMS on the demo sky.
+        The quality knob (:data:`QUALITY`); "final" (default) reached 0.006 % relative RMS on the demo sky
+        (2048 x 1024 -> 256²).
     progress : callable, optional
         ``progress(fraction, label)``: fractions in [0, 1] that never decrease, the last exactly 1.0, with a
         short label; called within the steps (over the transform's orders, and per block of output texels
