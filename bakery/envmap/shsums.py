@@ -290,3 +290,42 @@ def legendre_block(lmax, ms, x, pmms, out):
             bb = np.sqrt(((l - 1.0) ** 2 - m * m) / (4.0 * (l - 1.0) ** 2 - 1.0))
             for j in range(nx):
                 out[i, b, j] = a * (x[j] * out[i - 1, b, j] - bb * out[i - 2, b, j])
+
+
+# --------------------------------------------------------------------- cubic convolution lookups
+
+
+@_compiled
+def cubic_lookup(src, x, y, out):
+    """Cubic convolution of ``src (H, W, C)`` at the points (``x[i]``, ``y[i]``) (column and row, texel
+    centres at integers) into ``out (N, C)`` float64, with the kernel of Keys 1981 ("Cubic convolution
+    interpolation for digital image processing", IEEE Trans. ASSP 29(6), eq. 15: a = −1/2, the choice whose
+    interpolation error is third order). Taps beyond the edges repeat the edge texel; coordinates are used
+    exactly (no fixed-point subpixel positions)."""
+    h, w, c = src.shape
+    for i in range(x.shape[0]):
+        fx = np.floor(x[i])
+        fy = np.floor(y[i])
+        tx = x[i] - fx
+        ty = y[i] - fy
+        x0 = int(fx) - 1
+        y0 = int(fy) - 1
+        wx = np.empty(4)
+        wy = np.empty(4)
+        wx[0] = 0.5 * tx * (-1.0 + tx * (2.0 - tx))
+        wx[1] = 1.0 + 0.5 * tx * tx * (-5.0 + 3.0 * tx)
+        wx[2] = 0.5 * tx * (1.0 + tx * (4.0 - 3.0 * tx))
+        wx[3] = 0.5 * tx * tx * (tx - 1.0)
+        wy[0] = 0.5 * ty * (-1.0 + ty * (2.0 - ty))
+        wy[1] = 1.0 + 0.5 * ty * ty * (-5.0 + 3.0 * ty)
+        wy[2] = 0.5 * ty * (1.0 + ty * (4.0 - 3.0 * ty))
+        wy[3] = 0.5 * ty * ty * (ty - 1.0)
+        for ch in range(c):
+            out[i, ch] = 0.0
+        for j in range(4):
+            r = min(max(y0 + j, 0), h - 1)
+            for k in range(4):
+                q = min(max(x0 + k, 0), w - 1)
+                wt = wy[j] * wx[k]
+                for ch in range(c):
+                    out[i, ch] += wt * src[r, q, ch]

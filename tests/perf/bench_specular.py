@@ -25,10 +25,11 @@ Goal: bakery "final" (the default) >= 30x less time than the baseline, at <= 0.0
 at the 99th percentile against the brute-force sum (float64).
 
 ``--grid``: inputs 512x256, 1024x512, 2048x1024, 4096x2048 (the demo sky at each width) x outputs 64², 128²,
-256², 512² at the default quality. Per pair: seconds, the baseline's seconds at that output size (measured once
-per output size, on the 2048 x 1024 input: its cost is 1024 lookups per texel whatever the input), the ratio,
-and the accuracy against the float64 brute-force sum on a random sample of texels per level (the sample shrinks
-with the input, since one reference texel of a 4096 x 2048 input sums 8 M texels; the sizes are printed).
+256², 512² at the default quality. Per pair: seconds (best of three runs), the baseline's seconds at that
+output size (measured once per output size, on the 2048 x 1024 input: its cost is 1024 lookups per texel
+whatever the input), the ratio, and the accuracy against the float64 brute-force sum on a random sample of
+texels per level (the sample shrinks with the input, since one reference texel of a 4096 x 2048 input sums
+8 M texels; the sizes are printed), with the level of the largest RMS.
 Goal per pair: the same accuracy bounds, and >= 10x faster than the baseline or under 1 s.
 """
 
@@ -121,17 +122,21 @@ def grid(quick: bool) -> None:
         karis_chain(env2048, size, rough)
         base[size] = time.perf_counter() - t
         print(f"baseline at {size}^2 (2048x1024 input): {base[size]:.2f} s", flush=True)
-    print("\ninput      output  bakery s  baseline s  ratio  rel RMS %   p99 %   window levels  ref texels/level  goal")
+    print("\ninput      output  bakery s  baseline s  ratio  rel RMS % (level)  p99 %   window levels  "
+          "ref texels/level  goal")
     ok_all = True
     for w in widths:
         env = sky_panorama(w)
         for size in sizes:
             sp.prefilter_specular(np.ones((16, 32, 3), np.float32), 8, levels=2, roughness=[0, 0.05])  # warm
-            t = time.perf_counter()
-            res = sp.prefilter_specular(env, size)
-            secs = time.perf_counter() - t
+            secs = np.inf
+            for _ in range(3):  # the best of three runs: the machine is shared
+                t = time.perf_counter()
+                res = sp.prefilter_specular(env, size)
+                secs = min(secs, time.perf_counter() - t)
             rng = np.random.default_rng(w + size)
             rms = p99 = 0.0
+            worst_k = 0
             for k in range(1, len(res.levels)):
                 s = size >> k
                 dirs = sphere.cube_directions(s, dtype=np.float64).reshape(-1, 3)
@@ -139,13 +144,16 @@ def grid(quick: bool) -> None:
                 idx = rng.choice(len(dirs), min(len(dirs), per_level[w]), replace=False)
                 ref = sp.brute_force_prefilter(env, dirs[idx], float(res.params[k]))
                 m = sp.error_metrics(res.levels[k].reshape(-1, 3)[idx], ref, om[idx])
-                rms, p99 = max(rms, float(m["rel_rms"].max())), max(p99, float(m["p99"].max()))
+                if float(m["rel_rms"].max()) > rms:
+                    rms, worst_k = float(m["rel_rms"].max()), k
+                p99 = max(p99, float(m["p99"].max()))
             ratio = base[size] / secs
             ok = rms <= 5e-4 and p99 <= 5e-3 and (ratio >= 10 or secs < 1.0)
             ok_all &= ok
             win = [k for k, d in enumerate(res.window_degrees) if d > 0]
-            print(f"{w}x{w // 2:<5d} {size:4d}^2  {secs:8.2f}  {base[size]:10.2f}  {ratio:5.1f}  {rms * 100:9.4f}  "
-                  f"{p99 * 100:6.3f}   {str(win):13s}  {per_level[w]:16d}  {'met' if ok else 'NOT met'}",
+            print(f"{w}x{w // 2:<5d} {size:4d}^2  {secs:8.2f}  {base[size]:10.2f}  {ratio:5.1f}  "
+                  f"{rms * 100:9.4f} ({worst_k})  {p99 * 100:6.3f}   {str(win):13s}  {per_level[w]:16d}  "
+                  f"{'met' if ok else 'NOT met'}",
                   flush=True)
     print(f"\ngoal (every pair: RMS <= 0.05 %, p99 <= 0.5 %, >= 10x baseline or < 1 s): "
           f"{'met' if ok_all else 'NOT met'}")
