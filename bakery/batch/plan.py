@@ -206,8 +206,8 @@ def _plan_rules(order: list[Rule], recipe: Recipe, files: list[str], settings: d
             if rel is None:  # a bake without inputs: one job
                 values, job_inputs, upstream = {"rule": rule.name}, {}, {}
             else:
-                fields = rule.match.match(rel) if rule.match is not None else {}
-                if fields is None or any(e.match(rel) is not None for e in rule.exclude):
+                fields = _fields(rule, rel)
+                if fields is None:
                     continue
                 values = _path_fields(rel, rule) | fields
                 first = bake.inputs[0].rstrip("?")
@@ -270,6 +270,15 @@ def _plan_rules(order: list[Rule], recipe: Recipe, files: list[str], settings: d
     return jobs, by_output, writers
 
 
+def _fields(rule: Rule, rel: str) -> dict[str, str] | None:
+    """The pattern fields of ``rel`` for ``rule`` (empty for ``@RULE`` alone), or None when the rule's pattern
+    does not take it or an exclude leaves it out."""
+    fields = rule.match.match(rel) if rule.match is not None else {}
+    if fields is None or any(e.match(rel) is not None for e in rule.exclude):
+        return None
+    return fields
+
+
 def _late_matches(order: list[Rule], jobs: list[Job]) -> dict[str, set[str]]:
     """Rule -> the rules after it in ``order`` whose main outputs its plain pattern matches (it must come after
     them: the plan is made again in the new order)."""
@@ -279,8 +288,7 @@ def _late_matches(order: list[Rule], jobs: list[Job]) -> dict[str, set[str]]:
         if rule.match_from is not None or rule.match is None:
             continue
         for job in jobs:
-            if position[job.rule] > position[rule.name] and rule.match.match(job.output) is not None \
-                    and not any(e.match(job.output) is not None for e in rule.exclude):
+            if position[job.rule] > position[rule.name] and _fields(rule, job.output) is not None:
                 late.setdefault(rule.name, set()).add(job.rule)
     return late
 
