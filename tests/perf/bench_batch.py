@@ -17,6 +17,8 @@ Prints, each from runs of the ``bakery batch`` command in this same session:
 as BC5 KTX2, and height -> occlusion beside it) with ``--jobs 1`` and ``--jobs 2`` and prints the speed-up
 and the idle fraction of the two workers: 1 - (sum of the job times) / (2 x the run's wall time), from the
 run report (planning and start-up count as idle).
+The commands run from this source tree with their bytecode compiled once and kept, as in an installed package
+(pip compiles modules at install); with ``PYTHONDONTWRITEBYTECODE`` every start-up would compile each module.
 The load average is printed too: the machine is shared, and other work on it shrinks every speed-up.
 The bake must take one input (its first role is the matched file) and write PNG; ``--bake`` picks another
 registered bake (e.g. ``--bake test-invert --module tests.batch.bakes_for_tests`` to check the harness).
@@ -78,12 +80,26 @@ def machine_parallelism(path: Path, n: int = 8) -> float:
     return 2 * one / two
 
 
+#: Where the child processes keep their compiled bytecode (set by main, inside its temporary folder).
+PYCACHE: Path | None = None
+
+
+def child_env() -> dict[str, str]:
+    """The environment of the measured commands: this source tree first, and bytecode compiled once and kept
+    (in a folder of this run), as an installed package has it (pip compiles the modules when it installs).
+    Without it every start-up compiles each module again and the times measure the compiler."""
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    env.pop("PYTHONDONTWRITEBYTECODE", None)
+    if PYCACHE is not None:
+        env["PYTHONPYCACHEPREFIX"] = str(PYCACHE)
+    return env
+
+
 def bakery_cmd(args: list[str], module: str | None) -> float:
     pre = f"import {module}; " if module else ""
-    code = f"{pre}from bakery.cli import app; app({args!r})"
-    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    code = f"{pre}from bakery.cli import main; main({args!r})"  # what the installed ``bakery`` command runs
     t0 = time.perf_counter()
-    r = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True)
+    r = subprocess.run([sys.executable, "-c", code], env=child_env(), capture_output=True, text=True)
     dt = time.perf_counter() - t0
     if r.returncode != 0:
         sys.exit(f"bakery {' '.join(args)} failed ({r.returncode}):\n{r.stdout}\n{r.stderr}")
@@ -92,9 +108,8 @@ def bakery_cmd(args: list[str], module: str | None) -> float:
 
 def command_time(args: list[str]) -> float:
     """Wall time of ``python -m bakery ARGS`` (the installed command's path: start-up included)."""
-    env = {**os.environ, "PYTHONPATH": str(ROOT)}
     t0 = time.perf_counter()
-    r = subprocess.run([sys.executable, "-m", "bakery", *args], env=env, capture_output=True, text=True)
+    r = subprocess.run([sys.executable, "-m", "bakery", *args], env=child_env(), capture_output=True, text=True)
     dt = time.perf_counter() - t0
     if r.returncode != 0:
         sys.exit(f"bakery {' '.join(args)} failed ({r.returncode}):\n{r.stdout}\n{r.stderr}")
@@ -152,7 +167,9 @@ def main() -> None:
     ap.add_argument("--count", type=int, default=48)
     ap.add_argument("--chained", type=int, default=0, metavar="N", help="the chained benchmark over N heights")
     args = ap.parse_args()
+    global PYCACHE
     tmp = Path(tempfile.mkdtemp(prefix="bench-batch-"))
+    PYCACHE = tmp / "pycache"
     print(f"load average at the start: {', '.join(f'{x:.1f}' for x in os.getloadavg())} on {os.cpu_count()} cores")
     if args.chained:
         try:
@@ -183,7 +200,7 @@ def main() -> None:
                 f"r = run({str(recipe)!r}); print(time.perf_counter() - t, r.ran)")
         api = []
         for _ in range(3):
-            out = subprocess.run([sys.executable, "-c", code], env={**os.environ, "PYTHONPATH": str(ROOT)},
+            out = subprocess.run([sys.executable, "-c", code], env=child_env(),
                                  capture_output=True, text=True, check=True).stdout.split()
             assert out[1] == "0", "the re-run ran jobs"
             api.append(float(out[0]))
