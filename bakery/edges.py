@@ -38,10 +38,11 @@ _CV_BORDERS = {"wrap": "BORDER_WRAP", "clamp": "BORDER_REPLICATE", "mirror": "BO
 
 
 def pad(a: np.ndarray, halo: int, edges: str) -> np.ndarray:
-    """``a`` (H, W) padded by ``halo`` texels on every side according to the edge mode (contiguous)."""
-    h, w = a.shape
+    """``a`` (H, W) or (H, W, C) with C <= 4, padded by ``halo`` texels on every side of its first two axes
+    according to the edge mode (contiguous)."""
+    h, w = a.shape[:2]
     check_edges(edges)
-    if 0 < halo < min(h, w) and a.dtype in (np.float32, np.float64):
+    if 0 < halo < min(h, w) and a.dtype in (np.float32, np.float64) and (a.ndim == 2 or a.shape[2] <= 4):
         import cv2  # one pass of copies, not two gathers
 
         return cv2.copyMakeBorder(np.ascontiguousarray(a), halo, halo, halo, halo,

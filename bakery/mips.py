@@ -120,6 +120,26 @@ def _kernel_weights(name: str, x: np.ndarray) -> np.ndarray:
     raise AssertionError(name)
 
 
+def _halve_windowed(a: np.ndarray, name: str, edges: str) -> np.ndarray:
+    """``a`` (H, W, C), both sides even, halved on both axes with the windowed-sinc filter ``name``: what
+    :func:`_resample_axis` gives for n = 2m, where every output texel sees the same taps (offsets +-1/2, +-3/2 ...
+    input texels from its centre), as one separable filter of the padded map sampled at every second texel."""
+    import cv2
+
+    from bakery.edges import pad
+
+    half = int(round(2 * COLOR_KERNELS[name][0]))  # taps at -half + 1/2 .. half - 1/2
+    w = _kernel_weights(name, (np.arange(2 * half) - half + 0.5) / 2.0)
+    k = (w / w.sum()).astype(np.float32)
+    h2, w2 = a.shape[0] // 2, a.shape[1] // 2
+    # output j = sum_t k[t] a[2j - half + 1 + t]; padded by half, that is P[2j + 1 + t], OpenCV's correlation
+    # with the anchor at the first tap, read at rows and columns 1, 3, 5 ...
+    f = cv2.sepFilter2D(pad(a, half, edges), -1, k, k, anchor=(0, 0), borderType=cv2.BORDER_CONSTANT)
+    if f.ndim == 2:
+        f = f[:, :, None]
+    return np.ascontiguousarray(f[1:2 * h2:2, 1:2 * w2:2])
+
+
 def _resample_axis(a: np.ndarray, axis: int, m: int, name: str, edges: str) -> np.ndarray:
     """Reduce ``axis`` of ``a`` from n to m texels with the windowed-sinc filter ``name``, widened by the scale
     n/m: output texel j is centred at input coordinate ``(j + 0.5) n/m - 0.5``; taps past the border fold back
@@ -502,6 +522,8 @@ def color_mips(
                 r = cv2.resize(a, (mw, mh), interpolation=cv2.INTER_AREA)
                 return r.reshape(mh, mw, C)
             return downsample(a)
+        if ah % 2 == 0 and aw % 2 == 0 and C in (1, 3, 4):
+            return _halve_windowed(a, kernel, edges)
         return np.ascontiguousarray(_resample_axis(_resample_axis(a, 0, mh, kernel, edges), 1, mw, kernel, edges))
 
     cur = first if fused else reduce(first)

@@ -15,8 +15,10 @@ NUMPY_MODES = {"wrap": "wrap", "clamp": "edge", "mirror": "symmetric"}
 @pytest.mark.parametrize("edges", sorted(NUMPY_MODES))
 @pytest.mark.parametrize("shape,halo", [((7, 9), 3), ((16, 16), 15), ((5, 40), 4), ((8, 8), 1), ((4, 6), 9)])
 @pytest.mark.parametrize("dtype", [np.float32, np.float64, np.uint16])
-def test_pad_equals_numpy_pad(edges, shape, halo, dtype):
-    a = (np.random.default_rng(0).random(shape) * 1000).astype(dtype)
+@pytest.mark.parametrize("channels", [0, 3, 4, 5])
+def test_pad_equals_numpy_pad(edges, shape, halo, dtype, channels):
+    a = (np.random.default_rng(0).random(shape + ((channels,) if channels else ())) * 1000).astype(dtype)
     got = pad(a, halo, edges)
     assert got.flags.c_contiguous and got.dtype == a.dtype
-    np.testing.assert_array_equal(got, np.pad(a, halo, mode=NUMPY_MODES[edges]))
+    width = ((halo, halo), (halo, halo)) + (((0, 0),) if channels else ())
+    np.testing.assert_array_equal(got, np.pad(a, width, mode=NUMPY_MODES[edges]))
