@@ -84,32 +84,37 @@ def _atan(t):
     return a if t <= 1.0 else 0.5 * math.pi - a
 
 
-def _add_row(acc, bent, trow, nx, ny, nz, i, j0, j1, cpsi, spsi, want_bent):
-    """Adds I(psi) of texels ``j0 <= j < j1`` of row ``i`` for the horizon tangents ``trow`` (module
-    docstring); with ``want_bent`` also the bent-normal integrals. A plain pass over contiguous rows
-    (vectorised)."""
-    for j in range(j0, j1):
-        npsi = nx[i, j] * cpsi + ny[i, j] * spsi
-        z = nz[i, j]
-        t = max(trow[j], 0.0, -npsi / z)
-        u = 1.0 / (1.0 + t * t)
-        acc[i, j] += 0.5 * (z * u + npsi * (0.5 * math.pi - _atan(t) - t * u))
-    if want_bent:
-        for j in range(j0, j1):
+def _gather(acc, bent, T, T2, nx, ny, nz, i0, i1, cpsi, spsi, two, want_bent):
+    """Adds I(psi) of rows ``i0 <= i < i1`` for the horizon tangents ``T`` (module docstring), and with
+    ``two`` I(psi + pi) for those in ``T2`` (n_psi changes sign); with ``want_bent`` also the bent-normal
+    integrals. A plain pass over contiguous planes (vectorised), the normals read once for both."""
+    W = T.shape[1]
+    for i in range(i0, i1):
+        for j in range(W):
             npsi = nx[i, j] * cpsi + ny[i, j] * spsi
             z = nz[i, j]
-            t = max(trow[j], 0.0, -npsi / z)
+            t = max(T[i, j], 0.0, -npsi / z)
             u = 1.0 / (1.0 + t * t)
-            bz, bd = _bent_terms(t, u, z, npsi)
-            bent[i, j, 0] += bd * cpsi
-            bent[i, j, 1] += bd * spsi
-            bent[i, j, 2] += bz
-
-
-def _gather(acc, bent, T, nx, ny, nz, i0, i1, cpsi, spsi, want_bent):
-    """Adds I(psi) of rows ``i0 <= i < i1`` for the horizon tangents ``T`` (texel order)."""
-    for i in range(i0, i1):
-        _add_row(acc, bent, T[i], nx, ny, nz, i, 0, T.shape[1], cpsi, spsi, want_bent)
+            a = 0.5 * (z * u + npsi * (0.5 * math.pi - _atan(t) - t * u))
+            if two:
+                t = max(T2[i, j], 0.0, npsi / z)
+                u = 1.0 / (1.0 + t * t)
+                a += 0.5 * (z * u - npsi * (0.5 * math.pi - _atan(t) - t * u))
+            acc[i, j] += a
+        if want_bent:
+            for j in range(W):
+                npsi = nx[i, j] * cpsi + ny[i, j] * spsi
+                z = nz[i, j]
+                t = max(T[i, j], 0.0, -npsi / z)
+                bz, bd = _bent_terms(t, 1.0 / (1.0 + t * t), z, npsi)
+                if two:
+                    t = max(T2[i, j], 0.0, npsi / z)
+                    bz2, bd2 = _bent_terms(t, 1.0 / (1.0 + t * t), z, -npsi)
+                    bz += bz2
+                    bd -= bd2
+                bent[i, j, 0] += bd * cpsi
+                bent[i, j, 1] += bd * spsi
+                bent[i, j, 2] += bz
 
 
 def _collect(T, src, i0, i1, kmaj, rmaj, transposed):
@@ -318,7 +323,7 @@ def _kernels() -> dict:
         # callees first: a jitted function binds the globals it calls when it is compiled
         fast = {"nsz", "arcp", "contract", "afn", "reassoc"}  # no nnan/ninf: 1/0 = inf is relied on
         g = globals()
-        for name in ("_atan", "_bent_terms", "_add_row"):
+        for name in ("_atan", "_bent_terms"):
             g[name] = jit(g[name], fastmath=fast)
         g["_walk_line"] = jit(_walk_line)
         _KERNELS = {"sweep": jit(_sweep), "gather": jit(_gather, fastmath=fast),
@@ -503,7 +508,7 @@ def occlusion_from_height(
     acc = np.zeros((H, W), np.float32)
     bent = np.zeros((H, W, 3) if bent_normals else (1, 1, 3), np.float32)
     nx, ny, nz = (np.ascontiguousarray(normals[:, :, i]) for i in range(3))
-    tan = np.empty((H, W), np.float32)
+    tan, tan2 = np.empty((H, W), np.float32), np.empty((H, W), np.float32)
     local = threading.local()
 
     def buffers(size: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -538,12 +543,13 @@ def occlusion_from_height(
     def gather_lines(i0, i1, p, Tf, Tr, two):
         for c0 in range(i0, i1, 16):  # 16 rows at a time: the horizons collected are still in cache
             c1 = min(i1, c0 + 16)
-            for T, cpsi, spsi in ((Tf, p["cpsi"], p["spsi"]), (Tr, -p["cpsi"], -p["spsi"]))[:2 if two else 1]:
-                kern["collect"](tan, T, c0, c1, p["colk"], p["rmaj"], p["transposed"])
-                kern["gather"](acc, bent, tan, nx, ny, nz, c0, c1, cpsi, spsi, bool(bent_normals))
+            kern["collect"](tan, Tf, c0, c1, p["colk"], p["rmaj"], p["transposed"])
+            if two:
+                kern["collect"](tan2, Tr, c0, c1, p["colk"], p["rmaj"], p["transposed"])
+            kern["gather"](acc, bent, tan, tan2, nx, ny, nz, c0, c1, p["cpsi"], p["spsi"], two, bool(bent_normals))
 
     def gather(i0, i1, p):
-        kern["gather"](acc, bent, tan, nx, ny, nz, i0, i1, p["cpsi"], p["spsi"], bool(bent_normals))
+        kern["gather"](acc, bent, tan, tan, nx, ny, nz, i0, i1, p["cpsi"], p["spsi"], False, bool(bent_normals))
 
     rows = [(i0, min(H, i0 + 64)) for i0 in range(0, H, 64)]
     pool = ThreadPoolExecutor(max_workers=nthreads) if nthreads > 1 else None
