@@ -194,26 +194,32 @@ def _sweep(A, T, r0, r1, nwarm, nout, colk, flk, fk, rowfold, rowbase, nmin, wra
                     T[rowfold[raw + rowbase], c] = t
 
 
-def _shear(hf, B, r0, r1, flm, fk, colk, s_min, s_maj):
-    """Wrap edges: line ``r`` (one row of ``B``), sample k is ``(1 - f) A[r + fl, col] + f A[r + fl + 1, col]``
-    (minor coordinates modulo ``nmin``), A[minor, major] the height ``hf`` (flat) with strides ``s_min`` and
-    ``s_maj``. In blocks of :data:`BLOCK` samples, so that the heights a block reads stay in cache from
-    line to line."""
-    nmin = B.shape[0]
-    nmaj = colk.shape[0]
-    for k0 in range(0, nmaj, BLOCK):
-        for r in range(r0, r1):
-            b = B[r]
-            for k in range(k0, min(nmaj, k0 + BLOCK)):
-                m0 = r + flm[k]
-                if m0 >= nmin:
-                    m0 -= nmin
-                m1 = m0 + 1
-                if m1 == nmin:
-                    m1 = 0
-                c = colk[k] * s_maj
-                f = fk[k]
-                b[k] = (np.float32(1.0) - f) * hf[m0 * s_min + c] + f * hf[m1 * s_min + c]
+def _shear(AT, BT, k0, k1, flm, fk, colk, nmin):
+    """Wrap edges: sample k of line r is ``(1 - f) A[r + fl, col] + f A[r + fl + 1, col]`` (rows modulo
+    ``nmin``). Written transposed, ``BT[k, r]`` from row ``col`` of ``AT`` (= A transposed), so each step k of
+    all the lines is a cyclic shift of one contiguous row: two plain loops that vectorise."""
+    for k in range(k0, k1):
+        a = AT[colk[k]]
+        b = BT[k]
+        sh = flm[k]
+        f = fk[k]
+        g = np.float32(1.0) - f
+        n1 = nmin - 1 - sh  # r < n1: both rows inside
+        for r in range(n1):
+            b[r] = g * a[r + sh] + f * a[r + sh + 1]
+        b[n1] = g * a[nmin - 1] + f * a[0]
+        for r in range(n1 + 1, nmin):
+            b[r] = g * a[r + sh - nmin] + f * a[r + sh + 1 - nmin]
+
+
+def _transpose(src, dst, i0, i1):
+    """``dst[j, i] = src[i, j]`` for rows ``i0 <= i < i1`` of ``src``, in tiles of 64 x 64."""
+    W = src.shape[1]
+    for a in range(i0, i1, 64):
+        for b in range(0, W, 64):
+            for j in range(b, min(W, b + 64)):
+                for i in range(a, min(i1, a + 64)):
+                    dst[j, i] = src[i, j]
 
 
 def _walk_line(B, T, nk, c0, q, nmin, j, k, count, skip, step, inv_len, stack_k, stack_y):
@@ -328,6 +334,7 @@ def _kernels() -> dict:
         g["_walk_line"] = jit(_walk_line)
         _KERNELS = {"sweep": jit(_sweep), "gather": jit(_gather, fastmath=fast),
                     "collect": jit(_collect), "shear": jit(_shear, fastmath=fast),
+                    "transpose": jit(_transpose),
                     "walk": jit(_walk)}
     return _KERNELS
 
@@ -335,12 +342,9 @@ def _kernels() -> dict:
 #: Neighbouring lines advanced together by one call of the sweep.
 LANES = 32
 
-#: Extra samples at the end of each row of the line buffers (and of the height's copy), so that a column
+#: Extra samples at the end of each row of the line buffers (and of the transposed copies), so that a column
 #: of them does not fall into one cache set when the size is a power of two.
 PAD = 16
-
-#: Samples (texels) per block of the shear and of the gather from the lines.
-BLOCK = 256
 
 #: Wrapped lines walked as one (each walk starts with a warm-up of one line: 1/64 more work).
 WALK_LINES = 64
@@ -503,6 +507,7 @@ def occlusion_from_height(
     if h.size and float(h.max()) == float(h.min()):
         warnings.warn("height map is constant: occlusion is 1 everywhere", BakeryWarning, stacklevel=2)
     normals = normal_from_height(h, strength=(sx, sy), kernel=kernel, edges=edges, threads=threads)
+    h = np.ascontiguousarray(h)
     nthreads = max(1, threads or min(8, os.cpu_count() or 1))
     kern = _kernels()
     acc = np.zeros((H, W), np.float32)
@@ -532,13 +537,15 @@ def occlusion_from_height(
         kern["walk"](B, Tf, Tr, p["nmaj"], p["tasks"], t0, t1, p["q"], p["nmin"], p["per_cycle"], p["inv_len"], two,
                      stack_k, stack_y)
 
-    padded = np.empty((H, W + PAD), np.float32)  # rows apart by other than a power of two: no cache conflicts
-    padded[:, :W] = h
-    hflat = padded.reshape(-1)
+    def transpose(i0, i1, src, dst):
+        kern["transpose"](src, dst, i0, i1)
 
-    def shear(r0, r1, p, B):
-        s_min, s_maj = (1, W + PAD) if p["transposed"] else (W + PAD, 1)  # A[minor, major] in the padded copy
-        kern["shear"](hflat, B, r0, r1, p["flm"], p["fk"], p["colk"], s_min, s_maj)
+    def padded(rows: int, cols: int) -> np.ndarray:
+        """rows apart by other than a power of two: a column does not fall into one cache set"""
+        return np.empty((rows, cols + PAD), np.float32)[:, :cols]
+
+    def shear(k0, k1, p, AT, BT):
+        kern["shear"](AT, BT, k0, k1, p["flm"], p["fk"], p["colk"], p["nmin"])
 
     def gather_lines(i0, i1, p, Tf, Tr, two):
         for c0 in range(i0, i1, 16):  # 16 rows at a time: the horizons collected are still in cache
@@ -572,26 +579,29 @@ def occlusion_from_height(
     try:
         for d, d2 in order:
             p = _plan(2.0 * math.pi * d / n, sx, sy, (H, W), edges, max_distance)
+            if hT is None:  # the height indexed [major, minor] for the azimuths along u
+                hT = padded(W, H)
+                each(transpose, rows, h, hT)
             if p["kind"] == "walk":
                 nmin, nmaj = p["nmin"], p["nmaj"]
                 if (nmin, nmaj) not in line_buffers:
-                    line_buffers[nmin, nmaj] = tuple(np.empty((nmin, nmaj + PAD), np.float32) for _ in range(3))
-                B, Tf, Tr = line_buffers[nmin, nmaj]
-                each(shear, [(r0, min(nmin, r0 + 64)) for r0 in range(0, nmin, 64)], p, B)
+                    line_buffers[nmin, nmaj] = (*(padded(nmin, nmaj).base for _ in range(3)), padded(nmaj, nmin))
+                B, Tf, Tr, BT = line_buffers[nmin, nmaj]
+                steps = [(k0, min(nmaj, k0 + 64)) for k0 in range(0, nmaj, 64)]
+                each(shear, steps, p, h if p["transposed"] else hT, BT)
+                each(transpose, steps, BT, B)
                 per = max(1, len(p["tasks"]) // (4 * nthreads))
                 each(walk, [(t0, min(len(p["tasks"]), t0 + per)) for t0 in range(0, len(p["tasks"]), per)],
                      p, B, Tf, Tr, d2 is not None)
                 each(gather_lines, rows, p, Tf, Tr, d2 is not None)
-            else:
-                import cv2
-
-                if hT is None:  # the sweeps index [minor, major]: the map as is, or transposed
-                    hT, tanT = cv2.transpose(h), np.empty((W, H), np.float32)
+            else:  # the sweeps index [minor, major]: the map as is, or transposed
+                if tanT is None:
+                    tanT = np.empty((W, H), np.float32)
                 A, T = (hT, tanT) if p["transposed"] else (h, tan)
                 each(sweep, [(r0, min(p["r_hi"], r0 + LANES)) for r0 in range(p["r_lo"], p["r_hi"], LANES)],
                      p, A, T)
                 if T is tanT:
-                    cv2.transpose(tanT, tan)
+                    each(transpose, [(i0, min(W, i0 + 64)) for i0 in range(0, W, 64)], tanT, tan)
                 each(gather, rows, p)
             for _ in range(1 if d2 is None else 2):
                 done += 1
