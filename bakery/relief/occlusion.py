@@ -28,6 +28,10 @@ closes on itself after whole periods: it is walked as one loop, from its highest
 :data:`WALK_LINES` periods long (then the horizons are exactly those of the endless tiling: nothing before the
 highest sample rises above the line to it), else in stretches of that many periods, each after one period of
 warm-up; horizons see at least one map period back, and a 2x2 tiled map gives the 2x2 tile of the result.
+The azimuths psi and psi + pi (an even number of them) share their lines: one sheared copy of the map is
+walked forward for psi and backward for psi + pi, and one pass adds both slice integrals. (The lines of
+psi + pi thus lie where those of psi do, a fraction of a texel from where its own sweep would put them: the
+same nearest-sample rule, not the same numbers.)
 With ``clamp`` or ``mirror`` each line starts one map period beyond the border (the edge texel repeated, or the
 mirror image). With ``max_distance`` the horizon is a hard cutoff: occluders farther away
 are ignored (those samples are searched one by one, O(n * distance)).
