@@ -219,6 +219,15 @@ def _shear(AT, BT, k0, k1, flm, fk, colk, nmin):
             b[r] = g * a[r + sh - nmin] + f * a[r + sh + 1 - nmin]
 
 
+def _split(normals, nx, ny, nz, i0, i1):
+    """The three components of rows ``i0 <= i < i1`` of ``normals`` (H, W, 3) as three planes."""
+    for i in range(i0, i1):
+        for j in range(normals.shape[1]):
+            nx[i, j] = normals[i, j, 0]
+            ny[i, j] = normals[i, j, 1]
+            nz[i, j] = normals[i, j, 2]
+
+
 def _transpose(src, dst, i0, i1):
     """``dst[j, i] = src[i, j]`` for rows ``i0 <= i < i1`` of ``src``, in tiles of 64 x 64."""
     W = src.shape[1]
@@ -341,7 +350,7 @@ def _kernels() -> dict:
         g["_walk_line"] = jit(_walk_line)
         _KERNELS = {"sweep": jit(_sweep), "gather": jit(_gather, fastmath=fast),
                     "collect": jit(_collect), "shear": jit(_shear, fastmath=fast),
-                    "transpose": jit(_transpose),
+                    "transpose": jit(_transpose), "split": jit(_split),
                     "walk": jit(_walk)}
     return _KERNELS
 
@@ -519,7 +528,7 @@ def occlusion_from_height(
     kern = _kernels()
     acc = np.zeros((H, W), np.float32)
     bent = np.zeros((H, W, 3) if bent_normals else (1, 1, 3), np.float32)
-    nx, ny, nz = (np.ascontiguousarray(normals[:, :, i]) for i in range(3))
+    nx, ny, nz = (np.empty((H, W), np.float32) for _ in range(3))
     tan, tan2 = np.empty((H, W), np.float32), np.empty((H, W), np.float32)
     local = threading.local()
 
@@ -584,6 +593,7 @@ def occlusion_from_height(
     hT = tanT = None
     done = 0
     try:
+        each(lambda i0, i1: kern["split"](normals, nx, ny, nz, i0, i1), rows)
         for d, d2 in order:
             p = _plan(2.0 * math.pi * d / n, sx, sy, (H, W), edges, max_distance)
             if hT is None:  # the height indexed [major, minor] for the azimuths along u
@@ -617,7 +627,8 @@ def occlusion_from_height(
     finally:
         if pool is not None:
             pool.shutdown()
-    occ = np.clip(acc * np.float32(2.0 / n), 0.0, 1.0).astype(np.float32)
+    acc *= np.float32(2.0 / n)
+    occ = np.clip(acc, np.float32(0.0), np.float32(1.0), out=acc)
     if not bent_normals:
         return occ
     length = np.sqrt(np.sum(bent * bent, axis=2, keepdims=True))
