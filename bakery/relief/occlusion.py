@@ -28,6 +28,10 @@ closes on itself after whole periods: it is walked as one loop, from its highest
 :data:`WALK_LINES` periods long (then the horizons are exactly those of the endless tiling: nothing before the
 highest sample rises above the line to it), else in stretches of that many periods, each after one period of
 warm-up; horizons see at least one map period back, and a 2x2 tiled map gives the 2x2 tile of the result.
+The azimuths psi and psi + pi (an even number of them) share their lines: one sheared copy of the map is
+walked forward for psi and backward for psi + pi, and one pass adds both slice integrals. (The lines of
+psi + pi thus lie where those of psi do, a fraction of a texel from where its own sweep would put them: the
+same nearest-sample rule, not the same numbers.)
 With ``clamp`` or ``mirror`` each line starts one map period beyond the border (the edge texel repeated, or the
 mirror image). With ``max_distance`` the horizon is a hard cutoff: occluders farther away
 are ignored (those samples are searched one by one, O(n * distance)).
@@ -68,43 +72,80 @@ from bakery.normals.kernels import DEFAULT_KERNEL
 
 
 def _atan(t):
-    """arctan(t) for t >= 0: Abramowitz & Stegun (1964) eq. 4.4.49 on [0, 1] (|error| <= 2e-8), and
+    """arctan(t) for float32 t >= 0: Abramowitz & Stegun (1964) eq. 4.4.49 on [0, 1] (|error| <= 2e-8), and
     pi/2 - arctan(1/t) above."""
-    x = min(t, 1.0 / t)
+    one = np.float32(1.0)
+    x = min(t, one / t)
     x2 = x * x
-    p = 0.0028662257
-    p = p * x2 - 0.0161657367
-    p = p * x2 + 0.0429096138
-    p = p * x2 - 0.0752896400
-    p = p * x2 + 0.1065626393
-    p = p * x2 - 0.1420889944
-    p = p * x2 + 0.1999355085
-    p = p * x2 - 0.3333314528
-    a = x * (1.0 + p * x2)
-    return a if t <= 1.0 else 0.5 * math.pi - a
+    p = np.float32(0.0028662257)
+    p = p * x2 - np.float32(0.0161657367)
+    p = p * x2 + np.float32(0.0429096138)
+    p = p * x2 - np.float32(0.0752896400)
+    p = p * x2 + np.float32(0.1065626393)
+    p = p * x2 - np.float32(0.1420889944)
+    p = p * x2 + np.float32(0.1999355085)
+    p = p * x2 - np.float32(0.3333314528)
+    a = x * (one + p * x2)
+    return a if t <= one else np.float32(0.5 * math.pi) - a
 
 
-def _gather(acc, bent, T, nx, ny, nz, i0, i1, cpsi, spsi, want_bent):
-    """Adds I(psi) of rows ``i0 <= i < i1`` for the horizon tangents ``T`` (module docstring); with
-    ``want_bent`` also the bent-normal integrals. A plain pass over contiguous planes (vectorised)."""
+def _gather(acc, bent, T, T2, nx, ny, nz, i0, i1, cpsi, spsi, two, want_bent):
+    """Adds I(psi) of rows ``i0 <= i < i1`` for the horizon tangents ``T`` (module docstring), and with
+    ``two`` I(psi + pi) for those in ``T2`` (n_psi changes sign); with ``want_bent`` also the bent-normal
+    integrals. A plain pass over contiguous planes (vectorised), the normals read once for both."""
     W = T.shape[1]
+    zero, one, half, hpi = np.float32(0.0), np.float32(1.0), np.float32(0.5), np.float32(0.5 * math.pi)
+    c32, s32 = np.float32(cpsi), np.float32(spsi)
     for i in range(i0, i1):
-        for j in range(W):
-            npsi = nx[i, j] * cpsi + ny[i, j] * spsi
+        for j in range(W):  # float32 throughout: the lanes of a vector are twice as many
+            npsi = nx[i, j] * c32 + ny[i, j] * s32
             z = nz[i, j]
-            t = max(T[i, j], 0.0, -npsi / z)
-            u = 1.0 / (1.0 + t * t)
-            acc[i, j] += 0.5 * (z * u + npsi * (0.5 * math.pi - _atan(t) - t * u))
+            t = max(T[i, j], zero, -npsi / z)
+            u = one / (one + t * t)
+            a = half * (z * u + npsi * (hpi - _atan(t) - t * u))
+            if two:
+                t = max(T2[i, j], zero, npsi / z)
+                u = one / (one + t * t)
+                a += half * (z * u - npsi * (hpi - _atan(t) - t * u))
+            acc[i, j] += a
         if want_bent:
             for j in range(W):
                 npsi = nx[i, j] * cpsi + ny[i, j] * spsi
                 z = nz[i, j]
                 t = max(T[i, j], 0.0, -npsi / z)
-                u = 1.0 / (1.0 + t * t)
-                bz, bd = _bent_terms(t, u, z, npsi)
+                bz, bd = _bent_terms(t, 1.0 / (1.0 + t * t), z, npsi)
+                if two:
+                    t = max(T2[i, j], 0.0, npsi / z)
+                    bz2, bd2 = _bent_terms(t, 1.0 / (1.0 + t * t), z, -npsi)
+                    bz += bz2
+                    bd -= bd2
                 bent[i, j, 0] += bd * cpsi
                 bent[i, j, 1] += bd * spsi
                 bent[i, j, 2] += bz
+
+
+def _collect(T, src, i0, i1, kmaj, rmaj, transposed):
+    """Wrap edges: the horizons of rows ``i0 <= i < i1`` in texel order, ``T[i, j]``, from those of the line
+    samples, ``src[line, k]``. The texel whose major coordinate is m takes sample ``k = kmaj[m]`` of the line
+    ``minor - rmaj[m]`` (modulo the minor size): the sample nearest to it."""
+    W = T.shape[1]
+    nmin = src.shape[0]
+    stride = src.shape[1]
+    flat = src.reshape(-1)
+    for i in range(i0, i1):
+        row = T[i]
+        if transposed:
+            k = kmaj[i]
+            sh = rmaj[i]
+            for j in range(sh):
+                row[j] = flat[(j - sh + nmin) * stride + k]
+            for j in range(sh, W):
+                row[j] = flat[(j - sh) * stride + k]
+        else:
+            for j in range(W):
+                line = i - rmaj[j]
+                line = line + nmin if line < 0 else line
+                row[j] = flat[line * stride + kmaj[j]]
 
 
 def _sweep(A, T, r0, r1, nwarm, nout, colk, flk, fk, rowfold, rowbase, nmin, wrap, reach, inv_len,
@@ -168,7 +209,7 @@ def _shear(AT, BT, k0, k1, flm, fk, colk, nmin):
         a = AT[colk[k]]
         b = BT[k]
         sh = flm[k]
-        f = np.float32(fk[k])
+        f = fk[k]
         g = np.float32(1.0) - f
         n1 = nmin - 1 - sh  # r < n1: both rows inside
         for r in range(n1):
@@ -178,70 +219,98 @@ def _shear(AT, BT, k0, k1, flm, fk, colk, nmin):
             b[r] = g * a[r + sh - nmin] + f * a[r + sh + 1 - nmin]
 
 
-def _unshear(TbT, TT, k0, k1, rndm, colk, nmin):
-    """Each texel takes the horizon of the line sample nearest to it: ``T[r + rnd, col] = Tb[r, k]``, written
-    transposed (``TT[col]`` is a cyclic shift of ``TbT[k]``)."""
-    for k in range(k0, k1):
-        src = TbT[k]
-        dst = TT[colk[k]]
-        sh = rndm[k]
-        for r in range(nmin - sh):
-            dst[r + sh] = src[r]
-        for r in range(nmin - sh, nmin):
-            dst[r + sh - nmin] = src[r]
+def _split(normals, nx, ny, nz, i0, i1):
+    """The three components of rows ``i0 <= i < i1`` of ``normals`` (H, W, 3) as three planes."""
+    for i in range(i0, i1):
+        for j in range(normals.shape[1]):
+            nx[i, j] = normals[i, j, 0]
+            ny[i, j] = normals[i, j, 1]
+            nz[i, j] = normals[i, j, 2]
 
 
-def _walk(B, Tb, tasks, t0, t1, q, nmin, per_cycle, inv_len, stack_k, stack_y):
-    """Wrap edges, no distance limit. Line r continues, one map period later, as line ``r + q``, and the
-    lines ``c0 + j q`` (mod nmin), ``0 <= j < per_cycle``, close into a cycle. A task walks lines
-    ``j_lo <= j < j_hi`` of a cycle as one long line and writes each sample's horizon tangent (rise over run
-    per step, times ``inv_len``). A whole cycle is walked once from its highest sample: nothing before that
-    sample can rise above the line to it, so those horizons are the exact ones of the endless tiling. Part
-    of a cycle starts with a warm-up on line ``j_lo - 1``."""
-    nk = B.shape[1]
-    for i in range(t0, t1):
-        c0 = tasks[i, 0]
-        j_lo = tasks[i, 1]
-        j_hi = tasks[i, 2]
-        whole = j_hi - j_lo == per_cycle
-        start = (j_lo - 1) * nk
-        count = (j_hi - j_lo + 1) * nk
-        if whole:
-            best = -np.inf
-            for j in range(per_cycle):
-                line = (c0 + j * q) % nmin
-                for k in range(nk):
-                    if B[line, k] > best:
-                        best = B[line, k]
-                        start = j * nk + k
-            count = per_cycle * nk
-        top = -1
-        j = start // nk
-        k = start - j * nk
+def _transpose(src, dst, i0, i1):
+    """``dst[j, i] = src[i, j]`` for rows ``i0 <= i < i1`` of ``src``, in tiles of 64 x 64."""
+    W = src.shape[1]
+    for a in range(i0, i1, 64):
+        for b in range(0, W, 64):
+            for j in range(b, min(W, b + 64)):
+                for i in range(a, min(i1, a + 64)):
+                    dst[j, i] = src[i, j]
+
+
+def _walk_line(B, T, nk, c0, q, nmin, j, k, count, skip, step, inv_len, stack_k, stack_y):
+    """Walks ``count`` samples from sample k of line ``c0 + j q`` (mod nmin), one step ``step`` (+1 or -1)
+    at a time; line ``c0 + j q`` continues as line ``c0 + (j + step) q``. Writes each sample's horizon
+    tangent after the first ``skip`` samples. The upper hull of the samples so far is the stack, its top
+    kept in ``y1, k1``."""
+    top = -1
+    y1 = 0.0
+    k1 = 0.0
+    K = 0.0
+    done = 0
+    while done < count:
         line = (c0 + j * q) % nmin
-        for K in range(count):
-            y = B[line, k]
+        b = B[line]
+        tb = T[line]
+        seg = min(nk - k if step > 0 else k + 1, count - done)
+        out = done >= skip
+        for s in range(seg):
+            kk = k + s * step
+            y = np.float64(b[kk])
             while top >= 1:
-                k1 = stack_k[top]
-                y1 = stack_y[top]
                 k0 = stack_k[top - 1]
                 y0 = stack_y[top - 1]
                 if (y1 - y0) * (K - k0) <= (y - y0) * (k1 - k0):
                     top -= 1
+                    y1 = y0
+                    k1 = k0
                 else:
                     break
-            if whole or j >= j_lo:
-                Tb[line, k] = (stack_y[top] - y) / (K - stack_k[top]) * inv_len if top >= 0 else 0.0
+            if out:
+                tb[kk] = (y1 - y) / (K - k1) * inv_len if top >= 0 else 0.0
             top += 1
             stack_k[top] = K
             stack_y[top] = y
-            k += 1
-            if k == nk:
-                k = 0
-                j += 1
-                if j == per_cycle:
-                    j = 0
-                line = (c0 + j * q) % nmin
+            y1 = y
+            k1 = K
+            K += 1.0
+        done += seg
+        j += step
+        k = 0 if step > 0 else nk - 1
+
+
+def _walk(B, Tf, Tr, nk, tasks, t0, t1, q, nmin, per_cycle, inv_len, two, stack_k, stack_y):
+    """Wrap edges, no distance limit. Line r continues, one map period later, as line ``r + q``, and the
+    lines ``c0 + j q`` (mod nmin), ``0 <= j < per_cycle``, close into a cycle. A task walks lines
+    ``j_lo <= j < j_hi`` of a cycle as one long line and writes each sample's horizon tangent (rise over run
+    per step, times ``inv_len``) into ``Tf``; with ``two`` it walks them backward too, into ``Tr`` (the
+    azimuth psi + pi). A whole cycle is walked from its highest sample: nothing before that sample can rise
+    above the line to it, so those horizons are the exact ones of the endless tiling. Part of a cycle starts
+    with a warm-up on the line before it (after it, backward). Lines are the first ``nk`` samples of the
+    rows of ``B``."""
+    for i in range(t0, t1):
+        c0 = tasks[i, 0]
+        j_lo = tasks[i, 1]
+        j_hi = tasks[i, 2]
+        if j_hi - j_lo == per_cycle:
+            best = -np.inf
+            start = 0
+            for j in range(per_cycle):
+                b = B[(c0 + j * q) % nmin]
+                for k in range(nk):
+                    if b[k] > best:
+                        best = b[k]
+                        start = j * nk + k
+            js = start // nk
+            ks = start - js * nk
+            _walk_line(B, Tf, nk, c0, q, nmin, js, ks, per_cycle * nk, 0, 1, inv_len, stack_k, stack_y)
+            if two:
+                _walk_line(B, Tr, nk, c0, q, nmin, js, ks, per_cycle * nk, 0, -1, inv_len, stack_k, stack_y)
+        else:
+            count = (j_hi - j_lo + 1) * nk
+            _walk_line(B, Tf, nk, c0, q, nmin, j_lo - 1, 0, count, nk, 1, inv_len, stack_k, stack_y)
+            if two:
+                _walk_line(B, Tr, nk, c0, q, nmin, j_hi, nk - 1, count, nk, -1, inv_len, stack_k, stack_y)
 
 
 def _bent_terms(t, u, nz, npsi):
@@ -261,7 +330,7 @@ _KERNELS: dict | None = None
 
 def _kernels() -> dict:
     """The sweeps compiled by numba (imported here, on first use: it costs ~0.4 s)."""
-    global _KERNELS, _atan, _bent_terms
+    global _KERNELS
     if _KERNELS is None:
         from bakery.jit import numba
 
@@ -275,16 +344,23 @@ def _kernels() -> dict:
 
         # callees first: a jitted function binds the globals it calls when it is compiled
         fast = {"nsz", "arcp", "contract", "afn", "reassoc"}  # no nnan/ninf: 1/0 = inf is relied on
-        _atan = jit(_atan, fastmath=fast)
-        _bent_terms = jit(_bent_terms, fastmath=fast)
+        g = globals()
+        for name in ("_atan", "_bent_terms"):
+            g[name] = jit(g[name], fastmath=fast)
+        g["_walk_line"] = jit(_walk_line)
         _KERNELS = {"sweep": jit(_sweep), "gather": jit(_gather, fastmath=fast),
-                    "shear": jit(_shear, fastmath=fast),
-                    "unshear": jit(_unshear), "walk": jit(_walk)}
+                    "collect": jit(_collect), "shear": jit(_shear, fastmath=fast),
+                    "transpose": jit(_transpose), "split": jit(_split),
+                    "walk": jit(_walk)}
     return _KERNELS
 
 
 #: Neighbouring lines advanced together by one call of the sweep.
 LANES = 32
+
+#: Extra samples at the end of each row of the line buffers (and of the transposed copies), so that a column
+#: of them does not fall into one cache set when the size is a power of two.
+PAD = 16
 
 #: Wrapped lines walked as one (each walk starts with a warm-up of one line: 1/64 more work).
 WALK_LINES = 64
@@ -338,9 +414,10 @@ def _plan(psi: float, sx: float, sy: float, shape: tuple[int, int], edges: str, 
         g = math.gcd(abs(q), nmin)
         per_cycle = nmin // g
         tasks = [(c0, j0, min(per_cycle, j0 + WALK_LINES)) for c0 in range(g) for j0 in range(0, per_cycle, WALK_LINES)]
-        plan.update(kind="walk", colk=(k if sgn > 0 else nmaj - 1 - k).astype(np.int64),
-                    flm=np.mod(fl, nmin).astype(np.int64), fk=fk, rndm=np.mod(rnd, nmin).astype(np.int64),
-                    tasks=np.array(tasks, np.int64), nwarm=nmaj, per_cycle=per_cycle)
+        colk = (k if sgn > 0 else nmaj - 1 - k).astype(np.int64)  # its own inverse: major coordinate -> k
+        plan.update(kind="walk", colk=colk, flm=np.mod(fl, nmin).astype(np.int64), fk=fk.astype(np.float32),
+                    rmaj=np.mod(rnd, nmin).astype(np.int64)[colk], tasks=np.array(tasks, np.int64),
+                    per_cycle=per_cycle)
         return plan
     if max_distance is None:
         nwarm, reach = nmaj, 0
@@ -423,8 +500,8 @@ def occlusion_from_height(
     >>> x = np.arange(64, dtype=np.float32)
     >>> groove = np.minimum(np.abs(x - 32), 20)[None, :].repeat(16, axis=0)  # 1 height unit per texel
     >>> ao = occlusion_from_height(groove, strength=1.0, directions=64)
-    >>> round(float(ao[8, 32]), 3), round(float(ao[8, 0]), 3)
-    (0.707, 1.0)
+    >>> round(float(ao[8, 32]), 2), round(float(ao[8, 0]), 3)
+    (0.71, 1.0)
     """
     from bakery.normals.from_height import _as_height, normal_from_height
 
@@ -446,12 +523,13 @@ def occlusion_from_height(
     if h.size and float(h.max()) == float(h.min()):
         warnings.warn("height map is constant: occlusion is 1 everywhere", BakeryWarning, stacklevel=2)
     normals = normal_from_height(h, strength=(sx, sy), kernel=kernel, edges=edges, threads=threads)
+    h = np.ascontiguousarray(h)
     nthreads = max(1, threads or min(8, os.cpu_count() or 1))
     kern = _kernels()
     acc = np.zeros((H, W), np.float32)
     bent = np.zeros((H, W, 3) if bent_normals else (1, 1, 3), np.float32)
-    nx, ny, nz = (np.ascontiguousarray(normals[:, :, i]) for i in range(3))
-    tan = np.empty((H, W), np.float32)
+    nx, ny, nz = (np.empty((H, W), np.float32) for _ in range(3))
+    tan, tan2 = np.empty((H, W), np.float32), np.empty((H, W), np.float32)
     local = threading.local()
 
     def buffers(size: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -466,16 +544,35 @@ def occlusion_from_height(
         kern["sweep"](A, T, r0, r1, p["nwarm"], p["nmaj"], p["colk"], p["flk"], p["fk"], p["rowfold"],
                       p["rowbase"], p["nmin"], edges == "wrap", p["reach"], p["inv_len"], *buffers(size))
 
-    lines = {}
-
-    def walk(t0, t1, p, B, Tb):
+    def walk(t0, t1, p, B, Tf, Tr, two):
         size = (WALK_LINES + 1) * p["nmaj"] + 1
-        stack_k, stack_y, _ = buffers(size)
-        kern["walk"](B, Tb, p["tasks"], t0, t1, p["q"], p["nmin"], p["per_cycle"], p["inv_len"], stack_k[0],
-                     stack_y[0])
+        stacks = getattr(local, "stacks", None)
+        if stacks is None or stacks.shape[1] < size:
+            stacks = local.stacks = np.empty((2, size), np.float64)
+        stack_k, stack_y = stacks
+        kern["walk"](B, Tf, Tr, p["nmaj"], p["tasks"], t0, t1, p["q"], p["nmin"], p["per_cycle"], p["inv_len"], two,
+                     stack_k, stack_y)
+
+    def transpose(i0, i1, src, dst):
+        kern["transpose"](src, dst, i0, i1)
+
+    def padded(rows: int, cols: int) -> np.ndarray:
+        """rows apart by other than a power of two: a column does not fall into one cache set"""
+        return np.empty((rows, cols + PAD), np.float32)[:, :cols]
+
+    def shear(k0, k1, p, AT, BT):
+        kern["shear"](AT, BT, k0, k1, p["flm"], p["fk"], p["colk"], p["nmin"])
+
+    def gather_lines(i0, i1, p, Tf, Tr, two):
+        for c0 in range(i0, i1, 16):  # 16 rows at a time: the horizons collected are still in cache
+            c1 = min(i1, c0 + 16)
+            kern["collect"](tan, Tf, c0, c1, p["colk"], p["rmaj"], p["transposed"])
+            if two:
+                kern["collect"](tan2, Tr, c0, c1, p["colk"], p["rmaj"], p["transposed"])
+            kern["gather"](acc, bent, tan, tan2, nx, ny, nz, c0, c1, p["cpsi"], p["spsi"], two, bool(bent_normals))
 
     def gather(i0, i1, p):
-        kern["gather"](acc, bent, tan, nx, ny, nz, i0, i1, p["cpsi"], p["spsi"], bool(bent_normals))
+        kern["gather"](acc, bent, tan, tan, nx, ny, nz, i0, i1, p["cpsi"], p["spsi"], False, bool(bent_normals))
 
     rows = [(i0, min(H, i0 + 64)) for i0 in range(0, H, 64)]
     pool = ThreadPoolExecutor(max_workers=nthreads) if nthreads > 1 else None
@@ -488,48 +585,50 @@ def occlusion_from_height(
             for f in [pool.submit(fn, a, b, *args) for a, b in ranges]:
                 f.result()
 
-    import cv2
-
-    # The sweeps index [minor, major]: the map as is, or transposed (one contiguous copy, made once); the
-    # horizons of a transposed sweep go to a transposed buffer, turned back by one blocked transpose.
-    hT = cv2.transpose(h)
-    tanT = np.empty((W, H), np.float32)
-
+    # Azimuths psi and psi + pi sweep the same lines in opposite orders: with wrap edges and no limit one
+    # sheared copy serves both, walked forward and backward.
+    paired = edges == "wrap" and max_distance is None and n % 2 == 0
+    order = [(d, d + n // 2) for d in range(n // 2)] if paired else [(d, None) for d in range(n)]
+    line_buffers = {}
+    hT = tanT = None
+    done = 0
     try:
-        for d in range(n):
+        each(lambda i0, i1: kern["split"](normals, nx, ny, nz, i0, i1), rows)
+        for d, d2 in order:
             p = _plan(2.0 * math.pi * d / n, sx, sy, (H, W), edges, max_distance)
-            A, AT, T, TT = (hT, h, tanT, tan) if p["transposed"] else (h, hT, tan, tanT)
+            if hT is None:  # the height indexed [major, minor] for the azimuths along u
+                hT = padded(W, H)
+                each(transpose, rows, h, hT)
             if p["kind"] == "walk":
                 nmin, nmaj = p["nmin"], p["nmaj"]
-                if p["transposed"] not in lines:
-                    lines[p["transposed"]] = (np.empty((nmaj, nmin), np.float32),
-                                              np.empty((nmin, nmaj), np.float32),
-                                              np.empty((nmin, nmaj), np.float32))
-                BT, B, Tb = lines[p["transposed"]]
+                if (nmin, nmaj) not in line_buffers:
+                    line_buffers[nmin, nmaj] = (*(padded(nmin, nmaj).base for _ in range(3)), padded(nmaj, nmin))
+                B, Tf, Tr, BT = line_buffers[nmin, nmaj]
                 steps = [(k0, min(nmaj, k0 + 64)) for k0 in range(0, nmaj, 64)]
-                each(lambda k0, k1, AT=AT, BT=BT, p=p: kern["shear"](AT, BT, k0, k1, p["flm"], p["fk"],
-                                                                     p["colk"], p["nmin"]), steps)
-                cv2.transpose(BT, B)
+                each(shear, steps, p, h if p["transposed"] else hT, BT)
+                each(transpose, steps, BT, B)
                 per = max(1, len(p["tasks"]) // (4 * nthreads))
                 each(walk, [(t0, min(len(p["tasks"]), t0 + per)) for t0 in range(0, len(p["tasks"]), per)],
-                     p, B, Tb)
-                cv2.transpose(Tb, BT)
-                each(lambda k0, k1, TT=TT, BT=BT, p=p: kern["unshear"](BT, TT, k0, k1, p["rndm"], p["colk"],
-                                                                       p["nmin"]), steps)
-                if TT is tanT:
-                    cv2.transpose(tanT, tan)
-            else:
+                     p, B, Tf, Tr, d2 is not None)
+                each(gather_lines, rows, p, Tf, Tr, d2 is not None)
+            else:  # the sweeps index [minor, major]: the map as is, or transposed
+                if tanT is None:
+                    tanT = np.empty((W, H), np.float32)
+                A, T = (hT, tanT) if p["transposed"] else (h, tan)
                 each(sweep, [(r0, min(p["r_hi"], r0 + LANES)) for r0 in range(p["r_lo"], p["r_hi"], LANES)],
                      p, A, T)
                 if T is tanT:
-                    cv2.transpose(tanT, tan)
-            each(gather, rows, p)
-            if progress is not None:
-                progress((d + 1) / n, f"occlusion: azimuth {d + 1} of {n}")
+                    each(transpose, [(i0, min(W, i0 + 64)) for i0 in range(0, W, 64)], tanT, tan)
+                each(gather, rows, p)
+            for _ in range(1 if d2 is None else 2):
+                done += 1
+                if progress is not None:
+                    progress(done / n, f"occlusion: azimuth {done} of {n}")
     finally:
         if pool is not None:
             pool.shutdown()
-    occ = np.clip(acc * np.float32(2.0 / n), 0.0, 1.0).astype(np.float32)
+    acc *= np.float32(2.0 / n)
+    occ = np.clip(acc, np.float32(0.0), np.float32(1.0), out=acc)
     if not bent_normals:
         return occ
     length = np.sqrt(np.sum(bent * bent, axis=2, keepdims=True))
