@@ -28,6 +28,7 @@ import numpy as np
 
 from bakery.errors import BakeryError
 from bakery.io import ktx2 as K
+from bakery.progress import Progress, maybe_within
 
 KINDS = ("color", "data", "normal", "hdr")
 #: Texels per level read by the quality report before it samples rows of blocks (common practice).
@@ -153,7 +154,8 @@ def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *,
                   zstd: int | None = None, threads: int | None = None,
                   key_values: dict[str, bytes | str] | None = None, report: bool = True,
                   report_texels: int | None = REPORT_TEXELS,
-                  where: str | os.PathLike | None = None) -> CompressedKtx2:
+                  where: str | os.PathLike | None = None,
+                  progress: Progress | None = None) -> CompressedKtx2:
     """KTX2 bytes of ``source`` (float32 level 0 or a list of levels) in ``fmt`` with an optional quality report.
 
     Parameters
@@ -176,6 +178,9 @@ def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *,
         Measure every level against its float data (:mod:`bakery.quality`).
     report_texels : int or None
         Texels per level the report reads before sampling rows of blocks (None: all).
+    progress : callable, optional
+        ``progress(fraction, label)``, rising to 1: encoding strip by strip of block rows
+        (:func:`bakery.io.ktx2.encode_levels`), then Zstandard and the report. The bytes do not depend on it.
     """
     from bakery.io import blockcodec
     from bakery.quality import summary_line
@@ -202,7 +207,8 @@ def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *,
         enc_levels = [lv[..., :2] for lv in levels]
     w, h = K.check_levels(enc_levels, cubemap)
     counts: dict[str, int] = {}
-    payloads = K.encode_levels(enc_levels, fmt, quality=quality, threads=threads, counts=counts)
+    payloads = K.encode_levels(enc_levels, fmt, quality=quality, threads=threads, counts=counts,
+                               progress=maybe_within(progress, 0.0, 0.85))
     kv: dict[str, bytes | str] = {}
     if fmt.block is not None:
         kv[ENCODER_KEY] = f"{blockcodec.encoder_version()} {quality}"
@@ -210,6 +216,8 @@ def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *,
         kv[NORMAL_KEY] = NORMAL_XY_VALUE
     kv.update(key_values or {})
     data = K.assemble_ktx2(payloads, fmt, w, h, cubemap=cubemap, key_values=kv, zstd=zstd)
+    if progress is not None:
+        progress(0.9 if report else 1.0, "encoding")
     rep = summary = None
     if report:
         rep = {"format": fmt.short_name, "vk_format": fmt.name, "kind": kind,
@@ -218,6 +226,8 @@ def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *,
                "report_texels": report_texels,
                "levels": _report(fmt, kind, enc_levels, payloads, cubemap, report_texels)}
         summary = summary_line(rep)
+        if progress is not None:
+            progress(1.0, "quality report")
     return CompressedKtx2(data, fmt, levels, rep, summary, counts)
 
 
@@ -254,17 +264,20 @@ def resolve_format(name: str, kind: str, channels: int = 1) -> K.Format:
 
 def write_texture(path: str | os.PathLike, levels: list[np.ndarray], fmt: K.Format | str, *, kind: str,
                   cubemap: bool = False, key_values: dict[str, bytes | str] | None = None, effort: str = "fast",
-                  zstd: int | None = None, threads: int | None = None) -> tuple[Path, dict | None]:
+                  zstd: int | None = None, threads: int | None = None,
+                  progress: Progress | None = None) -> tuple[Path, dict | None]:
     """Write ``levels`` (float32, level 0 first, every level given) as KTX2 in ``fmt``: block formats and
     Zstandard through :func:`write_compressed_ktx2` with a quality report, others with
     :func:`bakery.io.ktx2.write_ktx2`. Returns the path and ``{"format", "summary", "levels": [...]}`` (the
-    report) or None for an uncompressed file."""
+    report) or None for an uncompressed file. ``progress(fraction, label)`` rises to 1 as it goes (block
+    formats: per strip of block rows)."""
     fmt = K.get_format(fmt) if isinstance(fmt, str | int) else fmt
     path = Path(path)
     if fmt.block is None and zstd is None:
-        return K.write_ktx2(path, levels, fmt, cubemap=cubemap, key_values=key_values), None
+        return K.write_ktx2(path, levels, fmt, cubemap=cubemap, key_values=key_values, progress=progress), None
     res = write_compressed_ktx2(path, list(levels), fmt, kind=kind, cubemap=cubemap, quality=effort, zstd=zstd,
-                                threads=threads, key_values=key_values, report=fmt.block is not None)
+                                threads=threads, key_values=key_values, report=fmt.block is not None,
+                                progress=progress)
     if res.report is None:
         return path, None
     return path, {"format": fmt.short_name, "summary": res.summary, "report": res.report}

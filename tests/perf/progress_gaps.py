@@ -14,9 +14,9 @@ under the system temporary folder) and reused by later runs. Not collected by py
 from __future__ import annotations
 
 import argparse
-import warnings
 import tempfile
 import time
+import warnings
 from pathlib import Path
 
 import numpy as np
