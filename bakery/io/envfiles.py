@@ -24,6 +24,7 @@ import numpy as np
 
 from bakery.errors import BakeryError, BakeryWarning
 from bakery.io import layouts as L
+from bakery.progress import Progress, maybe_within
 
 LAYOUTS = ("equirect", "cross-wide", "cross-tall", "row", "stack", "files", "ktx2")
 HALF_MAX = 65504.0
@@ -219,7 +220,7 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
                       bits: str | None = None, source_bits: str = "float", ktx_format: str | None = None,
                       mips: list[np.ndarray] | None = None, key_values: dict[str, str] | None = None,
                       effort: str = "fast", zstd: int | None = None, threads: int | None = None,
-                      quality: dict | None = None) -> list[Path]:
+                      quality: dict | None = None, progress: Progress | None = None) -> list[Path]:
     """Write a cube ``(6, N, N, C)`` or panorama ``(H, W, C)`` in a layout; returns the written paths.
 
     ``layout`` defaults from the path (pattern -> faces, .ktx2 -> ktx2) or the kind (cube -> cross-wide,
@@ -227,6 +228,8 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
     to temporary names first and renamed only when every one succeeded. Block-compressed and supercompressed
     KTX2 formats (``ktx_format`` ``bc6h``, ``compressed``, or ``zstd``) go through
     :func:`bakery.io.texcompress.write_texture`; its quality report lands in ``quality[file name]``.
+    ``progress(fraction, label)`` rises to 1 as it writes (PNG per strip of rows, KTX2 block formats per strip
+    of block rows, faces one by one); the bytes do not depend on it.
     """
     from bakery.io.atomic import atomic_output
     from bakery.io.images import write_image
@@ -253,7 +256,7 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
         p = Path(path)
         kind = "hdr" if fmt.is_float else "color" if fmt.srgb else "data"
         _, q = write_texture(p, levels, fmt, kind=kind, cubemap=(lay == "ktx2"), key_values=key_values,
-                             effort=effort, zstd=zstd, threads=threads)
+                             effort=effort, zstd=zstd, threads=threads, progress=progress)
         if q and quality is not None:
             quality[p.name] = q
         return [p]
@@ -263,14 +266,15 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
         faces = list(_prepare_image(path, np.asarray(pixels), d))
         with contextlib.ExitStack() as stack:
             tmps = [stack.enter_context(atomic_output(p)) for p in paths]
-            for tmp, face in zip(tmps, faces, strict=True):
-                write_image(tmp, face, bits=d, color="srgb" if d in ("8", "16") else "data")
+            for f, (tmp, face) in enumerate(zip(tmps, faces, strict=True)):
+                write_image(tmp, face, bits=d, color="srgb" if d in ("8", "16") else "data",
+                            progress=maybe_within(progress, f / 6, (f + 1) / 6), threads=threads)
         return paths
     p = Path(path)
     img = pixels if kind == "equirect" else L.assemble(pixels, lay)
     d = output_bits(p, bits, source_bits)
     img = _prepare_image(p, img, d)
-    write_image(p, img, bits=d, color="srgb" if d in ("8", "16") else "data")
+    write_image(p, img, bits=d, color="srgb" if d in ("8", "16") else "data", progress=progress, threads=threads)
     return [p]
 
 
