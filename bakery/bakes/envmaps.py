@@ -299,7 +299,8 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
         cube = irr.irradiance_cube_sh(windowed, params.face_size)
         if not lights:
             progress(0.5, "SH9 error estimate")
-            expected = irr.sh9_error_estimate(px, env.kind, window=params.window, radiance_sh=radiance)
+            expected = irr.sh9_error_estimate(px, env.kind, window=params.window, radiance_sh=radiance,
+                                              progress=within(progress, 0.5, 0.9))
             if expected["max_relative"] > SH9_WARN:
                 worst, mean = 100 * expected["max_relative"], 100 * expected["mean_relative"]
                 warnings.warn(f"{src}: 9 SH coefficients miss this environment's compact bright light: up to "
@@ -415,7 +416,7 @@ def run_lights(inputs: dict[str, Path], output: Path, params: LightsParams, prog
     progress(0.1, "finding lights")
     lights, rest = find_lights(np.ascontiguousarray(px, np.float32), max_lights=params.max_lights,
                                contrast=params.contrast, max_radius_deg=params.max_radius,
-                               min_share=params.min_share)
+                               min_share=params.min_share, progress=within(progress, 0.1, 0.8))
     progress(0.8, "writing")
     data = {
         "lights": [lt.to_dict() for lt in lights],
