@@ -133,7 +133,6 @@ PROGRESS_CASES = [
     ("env-diffuse", {"environment": "sky"}, "d.json", {}, "SH9 error estimate", 4),
     ("env-diffuse", {"environment": "sky"}, "d.json", {"method": "exact"}, "exact irradiance", 4),
     ("env-lights", {"environment": "sky"}, "l.json", {}, "finding lights", 5),
-    ("env-lights", {"environment": "sky"}, "l.json", {}, "writing", 1),
     ("env-specular", {"environment": "sky"}, "s.ktx2", {"face_size": 32, "ktx2_format": "bc6h", "loose": True},
      "encoding", 8),
     ("env-lut", {}, "t.png", {"size": 64}, "table", 16),
@@ -190,7 +189,7 @@ def test_progress_within_the_long_step_changes_no_byte(bake, inputs, name, value
     assert 0.0 <= fractions[0]
     inside = [f for f, w in seen if w.startswith(label)]
     assert len(inside) >= least, (len(inside), sorted({w for _, w in seen}))
-    assert len(set(inside)) > 1 or least == 1  # the calls move the bar, not only repeat one value
+    assert len(set(inside)) > 1  # the calls move the bar, not only repeat one value
     assert [p.name for p in a] == [p.name for p in b]
     for x, y in zip(a, b, strict=True):
         assert x.read_bytes() == y.read_bytes(), x.name

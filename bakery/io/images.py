@@ -472,8 +472,8 @@ def write_image(
     color : {"data", "srgb"}
         ``"srgb"`` encodes colour channels with the IEC 61966-2-1 curve before quantising (never alpha).
     progress : callable, optional
-        ``progress(fraction, "writing")`` as the file is written, fractions rising to 1 (PNG reports once per
-        strip of rows, other formats once at the end). Default: silent. The bytes never depend on it.
+        ``progress(fraction, "writing")`` as the file is written, fractions rising to 1 (PNG and OpenEXR report
+        once per strip of rows, TIFF and HDR once at the end). Default: silent. The bytes never depend on it.
     threads : int, optional
         Threads a PNG write may compress on (default: the CPU count; bakes pass ``bakes.bake_threads()``).
         The bytes never depend on it.
@@ -512,11 +512,11 @@ def write_image(
     if bits == "half":
         a = clamp_to_half(a, path)
     with atomic_output(path) as tmp:
-        if fmt == "png":
-            _WRITERS["png"](tmp, a, bits, progress=progress, threads=threads)
+        if fmt in ("png", "exr"):
+            _WRITERS[fmt](tmp, a, bits, progress=progress, threads=threads)
         else:
             _WRITERS[fmt](tmp, a, bits)
-    if progress is not None and fmt != "png":
+    if progress is not None and fmt not in ("png", "exr"):
         progress(1.0, "writing")
     return path
 
@@ -552,16 +552,49 @@ def _write_tiff(tmp: Path, a: np.ndarray, bits: str) -> None:
                      extrasamples=extrasamples, metadata=None)
 
 
-def _write_exr(tmp: Path, a: np.ndarray, bits: str) -> None:
+#: Scanlines an OpenEXR write hands over per call when it reports progress: a multiple of the 16 lines one ZIP
+#: block holds (OpenEXR file layout), about 2 MiB of samples for an 8192-wide RGB half image.
+EXR_STRIP_ROWS = 64
+
+
+def _write_exr(tmp: Path, a: np.ndarray, bits: str, *, progress: Callable[[float, str], None] | None = None,
+               threads: int | None = None) -> None:
     import OpenEXR
 
     dtype = np.float16 if bits == "half" else np.float32
     names = {1: ("Y",), 2: ("R", "G"), 3: ("R", "G", "B"), 4: ("R", "G", "B", "A")}[a.shape[2]]
     data = a.astype(dtype)
+    if progress is not None and hasattr(OpenEXR, "OutputFile"):
+        _write_exr_strips(tmp, data, names, progress)
+        return
     channels = {n: np.ascontiguousarray(data[:, :, i]) for i, n in enumerate(names)}
     header = {"compression": OpenEXR.ZIP_COMPRESSION, "type": OpenEXR.scanlineimage}
     with OpenEXR.File(header, channels) as f:
         f.write(str(tmp))
+
+
+def _write_exr_strips(tmp: Path, data: np.ndarray, names: tuple[str, ...],
+                      progress: Callable[[float, str], None]) -> None:
+    """The same file as :func:`_write_exr`'s one call (a test compares the bytes), written a strip of
+    scanlines at a time through the bindings' scanline writer so that each strip can be reported."""
+    import Imath
+    import OpenEXR
+
+    h, w = data.shape[:2]
+    header = OpenEXR.Header(w, h)
+    header["compression"] = Imath.Compression(Imath.Compression.ZIP_COMPRESSION)
+    kind = Imath.PixelType(Imath.PixelType.HALF if data.dtype == np.float16 else Imath.PixelType.FLOAT)
+    header["channels"] = {n: Imath.Channel(kind) for n in names}
+    header["type"] = b"scanlineimage"
+    out = OpenEXR.OutputFile(str(tmp), header)
+    try:
+        for r0 in range(0, h, EXR_STRIP_ROWS):
+            r1 = min(h, r0 + EXR_STRIP_ROWS)
+            out.writePixels({n: np.ascontiguousarray(data[r0:r1, :, i]).tobytes() for i, n in enumerate(names)},
+                            r1 - r0)
+            progress(r1 / h, "writing")
+    finally:
+        out.close()
 
 
 HALF_MAX = 65504.0
