@@ -39,6 +39,7 @@ import numpy as np
 from bakery.color import linear_to_srgb, srgb_to_linear
 from bakery.errors import BakeryError, BakeryWarning
 from bakery.io.atomic import atomic_output
+from bakery.progress import maybe_within
 from bakery.types import Bits
 
 Color = Literal["data", "srgb"]
@@ -113,6 +114,7 @@ def read_image(
     color: Color = "data",
     max_pixels: int | None = None,
     allow_nonfinite: bool = False,
+    progress: Callable[[float, str], None] | None = None,
 ) -> Image:
     """Read an image file into float32 ``(H, W, C)`` RGB(A).
 
@@ -128,6 +130,9 @@ def read_image(
         Default: :func:`pixel_limit` (``BAKERY_MAX_PIXELS``, else :data:`DEFAULT_MAX_PIXELS`).
     allow_nonfinite : bool
         Float files holding NaN or Inf are refused unless this is true (``bakery info`` uses it to count them).
+    progress : callable, optional
+        ``progress(fraction, "reading")``, rising to 1: OpenEXR files report once per strip of scanlines,
+        other formats once decoded; the pixels never depend on it.
 
     Raises
     ------
@@ -150,7 +155,8 @@ def read_image(
     problem = None
     with quiet_decoders():
         try:
-            raw, bits = _READERS[fmt](path)
+            raw, bits = (_read_exr(path, progress=maybe_within(progress, 0.0, 0.9)) if fmt == "exr" else
+                         _READERS[fmt](path))
         except BakeryError:
             raise
         except Exception as exc:  # decoder libraries raise many types for corrupt data
@@ -174,6 +180,8 @@ def read_image(
         pixels[:, :, :nc] = srgb_to_linear(pixels[:, :, :nc])
     elif color not in ("data", "srgb"):
         raise BakeryError(f"color must be 'data' or 'srgb'; got {color!r}")
+    if progress is not None:
+        progress(1.0, "reading")
     return Image(np.ascontiguousarray(pixels), bits, fmt, path)
 
 
@@ -347,11 +355,13 @@ def _read_tiff(path: Path) -> tuple[np.ndarray, str]:
 _EXR_ORDER = ("R", "G", "B", "A")
 
 
-def _read_exr(path: Path) -> tuple[np.ndarray, str]:
+def _read_exr(path: Path, progress: Callable[[float, str], None] | None = None) -> tuple[np.ndarray, str]:
     import OpenEXR
 
-    with OpenEXR.File(str(path), separate_channels=True, num_threads=1) as f:
-        channels = {name: np.array(ch.pixels, copy=True) for name, ch in f.channels().items()}
+    channels = _read_exr_strips(path, progress) if progress is not None and hasattr(OpenEXR, "InputFile") else None
+    if channels is None:
+        with OpenEXR.File(str(path), separate_channels=True, num_threads=1) as f:
+            channels = {name: np.array(ch.pixels, copy=True) for name, ch in f.channels().items()}
     if not channels:
         raise BakeryError("OpenEXR file has no channels", path)
     names = _exr_channel_order(list(channels), path)
@@ -361,6 +371,36 @@ def _read_exr(path: Path) -> tuple[np.ndarray, str]:
         raise BakeryError(f"unsupported OpenEXR channel type(s) {sorted(map(str, kinds))}", path)
     bits = "half" if kinds == {np.dtype(np.float16)} else "float"
     return np.stack([p.astype(np.float32) for p in planes], axis=-1), bits
+
+
+def _read_exr_strips(path: Path, progress: Callable[[float, str], None]) -> dict[str, np.ndarray]:
+    """The channels :func:`_read_exr` reads in one call (a test compares them), read a strip of scanlines at
+    a time through the bindings' scanline reader so that each strip can be reported; None for files it leaves
+    to the one call (subsampled channels)."""
+    import Imath
+    import OpenEXR
+
+    f = OpenEXR.InputFile(str(path))
+    try:
+        hd = f.header()
+        dw = hd["dataWindow"]
+        w, h = dw.max.x - dw.min.x + 1, dw.max.y - dw.min.y + 1
+        kinds = {Imath.PixelType.HALF: np.float16, Imath.PixelType.FLOAT: np.float32,
+                 Imath.PixelType.UINT: np.uint32}
+        if any(c.xSampling != 1 or c.ySampling != 1 or c.type.v not in kinds for c in hd["channels"].values()):
+            return None
+        chans = {n: kinds[c.type.v] for n, c in hd["channels"].items()}
+        out = {n: np.empty((h, w), t) for n, t in chans.items()}
+        for r0 in range(0, h, EXR_STRIP_ROWS):
+            r1 = min(h, r0 + EXR_STRIP_ROWS)
+            for n, t in chans.items():
+                kind = Imath.PixelType(hd["channels"][n].type.v)
+                data = f.channel(n, kind, dw.min.y + r0, dw.min.y + r1 - 1)
+                out[n][r0:r1] = np.frombuffer(data, dtype=t).reshape(r1 - r0, w)
+            progress(r1 / h, "reading")
+    finally:
+        f.close()
+    return out
 
 
 def _exr_channel_order(names: list[str], path: Path) -> list[str]:

@@ -134,6 +134,30 @@ def test_exr_written_strip_by_strip_is_the_same_file(tmp_path, bits, channels, m
         np.testing.assert_array_equal(chans[n], data[:, :, i].astype(dtype))
 
 
+def test_exr_read_strip_by_strip_gives_the_same_pixels(tmp_path, monkeypatch):
+    """With a progress callback OpenEXR files are read a strip of scanlines at a time (one call per strip,
+    rising to 1); the pixels equal the one-call read, also for a data window that does not start at 0 and a
+    file written by OpenEXR itself with PIZ compression."""
+    from bakery.io import images
+
+    monkeypatch.setattr(images, "EXR_STRIP_ROWS", 16)
+    rgba = (RNG.random((70, 9, 4)) * 1000).astype(np.float32)
+    path = tmp_path / "c.exr"
+    header = {"compression": OpenEXR.PIZ_COMPRESSION, "type": OpenEXR.scanlineimage,
+              "dataWindow": (np.array([3, 5], np.int32), np.array([11, 74], np.int32)),
+              "displayWindow": (np.array([0, 0], np.int32), np.array([15, 79], np.int32))}
+    with OpenEXR.File(header, {"RGBA": np.ascontiguousarray(rgba)}) as f:
+        f.write(str(path))
+    half = write_image(tmp_path / "h.exr", rgba[:, :, :3], bits="half")
+    for p in (path, half):
+        seen = []
+        a = read_image(p, progress=lambda f, w, seen=seen: seen.append((f, w)))
+        b = read_image(p)
+        assert a.bits == b.bits and a.pixels.tobytes() == b.pixels.tobytes()
+        assert [round(f, 6) for f, _ in seen] == [round(0.9 * k / 70, 6) for k in (16, 32, 48, 64, 70)] + [1.0]
+    np.testing.assert_array_equal(read_image(path).pixels, rgba)
+
+
 def test_exr_written_by_openexr_read_by_bakery(tmp_path):
     rgba = RNG.random((3, 5, 4)).astype(np.float32) * 1000
     path = tmp_path / "c.exr"
