@@ -159,7 +159,7 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, pr
 
     src = inputs["environment"]
     progress(0.0, "reading")
-    env = read_environment(src, layout=params.input_layout, repair=params.repair)
+    env = read_environment(src, layout=params.input_layout, repair=params.repair, progress=within(progress, 0, 0.1))
     kind, lay = output_kind(output, params.output_layout, env.layout)
     if kind == "cube" and params.width is not None:
         raise BakeryError("--width sets a panorama's width; this output is a cubemap: use --face-size", output)
@@ -277,7 +277,8 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
     ktx_path, faces_pattern = diffuse_outputs(output)
     src = inputs["environment"]
     progress(0.0, "reading")
-    env = read_environment(src, layout=params.input_layout, repair=params.repair)
+    env = read_environment(src, layout=params.input_layout, repair=params.repair,
+                           progress=within(progress, 0.0, 0.05))
     check_distinct([ktx_path, *face_paths(faces_pattern)], env.paths)
     px = env.pixels[..., :3] if env.pixels.shape[-1] >= 3 else env.pixels
     lights = []
@@ -409,7 +410,8 @@ def run_lights(inputs: dict[str, Path], output: Path, params: LightsParams, prog
 
     src = inputs["environment"]
     progress(0.0, "reading")
-    env = read_environment(src, layout=params.input_layout, repair=params.repair)
+    env = read_environment(src, layout=params.input_layout, repair=params.repair,
+                           progress=within(progress, 0.0, 0.1))
     px = env.pixels[..., :3]
     if env.kind == "cube":  # the finder works on a panorama of the cube's resolution
         px = resample(px, "cube", "equirect", 4 * px.shape[1])

@@ -87,13 +87,13 @@ def check_specular_params(p: SpecularParams) -> None:
         raise BakeryError(f"level-roughness: {exc}") from None
 
 
-def read_source(path: Path, layout: str | None):
+def read_source(path: Path, layout: str | None, progress: Progress | None = None):
     """Read the environment in any layout (:func:`bakery.io.envfiles.read_environment`) as float32 RGB."""
     import numpy as np
 
     from bakery.io.envfiles import read_environment
 
-    env = read_environment(path, layout=layout or None)
+    env = read_environment(path, layout=layout or None, progress=progress)
     px = env.pixels
     c = px.shape[-1]
     if c == 4:
@@ -122,7 +122,7 @@ def specular_outputs(inputs: dict[str, Path], output: Path, params: SpecularPara
 
 #: Where each step of an ``env-specular`` bake starts on the progress scale (common practice: shares of the time
 #: at the default quality from a 4096 x 2048 panorama).
-SPECULAR_STEPS = {"prefilter": 0.03, "writing": 0.93, "manifest": 0.99}
+SPECULAR_STEPS = {"prefilter": 0.15, "writing": 0.93, "manifest": 0.99}
 
 
 def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams, progress: Progress) -> list[Path]:
@@ -137,7 +137,8 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
         raise BakeryError("output must end in .ktx2 (add --loose for OpenEXR files per level and face)",
                           output)
     progress(0.0, "reading")
-    env = read_source(inputs["environment"], params.input_layout)
+    env = read_source(inputs["environment"], params.input_layout,
+                      within(progress, 0.0, SPECULAR_STEPS["prefilter"]))
     rough = params.level_roughness if isinstance(params.level_roughness, str) else list(params.level_roughness)
     levels = params.levels or params.face_size.bit_length()
     r = level_roughness(levels, rough)

@@ -105,7 +105,7 @@ def resolve_strength(shape: tuple[int, int], strength: float | None, relief: flo
 
 
 def read_height(path: Path, channel: str | None = None, stretch: bool = False, *,
-                flat: str = "the normal map is flat"):
+                flat: str = "the normal map is flat", progress: Progress | None = None):
     """A height map from a file: (H, W) float32 and the file's sample type.
 
     Gray files, and colour files whose colour channels are equal, are read as gray; other colour files need
@@ -115,7 +115,7 @@ def read_height(path: Path, channel: str | None = None, stretch: bool = False, *
 
     from bakery.io.images import read_image
 
-    img = read_image(path)
+    img = read_image(path, progress=progress)
     px = img.pixels
     c = px.shape[2]
     names = {"r": 0, "g": 1, "b": 2, "a": 3}  # RGB(A) order
@@ -177,7 +177,7 @@ def read_normals(path: Path, y: str, progress: Progress | None = None):
             px = px[..., :3]  # RGBA chains store XYZ with alpha 1
         img = Image(px, bits, "ktx2", Path(path))
     else:
-        img = read_image(path)
+        img = read_image(path, progress=within(progress, 0.0, READ_NORMAL_STEPS["decode"]) if progress else None)
     if img.channels == 1:
         raise BakeryError("has one channel: a normal map needs 2 (XY), 3 (RGB) or 4 (RGBA)", path)
     progress = progress or no_progress
@@ -275,8 +275,8 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress:
         check_output(output)
     src = inputs["height"]
     progress(0.0, "reading")
-    h, in_bits, (lo, hi) = read_height(src, p.channel, p.stretch)
-    progress(NORMAL_STEPS["strips"], "reading")
+    h, in_bits, (lo, hi) = read_height(src, p.channel, p.stretch,
+                                       progress=within(progress, 0.0, NORMAL_STEPS["strips"]))
     rows, cols = h.shape
     check_blur(p.blur, rows, cols, src)
     sx, sy = resolve_strength(h.shape, p.strength, p.relief, p.span)
@@ -621,8 +621,7 @@ def run_fix(inputs: dict[str, Path], output: Path, p: FixParams, progress: Progr
     check_output(output)
     src = inputs["normal"]
     progress(0.0, "reading")
-    img = read_image(src)
-    progress(0.3, "reading")
+    img = read_image(src, progress=within(progress, 0.0, 0.3))
     if img.channels == 1:
         raise BakeryError("has one channel: a normal map needs 2 (XY), 3 (RGB) or 4 (RGBA)", src)
     c_in = 2 if img.channels == 2 else 3

@@ -315,9 +315,9 @@ def run_pack(inputs: dict[str, Path], output: Path, p: PackParams, progress: Pro
     images, manifests = {}, {}
     files = list(dict.fromkeys(s.path for s in sources if s.path is not None))
     for i, path in enumerate(files):
-        images[path] = read_image(path)
+        images[path] = read_image(path, progress=within(progress, 0.05 + 0.15 * i / len(files),
+                                                        0.05 + 0.15 * (i + 1) / len(files)))
         manifests[path] = role_from_manifest(path)
-        progress(0.05 + 0.15 * (i + 1) / len(files), "reading")
     bits_in = max((images[s.path].bits for s in sources if s.path is not None), key=PRECISION.index)
     colour_src = [images[s.path] for s in sources if s.path is not None and (s.role or manifests[s.path][0])
                   == "color"]

@@ -54,10 +54,10 @@ def check_image_output(output: Path, what: str) -> str:
     return fmt
 
 
-def _height_and_strength(inputs: dict[str, Path], p, flat: str):
+def _height_and_strength(inputs: dict[str, Path], p, flat: str, progress: Progress | None = None):
     """Heights, sample type, data range and ``(s_x, s_y)`` as the ``normal`` bake resolves them."""
     src = inputs["height"]
-    h, bits, rng = read_height(src, p.channel, p.stretch, flat=flat)
+    h, bits, rng = read_height(src, p.channel, p.stretch, flat=flat, progress=progress)
     sx, sy = resolve_strength(h.shape, p.strength, p.relief, p.span)
     return h, bits, rng, (sx, sy)
 
@@ -116,8 +116,8 @@ def run_occlusion(inputs: dict[str, Path], output: Path, p: OcclusionParams, pro
 
     check_image_output(output, "occlusion maps")
     progress(0.0, "reading")
-    h, in_bits, (lo, hi), (sx, sy) = _height_and_strength(inputs, p, "the occlusion is 1 everywhere")
-    progress(OCCLUSION_STEPS["sweeps"], "reading")
+    h, in_bits, (lo, hi), (sx, sy) = _height_and_strength(inputs, p, "the occlusion is 1 everywhere",
+                                                          within(progress, 0.0, OCCLUSION_STEPS["sweeps"]))
     rows, cols = h.shape
     if p.max_distance is not None and p.max_distance > max(rows, cols):
         raise BakeryError(f"--max-distance must be at most the map's larger side ({max(rows, cols)} texels); got "
@@ -199,7 +199,8 @@ def run_curvature(inputs: dict[str, Path], output: Path, p: CurvatureParams, pro
 
     check_image_output(output, "curvature maps")
     progress(0.0, "reading")
-    h, in_bits, (lo, hi), (sx, sy) = _height_and_strength(inputs, p, "the surface is flat (curvature 0 everywhere)")
+    h, in_bits, (lo, hi), (sx, sy) = _height_and_strength(inputs, p, "the surface is flat (curvature 0 everywhere)",
+                                                          within(progress, 0.0, 0.1))
     if p.strength is not None:
         relief, unit = 1.0, "height units"
     else:
@@ -320,7 +321,7 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
 
     src = inputs["color"]
     progress(0.0, "reading")
-    img = read_image(src)
+    img = read_image(src, progress=within(progress, 0.0, 0.05))
     px = img.pixels
     is_float = img.bits in ("half", "float")
     _refuse_normal_map(px, is_float, src)

@@ -165,14 +165,15 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
 
     src_path = inputs["specular"]
     progress(0.0, "reading")
-    img = read_image(src_path, allow_nonfinite=True)
+    img = read_image(src_path, allow_nonfinite=True, progress=within(progress, 0.0, 0.2 if "pack" in inputs
+                                                                     and inputs["pack"] else 0.25))
     source = _source_quantity(params, img.bits, src_path)
     values = pick_channel(img.pixels, params.channel, src_path, "the map")
     target = QUANTITIES[params.target]
     pack = inputs.get("pack")
     packed = None
     if pack is not None:
-        packed = read_image(pack)
+        packed = read_image(pack, progress=within(progress, 0.2, 0.25))
         if packed.pixels.shape[:2] != values.shape:
             ph, pw = packed.pixels.shape[:2]
             raise BakeryError(f"image to pack into is {pw}x{ph} but the map is {values.shape[1]}x"
@@ -340,8 +341,7 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
     normals, _ = read_normals(normal_path, "up", within(progress, 0.0, 0.55))  # Y does not change lengths
     source_bits = "16"
     if rough_path is not None:
-        rough_img = read_image(rough_path)
-        progress(0.6, "reading")
+        rough_img = read_image(rough_path, progress=within(progress, 0.55, 0.6))
         if rough_img.pixels.shape[:2] != normals.shape[:2]:
             (rh, rw), (nh, nw) = rough_img.pixels.shape[:2], normals.shape[:2]
             raise BakeryError(f"roughness map is {rw}x{rh} but the normal map {normal_path.name} is {nw}x{nh}; "

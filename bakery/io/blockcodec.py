@@ -35,7 +35,7 @@ import numpy as np
 
 from bakery.errors import BakeryError
 from bakery.io.ktx2_formats import encoder_version  # noqa: F401  (numpy-free: a batch plan reads it)
-from bakery.progress import Progress
+from bakery.progress import Progress, maybe_within
 
 BLOCK = 4
 QUALITIES = ("fast", "balanced", "best")
@@ -198,7 +198,10 @@ def encode_level(values: np.ndarray, codec: Codec | str, *, quality: str = "fast
     (``progress``: as :func:`encode_surface`)."""
     codec = CODECS[codec] if isinstance(codec, str) else codec
     surf, clamped = quantize(values, codec)
-    return encode_surface(surf, codec, quality=quality, threads=threads, progress=progress), clamped
+    if progress is not None:
+        progress(0.1, "encoding")
+    return encode_surface(surf, codec, quality=quality, threads=threads,
+                          progress=maybe_within(progress, 0.1, 1.0)), clamped
 
 
 def decode_level(data: bytes | memoryview, codec: Codec | str, width: int, height: int,

@@ -95,10 +95,10 @@ def _check_values(a: np.ndarray, where: object, repair: bool) -> np.ndarray:
     return a
 
 
-def _read_one(path: Path, max_pixels: int | None):
+def _read_one(path: Path, max_pixels: int | None, progress: Progress | None = None):
     from bakery.io.images import read_image
 
-    img = read_image(path, color="srgb", max_pixels=max_pixels, allow_nonfinite=True)
+    img = read_image(path, color="srgb", max_pixels=max_pixels, allow_nonfinite=True, progress=progress)
     px = img.pixels
     if px.shape[2] == 2:
         raise BakeryError("an environment map needs 1, 3 or 4 channels; this image has 2", path)
@@ -106,7 +106,7 @@ def _read_one(path: Path, max_pixels: int | None):
 
 
 def read_environment(path: str | os.PathLike, *, layout: str | None = None, repair: bool = False,
-                     max_pixels: int | None = None) -> Environment:
+                     max_pixels: int | None = None, progress: Progress | None = None) -> Environment:
     """Read an environment map in any layout (module docstring).
 
     Parameters
@@ -117,6 +117,8 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
         Force the layout of a single image (default: detected from its aspect ratio).
     repair : bool
         Set NaN/Inf and negative samples to 0 with a warning that counts them (default: refuse them).
+    progress : callable, optional
+        ``progress(fraction, "reading")``, rising to 1 (OpenEXR strip by strip, face files one by one).
 
     Raises
     ------
@@ -131,8 +133,8 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
     if path_layout == "files":
         paths = face_paths(path)
         faces, depths, size = [], [], None
-        for p in paths:
-            px, bits = _read_one(p, max_pixels)
+        for i, p in enumerate(paths):
+            px, bits = _read_one(p, max_pixels, maybe_within(progress, i / 6, (i + 1) / 6))
             h, w = px.shape[:2]
             if h != w:
                 raise BakeryError(f"cube faces must be square; this one is {w}x{h}", p)
@@ -157,13 +159,15 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
             return Environment("cube", _check_values(px, p, repair), "ktx2", bits, [p])
         img = px
     else:
-        img, bits = _read_one(p, max_pixels)
+        img, bits = _read_one(p, max_pixels, maybe_within(progress, 0.0, 0.9))
     h, w = img.shape[:2]
     lay = layout or L.detect_layout(w, h, where=p)
     if lay not in L.IMAGE_LAYOUTS:
         raise BakeryError(f"layout {lay!r} does not apply to a single image; use one of "
                           + ", ".join(L.IMAGE_LAYOUTS), p)
     img = _check_values(img, p, repair)
+    if progress is not None:
+        progress(1.0, "reading")
     if lay == "equirect":
         if w != 2 * h:
             raise BakeryError(f"a panorama must be twice as wide as high; got {w}x{h}", p)

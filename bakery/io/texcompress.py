@@ -201,14 +201,18 @@ def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *,
     for lv in (source if isinstance(source, list | tuple) else [source]):
         if not np.all(np.isfinite(lv)):
             raise BakeryError("cannot store NaN or Inf values in a KTX2 texture", where)
+    if progress is not None:
+        progress(0.05, "encoding")
     levels = build_levels(source, kind=kind, mips=mips, cubemap=cubemap)
+    if progress is not None:
+        progress(0.15, "encoding")
     enc_levels = levels
     if kind == "normal" and fmt.channels == 2:
         enc_levels = [lv[..., :2] for lv in levels]
     w, h = K.check_levels(enc_levels, cubemap)
     counts: dict[str, int] = {}
     payloads = K.encode_levels(enc_levels, fmt, quality=quality, threads=threads, counts=counts,
-                               progress=maybe_within(progress, 0.0, 0.85))
+                               progress=maybe_within(progress, 0.15, 0.85))
     kv: dict[str, bytes | str] = {}
     if fmt.block is not None:
         kv[ENCODER_KEY] = f"{blockcodec.encoder_version()} {quality}"
