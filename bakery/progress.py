@@ -18,13 +18,16 @@ def no_progress(fraction: float, label: str) -> None:
 
 
 def within(progress: Progress, start: float, end: float) -> Progress:
-    """``progress`` for one step of a job: the step's fractions 0..1 land on ``start..end`` of the job's.
+    """``progress`` for one step of a job: the step's fractions 0..1 land on ``start..end`` of the job's (never
+    past ``end``, so rounding cannot make the next step's first fraction a step back).
 
     >>> seen = []
     >>> within(lambda f, w: seen.append((f, w)), 0.5, 0.9)(0.5, "writing"); seen
     [(0.7, 'writing')]
+    >>> within(lambda f, w: seen.append(f), 0.3, 0.6)(1.0, "blending"); seen[-1]
+    0.6
     """
-    return lambda fraction, label: progress(start + (end - start) * fraction, label)
+    return lambda fraction, label: progress(min(end, start + (end - start) * fraction), label)
 
 
 def maybe_within(progress: Progress | None, start: float, end: float) -> Progress | None:

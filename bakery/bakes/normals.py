@@ -435,17 +435,17 @@ def run_blend(inputs: dict[str, Path], output: Path, p: BlendParams, progress: P
 
     check_output(output)
     progress(0.0, "reading")
-    base, bimg = read_normals(inputs["base"], p.y, within(progress, 0.0, 0.2))
-    detail, _ = read_normals(inputs["detail"], p.y, within(progress, 0.2, 0.4))
+    base, bimg = read_normals(inputs["base"], p.y, within(progress, 0.0, 0.15))
+    detail, _ = read_normals(inputs["detail"], p.y, within(progress, 0.15, 0.3))
     if base.shape != detail.shape:
         raise BakeryError(f"detail is {detail.shape[1]}x{detail.shape[0]} but the base is "
                           f"{base.shape[1]}x{base.shape[0]}; they must match", inputs["detail"])
     channels = p.channels or (2 if bimg.channels == 2 else 3)
     bits = output_bits(output, p.bits, bimg.bits)
-    progress(0.4, "blending")
-    r = blend_normals(base, detail, method=p.method, detail_strength=p.detail_strength)
-    progress(0.5, "writing")
-    write_normals(output, r, y=p.y, channels=channels, bits=bits, progress=within(progress, 0.5, 0.95))
+    r = blend_normals(base, detail, method=p.method, detail_strength=p.detail_strength,
+                      progress=within(progress, 0.3, 0.6))
+    progress(0.6, "writing")
+    write_normals(output, r, y=p.y, channels=channels, bits=bits, progress=within(progress, 0.6, 0.97))
     manifest = write_manifest(output, bake="blend", inputs={"base": inputs["base"], "detail": inputs["detail"]},
                               params=params_to_dict(p), outputs=[output],
                               extra={"conventions": _conventions(p.y), "sample_type": bits})
