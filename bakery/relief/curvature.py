@@ -177,17 +177,27 @@ def mean_curvature(
     if not (math.isfinite(d) and d > 0):
         raise BakeryError(f"relief must be a positive number; got {relief!r}")
     step = progress or no_progress
-    hx, hy, hxx, hxy, hyy = _texel_derivatives(h, scale, edges, kernel, within(step, 0.0, 0.8))
-    # lengths in units of R: one texel is 1/s_x wide, 1/s_y tall
-    hx, hy = hx * sx, hy * sy
-    hxx, hxy, hyy = hxx * sx * sx, hxy * sx * sy, hyy * sy * sy
-    hx2, hy2 = hx * hx, hy * hy
-    num = (1 + hx2) * hyy - 2 * hx * hy * hxy + (1 + hy2) * hxx
-    t = 1 + hx2 + hy2
-    t *= np.sqrt(t)  # (1 + h_x^2 + h_y^2)^(3/2) without a general power
-    H = (num / (2 * d * t)).astype(np.float32)
-    step(1.0, "curvature")
+    derivs = _texel_derivatives(h, scale, edges, kernel, within(step, 0.0, 0.6))
+    H = np.empty(h.shape, np.float32)
+    rows = max(1, BAND_TEXELS // max(1, h.shape[1]))
+    for r0 in range(0, h.shape[0], rows):  # texel by texel: bands of rows change no value
+        r1 = min(h.shape[0], r0 + rows)
+        hx, hy, hxx, hxy, hyy = (a[r0:r1] for a in derivs)
+        # lengths in units of R: one texel is 1/s_x wide, 1/s_y tall
+        hx, hy = hx * sx, hy * sy
+        hxx, hxy, hyy = hxx * sx * sx, hxy * sx * sy, hyy * sy * sy
+        hx2, hy2 = hx * hx, hy * hy
+        num = (1 + hx2) * hyy - 2 * hx * hy * hxy + (1 + hy2) * hxx
+        t = 1 + hx2 + hy2
+        t *= np.sqrt(t)  # (1 + h_x^2 + h_y^2)^(3/2) without a general power
+        H[r0:r1] = num / (2 * d * t)
+        step(0.6 + 0.4 * r1 / h.shape[0], "curvature")
     return H
+
+
+#: Texels per band of rows in :func:`mean_curvature`'s texel-by-texel formula (its float64 temporaries stay
+#: a few MiB; common practice).
+BAND_TEXELS = 1 << 16
 
 
 def curvature_maps(
@@ -236,6 +246,7 @@ def curvature_maps(
     k = H * np.float32(rho)
     convex = np.clip(-k, 0.0, 1.0).astype(np.float32)
     concave = np.clip(k, 0.0, 1.0).astype(np.float32)
+    step(0.92, "curvature")
     maps = CurvatureMaps(mean=H, convexity=convex, concavity=concave, cavity=(1.0 - concave).astype(np.float32),
                          encoded=(0.5 - 0.5 * np.clip(k, -1.0, 1.0)).astype(np.float32))
     step(1.0, "curvature")
