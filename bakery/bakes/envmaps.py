@@ -184,7 +184,8 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, pr
         pixels[..., :nc] *= np.float32(2.0 ** params.exposure)
     mips = None
     if output.suffix.lower() == ".ktx2" and params.mips:
-        mips = (cube_mip_chain(pixels) if kind == "cube" else equirect_mip_chain(pixels))[1:]
+        chain = cube_mip_chain if kind == "cube" else equirect_mip_chain
+        mips = chain(pixels, progress=within(progress, 0.8, 0.83))[1:]
         progress(0.83, "writing")
     if output.suffix.lower() == ".ktx2":
         pixels, *rest = clamp_for_ktx2(output, [pixels] + list(mips or []), params.ktx2_format)

@@ -359,7 +359,8 @@ def run_pack(inputs: dict[str, Path], output: Path, p: PackParams, progress: Pro
     paths = [output] if ktx2 else [level_path(output, k) for k in range(count)]
     check_distinct(paths + [manifest_path(output)], chains_read)
     progress(0.2, "levels")
-    levels = pack_levels(channels, levels=count, transfer=transfer, threads=bake_threads())
+    levels = pack_levels(channels, levels=count, transfer=transfer, threads=bake_threads(),
+                         progress=within(progress, 0.2, 0.55))
     srgb_colour = transfer == "srgb" and all(c.role == "color" for c in channels[:3])
     if ktx2:
         bits = p.bits or ("8" if bits_in == "8" else "16" if bits_in == "16" else "half")

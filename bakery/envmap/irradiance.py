@@ -169,6 +169,8 @@ def irradiance_exact(env: np.ndarray, kind: str, normals: np.ndarray, *, source_
         h, w = env.shape[:2]
         om_src = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)[:, None] * np.ones((1, w))
         d_src = sphere.equirect_directions(w, h, dtype=np.float64)
+    if progress is not None:
+        progress(0.05, "exact irradiance")
     bright = brightest_texels(env, om_src, bright_factor, max_bright)
     if progress is not None:
         progress(0.1, "exact irradiance")
@@ -216,6 +218,7 @@ def sh9_error_estimate(env: np.ndarray, kind: str, *, size: int = 8, window: str
     ``progress(fraction, label)`` rises to 1 over its passes (the projection, the exact sum, the sort).
     """
     step = progress or no_progress
+    step(0.0, "SH9 error estimate")
     env = np.asarray(env)
     normals = sphere.cube_directions(size, dtype=np.float64).reshape(-1, 3)
     if radiance_sh is None:  # callers that projected the environment already pass its coefficients

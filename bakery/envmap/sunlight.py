@@ -227,6 +227,7 @@ def find_lights(env: np.ndarray, *, max_lights: int = 4, contrast: float = 16.0,
     h, w, c = env.shape
     om_row = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)
     lum = env.astype(np.float64).mean(axis=2)
+    step(0.05, label)
     total = float((lum * om_row[:, None]).sum())
     step(0.1, label)
     cand = brightest_texels(env, om_row[:, None], contrast, h * w)
@@ -234,12 +235,14 @@ def find_lights(env: np.ndarray, *, max_lights: int = 4, contrast: float = 16.0,
     mask = np.zeros(h * w, bool)
     mask[cand] = True
     lab, n = _components(mask.reshape(h, w))
+    step(0.35, label)
     rest = env.copy()
     step(0.4, label)
     if n == 0 or total <= 0:
         step(1.0, label)
         return [], rest
     dirs = sphere.equirect_directions(w, h, dtype=np.float64)
+    step(0.45, label)
     lat = math.pi * (0.5 - (np.arange(h) + 0.5) / h)
     energy = ndimage.sum_labels(lum * om_row[:, None], lab, np.arange(1, n + 1))
     order = np.argsort(energy)[::-1]
@@ -250,19 +253,22 @@ def find_lights(env: np.ndarray, *, max_lights: int = 4, contrast: float = 16.0,
         if energy[li] < min_share * total or len(lights) >= max_lights:
             break
         looked += 1
-        step(0.5 + 0.5 * (1 - 0.5 ** looked), label)
+        at, share = 0.5 + 0.5 * (1 - 0.5 ** (looked - 1)), 0.5 * 0.5 ** looked  # this region's part of the bar
         region = lab == li + 1
         rr, cc = np.nonzero(region)
+        step(at + 0.25 * share, label)
         # roll so the region does not cross the seam, then work on a crop around it
         shift = w // 2 - int(cc[np.argmax(lum[rr, cc])])
         reg = np.roll(region, shift, axis=1)
         rr, cc = np.nonzero(reg)
         hole = ndimage.binary_dilation(reg, iterations=margin) if margin else reg
+        step(at + 0.5 * share, label)
         r0, r1 = max(0, rr.min() - margin - 2), min(h, rr.max() + margin + 3)
         c0, c1 = max(0, cc.min() - margin - 2), min(w, cc.max() + margin + 3)
         if c1 - c0 >= w - 2:  # a region around a pole spanning all longitudes: not compact
             continue
         crop = np.roll(rest, shift, axis=1)[r0:r1, c0:c1].astype(np.float64)
+        step(at + 0.75 * share, label)
         hmask = hole[r0:r1, c0:c1]
         fill = _harmonic_fill(crop, hmask, lat[r0:r1])
         hr, hc = np.nonzero(hmask)

@@ -278,7 +278,10 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
     img = pixels if kind == "equirect" else L.assemble(pixels, lay)
     d = output_bits(p, bits, source_bits)
     img = _prepare_image(p, img, d)
-    write_image(p, img, bits=d, color="srgb" if d in ("8", "16") else "data", progress=progress, threads=threads)
+    if progress is not None:
+        progress(0.1, "writing")
+    write_image(p, img, bits=d, color="srgb" if d in ("8", "16") else "data", progress=maybe_within(progress, 0.1, 1),
+                threads=threads)
     return [p]
 
 
