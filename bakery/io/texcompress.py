@@ -77,10 +77,10 @@ def _renormalize(stored: np.ndarray) -> np.ndarray:
 
 
 def build_levels(source: np.ndarray | list[np.ndarray], *, kind: str, mips: bool | int = True,
-                 cubemap: bool = False) -> list[np.ndarray]:
+                 cubemap: bool = False, progress: Progress | None = None) -> list[np.ndarray]:
     """Float32 levels to encode: ``source`` itself when it is a list of levels, else level 0 and its box-filtered
     mips (``mips``: True for the full chain, False for level 0 alone, an int for that many levels). Normal
-    levels are renormalized (3 channels out)."""
+    levels are renormalized (3 channels out); ``progress(fraction, label)`` after each, by texels."""
     from bakery.mips import downsample, level_count
 
     if isinstance(source, list | tuple):
@@ -96,7 +96,13 @@ def build_levels(source: np.ndarray | list[np.ndarray], *, kind: str, mips: bool
             prev = levels[-1]
             levels.append(np.stack([downsample(f) for f in prev]) if cubemap else downsample(prev))
     if kind == "normal":
-        levels = [np.stack([_renormalize(f) for f in lv]) if cubemap else _renormalize(lv) for lv in levels]
+        done, total, out = 0, sum(lv.size for lv in levels), []
+        for lv in levels:
+            out.append(np.stack([_renormalize(f) for f in lv]) if cubemap else _renormalize(lv))
+            done += lv.size
+            if progress is not None:
+                progress(done / total, "encoding")
+        levels = out
     return levels
 
 
@@ -203,7 +209,8 @@ def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *,
             raise BakeryError("cannot store NaN or Inf values in a KTX2 texture", where)
     if progress is not None:
         progress(0.05, "encoding")
-    levels = build_levels(source, kind=kind, mips=mips, cubemap=cubemap)
+    levels = build_levels(source, kind=kind, mips=mips, cubemap=cubemap,
+                          progress=maybe_within(progress, 0.05, 0.15))
     if progress is not None:
         progress(0.15, "encoding")
     enc_levels = levels

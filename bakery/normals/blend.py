@@ -65,12 +65,13 @@ def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reorie
         raise BakeryError(f"unknown blend method {method!r}; must be one of {', '.join(BLEND_METHODS)}")
     if not math.isfinite(detail_strength) or detail_strength < 0:
         raise BakeryError(f"detail strength must be zero or positive; got {detail_strength!r}")
+    step = progress or no_progress
     n1 = unit_normals(base, what="base normal map")
+    step(0.1, "blending")
     n2 = unit_normals(detail, what="detail normal map")
     if n1.shape != n2.shape:
         raise BakeryError(f"base and detail differ in size: {n1.shape[1]}x{n1.shape[0]} vs "
                           f"{n2.shape[1]}x{n2.shape[0]}; resize the detail first")
-    step = progress or no_progress
     step(0.2, "blending")
     out = np.empty_like(n1)
     rows = max(1, BLEND_BAND_TEXELS // max(1, n1.shape[1]))
