@@ -357,8 +357,12 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
             write_image(tmp, level, bits=bits, threads=bake_threads(), progress=within(writing, lo, hi))
         if ktx2:
             levels = chain
+            part = within(writing, shares[-2], 1.0)  # the KTX2 file: linear colour first (a tenth), then encoding
             if fmt.srgb or fmt.is_float:  # these formats take linear colour (sRGB formats encode it on writing)
-                levels = [_linear(lv, transfer) for lv in chain]
+                levels = []
+                for k, lv in enumerate(chain):
+                    levels.append(_linear(lv, transfer))
+                    part(0.1 * (1 - 4.0 ** -(k + 1)), "writing")
             tmp = stack.enter_context(atomic_output(output))
             note = {"bakery.color": f"colour mips: {p.kernel} filter in linear light, premultiplied alpha"
                                     + (f"; alpha-tested coverage kept at cutoff {p.alpha_cutoff:g}" if p.coverage
@@ -368,12 +372,12 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
 
                 kind = "hdr" if fmt.block == "bc6h" else "color"
                 res = write_compressed_ktx2(tmp, levels, fmt, kind=kind, threads=bake_threads(), key_values=note,
-                                            progress=within(writing, shares[-2], 1.0))
+                                            progress=within(part, 0.1, 1.0))
                 report = res.report
             else:
                 from bakery.io.ktx2 import write_ktx2
 
-                write_ktx2(tmp, levels, fmt, cubemap=False, key_values=note, progress=within(writing, shares[-2], 1.0))
+                write_ktx2(tmp, levels, fmt, cubemap=False, key_values=note, progress=within(part, 0.1, 1.0))
     level_info = []
     for k, lv in enumerate(chain):
         entry = {"level": k, "size": [int(lv.shape[1]), int(lv.shape[0])]}
