@@ -168,6 +168,8 @@ def irradiance_exact(env: np.ndarray, kind: str, normals: np.ndarray, *, source_
     else:
         h, w = env.shape[:2]
         om_src = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)[:, None] * np.ones((1, w))
+        if progress is not None:
+            progress(0.02, "exact irradiance")
         d_src = sphere.equirect_directions(w, h, dtype=np.float64)
     if progress is not None:
         progress(0.05, "exact irradiance")
