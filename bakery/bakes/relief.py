@@ -359,10 +359,8 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
             levels = chain
             part = within(writing, shares[-2], 1.0)  # the KTX2 file: linear colour first (a tenth), then encoding
             if fmt.srgb or fmt.is_float:  # these formats take linear colour (sRGB formats encode it on writing)
-                levels = []
-                for k, lv in enumerate(chain):
-                    levels.append(_linear(lv, transfer))
-                    part(0.1 * (1 - 4.0 ** -(k + 1)), "writing")
+                levels = [_linear(lv, transfer, within(part, 0.1 * (1 - 4.0 ** -k), 0.1 * (1 - 4.0 ** -(k + 1))))
+                          for k, lv in enumerate(chain)]
             tmp = stack.enter_context(atomic_output(output))
             note = {"bakery.color": f"colour mips: {p.kernel} filter in linear light, premultiplied alpha"
                                     + (f"; alpha-tested coverage kept at cutoff {p.alpha_cutoff:g}" if p.coverage
@@ -398,15 +396,25 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
     return paths + [manifest]
 
 
-def _linear(level, transfer: str):
-    """A stored level in linear colour (alpha untouched)."""
+#: Texels per band of rows when a colour level turns linear for KTX2 (common practice: a few MiB).
+LINEAR_BAND_TEXELS = 1 << 18
+
+
+def _linear(level, transfer: str, progress: Progress):
+    """A stored level in linear colour (alpha untouched), in bands of rows (texel by texel: the bands change
+    no value) with ``progress`` after each."""
     if transfer == "linear":
+        progress(1.0, "writing")
         return level
     from bakery.color import srgb_to_linear
 
     out = level.copy()
     c = 1 if level.shape[2] in (1, 2) else 3
-    out[:, :, :c] = srgb_to_linear(level[:, :, :c])
+    rows = max(1, LINEAR_BAND_TEXELS // max(1, level.shape[1]))
+    for r0 in range(0, level.shape[0], rows):
+        r1 = min(level.shape[0], r0 + rows)
+        out[r0:r1, :, :c] = srgb_to_linear(level[r0:r1, :, :c])
+        progress(r1 / level.shape[0], "writing")
     return out
 
 
