@@ -19,6 +19,7 @@ from __future__ import annotations
 import numpy as np
 
 from bakery.errors import BakeryError
+from bakery.progress import Progress, no_progress
 
 
 def mip_count(width: int, height: int) -> int:
@@ -404,6 +405,7 @@ def color_mips(
     levels: int | None = None,
     alpha_cutoff: float | None = None,
     threads: int | None = None,
+    progress: Progress | None = None,
 ) -> list[np.ndarray]:
     """Mip chain of a colour map, filtered in linear light with premultiplied alpha.
 
@@ -433,6 +435,9 @@ def color_mips(
         equals level 0's (common practice). Needs an alpha channel.
     threads : int, optional
         Worker threads (default: the number of CPUs, at most 8). The result does not depend on it.
+    progress : callable, optional
+        ``progress(fraction, label)`` after the pass over level 0 and after each level, rising to 1 (the pass
+        over level 0 reads as many texels as all the levels together). The result does not depend on it.
 
     Returns
     -------
@@ -493,7 +498,9 @@ def color_mips(
     srgb = transfer == "srgb"
     amask = C - 1 if alpha else -1
     out = [img]
+    step = progress or no_progress
     if levels == 1:
+        step(1.0, "level 0")
         return out
     box = kernel == "box"
     fused = box and h % 2 == 0 and w % 2 == 0
@@ -511,6 +518,7 @@ def color_mips(
             warnings.warn(f"colour map values run from {lo:g} to {hi:g}, outside [0, 1]: clipped", BakeryWarning,
                           stacklevel=2)
     target = coverage(img[:, :, C - 1], cut) if alpha_cutoff is not None else None
+    step(0.5, "level 0")
 
     def reduce(a: np.ndarray) -> np.ndarray:
         ah, aw = a.shape[:2]
@@ -536,4 +544,5 @@ def color_mips(
             cur, stored, i0, i1, poly, srgb, amask, np.float32(ks), np.empty(cur.shape[1] * C, np.float32)),
             cur.shape[0], nthreads)
         out.append(stored)
+        step(1.0 if level == levels - 1 else 1.0 - 0.5 * 4.0 ** -level, f"level {level}")
     return out

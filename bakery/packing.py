@@ -25,6 +25,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from bakery.errors import BakeryError
+from bakery.progress import Progress, no_progress, within
 
 #: The roles an output channel may have (the manifest's ``channels[...]["role"]``).
 ROLES = ("color", "alpha", "roughness", "smoothness", "metalness", "occlusion", "height", "cavity", "curvature",
@@ -101,7 +102,7 @@ def invert(plane: np.ndarray) -> np.ndarray:
 
 
 def pack_levels(channels: list[PackedChannel], *, levels: int = 1, transfer: str = "srgb",
-                threads: int | None = None) -> list[np.ndarray]:
+                threads: int | None = None, progress: Progress | None = None) -> list[np.ndarray]:
     """The packed texture's levels, each channel by its role's mip rule (see the module notes).
 
     Parameters
@@ -114,6 +115,9 @@ def pack_levels(channels: list[PackedChannel], *, levels: int = 1, transfer: str
         How ``color`` planes are stored.
     threads : int, optional
         Threads of the colour filter; the result does not depend on it.
+    progress : callable, optional
+        ``progress(fraction, label)`` after level 0, within each colour group's chain and after each averaged
+        level, rising to 1; the result does not depend on it.
 
     Returns
     -------
@@ -142,8 +146,11 @@ def pack_levels(channels: list[PackedChannel], *, levels: int = 1, transfer: str
     for k in range(1, count):
         mw, mh = mip_size(w, h, k)
         out.append(np.empty((mh, mw, C), np.float32))
+    step = progress or no_progress
     if count == 1:
+        step(1.0, "levels")
         return out
+    step(0.1, "levels")
 
     colour = [i for i, c in enumerate(channels) if c.role == "color"]
     alpha = [i for i, c in enumerate(channels) if c.role == "alpha"]
@@ -154,11 +161,13 @@ def pack_levels(channels: list[PackedChannel], *, levels: int = 1, transfer: str
         else:
             groups += [[i] for i in colour]
     grouped = {i for g in groups for i in g}
-    for g in groups:
-        chain = color_mips(out[0][:, :, g], transfer=transfer, kernel="box", levels=count, threads=threads)
+    averaged = [i for i, c in enumerate(channels) if i not in grouped and c.plane is not None]
+    parts = len(groups) + (1 if averaged else 0)  # each colour group and the averaged channels share the bar
+    for j, g in enumerate(groups):
+        chain = color_mips(out[0][:, :, g], transfer=transfer, kernel="box", levels=count, threads=threads,
+                           progress=within(step, 0.1 + 0.9 * j / parts, 0.1 + 0.9 * (j + 1) / parts))
         for k in range(1, count):
             out[k][:, :, g] = chain[k]
-    averaged = [i for i, c in enumerate(channels) if i not in grouped and c.plane is not None]
     for i, c in enumerate(channels):
         if c.plane is None:
             for k in range(1, count):
@@ -173,6 +182,8 @@ def pack_levels(channels: list[PackedChannel], *, levels: int = 1, transfer: str
                 if given is not None:
                     cur[:, :, j] = given
             out[k][:, :, averaged] = cur
+            step(0.1 + 0.9 * (len(groups) + min(1.0, 1 - 4.0 ** -k)) / parts, f"level {k}")
+    step(1.0, "levels")
     return out
 
 

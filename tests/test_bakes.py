@@ -101,3 +101,95 @@ def test_progress_display_lines_off_a_terminal_and_silent_when_quiet(monkeypatch
     assert capsys.readouterr().err == ""
 
 
+
+
+# ----------------------------------------------------------------------------------- progress within steps
+# Every bake that can run long reports inside its long step (rows of strips, levels, faces, blocks), not only
+# between steps. Small inputs with small strips (PNG rows, block rows) give many calls without big data; the
+# test counts calls, never times (tests/perf/progress_gaps.py measures the gaps at full size).
+
+PROGRESS_CASES = [
+    # (bake, inputs, output, parameters, label of the long step, least calls with it)
+    ("normal", {"height": "height"}, "n.ktx2", {"ktx2_format": "bc5"}, "encoding", 16),
+    ("normal", {"height": "height"}, "n.exr", {}, "strips", 4),
+    ("height", {"normal": "normal"}, "h.png", {}, "integrating", 5),
+    ("height", {"normal": "normal"}, "h.tif", {"edges": "clamp"}, "integrating", 5),
+    ("blend", {"base": "normal", "detail": "detail"}, "b.png", {}, "reading", 6),
+    ("normal-mips", {"normal": "normal"}, "m.png", {}, "level", 6),
+    ("normal-mips", {"normal": "normal"}, "m.png", {}, "writing", 20),
+    ("normal-mips", {"normal": "normal"}, "m.ktx2", {"ktx2_format": "bc5"}, "encoding", 16),
+    ("occlusion", {"height": "height"}, "o.png", {"bent_normals": True, "directions": 4}, "writing", 20),
+    ("curvature", {"height": "height"}, "c.png", {}, "curvature", 6),
+    ("mips", {"color": "color"}, "c.png", {}, "level", 6),
+    ("mips", {"color": "color"}, "c.png", {}, "writing", 16),
+    ("mips", {"color": "color"}, "c.ktx2", {"ktx2_format": "bc7-srgb"}, "encoding", 16),
+    ("pack", {"r": "rough", "g": "height"}, "p.png", {"mips": True}, "writing", 16),
+    ("pack", {"r": "rough", "g": "height"}, "p.ktx2", {"mips": True, "ktx2_format": "bc7"}, "encoding", 16),
+    ("roughness", {"specular": "exponent"}, "r.ktx2", {"ktx2_format": "bc4"}, "encoding", 16),
+    ("antialias", {"normal": "normal"}, "a.png", {"roughness": 0.3}, "writing", 16),
+    ("antialias", {"normal": "normal"}, "a.ktx2", {"roughness": 0.3, "ktx2_format": "bc4"}, "encoding", 16),
+    ("env-convert", {"environment": "sky"}, "e.ktx2", {"ktx2_format": "bc6h"}, "encoding", 8),
+    ("env-convert", {"environment": "sky"}, "e.png", {"output_layout": "cross-wide"}, "writing", 8),
+    ("env-diffuse", {"environment": "sky"}, "d.json", {}, "SH9 error estimate", 4),
+    ("env-diffuse", {"environment": "sky"}, "d.json", {"method": "exact"}, "exact irradiance", 4),
+    ("env-lights", {"environment": "sky"}, "l.json", {}, "finding lights", 5),
+    ("env-specular", {"environment": "sky"}, "s.ktx2", {"face_size": 32, "ktx2_format": "bc6h", "loose": True},
+     "encoding", 8),
+    ("env-lut", {}, "t.png", {"size": 64}, "table", 16),
+]
+
+
+@pytest.fixture(scope="module")
+def progress_inputs(tmp_path_factory):
+    import numpy as np
+
+    from bakery.io import write_image
+    from bakery.samples import sky_panorama
+
+    d = tmp_path_factory.mktemp("progress")
+    r, c = np.mgrid[0:64, 0:64].astype(np.float32)
+    h = 0.5 + 0.3 * np.sin(c / 5) * np.cos(r / 7) + 0.1 * np.sin((r + c) / 3)
+    gy, gx = np.gradient(4 * h)
+    n = np.stack([-gx, gy, np.ones_like(h)], axis=-1)
+    n /= np.linalg.norm(n, axis=-1, keepdims=True)
+    files = {"height": write_image(d / "h.png", h, bits="16"),
+             "normal": write_image(d / "n.png", n * 0.5 + 0.5, bits="16"),
+             "detail": write_image(d / "d.png", n[::-1] * 0.5 + 0.5, bits="16"),
+             "rough": write_image(d / "r.png", 0.2 + 0.5 * h, bits="8"),
+             "exponent": write_image(d / "e.exr", 8 + 400 * h, bits="float"),
+             "color": write_image(d / "c.png", np.stack([h, 1 - h, 0.5 * h, 0.5 + 0.5 * h], -1), bits="8"),
+             "sky": write_image(d / "sky.exr", sky_panorama(128), bits="half")}
+    return files
+
+
+@pytest.mark.parametrize(("bake", "inputs", "name", "values", "label", "least"), PROGRESS_CASES,
+                         ids=[f"{c[0]}-{c[2]}-{c[4]}" for c in PROGRESS_CASES])
+def test_progress_within_the_long_step_changes_no_byte(bake, inputs, name, values, label, least,
+                                                       progress_inputs, tmp_path, monkeypatch):
+    import warnings
+
+    from bakery.bakes import get_bake
+    from bakery.io import blockcodec, png
+    from bakery.normals import from_height
+
+    monkeypatch.setattr(png, "STRIP_BYTES", 64 * 6 * 4)  # a 64-wide 16-bit RGB level: 4 rows a strip
+    monkeypatch.setattr(blockcodec, "STRIP_BLOCK_ROWS", 1)  # one block row a strip
+    monkeypatch.setattr(from_height, "strip_rows", lambda cols, halo: 8)  # normals: 8 rows a strip
+    files = {role: progress_inputs[key] for role, key in inputs.items()}
+    params = get_bake(bake).params(**values)
+    seen = []
+    (tmp_path / "a").mkdir()
+    (tmp_path / "b").mkdir()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the inputs' own warnings (SH9 misses the sun ...) are beside the point
+        a = run_bake(bake, files, tmp_path / "a" / name, params, progress=lambda f, w: seen.append((f, w)))
+        b = run_bake(bake, files, tmp_path / "b" / name, params)
+    fractions = [f for f, _ in seen]
+    assert fractions[-1] == 1.0 and all(x <= y for x, y in zip(fractions, fractions[1:], strict=False))
+    assert 0.0 <= fractions[0]
+    inside = [f for f, w in seen if w.startswith(label)]
+    assert len(inside) >= least, (len(inside), sorted({w for _, w in seen}))
+    assert len(set(inside)) > 1  # the calls move the bar, not only repeat one value
+    assert [p.name for p in a] == [p.name for p in b]
+    for x, y in zip(a, b, strict=True):
+        assert x.read_bytes() == y.read_bytes(), x.name

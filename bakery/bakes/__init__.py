@@ -33,28 +33,11 @@ from typing import Any
 
 from bakery.bakes.params import Params, option_name
 from bakery.errors import BakeryError
+from bakery.progress import Progress, no_progress, within  # noqa: F401  (the bakes' progress channel)
 
 #: Modules that register bakes when imported.
 BAKE_MODULES: list[str] = ["bakery.bakes.normals", "bakery.bakes.roughness", "bakery.bakes.envmaps",
                           "bakery.bakes.glossy", "bakery.bakes.relief", "bakery.bakes.pack"]
-
-#: ``progress(fraction, label)``: fraction in [0, 1], rising; label a few words ("level 3", "strips").
-Progress = Callable[[float, str], None]
-
-
-def no_progress(fraction: float, label: str) -> None:
-    """The progress callback that reports nothing."""
-
-
-def within(progress: Progress, start: float, end: float) -> Progress:
-    """``progress`` for one step of a bake: the step's fractions 0..1 land on ``start..end`` of the bake's.
-
-    >>> seen = []
-    >>> within(lambda f, w: seen.append((f, w)), 0.5, 0.9)(0.5, "writing"); seen
-    [(0.7, 'writing')]
-    """
-    return lambda fraction, label: progress(start + (end - start) * fraction, label)
-
 
 @dataclass(frozen=True)
 class Bake:

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
-from bakery.bakes import Bake, Progress, bake_threads, params_to_dict, register
+from bakery.bakes import Bake, Progress, bake_threads, params_to_dict, register, within
 from bakery.bakes.params import Bits, Params, bits_param, effort_param, ktx2_format_param, param, zstd_param
 from bakery.errors import BakeryError, BakeryWarning
 
@@ -159,7 +159,7 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, pr
 
     src = inputs["environment"]
     progress(0.0, "reading")
-    env = read_environment(src, layout=params.input_layout, repair=params.repair)
+    env = read_environment(src, layout=params.input_layout, repair=params.repair, progress=within(progress, 0, 0.1))
     kind, lay = output_kind(output, params.output_layout, env.layout)
     if kind == "cube" and params.width is not None:
         raise BakeryError("--width sets a panorama's width; this output is a cubemap: use --face-size", output)
@@ -177,14 +177,16 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, pr
     progress(0.1, "resampling")
     pixels = resample(env.pixels, env.kind, kind, target, rotation_deg=params.rotation, filter=params.filter,
                       progress=lambda f: progress(0.1 + 0.7 * f, "resampling"))
-    progress(0.8, "writing")
+    progress(0.8, "mips" if output.suffix.lower() == ".ktx2" and params.mips else "writing")
     if params.exposure:  # colour channels only, never alpha
         pixels = pixels.copy()
         nc = 3 if pixels.shape[-1] >= 3 else 1
         pixels[..., :nc] *= np.float32(2.0 ** params.exposure)
     mips = None
     if output.suffix.lower() == ".ktx2" and params.mips:
-        mips = (cube_mip_chain(pixels) if kind == "cube" else equirect_mip_chain(pixels))[1:]
+        chain = cube_mip_chain if kind == "cube" else equirect_mip_chain
+        mips = chain(pixels, progress=within(progress, 0.8, 0.83))[1:]
+        progress(0.83, "writing")
     if output.suffix.lower() == ".ktx2":
         pixels, *rest = clamp_for_ktx2(output, [pixels] + list(mips or []), params.ktx2_format)
         mips = rest if mips is not None else None
@@ -192,7 +194,8 @@ def run_convert(inputs: dict[str, Path], output: Path, params: ConvertParams, pr
     written = write_environment(output, pixels, kind, layout=lay, bits=params.bits,
                                 source_bits=env.bits, ktx_format=params.ktx2_format, mips=mips,
                                 effort=params.effort, zstd=params.zstd, threads=bake_threads(), quality=quality,
-                                key_values=KTX_KEYS if output.suffix.lower() == ".ktx2" else None)
+                                key_values=KTX_KEYS if output.suffix.lower() == ".ktx2" else None,
+                                progress=within(progress, 0.83, 0.98))
     man = write_manifest(output, bake="env-convert",
                          inputs=manifest_inputs(env.paths, "environment"),
                          params=params_to_dict(params), outputs=written,
@@ -274,7 +277,9 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
                           output)
     ktx_path, faces_pattern = diffuse_outputs(output)
     src = inputs["environment"]
-    env = read_environment(src, layout=params.input_layout, repair=params.repair)
+    progress(0.0, "reading")
+    env = read_environment(src, layout=params.input_layout, repair=params.repair,
+                           progress=within(progress, 0.0, 0.05))
     check_distinct([ktx_path, *face_paths(faces_pattern)], env.paths)
     px = env.pixels[..., :3] if env.pixels.shape[-1] >= 3 else env.pixels
     lights = []
@@ -292,9 +297,12 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
     windowed = irr.irradiance_coefficients(radiance, window=params.window)
     expected = None
     if params.method == "sh":
+        progress(0.4, "irradiance cubemap")
         cube = irr.irradiance_cube_sh(windowed, params.face_size)
         if not lights:
-            expected = irr.sh9_error_estimate(px, env.kind, window=params.window, radiance_sh=radiance)
+            progress(0.5, "SH9 error estimate")
+            expected = irr.sh9_error_estimate(px, env.kind, window=params.window, radiance_sh=radiance,
+                                              progress=within(progress, 0.5, 0.9))
             if expected["max_relative"] > SH9_WARN:
                 worst, mean = 100 * expected["max_relative"], 100 * expected["mean_relative"]
                 warnings.warn(f"{src}: 9 SH coefficients miss this environment's compact bright light: up to "
@@ -306,6 +314,7 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
         if lights:
             cube = cube + sum(light_irradiance(lt, dirs) for lt in lights)
         cube = cube.astype(np.float32)
+    progress(0.9, "writing")
     if params.units == "reflected":
         cube = cube / np.float32(np.pi)
     negative = int(np.count_nonzero(cube < 0))
@@ -341,14 +350,17 @@ def run_diffuse(inputs: dict[str, Path], output: Path, params: DiffuseParams, pr
     (ktx_cube,) = clamp_for_ktx2(ktx_path, [cube], params.ktx2_format)
     written += write_environment(ktx_path, ktx_cube, "cube", ktx_format=params.ktx2_format, effort=params.effort,
                                  zstd=params.zstd, threads=bake_threads(), quality=quality,
-                                 key_values={**KTX_KEYS, "bakery.units": data["cubemap"]["units"]})
-    written += write_environment(faces_pattern, cube, "cube", bits="half")
+                                 key_values={**KTX_KEYS, "bakery.units": data["cubemap"]["units"]},
+                                 progress=within(progress, 0.9, 0.95))
+    written += write_environment(faces_pattern, cube, "cube", bits="half", threads=bake_threads(),
+                                 progress=within(progress, 0.95, 0.99))
     extra = {"conventions": CONVENTIONS, **({"quality": quality} if quality else {})}
     recorded = manifest_inputs(env.paths, "environment")
     if inputs.get("lights") is not None:
         recorded["lights"] = inputs["lights"]
     man = write_manifest(output, bake="env-diffuse", inputs=recorded,
                          params=params_to_dict(params), outputs=written, extra=extra)
+    progress(1.0, "done")
     return written + [man]
 
 
@@ -398,14 +410,16 @@ def run_lights(inputs: dict[str, Path], output: Path, params: LightsParams, prog
     from bakery.io.manifest import write_json, write_manifest
 
     src = inputs["environment"]
-    env = read_environment(src, layout=params.input_layout, repair=params.repair)
+    progress(0.0, "reading")
+    env = read_environment(src, layout=params.input_layout, repair=params.repair,
+                           progress=within(progress, 0.0, 0.1))
     px = env.pixels[..., :3]
     if env.kind == "cube":  # the finder works on a panorama of the cube's resolution
         px = resample(px, "cube", "equirect", 4 * px.shape[1])
     progress(0.1, "finding lights")
     lights, rest = find_lights(np.ascontiguousarray(px, np.float32), max_lights=params.max_lights,
                                contrast=params.contrast, max_radius_deg=params.max_radius,
-                               min_share=params.min_share)
+                               min_share=params.min_share, progress=within(progress, 0.1, 0.8))
     progress(0.8, "writing")
     data = {
         "lights": [lt.to_dict() for lt in lights],
@@ -417,7 +431,8 @@ def run_lights(inputs: dict[str, Path], output: Path, params: LightsParams, prog
     json_path = write_json(output, data)
     from bakery.io.images import write_image
 
-    rest_file = write_image(rest_path(output), np.ascontiguousarray(rest, np.float32), bits="float")
+    rest_file = write_image(rest_path(output), np.ascontiguousarray(rest, np.float32), bits="float",
+                            progress=within(progress, 0.8, 0.98))
     man = write_manifest(output, bake="env-lights", inputs=manifest_inputs(env.paths, "environment"),
                          params=params_to_dict(params), outputs=[json_path, rest_file],
                          extra={"conventions": CONVENTIONS, "lights_found": len(lights)})

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Literal
 
-from bakery.bakes import Bake, Progress, level_path, params_to_dict, register
+from bakery.bakes import Bake, Progress, level_path, params_to_dict, register, within
 from bakery.bakes.envmaps import INPUT_LAYOUT, ImageLayout
 from bakery.bakes.params import Params, effort_param, ktx2_format_param, loose_param, param, parse_numbers, zstd_param
 from bakery.errors import BakeryError
@@ -87,13 +87,13 @@ def check_specular_params(p: SpecularParams) -> None:
         raise BakeryError(f"level-roughness: {exc}") from None
 
 
-def read_source(path: Path, layout: str | None):
+def read_source(path: Path, layout: str | None, progress: Progress | None = None):
     """Read the environment in any layout (:func:`bakery.io.envfiles.read_environment`) as float32 RGB."""
     import numpy as np
 
     from bakery.io.envfiles import read_environment
 
-    env = read_environment(path, layout=layout or None)
+    env = read_environment(path, layout=layout or None, progress=progress)
     px = env.pixels
     c = px.shape[-1]
     if c == 4:
@@ -120,6 +120,11 @@ def specular_outputs(inputs: dict[str, Path], output: Path, params: SpecularPara
     return files + [manifest_path(output)]
 
 
+#: Where each step of an ``env-specular`` bake starts on the progress scale (common practice: shares of the time
+#: at the default quality from a 4096 x 2048 panorama).
+SPECULAR_STEPS = {"prefilter": 0.15, "writing": 0.93, "manifest": 0.99}
+
+
 def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams, progress: Progress) -> list[Path]:
     import numpy as np
 
@@ -131,7 +136,9 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
     if output.suffix.lower() != ".ktx2":
         raise BakeryError("output must end in .ktx2 (add --loose for OpenEXR files per level and face)",
                           output)
-    env = read_source(inputs["environment"], params.input_layout)
+    progress(0.0, "reading")
+    env = read_source(inputs["environment"], params.input_layout,
+                      within(progress, 0.0, SPECULAR_STEPS["prefilter"]))
     rough = params.level_roughness if isinstance(params.level_roughness, str) else list(params.level_roughness)
     levels = params.levels or params.face_size.bit_length()
     r = level_roughness(levels, rough)
@@ -141,14 +148,15 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
 
         lights = read_lights(inputs["lights"])
     res = prefilter_specular(env, params.face_size, levels=levels, roughness=r.tolist(), lobe=params.lobe,
-                             quality=params.quality, progress=lambda f, w: progress(0.95 * f, w))
+                             quality=params.quality,
+                             progress=within(progress, SPECULAR_STEPS["prefilter"], SPECULAR_STEPS["writing"]))
     if lights:  # directional lights taken out of the environment by env-lights go back in, per level
         from bakery.envmap.sunlight import add_light_to_level
 
         for light in lights:
             res.levels[:] = [add_light_to_level(lv, light, float(rk), lobe=params.lobe)
                              for lv, rk in zip(res.levels, res.roughness, strict=True)]
-    progress(1.0, "done")
+    progress(SPECULAR_STEPS["writing"], "writing")
     mapping = rough if isinstance(rough, str) else "list"
     table = {
         "lobe": params.lobe,
@@ -165,14 +173,22 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
     from bakery.bakes.envmaps import KTX_KEYS
 
     kv = {**KTX_KEYS, KTX_ROUGHNESS_KEY: json.dumps(table, sort_keys=True, separators=(",", ":"), ensure_ascii=False)}
+    loose_share = 0.5 if params.loose else 0.0  # the loose faces: as long as the KTX2 file (common practice)
+    end = SPECULAR_STEPS["manifest"]
+    split = end - (end - SPECULAR_STEPS["writing"]) * loose_share
     _, quality = write_texture(output, res.levels, fmt, kind="hdr", cubemap=True, key_values=kv,
-                               effort=params.effort, zstd=params.zstd, threads=bake_threads())
+                               effort=params.effort, zstd=params.zstd, threads=bake_threads(),
+                               progress=within(progress, SPECULAR_STEPS["writing"], split))
     written = [output]
     if params.loose:
+        texels = np.cumsum([0] + [lv[f].size for lv in res.levels for f in range(6)], dtype=np.float64)
+        texels /= texels[-1]
         for k, lv in enumerate(res.levels):
             for f, tag in enumerate(FACE_TOKENS):
                 p = level_path(output.with_suffix(".exr"), k, face=tag)
-                written.append(write_image(p, lv[f], bits="float" if params.ktx2_format == "rgba32f" else "half"))
+                written.append(write_image(p, lv[f], bits="float" if params.ktx2_format == "rgba32f" else "half",
+                                           progress=within(progress, split + (end - split) * texels[6 * k + f],
+                                                           split + (end - split) * texels[6 * k + f + 1])))
     extra = {
         "roughness_per_level": table,
         "method": {"quality": params.quality, "sh_band_limit_per_level": res.band_limits,
@@ -193,9 +209,11 @@ def _run_specular(inputs: dict[str, Path], output: Path, params: SpecularParams,
     recorded = manifest_inputs(files, "environment")
     if inputs.get("lights") is not None:
         recorded["lights"] = inputs["lights"]
+    progress(SPECULAR_STEPS["manifest"], "manifest")
     written.append(write_manifest(output, bake="env-specular", inputs=recorded,
                                   params=params_to_dict(params),
                                   outputs=written, extra=extra))
+    progress(1.0, "done")
     return written
 
 
@@ -226,24 +244,27 @@ def _run_lut(inputs: dict[str, Path], output: Path, params: LutParams, progress:
     suffix = output.suffix.lower()
     if suffix not in (".png", ".exr", ".ktx2"):
         raise BakeryError("output must end in .png (16-bit), .exr or .ktx2 (R16G16_SFLOAT)", output)
-    lut = brdf_lut(params.size, roughness_grows=params.roughness_grows)
+    progress(0.0, "table")
+    lut = brdf_lut(params.size, roughness_grows=params.roughness_grows, progress=within(progress, 0.0, 0.9))
+    writing = within(progress, 0.9, 0.99)
     if suffix == ".png":  # png / exr; ktx2 below
         rgb = np.concatenate([lut, np.zeros(lut.shape[:2] + (1,), np.float32)], axis=2)
-        path = write_image(output, rgb, bits="16")
+        path = write_image(output, rgb, bits="16", progress=writing)
     elif suffix == ".exr":
-        path = write_image(output, lut, bits="float")
+        path = write_image(output, lut, bits="float", progress=writing)
     quality = None
     if suffix == ".ktx2":
         from bakery.io.texcompress import resolve_format, write_texture
 
         fmt = resolve_format(params.ktx2_format, "data", 2)
         path, quality = write_texture(output, [lut], fmt, kind="data", effort=params.effort, zstd=params.zstd,
-                                      key_values={"bakery.brdf-lut": _lut_layout(params)})
+                                      key_values={"bakery.brdf-lut": _lut_layout(params)}, progress=writing)
     extra = {"layout": json.loads(_lut_layout(params))}
     if quality:
         extra["quality"] = {output.name: quality}
     man = write_manifest(output, bake="env-lut", inputs={}, params=params_to_dict(params), outputs=[path],
                          extra=extra)
+    progress(1.0, "done")
     return [path, man]
 
 

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Literal
 
-from bakery.bakes import Bake, Progress, bake_threads, level_path, params_to_dict, register
+from bakery.bakes import Bake, Progress, bake_threads, level_path, params_to_dict, register, within
 from bakery.bakes.params import (
     Bits,
     Channel,
@@ -313,10 +313,11 @@ def run_pack(inputs: dict[str, Path], output: Path, p: PackParams, progress: Pro
     w, h = _target_size(sources, p.resample)
     progress(0.05, "reading")
     images, manifests = {}, {}
-    for s in sources:
-        if s.path is not None and s.path not in images:
-            images[s.path] = read_image(s.path)
-            manifests[s.path] = role_from_manifest(s.path)
+    files = list(dict.fromkeys(s.path for s in sources if s.path is not None))
+    for i, path in enumerate(files):
+        images[path] = read_image(path, progress=within(progress, 0.05 + 0.15 * i / len(files),
+                                                        0.05 + 0.15 * (i + 1) / len(files)))
+        manifests[path] = role_from_manifest(path)
     bits_in = max((images[s.path].bits for s in sources if s.path is not None), key=PRECISION.index)
     colour_src = [images[s.path] for s in sources if s.path is not None and (s.role or manifests[s.path][0])
                   == "color"]
@@ -358,7 +359,8 @@ def run_pack(inputs: dict[str, Path], output: Path, p: PackParams, progress: Pro
     paths = [output] if ktx2 else [level_path(output, k) for k in range(count)]
     check_distinct(paths + [manifest_path(output)], chains_read)
     progress(0.2, "levels")
-    levels = pack_levels(channels, levels=count, transfer=transfer, threads=bake_threads())
+    levels = pack_levels(channels, levels=count, transfer=transfer, threads=bake_threads(),
+                         progress=within(progress, 0.2, 0.55))
     srgb_colour = transfer == "srgb" and all(c.role == "color" for c in channels[:3])
     if ktx2:
         bits = p.bits or ("8" if bits_in == "8" else "16" if bits_in == "16" else "half")
@@ -380,11 +382,15 @@ def run_pack(inputs: dict[str, Path], output: Path, p: PackParams, progress: Pro
             store = [np.concatenate([srgb_to_linear(lv[:, :, :3]), lv[:, :, 3:]], axis=2) for lv in levels]
         note = {"bakery.channels": " ".join(f"{x}={d['role']}" for x, d in described.items())}
         _, quality = write_texture(output, store, fmt, kind=kind, key_values=note, effort=p.effort, zstd=p.zstd,
-                                   threads=bake_threads())
+                                   threads=bake_threads(), progress=within(progress, 0.6, 0.97))
     else:
+        shares = np.cumsum([0] + [lv.shape[0] * lv.shape[1] for lv in levels], dtype=np.float64)
+        shares /= shares[-1]
+        writing = within(progress, 0.6, 0.97)
         with contextlib.ExitStack() as stack:  # every level renamed into place only after all were written
-            for lv, path in zip(levels, paths, strict=True):
-                write_image(stack.enter_context(atomic_output(path)), lv, bits=bits, threads=bake_threads())
+            for lv, path, lo, hi in zip(levels, paths, shares[:-1], shares[1:], strict=True):
+                write_image(stack.enter_context(atomic_output(path)), lv, bits=bits, threads=bake_threads(),
+                            progress=within(writing, lo, hi))
     extra = {
         "channels": described,
         "mip_rules": rules,

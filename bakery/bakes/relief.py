@@ -54,10 +54,10 @@ def check_image_output(output: Path, what: str) -> str:
     return fmt
 
 
-def _height_and_strength(inputs: dict[str, Path], p, flat: str):
+def _height_and_strength(inputs: dict[str, Path], p, flat: str, progress: Progress | None = None):
     """Heights, sample type, data range and ``(s_x, s_y)`` as the ``normal`` bake resolves them."""
     src = inputs["height"]
-    h, bits, rng = read_height(src, p.channel, p.stretch, flat=flat)
+    h, bits, rng = read_height(src, p.channel, p.stretch, flat=flat, progress=progress)
     sx, sy = resolve_strength(h.shape, p.strength, p.relief, p.span)
     return h, bits, rng, (sx, sy)
 
@@ -103,6 +103,11 @@ def occlusion_outputs(inputs: dict[str, Path], output: Path, p: OcclusionParams)
     return [output] + ([bent_path(output)] if p.bent_normals else []) + [manifest_path(output)]
 
 
+#: Where each step of an ``occlusion`` bake starts on the progress scale (common practice: shares of the time
+#: measured on an 8192^2 16-bit PNG with bent normals).
+OCCLUSION_STEPS = {"sweeps": 0.05, "writing": 0.8, "manifest": 0.98}
+
+
 def run_occlusion(inputs: dict[str, Path], output: Path, p: OcclusionParams, progress: Progress) -> list[Path]:
     from bakery.bakes.normals import _conventions, write_normals
     from bakery.io.images import write_image
@@ -110,7 +115,9 @@ def run_occlusion(inputs: dict[str, Path], output: Path, p: OcclusionParams, pro
     from bakery.relief import occlusion_from_height
 
     check_image_output(output, "occlusion maps")
-    h, in_bits, (lo, hi), (sx, sy) = _height_and_strength(inputs, p, "the occlusion is 1 everywhere")
+    progress(0.0, "reading")
+    h, in_bits, (lo, hi), (sx, sy) = _height_and_strength(inputs, p, "the occlusion is 1 everywhere",
+                                                          within(progress, 0.0, OCCLUSION_STEPS["sweeps"]))
     rows, cols = h.shape
     if p.max_distance is not None and p.max_distance > max(rows, cols):
         raise BakeryError(f"--max-distance must be at most the map's larger side ({max(rows, cols)} texels); got "
@@ -118,9 +125,12 @@ def run_occlusion(inputs: dict[str, Path], output: Path, p: OcclusionParams, pro
     bits = output_bits(output, p.bits, in_bits)
     res = occlusion_from_height(h, strength=(sx, sy), directions=p.directions, max_distance=p.max_distance,
                                 edges=p.edges, kernel=p.kernel, bent_normals=p.bent_normals,
-                                threads=bake_threads(), progress=progress)
+                                threads=bake_threads(),
+                                progress=within(progress, OCCLUSION_STEPS["sweeps"], OCCLUSION_STEPS["writing"]))
     ao, bent = res if p.bent_normals else (res, None)
-    written = [write_image(output, ao, bits=bits, threads=bake_threads())]
+    writing = within(progress, OCCLUSION_STEPS["writing"], OCCLUSION_STEPS["manifest"])
+    split = 0.25 if bent is not None else 1.0  # the bent normals: three channels to the occlusion's one
+    written = [write_image(output, ao, bits=bits, threads=bake_threads(), progress=within(writing, 0.0, split))]
     extra = {"meaning": "ambient occlusion: cosine-weighted visible sky over each texel, 1 = open, 0 = closed "
                         "(Jimenez et al. 2016, eq. 10, on horizons of the height field)",
              "strength_used": {"x": sx, "y": sy}, "directions": p.directions,
@@ -128,11 +138,14 @@ def run_occlusion(inputs: dict[str, Path], output: Path, p: OcclusionParams, pro
              "height_range": {"nominal": [0.0, 1.0], "data": [lo, hi], "stretched": p.stretch},
              "sample_type": bits}
     if bent is not None:
-        written.append(write_normals(bent_path(output), bent, y=p.y, channels=3, bits=bits))
+        written.append(write_normals(bent_path(output), bent, y=p.y, channels=3, bits=bits,
+                                     progress=within(writing, split, 1.0)))
         extra["bent_normals"] = {"file": bent_path(output).name, "conventions": _conventions(p.y),
                                  "meaning": "normalised cosine-weighted mean unoccluded direction, tangent space"}
+    progress(OCCLUSION_STEPS["manifest"], "manifest")
     manifest = write_manifest(output, bake="occlusion", inputs={"height": inputs["height"]},
                               params=params_to_dict(p), outputs=written, extra=extra)
+    progress(1.0, "done")
     return written + [manifest]
 
 
@@ -185,7 +198,9 @@ def run_curvature(inputs: dict[str, Path], output: Path, p: CurvatureParams, pro
     from bakery.relief import curvature_maps
 
     check_image_output(output, "curvature maps")
-    h, in_bits, (lo, hi), (sx, sy) = _height_and_strength(inputs, p, "the surface is flat (curvature 0 everywhere)")
+    progress(0.0, "reading")
+    h, in_bits, (lo, hi), (sx, sy) = _height_and_strength(inputs, p, "the surface is flat (curvature 0 everywhere)",
+                                                          within(progress, 0.0, 0.1))
     if p.strength is not None:
         relief, unit = 1.0, "height units"
     else:
@@ -194,7 +209,7 @@ def run_curvature(inputs: dict[str, Path], output: Path, p: CurvatureParams, pro
     bits = output_bits(output, p.bits, in_bits)
     progress(0.1, "curvature")
     maps = curvature_maps(h, strength=(sx, sy), relief=relief, scale=p.scale, radius=p.radius, edges=p.edges,
-                          kernel=p.kernel)
+                          kernel=p.kernel, progress=within(progress, 0.1, 0.5))
     chosen = maps.encoded if p.map == "curvature" else getattr(maps, p.map)
     progress(0.5, "writing")
     written = [write_image(output, chosen, bits=bits, progress=within(progress, 0.5, 0.95), threads=bake_threads())]
@@ -207,7 +222,7 @@ def run_curvature(inputs: dict[str, Path], output: Path, p: CurvatureParams, pro
              "sample_type": bits}
     manifest = write_manifest(output, bake="curvature", inputs={"height": inputs["height"]},
                               params=params_to_dict(p), outputs=written, extra=extra)
-    progress(1.0, "curvature")
+    progress(1.0, "done")
     return written + [manifest]
 
 
@@ -305,7 +320,8 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
     from bakery.mips import color_mips, coverage
 
     src = inputs["color"]
-    img = read_image(src)
+    progress(0.0, "reading")
+    img = read_image(src, progress=within(progress, 0.0, 0.05))
     px = img.pixels
     is_float = img.bits in ("half", "float")
     _refuse_normal_map(px, is_float, src)
@@ -319,8 +335,9 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
     bits = output_bits(output.with_suffix(".png") if ktx2 else output, p.bits, img.bits)
     progress(0.05, "levels")
     chain = color_mips(px, transfer=transfer, kernel=p.kernel, edges=p.edges, levels=p.levels,
-                       alpha_cutoff=p.alpha_cutoff if p.coverage else None, threads=bake_threads())
-    progress(0.6, "writing")
+                       alpha_cutoff=p.alpha_cutoff if p.coverage else None, threads=bake_threads(),
+                       progress=within(progress, 0.05, 0.4))
+    progress(0.4, "writing")
     paths = color_level_paths(output, len(chain), p.loose)
     if bits in ("8", "16") and (not ktx2 or p.loose):
         over = int(np.count_nonzero(chain[0] > 1.0))
@@ -329,14 +346,21 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
                           ".exr to keep them", BakeryWarning, stacklevel=2)
     images = paths[1:] if ktx2 else paths
     report = None
+    # each file's share of the writing by its texels; a KTX2 file counts as much as its level images
+    shares = np.cumsum([0] + [lv.shape[0] * lv.shape[1] for lv in chain[:len(images)]]
+                       + ([sum(lv.shape[0] * lv.shape[1] for lv in chain)] if ktx2 else []), dtype=np.float64)
+    shares /= shares[-1]
+    writing = within(progress, 0.4, 0.97)
     with contextlib.ExitStack() as stack:  # every file renamed into place only after all were written
-        for level, path in zip(chain, images, strict=False):
+        for level, path, lo, hi in zip(chain, images, shares[:-1], shares[1:], strict=False):
             tmp = stack.enter_context(atomic_output(path))
-            write_image(tmp, level, bits=bits, threads=bake_threads())
+            write_image(tmp, level, bits=bits, threads=bake_threads(), progress=within(writing, lo, hi))
         if ktx2:
             levels = chain
+            part = within(writing, shares[-2], 1.0)  # the KTX2 file: linear colour first (a tenth), then encoding
             if fmt.srgb or fmt.is_float:  # these formats take linear colour (sRGB formats encode it on writing)
-                levels = [_linear(lv, transfer) for lv in chain]
+                levels = [_linear(lv, transfer, within(part, 0.1 * (1 - 4.0 ** -k), 0.1 * (1 - 4.0 ** -(k + 1))))
+                          for k, lv in enumerate(chain)]
             tmp = stack.enter_context(atomic_output(output))
             note = {"bakery.color": f"colour mips: {p.kernel} filter in linear light, premultiplied alpha"
                                     + (f"; alpha-tested coverage kept at cutoff {p.alpha_cutoff:g}" if p.coverage
@@ -345,12 +369,13 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
                 from bakery.io.texcompress import write_compressed_ktx2
 
                 kind = "hdr" if fmt.block == "bc6h" else "color"
-                res = write_compressed_ktx2(tmp, levels, fmt, kind=kind, threads=bake_threads(), key_values=note)
+                res = write_compressed_ktx2(tmp, levels, fmt, kind=kind, threads=bake_threads(), key_values=note,
+                                            progress=within(part, 0.1, 1.0))
                 report = res.report
             else:
                 from bakery.io.ktx2 import write_ktx2
 
-                write_ktx2(tmp, levels, fmt, cubemap=False, key_values=note)
+                write_ktx2(tmp, levels, fmt, cubemap=False, key_values=note, progress=within(part, 0.1, 1.0))
     level_info = []
     for k, lv in enumerate(chain):
         entry = {"level": k, "size": [int(lv.shape[1]), int(lv.shape[0])]}
@@ -371,15 +396,25 @@ def run_color_mips(inputs: dict[str, Path], output: Path, p: ColorMipsParams, pr
     return paths + [manifest]
 
 
-def _linear(level, transfer: str):
-    """A stored level in linear colour (alpha untouched)."""
+#: Texels per band of rows when a colour level turns linear for KTX2 (common practice: a few MiB).
+LINEAR_BAND_TEXELS = 1 << 18
+
+
+def _linear(level, transfer: str, progress: Progress):
+    """A stored level in linear colour (alpha untouched), in bands of rows (texel by texel: the bands change
+    no value) with ``progress`` after each."""
     if transfer == "linear":
+        progress(1.0, "writing")
         return level
     from bakery.color import srgb_to_linear
 
     out = level.copy()
     c = 1 if level.shape[2] in (1, 2) else 3
-    out[:, :, :c] = srgb_to_linear(level[:, :, :c])
+    rows = max(1, LINEAR_BAND_TEXELS // max(1, level.shape[1]))
+    for r0 in range(0, level.shape[0], rows):
+        r1 = min(level.shape[0], r0 + rows)
+        out[r0:r1, :, :c] = srgb_to_linear(level[r0:r1, :, :c])
+        progress(r1 / level.shape[0], "writing")
     return out
 
 

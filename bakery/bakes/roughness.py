@@ -165,14 +165,15 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
 
     src_path = inputs["specular"]
     progress(0.0, "reading")
-    img = read_image(src_path, allow_nonfinite=True)
+    img = read_image(src_path, allow_nonfinite=True, progress=within(progress, 0.0, 0.2 if "pack" in inputs
+                                                                     and inputs["pack"] else 0.25))
     source = _source_quantity(params, img.bits, src_path)
     values = pick_channel(img.pixels, params.channel, src_path, "the map")
     target = QUANTITIES[params.target]
     pack = inputs.get("pack")
     packed = None
     if pack is not None:
-        packed = read_image(pack)
+        packed = read_image(pack, progress=within(progress, 0.2, 0.25))
         if packed.pixels.shape[:2] != values.shape:
             ph, pw = packed.pixels.shape[:2]
             raise BakeryError(f"image to pack into is {pw}x{ph} but the map is {values.shape[1]}x"
@@ -223,7 +224,8 @@ def run_roughness(inputs: dict[str, Path], output: Path, params: RoughnessParams
         fmt = resolve_format(params.ktx2_format or f"{names.get(px.shape[2], 'rgba')}{bits}", "data", px.shape[2])
         _, quality = write_texture(output, build_levels(px, kind="data"), fmt, kind="data", effort=params.effort,
                                    zstd=params.zstd, threads=bake_threads(),
-                                   key_values={"bakery.roughness": target.summary})
+                                   key_values={"bakery.roughness": target.summary},
+                                   progress=within(progress, 0.35, 0.95))
     else:
         write_image(output, pixels, bits=bits, progress=within(progress, 0.35, 0.95),  # data, never sRGB-encoded
                     threads=bake_threads())
@@ -336,10 +338,10 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
     if rough_path is not None and params.roughness is not None:
         raise BakeryError("give either a roughness map or --roughness, not both", rough_path)
     progress(0.0, "reading")
-    normals, _ = read_normals(normal_path, "up")  # the Y convention does not change lengths of averages
+    normals, _ = read_normals(normal_path, "up", within(progress, 0.0, 0.55))  # Y does not change lengths
     source_bits = "16"
     if rough_path is not None:
-        rough_img = read_image(rough_path)
+        rough_img = read_image(rough_path, progress=within(progress, 0.55, 0.6))
         if rough_img.pixels.shape[:2] != normals.shape[:2]:
             (rh, rw), (nh, nw) = rough_img.pixels.shape[:2], normals.shape[:2]
             raise BakeryError(f"roughness map is {rw}x{rh} but the normal map {normal_path.name} is {nw}x{nh}; "
@@ -385,8 +387,9 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
         for level, path, share in zip(chain, images, shares, strict=False):
             progress(done, f"writing {path.name}")
             tmp = stack.enter_context(atomic_output(path))
-            write_image(tmp, level, bits=bits, threads=bake_threads())
-            done += 0.15 * share
+            write_image(tmp, level, bits=bits, threads=bake_threads(),
+                        progress=within(progress, done, done + 0.14 * share))
+            done += 0.14 * share
         quality = None
         if ktx2:
             from bakery.io.texcompress import write_texture
@@ -395,7 +398,8 @@ def run_antialias(inputs: dict[str, Path], output: Path, params: AntialiasParams
             tmp = stack.enter_context(atomic_output(output))
             _, quality = write_texture(tmp, [lv[:, :, None] for lv in chain], fmt, kind="data",
                                        key_values={"bakery.roughness": describe}, effort=params.effort,
-                                       zstd=params.zstd, threads=bake_threads())
+                                       zstd=params.zstd, threads=bake_threads(),
+                                       progress=within(progress, done, 0.99))
     conventions = {"roughness": describe, "transfer": "linear",
                    "levels": [{"level": k, "size": [int(lv.shape[1]), int(lv.shape[0])]}
                               for k, lv in enumerate(chain)]}

@@ -46,6 +46,7 @@ import numpy as np
 
 from bakery.errors import BakeryError
 from bakery.microfacet import g2_smith_correlated, schlick_weight
+from bakery.progress import Progress
 
 __all__ = ["brdf_lut", "split_sum_terms"]
 
@@ -53,7 +54,8 @@ __all__ = ["brdf_lut", "split_sum_terms"]
 DEFAULT_ORDER = (48, 32)
 
 
-def split_sum_terms(nov, roughness, *, order: tuple[int, int] = DEFAULT_ORDER) -> np.ndarray:
+def split_sum_terms(nov, roughness, *, order: tuple[int, int] = DEFAULT_ORDER,
+                    progress: Progress | None = None) -> np.ndarray:
     """Scale A and bias B of F0 in the split-sum approximation, for GGX with height-correlated Smith G2.
 
     Parameters
@@ -64,6 +66,9 @@ def split_sum_terms(nov, roughness, *, order: tuple[int, int] = DEFAULT_ORDER) -
         Perceptual roughness r in [0, 1] (GGX alpha = r², Burley 2012). Broadcasts with ``nov``.
     order : (int, int)
         Quadrature nodes in the polar (Gauss-Legendre in u1) and azimuthal (midpoint over [0, π]) directions.
+    progress : callable, optional
+        ``progress(fraction, "table")`` after each block of entries, rising to 1 (blocks are independent: the
+        result does not depend on it).
 
     Returns
     -------
@@ -118,11 +123,13 @@ def split_sum_terms(nov, roughness, *, order: tuple[int, int] = DEFAULT_ORDER) -
         w = (tcut * 0.5) * wx[None, None, :] * 2 * (1 - t) / nphi
         out[sl, 0] = np.sum(w * g * (1 - fc), axis=(1, 2))
         out[sl, 1] = np.sum(w * g * fc, axis=(1, 2))
+        if progress is not None:
+            progress(min(s + step, nv.shape[0]) / nv.shape[0], "table")
     return out.reshape(shape + (2,))
 
 
 def brdf_lut(size: int = 128, *, height: int | None = None, roughness_grows: str = "down",
-             order: tuple[int, int] = DEFAULT_ORDER) -> np.ndarray:
+             order: tuple[int, int] = DEFAULT_ORDER, progress: Progress | None = None) -> np.ndarray:
     """The split-sum BRDF table as a float32 image ``(height, size, 2)``: channel 0 = A, channel 1 = B.
 
     Parameters
@@ -136,6 +143,8 @@ def brdf_lut(size: int = 128, *, height: int | None = None, roughness_grows: str
         (for shaders that address rows from the last stored row, e.g. OpenGL with images loaded bottom-up).
     order : (int, int)
         Quadrature orders, see :func:`split_sum_terms`.
+    progress : callable, optional
+        As for :func:`split_sum_terms`.
     """
     height = size if height is None else height
     if size < 1 or height < 1:
@@ -144,7 +153,7 @@ def brdf_lut(size: int = 128, *, height: int | None = None, roughness_grows: str
         raise BakeryError(f"roughness_grows must be 'down' or 'up'; got {roughness_grows!r}")
     nov = (np.arange(size) + 0.5) / size
     r = (np.arange(height) + 0.5) / height
-    lut = split_sum_terms(nov[None, :], r[:, None], order=order).astype(np.float32)
+    lut = split_sum_terms(nov[None, :], r[:, None], order=order, progress=progress).astype(np.float32)
     if roughness_grows == "up":
         lut = lut[::-1]
     return np.ascontiguousarray(lut)

@@ -47,6 +47,7 @@ import numpy as np
 
 from bakery import sphere
 from bakery.errors import BakeryError
+from bakery.progress import Progress, no_progress, within
 
 #: Exact basis constants: sqrt(1/4pi), sqrt(3/4pi), sqrt(15/4pi), sqrt(5/16pi), sqrt(15/16pi).
 K0 = math.sqrt(1 / (4 * math.pi))
@@ -152,7 +153,8 @@ def irradiance_exact(env: np.ndarray, kind: str, normals: np.ndarray, *, source_
     environment is reduced to a cubemap of face ``source_size`` with the energy-keeping area filter
     (:func:`bakery.envmap.resample.resample`) and summed over all its texels. A sun thus keeps its position
     and its sharp terminator (normals about 90° from it), not only its power. ``progress(fraction, label)``
-    is called per block of normals (fractions rising to exactly 1.0). Returns float64 ``(..., C)``.
+    is called after the split and the reduction, then per block of normals (fractions rising to exactly 1.0).
+    Returns float64 ``(..., C)``.
     """
     from bakery.envmap.resample import resample
     from bakery.envmap.specular import brightest_texels
@@ -166,8 +168,14 @@ def irradiance_exact(env: np.ndarray, kind: str, normals: np.ndarray, *, source_
     else:
         h, w = env.shape[:2]
         om_src = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)[:, None] * np.ones((1, w))
+        if progress is not None:
+            progress(0.02, "exact irradiance")
         d_src = sphere.equirect_directions(w, h, dtype=np.float64)
+    if progress is not None:
+        progress(0.05, "exact irradiance")
     bright = brightest_texels(env, om_src, bright_factor, max_bright)
+    if progress is not None:
+        progress(0.1, "exact irradiance")
     rest = np.array(env, dtype=np.float32)
     rest.reshape(-1, c)[bright] = 0.0
     b_dirs = d_src.reshape(-1, 3)[bright]
@@ -175,6 +183,8 @@ def irradiance_exact(env: np.ndarray, kind: str, normals: np.ndarray, *, source_
     src = rest if (kind == "cube" and env.shape[1] <= source_size) else resample(rest, kind, "cube",
                                                                                    source_size)
     n = src.shape[1]
+    if progress is not None:
+        progress(0.2, "exact irradiance")
     dirs = np.concatenate([sphere.cube_directions(n, dtype=np.float64).reshape(-1, 3), b_dirs])
     w_ = np.broadcast_to(sphere.cube_texel_solid_angles(n, dtype=np.float64)[None], (6, n, n)).reshape(-1)
     lw = np.concatenate([src.reshape(-1, c).astype(np.float64) * w_[:, None], b_lw])
@@ -185,12 +195,14 @@ def irradiance_exact(env: np.ndarray, kind: str, normals: np.ndarray, *, source_
         cos = np.maximum(flat[i:i + chunk] @ dirs.T, 0.0)
         out[i:i + chunk] = cos @ lw
         if progress is not None:
-            progress(1.0 if i + chunk >= flat.shape[0] else (i + chunk) / flat.shape[0], "exact irradiance")
+            progress(1.0 if i + chunk >= flat.shape[0] else 0.2 + 0.8 * (i + chunk) / flat.shape[0],
+                     "exact irradiance")
     return out.reshape(nrm.shape[:-1] + (c,))
 
 
 def sh9_error_estimate(env: np.ndarray, kind: str, *, size: int = 8, window: str = "none",
-                       threads: int | None = None, radiance_sh: np.ndarray | None = None) -> dict[str, float]:
+                       threads: int | None = None, radiance_sh: np.ndarray | None = None,
+                       progress: Progress | None = None) -> dict[str, float]:
     """How poor the 9-coefficient irradiance is for this environment (pure; for a warning that suggests the
     exact method).
 
@@ -204,13 +216,18 @@ def sh9_error_estimate(env: np.ndarray, kind: str, *, size: int = 8, window: str
       about 1 % typical);
     - ``"bright_fraction"``: the share of the environment's energy Σ L Ω (channel mean) in its brightest
       0.1 % of solid angle (a compact sun carries most of it).
+
+    ``progress(fraction, label)`` rises to 1 over its passes (the projection, the exact sum, the sort).
     """
+    step = progress or no_progress
+    step(0.0, "SH9 error estimate")
     env = np.asarray(env)
     normals = sphere.cube_directions(size, dtype=np.float64).reshape(-1, 3)
     if radiance_sh is None:  # callers that projected the environment already pass its coefficients
         radiance_sh = project_sh(env, kind, threads=threads)
+    step(0.1, "SH9 error estimate")
     sh = eval_sh(irradiance_coefficients(radiance_sh, window=window), normals)
-    ex = irradiance_exact(env, kind, normals, source_size=32)
+    ex = irradiance_exact(env, kind, normals, source_size=32, progress=within(step, 0.1, 0.5))
     keep = ex > 1e-3 * ex.max(axis=0, keepdims=True)
     rel = np.where(keep, np.abs(sh - ex) / np.maximum(ex, 1e-300), 0.0)
     mean = np.abs(sh - ex).sum(axis=0) / np.maximum(ex.sum(axis=0), 1e-300)
@@ -222,9 +239,12 @@ def sh9_error_estimate(env: np.ndarray, kind: str, *, size: int = 8, window: str
         om = np.broadcast_to(sphere.equirect_row_solid_angles(w, h, dtype=np.float64)[:, None], (h, w))
     lum = env.astype(np.float64).mean(axis=-1).reshape(-1)
     om = om.reshape(-1)
+    step(0.6, "SH9 error estimate")
     order = np.argsort(lum)[::-1]
+    step(0.9, "SH9 error estimate")
     cum = np.cumsum(om[order])
     top = order[: int(np.searchsorted(cum, 4 * math.pi * 1e-3)) + 1]
     total = float(lum @ om)
+    step(1.0, "SH9 error estimate")
     return {"max_relative": float(rel.max()), "mean_relative": float(mean.max()),
             "bright_fraction": float((lum[top] @ om[top]) / total) if total > 0 else 0.0}

@@ -30,6 +30,7 @@ from bakery.envmap.sample import (
     sample_equirect_uv,
 )
 from bakery.errors import BakeryError
+from bakery.progress import Progress
 
 # ------------------------------------------------------------------------------------------ resampling
 
@@ -438,10 +439,12 @@ def energy(env: np.ndarray, kind: str) -> np.ndarray:
     return np.einsum("ijc,i->c", env.astype(np.float64), w)
 
 
-def cube_mip_chain(cube: np.ndarray, levels: int | None = None) -> list[np.ndarray]:
+def cube_mip_chain(cube: np.ndarray, levels: int | None = None,
+                   progress: Progress | None = None) -> list[np.ndarray]:
     """Level 0 and its smaller levels down to 1 x 1 (or ``levels`` in all): each level the solid-angle
     weighted 2 x 2 average of the one before (:func:`reduce_cube`), or the area-weighted resampling
-    (:func:`area_resample`) where a face size is odd."""
+    (:func:`area_resample`) where a face size is odd. ``progress(fraction, "mips")`` after each level, by the
+    texels read (level 1 reads three quarters of them), rising to 1."""
     _check_cube(cube)
     out = [np.asarray(cube, dtype=np.float32)]
     total = levels or int(cube.shape[1]).bit_length()
@@ -449,13 +452,18 @@ def cube_mip_chain(cube: np.ndarray, levels: int | None = None) -> list[np.ndarr
         cur = out[-1]
         n = cur.shape[1]
         out.append(reduce_cube(cur) if n % 2 == 0 else area_resample(cur, "cube", "cube", n // 2))
+        if progress is not None:
+            progress(min(1.0, 1 - 4.0 ** -(len(out) - 1)), "mips")
+    if progress is not None:
+        progress(1.0, "mips")
     return out
 
 
-def equirect_mip_chain(img: np.ndarray) -> list[np.ndarray]:
+def equirect_mip_chain(img: np.ndarray, progress: Progress | None = None) -> list[np.ndarray]:
     """Level 0 and its smaller levels down to 1 x 1 (sizes ``max(1, W >> i) x max(1, H >> i)`` as KTX2
     expects), each the solid-angle weighted average of the one before (:func:`reduce_equirect`) or, where a
-    size is odd, the area-weighted resampling; energy is kept at every level."""
+    size is odd, the area-weighted resampling; energy is kept at every level. ``progress`` as
+    :func:`cube_mip_chain`'s."""
     out = [np.asarray(img, dtype=np.float32)]
     h0, w0 = out[0].shape[:2]
     level = 1
@@ -472,4 +480,8 @@ def equirect_mip_chain(img: np.ndarray) -> list[np.ndarray]:
             nxt = np.broadcast_to(mean.astype(np.float32), (nh, nw, cur.shape[2])).copy()
         out.append(nxt)
         level += 1
+        if progress is not None:
+            progress(min(1.0, 1 - 4.0 ** -(level - 1)), "mips")
+    if progress is not None:
+        progress(1.0, "mips")
     return out

@@ -54,6 +54,7 @@ import numpy as np
 
 from bakery import sphere
 from bakery.errors import BakeryError
+from bakery.progress import Progress, no_progress
 
 __all__ = ["Light", "add_light_to_level", "disc_points", "find_lights", "light_irradiance",
            "light_radiance_sh", "light_specular"]
@@ -183,7 +184,8 @@ def _harmonic_fill(img: np.ndarray, hole: np.ndarray, lat: np.ndarray) -> np.nda
 
 
 def find_lights(env: np.ndarray, *, max_lights: int = 4, contrast: float = 16.0, max_radius_deg: float = 5.0,
-                min_share: float = 0.02, margin: int = 2) -> tuple[list[Light], np.ndarray]:
+                min_share: float = 0.02, margin: int = 2,
+                progress: Progress | None = None) -> tuple[list[Light], np.ndarray]:
     """The dominant compact lights of an HDR panorama and the panorama without them.
 
     Parameters
@@ -200,6 +202,9 @@ def find_lights(env: np.ndarray, *, max_lights: int = 4, contrast: float = 16.0,
         A light carries at least this share of the environment's energy Σ L Ω (channel mean).
     margin : int
         Texels added around each region before its hole is filled (its blurred rim belongs to the light).
+    progress : callable, optional
+        ``progress(fraction, "finding lights")`` after each pass over the panorama and each region looked at,
+        rising to 1. The result does not depend on it.
 
     Returns
     -------
@@ -217,37 +222,53 @@ def find_lights(env: np.ndarray, *, max_lights: int = 4, contrast: float = 16.0,
         raise BakeryError(f"expected an equirectangular panorama (H, 2H, C); got {env.shape}")
     if not np.all(np.isfinite(env)):
         raise BakeryError("the panorama holds NaN or Inf values")
+    step = progress or no_progress
+    label = "finding lights"
     h, w, c = env.shape
     om_row = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)
     lum = env.astype(np.float64).mean(axis=2)
+    step(0.05, label)
     total = float((lum * om_row[:, None]).sum())
+    step(0.1, label)
     cand = brightest_texels(env, om_row[:, None], contrast, h * w)
+    step(0.25, label)
     mask = np.zeros(h * w, bool)
     mask[cand] = True
     lab, n = _components(mask.reshape(h, w))
+    step(0.35, label)
     rest = env.copy()
+    step(0.4, label)
     if n == 0 or total <= 0:
+        step(1.0, label)
         return [], rest
     dirs = sphere.equirect_directions(w, h, dtype=np.float64)
+    step(0.45, label)
     lat = math.pi * (0.5 - (np.arange(h) + 0.5) / h)
     energy = ndimage.sum_labels(lum * om_row[:, None], lab, np.arange(1, n + 1))
     order = np.argsort(energy)[::-1]
+    step(0.5, label)
     lights = []
+    looked = 0
     for li in order:
         if energy[li] < min_share * total or len(lights) >= max_lights:
             break
+        looked += 1
+        at, share = 0.5 + 0.5 * (1 - 0.5 ** (looked - 1)), 0.5 * 0.5 ** looked  # this region's part of the bar
         region = lab == li + 1
         rr, cc = np.nonzero(region)
+        step(at + 0.25 * share, label)
         # roll so the region does not cross the seam, then work on a crop around it
         shift = w // 2 - int(cc[np.argmax(lum[rr, cc])])
         reg = np.roll(region, shift, axis=1)
         rr, cc = np.nonzero(reg)
         hole = ndimage.binary_dilation(reg, iterations=margin) if margin else reg
+        step(at + 0.5 * share, label)
         r0, r1 = max(0, rr.min() - margin - 2), min(h, rr.max() + margin + 3)
         c0, c1 = max(0, cc.min() - margin - 2), min(w, cc.max() + margin + 3)
         if c1 - c0 >= w - 2:  # a region around a pole spanning all longitudes: not compact
             continue
         crop = np.roll(rest, shift, axis=1)[r0:r1, c0:c1].astype(np.float64)
+        step(at + 0.75 * share, label)
         hmask = hole[r0:r1, c0:c1]
         fill = _harmonic_fill(crop, hmask, lat[r0:r1])
         hr, hc = np.nonzero(hmask)
@@ -274,6 +295,7 @@ def find_lights(env: np.ndarray, *, max_lights: int = 4, contrast: float = 16.0,
         lights.append(Light(tuple(s.tolist()), rho, tuple(rad.tolist()), tuple(irr.tolist()),
                             2 * math.pi * (1 - math.cos(rho))))
     lights.sort(key=lambda x: -float(np.mean(x.irradiance)))
+    step(1.0, label)
     return lights, rest
 
 

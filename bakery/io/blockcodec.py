@@ -35,6 +35,7 @@ import numpy as np
 
 from bakery.errors import BakeryError
 from bakery.io.ktx2_formats import encoder_version  # noqa: F401  (numpy-free: a batch plan reads it)
+from bakery.progress import Progress, maybe_within
 
 BLOCK = 4
 QUALITIES = ("fast", "balanced", "best")
@@ -125,11 +126,13 @@ def _encode_strip(codec: Codec, strip: np.ndarray, settings) -> bytes:
 
 
 def encode_surface(texels: np.ndarray, codec: Codec | str, *, quality: str = "fast",
-                   threads: int | None = None) -> bytes:
+                   threads: int | None = None, progress: Progress | None = None) -> bytes:
     """Blocks of an already quantised, block-padded surface.
 
     ``texels``: uint8 ``(H, W, surface_channels)`` (BC1/BC3/BC7: RGBA, BC4: R, BC5: RG) or float16
     ``(H, W, 4)`` for BC6H, with H and W multiples of 4. Blocks come out row by row, left to right.
+    ``progress(fraction, "encoding")`` is called as each strip of block rows is done (in order), rising to 1;
+    the bytes do not depend on it.
     """
     codec = CODECS[codec] if isinstance(codec, str) else codec
     check_quality(quality)
@@ -140,10 +143,21 @@ def encode_surface(texels: np.ndarray, codec: Codec | str, *, quality: str = "fa
     rows = STRIP_BLOCK_ROWS * BLOCK
     strips = [texels[y:y + rows] for y in range(0, h, rows)]
     threads = (os.cpu_count() or 1) if threads is None else max(1, int(threads))
+    out = []
+
+    def keep(data: bytes) -> None:
+        out.append(data)
+        if progress is not None:
+            progress(len(out) / len(strips), "encoding")
+
     if threads == 1 or len(strips) == 1:
-        return b"".join(_encode_strip(codec, s, settings) for s in strips)
-    with ThreadPoolExecutor(min(threads, len(strips))) as pool:
-        return b"".join(pool.map(lambda s: _encode_strip(codec, s, settings), strips))
+        for s in strips:
+            keep(_encode_strip(codec, s, settings))
+    else:
+        with ThreadPoolExecutor(min(threads, len(strips))) as pool:
+            for data in pool.map(lambda s: _encode_strip(codec, s, settings), strips):
+                keep(data)
+    return b"".join(out)
 
 
 def quantize(values: np.ndarray, codec: Codec) -> tuple[np.ndarray, int]:
@@ -178,11 +192,16 @@ def quantize(values: np.ndarray, codec: Codec) -> tuple[np.ndarray, int]:
 
 
 def encode_level(values: np.ndarray, codec: Codec | str, *, quality: str = "fast",
-                 threads: int | None = None) -> tuple[bytes, int]:
-    """Blocks of one float32 ``(H, W, C)`` level of stored values, and the number of clamped samples."""
+                 threads: int | None = None, progress: Progress | None = None
+                 ) -> tuple[bytes, int]:
+    """Blocks of one float32 ``(H, W, C)`` level of stored values, and the number of clamped samples
+    (``progress``: as :func:`encode_surface`)."""
     codec = CODECS[codec] if isinstance(codec, str) else codec
     surf, clamped = quantize(values, codec)
-    return encode_surface(surf, codec, quality=quality, threads=threads), clamped
+    if progress is not None:
+        progress(0.1, "encoding")
+    return encode_surface(surf, codec, quality=quality, threads=threads,
+                          progress=maybe_within(progress, 0.1, 1.0)), clamped
 
 
 def decode_level(data: bytes | memoryview, codec: Codec | str, width: int, height: int,

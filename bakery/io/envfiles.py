@@ -24,6 +24,7 @@ import numpy as np
 
 from bakery.errors import BakeryError, BakeryWarning
 from bakery.io import layouts as L
+from bakery.progress import Progress, maybe_within
 
 LAYOUTS = ("equirect", "cross-wide", "cross-tall", "row", "stack", "files", "ktx2")
 HALF_MAX = 65504.0
@@ -94,10 +95,10 @@ def _check_values(a: np.ndarray, where: object, repair: bool) -> np.ndarray:
     return a
 
 
-def _read_one(path: Path, max_pixels: int | None):
+def _read_one(path: Path, max_pixels: int | None, progress: Progress | None = None):
     from bakery.io.images import read_image
 
-    img = read_image(path, color="srgb", max_pixels=max_pixels, allow_nonfinite=True)
+    img = read_image(path, color="srgb", max_pixels=max_pixels, allow_nonfinite=True, progress=progress)
     px = img.pixels
     if px.shape[2] == 2:
         raise BakeryError("an environment map needs 1, 3 or 4 channels; this image has 2", path)
@@ -105,7 +106,7 @@ def _read_one(path: Path, max_pixels: int | None):
 
 
 def read_environment(path: str | os.PathLike, *, layout: str | None = None, repair: bool = False,
-                     max_pixels: int | None = None) -> Environment:
+                     max_pixels: int | None = None, progress: Progress | None = None) -> Environment:
     """Read an environment map in any layout (module docstring).
 
     Parameters
@@ -116,6 +117,8 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
         Force the layout of a single image (default: detected from its aspect ratio).
     repair : bool
         Set NaN/Inf and negative samples to 0 with a warning that counts them (default: refuse them).
+    progress : callable, optional
+        ``progress(fraction, "reading")``, rising to 1 (OpenEXR strip by strip, face files one by one).
 
     Raises
     ------
@@ -130,8 +133,8 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
     if path_layout == "files":
         paths = face_paths(path)
         faces, depths, size = [], [], None
-        for p in paths:
-            px, bits = _read_one(p, max_pixels)
+        for i, p in enumerate(paths):
+            px, bits = _read_one(p, max_pixels, maybe_within(progress, i / 6, (i + 1) / 6))
             h, w = px.shape[:2]
             if h != w:
                 raise BakeryError(f"cube faces must be square; this one is {w}x{h}", p)
@@ -156,13 +159,15 @@ def read_environment(path: str | os.PathLike, *, layout: str | None = None, repa
             return Environment("cube", _check_values(px, p, repair), "ktx2", bits, [p])
         img = px
     else:
-        img, bits = _read_one(p, max_pixels)
+        img, bits = _read_one(p, max_pixels, maybe_within(progress, 0.0, 0.9))
     h, w = img.shape[:2]
     lay = layout or L.detect_layout(w, h, where=p)
     if lay not in L.IMAGE_LAYOUTS:
         raise BakeryError(f"layout {lay!r} does not apply to a single image; use one of "
                           + ", ".join(L.IMAGE_LAYOUTS), p)
     img = _check_values(img, p, repair)
+    if progress is not None:
+        progress(1.0, "reading")
     if lay == "equirect":
         if w != 2 * h:
             raise BakeryError(f"a panorama must be twice as wide as high; got {w}x{h}", p)
@@ -219,7 +224,7 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
                       bits: str | None = None, source_bits: str = "float", ktx_format: str | None = None,
                       mips: list[np.ndarray] | None = None, key_values: dict[str, str] | None = None,
                       effort: str = "fast", zstd: int | None = None, threads: int | None = None,
-                      quality: dict | None = None) -> list[Path]:
+                      quality: dict | None = None, progress: Progress | None = None) -> list[Path]:
     """Write a cube ``(6, N, N, C)`` or panorama ``(H, W, C)`` in a layout; returns the written paths.
 
     ``layout`` defaults from the path (pattern -> faces, .ktx2 -> ktx2) or the kind (cube -> cross-wide,
@@ -227,6 +232,8 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
     to temporary names first and renamed only when every one succeeded. Block-compressed and supercompressed
     KTX2 formats (``ktx_format`` ``bc6h``, ``compressed``, or ``zstd``) go through
     :func:`bakery.io.texcompress.write_texture`; its quality report lands in ``quality[file name]``.
+    ``progress(fraction, label)`` rises to 1 as it writes (PNG per strip of rows, KTX2 block formats per strip
+    of block rows, faces one by one); the bytes do not depend on it.
     """
     from bakery.io.atomic import atomic_output
     from bakery.io.images import write_image
@@ -253,7 +260,7 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
         p = Path(path)
         kind = "hdr" if fmt.is_float else "color" if fmt.srgb else "data"
         _, q = write_texture(p, levels, fmt, kind=kind, cubemap=(lay == "ktx2"), key_values=key_values,
-                             effort=effort, zstd=zstd, threads=threads)
+                             effort=effort, zstd=zstd, threads=threads, progress=progress)
         if q and quality is not None:
             quality[p.name] = q
         return [p]
@@ -263,14 +270,18 @@ def write_environment(path: str | os.PathLike, pixels: np.ndarray, kind: str, *,
         faces = list(_prepare_image(path, np.asarray(pixels), d))
         with contextlib.ExitStack() as stack:
             tmps = [stack.enter_context(atomic_output(p)) for p in paths]
-            for tmp, face in zip(tmps, faces, strict=True):
-                write_image(tmp, face, bits=d, color="srgb" if d in ("8", "16") else "data")
+            for f, (tmp, face) in enumerate(zip(tmps, faces, strict=True)):
+                write_image(tmp, face, bits=d, color="srgb" if d in ("8", "16") else "data",
+                            progress=maybe_within(progress, f / 6, (f + 1) / 6), threads=threads)
         return paths
     p = Path(path)
     img = pixels if kind == "equirect" else L.assemble(pixels, lay)
     d = output_bits(p, bits, source_bits)
     img = _prepare_image(p, img, d)
-    write_image(p, img, bits=d, color="srgb" if d in ("8", "16") else "data")
+    if progress is not None:
+        progress(0.1, "writing")
+    write_image(p, img, bits=d, color="srgb" if d in ("8", "16") else "data", progress=maybe_within(progress, 0.1, 1),
+                threads=threads)
     return [p]
 
 

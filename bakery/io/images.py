@@ -39,6 +39,7 @@ import numpy as np
 from bakery.color import linear_to_srgb, srgb_to_linear
 from bakery.errors import BakeryError, BakeryWarning
 from bakery.io.atomic import atomic_output
+from bakery.progress import maybe_within
 from bakery.types import Bits
 
 Color = Literal["data", "srgb"]
@@ -113,6 +114,7 @@ def read_image(
     color: Color = "data",
     max_pixels: int | None = None,
     allow_nonfinite: bool = False,
+    progress: Callable[[float, str], None] | None = None,
 ) -> Image:
     """Read an image file into float32 ``(H, W, C)`` RGB(A).
 
@@ -128,6 +130,9 @@ def read_image(
         Default: :func:`pixel_limit` (``BAKERY_MAX_PIXELS``, else :data:`DEFAULT_MAX_PIXELS`).
     allow_nonfinite : bool
         Float files holding NaN or Inf are refused unless this is true (``bakery info`` uses it to count them).
+    progress : callable, optional
+        ``progress(fraction, "reading")``, rising to 1: OpenEXR files report once per strip of scanlines,
+        other formats once decoded; the pixels never depend on it.
 
     Raises
     ------
@@ -150,7 +155,8 @@ def read_image(
     problem = None
     with quiet_decoders():
         try:
-            raw, bits = _READERS[fmt](path)
+            raw, bits = (_read_exr(path, progress=maybe_within(progress, 0.0, 0.9)) if fmt == "exr" else
+                         _READERS[fmt](path))
         except BakeryError:
             raise
         except Exception as exc:  # decoder libraries raise many types for corrupt data
@@ -174,6 +180,8 @@ def read_image(
         pixels[:, :, :nc] = srgb_to_linear(pixels[:, :, :nc])
     elif color not in ("data", "srgb"):
         raise BakeryError(f"color must be 'data' or 'srgb'; got {color!r}")
+    if progress is not None:
+        progress(1.0, "reading")
     return Image(np.ascontiguousarray(pixels), bits, fmt, path)
 
 
@@ -347,11 +355,13 @@ def _read_tiff(path: Path) -> tuple[np.ndarray, str]:
 _EXR_ORDER = ("R", "G", "B", "A")
 
 
-def _read_exr(path: Path) -> tuple[np.ndarray, str]:
+def _read_exr(path: Path, progress: Callable[[float, str], None] | None = None) -> tuple[np.ndarray, str]:
     import OpenEXR
 
-    with OpenEXR.File(str(path), separate_channels=True, num_threads=1) as f:
-        channels = {name: np.array(ch.pixels, copy=True) for name, ch in f.channels().items()}
+    channels = _read_exr_strips(path, progress) if progress is not None and hasattr(OpenEXR, "InputFile") else None
+    if channels is None:
+        with OpenEXR.File(str(path), separate_channels=True, num_threads=1) as f:
+            channels = {name: np.array(ch.pixels, copy=True) for name, ch in f.channels().items()}
     if not channels:
         raise BakeryError("OpenEXR file has no channels", path)
     names = _exr_channel_order(list(channels), path)
@@ -361,6 +371,36 @@ def _read_exr(path: Path) -> tuple[np.ndarray, str]:
         raise BakeryError(f"unsupported OpenEXR channel type(s) {sorted(map(str, kinds))}", path)
     bits = "half" if kinds == {np.dtype(np.float16)} else "float"
     return np.stack([p.astype(np.float32) for p in planes], axis=-1), bits
+
+
+def _read_exr_strips(path: Path, progress: Callable[[float, str], None]) -> dict[str, np.ndarray]:
+    """The channels :func:`_read_exr` reads in one call (a test compares them), read a strip of scanlines at
+    a time through the bindings' scanline reader so that each strip can be reported; None for files it leaves
+    to the one call (subsampled channels)."""
+    import Imath
+    import OpenEXR
+
+    f = OpenEXR.InputFile(str(path))
+    try:
+        hd = f.header()
+        dw = hd["dataWindow"]
+        w, h = dw.max.x - dw.min.x + 1, dw.max.y - dw.min.y + 1
+        kinds = {Imath.PixelType.HALF: np.float16, Imath.PixelType.FLOAT: np.float32,
+                 Imath.PixelType.UINT: np.uint32}
+        if any(c.xSampling != 1 or c.ySampling != 1 or c.type.v not in kinds for c in hd["channels"].values()):
+            return None
+        chans = {n: kinds[c.type.v] for n, c in hd["channels"].items()}
+        out = {n: np.empty((h, w), t) for n, t in chans.items()}
+        for r0 in range(0, h, EXR_STRIP_ROWS):
+            r1 = min(h, r0 + EXR_STRIP_ROWS)
+            for n, t in chans.items():
+                kind = Imath.PixelType(hd["channels"][n].type.v)
+                data = f.channel(n, kind, dw.min.y + r0, dw.min.y + r1 - 1)
+                out[n][r0:r1] = np.frombuffer(data, dtype=t).reshape(r1 - r0, w)
+            progress(r1 / h, "reading")
+    finally:
+        f.close()
+    return out
 
 
 def _exr_channel_order(names: list[str], path: Path) -> list[str]:
@@ -472,8 +512,8 @@ def write_image(
     color : {"data", "srgb"}
         ``"srgb"`` encodes colour channels with the IEC 61966-2-1 curve before quantising (never alpha).
     progress : callable, optional
-        ``progress(fraction, "writing")`` as the file is written, fractions rising to 1 (PNG reports once per
-        strip of rows, other formats once at the end). Default: silent. The bytes never depend on it.
+        ``progress(fraction, "writing")`` as the file is written, fractions rising to 1 (PNG and OpenEXR report
+        once per strip of rows, TIFF and HDR once at the end). Default: silent. The bytes never depend on it.
     threads : int, optional
         Threads a PNG write may compress on (default: the CPU count; bakes pass ``bakes.bake_threads()``).
         The bytes never depend on it.
@@ -512,11 +552,11 @@ def write_image(
     if bits == "half":
         a = clamp_to_half(a, path)
     with atomic_output(path) as tmp:
-        if fmt == "png":
-            _WRITERS["png"](tmp, a, bits, progress=progress, threads=threads)
+        if fmt in ("png", "exr"):
+            _WRITERS[fmt](tmp, a, bits, progress=progress, threads=threads)
         else:
             _WRITERS[fmt](tmp, a, bits)
-    if progress is not None and fmt != "png":
+    if progress is not None and fmt not in ("png", "exr"):
         progress(1.0, "writing")
     return path
 
@@ -552,16 +592,49 @@ def _write_tiff(tmp: Path, a: np.ndarray, bits: str) -> None:
                      extrasamples=extrasamples, metadata=None)
 
 
-def _write_exr(tmp: Path, a: np.ndarray, bits: str) -> None:
+#: Scanlines an OpenEXR write hands over per call when it reports progress: a multiple of the 16 lines one ZIP
+#: block holds (OpenEXR file layout), about 2 MiB of samples for an 8192-wide RGB half image.
+EXR_STRIP_ROWS = 64
+
+
+def _write_exr(tmp: Path, a: np.ndarray, bits: str, *, progress: Callable[[float, str], None] | None = None,
+               threads: int | None = None) -> None:
     import OpenEXR
 
     dtype = np.float16 if bits == "half" else np.float32
     names = {1: ("Y",), 2: ("R", "G"), 3: ("R", "G", "B"), 4: ("R", "G", "B", "A")}[a.shape[2]]
     data = a.astype(dtype)
+    if progress is not None and hasattr(OpenEXR, "OutputFile"):
+        _write_exr_strips(tmp, data, names, progress)
+        return
     channels = {n: np.ascontiguousarray(data[:, :, i]) for i, n in enumerate(names)}
     header = {"compression": OpenEXR.ZIP_COMPRESSION, "type": OpenEXR.scanlineimage}
     with OpenEXR.File(header, channels) as f:
         f.write(str(tmp))
+
+
+def _write_exr_strips(tmp: Path, data: np.ndarray, names: tuple[str, ...],
+                      progress: Callable[[float, str], None]) -> None:
+    """The same file as :func:`_write_exr`'s one call (a test compares the bytes), written a strip of
+    scanlines at a time through the bindings' scanline writer so that each strip can be reported."""
+    import Imath
+    import OpenEXR
+
+    h, w = data.shape[:2]
+    header = OpenEXR.Header(w, h)
+    header["compression"] = Imath.Compression(Imath.Compression.ZIP_COMPRESSION)
+    kind = Imath.PixelType(Imath.PixelType.HALF if data.dtype == np.float16 else Imath.PixelType.FLOAT)
+    header["channels"] = {n: Imath.Channel(kind) for n in names}
+    header["type"] = b"scanlineimage"
+    out = OpenEXR.OutputFile(str(tmp), header)
+    try:
+        for r0 in range(0, h, EXR_STRIP_ROWS):
+            r1 = min(h, r0 + EXR_STRIP_ROWS)
+            out.writePixels({n: np.ascontiguousarray(data[r0:r1, :, i]).tobytes() for i, n in enumerate(names)},
+                            r1 - r0)
+            progress(r1 / h, "writing")
+    finally:
+        out.close()
 
 
 HALF_MAX = 65504.0

@@ -28,6 +28,7 @@ import numpy as np
 
 from bakery.errors import BakeryError
 from bakery.io import ktx2 as K
+from bakery.progress import Progress, maybe_within
 
 KINDS = ("color", "data", "normal", "hdr")
 #: Texels per level read by the quality report before it samples rows of blocks (common practice).
@@ -76,10 +77,10 @@ def _renormalize(stored: np.ndarray) -> np.ndarray:
 
 
 def build_levels(source: np.ndarray | list[np.ndarray], *, kind: str, mips: bool | int = True,
-                 cubemap: bool = False) -> list[np.ndarray]:
+                 cubemap: bool = False, progress: Progress | None = None) -> list[np.ndarray]:
     """Float32 levels to encode: ``source`` itself when it is a list of levels, else level 0 and its box-filtered
     mips (``mips``: True for the full chain, False for level 0 alone, an int for that many levels). Normal
-    levels are renormalized (3 channels out)."""
+    levels are renormalized (3 channels out); ``progress(fraction, label)`` after each, by texels."""
     from bakery.mips import downsample, level_count
 
     if isinstance(source, list | tuple):
@@ -95,7 +96,13 @@ def build_levels(source: np.ndarray | list[np.ndarray], *, kind: str, mips: bool
             prev = levels[-1]
             levels.append(np.stack([downsample(f) for f in prev]) if cubemap else downsample(prev))
     if kind == "normal":
-        levels = [np.stack([_renormalize(f) for f in lv]) if cubemap else _renormalize(lv) for lv in levels]
+        done, total, out = 0, sum(lv.size for lv in levels), []
+        for lv in levels:
+            out.append(np.stack([_renormalize(f) for f in lv]) if cubemap else _renormalize(lv))
+            done += lv.size
+            if progress is not None:
+                progress(done / total, "encoding")
+        levels = out
     return levels
 
 
@@ -153,7 +160,8 @@ def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *,
                   zstd: int | None = None, threads: int | None = None,
                   key_values: dict[str, bytes | str] | None = None, report: bool = True,
                   report_texels: int | None = REPORT_TEXELS,
-                  where: str | os.PathLike | None = None) -> CompressedKtx2:
+                  where: str | os.PathLike | None = None,
+                  progress: Progress | None = None) -> CompressedKtx2:
     """KTX2 bytes of ``source`` (float32 level 0 or a list of levels) in ``fmt`` with an optional quality report.
 
     Parameters
@@ -176,6 +184,9 @@ def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *,
         Measure every level against its float data (:mod:`bakery.quality`).
     report_texels : int or None
         Texels per level the report reads before sampling rows of blocks (None: all).
+    progress : callable, optional
+        ``progress(fraction, label)``, rising to 1: encoding strip by strip of block rows
+        (:func:`bakery.io.ktx2.encode_levels`), then Zstandard and the report. The bytes do not depend on it.
     """
     from bakery.io import blockcodec
     from bakery.quality import summary_line
@@ -196,13 +207,19 @@ def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *,
     for lv in (source if isinstance(source, list | tuple) else [source]):
         if not np.all(np.isfinite(lv)):
             raise BakeryError("cannot store NaN or Inf values in a KTX2 texture", where)
-    levels = build_levels(source, kind=kind, mips=mips, cubemap=cubemap)
+    if progress is not None:
+        progress(0.05, "encoding")
+    levels = build_levels(source, kind=kind, mips=mips, cubemap=cubemap,
+                          progress=maybe_within(progress, 0.05, 0.15))
+    if progress is not None:
+        progress(0.15, "encoding")
     enc_levels = levels
     if kind == "normal" and fmt.channels == 2:
         enc_levels = [lv[..., :2] for lv in levels]
     w, h = K.check_levels(enc_levels, cubemap)
     counts: dict[str, int] = {}
-    payloads = K.encode_levels(enc_levels, fmt, quality=quality, threads=threads, counts=counts)
+    payloads = K.encode_levels(enc_levels, fmt, quality=quality, threads=threads, counts=counts,
+                               progress=maybe_within(progress, 0.15, 0.85))
     kv: dict[str, bytes | str] = {}
     if fmt.block is not None:
         kv[ENCODER_KEY] = f"{blockcodec.encoder_version()} {quality}"
@@ -210,6 +227,8 @@ def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *,
         kv[NORMAL_KEY] = NORMAL_XY_VALUE
     kv.update(key_values or {})
     data = K.assemble_ktx2(payloads, fmt, w, h, cubemap=cubemap, key_values=kv, zstd=zstd)
+    if progress is not None:
+        progress(0.9 if report else 1.0, "encoding")
     rep = summary = None
     if report:
         rep = {"format": fmt.short_name, "vk_format": fmt.name, "kind": kind,
@@ -218,6 +237,8 @@ def compress_ktx2(source: np.ndarray | list[np.ndarray], fmt: K.Format | str, *,
                "report_texels": report_texels,
                "levels": _report(fmt, kind, enc_levels, payloads, cubemap, report_texels)}
         summary = summary_line(rep)
+        if progress is not None:
+            progress(1.0, "quality report")
     return CompressedKtx2(data, fmt, levels, rep, summary, counts)
 
 
@@ -254,17 +275,20 @@ def resolve_format(name: str, kind: str, channels: int = 1) -> K.Format:
 
 def write_texture(path: str | os.PathLike, levels: list[np.ndarray], fmt: K.Format | str, *, kind: str,
                   cubemap: bool = False, key_values: dict[str, bytes | str] | None = None, effort: str = "fast",
-                  zstd: int | None = None, threads: int | None = None) -> tuple[Path, dict | None]:
+                  zstd: int | None = None, threads: int | None = None,
+                  progress: Progress | None = None) -> tuple[Path, dict | None]:
     """Write ``levels`` (float32, level 0 first, every level given) as KTX2 in ``fmt``: block formats and
     Zstandard through :func:`write_compressed_ktx2` with a quality report, others with
     :func:`bakery.io.ktx2.write_ktx2`. Returns the path and ``{"format", "summary", "levels": [...]}`` (the
-    report) or None for an uncompressed file."""
+    report) or None for an uncompressed file. ``progress(fraction, label)`` rises to 1 as it goes (block
+    formats: per strip of block rows)."""
     fmt = K.get_format(fmt) if isinstance(fmt, str | int) else fmt
     path = Path(path)
     if fmt.block is None and zstd is None:
-        return K.write_ktx2(path, levels, fmt, cubemap=cubemap, key_values=key_values), None
+        return K.write_ktx2(path, levels, fmt, cubemap=cubemap, key_values=key_values, progress=progress), None
     res = write_compressed_ktx2(path, list(levels), fmt, kind=kind, cubemap=cubemap, quality=effort, zstd=zstd,
-                                threads=threads, key_values=key_values, report=fmt.block is not None)
+                                threads=threads, key_values=key_values, report=fmt.block is not None,
+                                progress=progress)
     if res.report is None:
         return path, None
     return path, {"format": fmt.short_name, "summary": res.summary, "report": res.report}

@@ -26,12 +26,13 @@ import numpy as np
 
 from bakery.errors import BakeryError
 from bakery.normals.encode import normalize, unit_normals
+from bakery.progress import Progress, no_progress
 
 BLEND_METHODS = ("reoriented", "whiteout", "derivative", "linear")
 
 
 def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reoriented",
-                  detail_strength: float = 1.0) -> np.ndarray:
+                  detail_strength: float = 1.0, progress: Progress | None = None) -> np.ndarray:
     """Layer ``detail`` over ``base``; both unit normals (H, W, 3), +Y up.
 
     Parameters
@@ -41,6 +42,9 @@ def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reorie
     method : {"reoriented", "whiteout", "derivative", "linear"}
     detail_strength : float
         Multiplies the detail's x and y before blending (0 = no detail, 1 = as stored, 2 = twice as steep).
+    progress : callable, optional
+        ``progress(fraction, "blending")`` after the unit checks and each band of rows, rising to 1. Every
+        texel depends on its own two normals only, so the bands change no value.
 
     Returns
     -------
@@ -61,11 +65,29 @@ def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reorie
         raise BakeryError(f"unknown blend method {method!r}; must be one of {', '.join(BLEND_METHODS)}")
     if not math.isfinite(detail_strength) or detail_strength < 0:
         raise BakeryError(f"detail strength must be zero or positive; got {detail_strength!r}")
+    step = progress or no_progress
     n1 = unit_normals(base, what="base normal map")
+    step(0.1, "blending")
     n2 = unit_normals(detail, what="detail normal map")
     if n1.shape != n2.shape:
         raise BakeryError(f"base and detail differ in size: {n1.shape[1]}x{n1.shape[0]} vs "
                           f"{n2.shape[1]}x{n2.shape[0]}; resize the detail first")
+    step(0.2, "blending")
+    out = np.empty_like(n1)
+    rows = max(1, BLEND_BAND_TEXELS // max(1, n1.shape[1]))
+    for r0 in range(0, n1.shape[0], rows):
+        r1 = min(n1.shape[0], r0 + rows)
+        out[r0:r1] = _blend_rows(n1[r0:r1], n2[r0:r1], method, detail_strength)
+        step(0.2 + 0.8 * r1 / n1.shape[0], "blending")
+    return out
+
+
+#: Texels per band of rows in :func:`blend_normals` (its temporaries stay a few MiB; common practice).
+BLEND_BAND_TEXELS = 1 << 18
+
+
+def _blend_rows(n1: np.ndarray, n2: np.ndarray, method: str, detail_strength: float) -> np.ndarray:
+    """:func:`blend_normals` on rows of unit normals already checked."""
     if detail_strength != 1.0:
         n2 = n2.copy()
         n2[:, :, :2] *= np.float32(detail_strength)

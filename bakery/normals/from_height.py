@@ -33,6 +33,7 @@ import numpy as np
 from bakery.edges import check_edges, edge_index
 from bakery.errors import BakeryError
 from bakery.normals.kernels import DEFAULT_KERNEL, Kernel, get_kernel, slopes
+from bakery.progress import Progress
 
 #: Default relief when no strength is given: the full height range is 1/32 of the texture's width deep.
 #: A choice of ours (docs/normals.md), independent of resolution.
@@ -92,6 +93,7 @@ def normal_from_height(
     edges: str = "wrap",
     threads: int | None = None,
     out: np.ndarray | None = None,
+    progress: Progress | None = None,
 ) -> np.ndarray:
     """Unit tangent-space normals from a height map: ``n = normalize(-s_x dh/dx, -s_y dh/dy, 1)``.
 
@@ -113,6 +115,8 @@ def normal_from_height(
         Worker threads (default: the number of CPUs, at most 8). The result does not depend on it.
     out : ndarray, float32 (H, W, 3), optional
         Where to write the result.
+    progress : callable, optional
+        ``progress(fraction, "strips")`` as strips finish, rising to 1; the result does not depend on it.
 
     Returns
     -------
@@ -138,8 +142,21 @@ def normal_from_height(
     elif out.shape != (rows, cols, 3) or out.dtype != np.float32:
         raise ValueError(f"out must be float32 of shape {(rows, cols, 3)}; got {out.dtype} {out.shape}")
     run_strips(h, strength=strength, kernel=kernel, blur=blur, edges=edges, threads=threads,
-               target=lambda r0, r1: out[r0:r1])
+               target=lambda r0, r1: out[r0:r1], finish=None if progress is None else rows_done(progress, rows))
     return out
+
+
+def rows_done(progress: Progress, rows: int, label: str = "strips") -> Callable[[int, int, np.ndarray], None]:
+    """A ``finish`` callback for :func:`run_strips` that reports the share of ``rows`` done (strips finish on
+    several threads; the count and the call share one lock, so fractions rise)."""
+    lock, done = threading.Lock(), [0]
+
+    def finish(r0: int, r1: int, block: np.ndarray) -> None:
+        with lock:
+            done[0] += r1 - r0
+            progress(done[0] / rows, label)
+
+    return finish
 
 
 def _as_height(height: np.ndarray) -> np.ndarray:

@@ -33,6 +33,7 @@ from bakery.errors import BakeryError
 from bakery.normals.encode import unit_normals
 from bakery.normals.from_height import _strengths
 from bakery.normals.kernels import DEFAULT_KERNEL, get_kernel
+from bakery.progress import Progress, no_progress, within
 
 #: Smallest n_z used when turning normals into slopes (about 89.9 degrees of tilt).
 MIN_NZ = 1e-3
@@ -56,6 +57,7 @@ def height_from_normal(
     strength: float | tuple[float, float] = 1.0,
     kernel: str = DEFAULT_KERNEL,
     edges: str = "wrap",
+    progress: Progress | None = None,
 ) -> np.ndarray:
     """Integrate a normal map back to a height map (mean 0).
 
@@ -70,6 +72,9 @@ def height_from_normal(
         The derivative kernel whose response is inverted (tiling maps only).
     edges : {"wrap", "clamp", "mirror"}
         ``"wrap"``: Frankot-Chellappa (FFT); otherwise a Neumann Poisson solve (DCT).
+    progress : callable, optional
+        ``progress(fraction, "integrating")`` between the steps (the check, the slopes, each transform),
+        rising to 1; the result does not depend on it.
 
     Returns
     -------
@@ -91,19 +96,24 @@ def height_from_normal(
     >>> bool(np.abs(back - h).max() < 1e-5)
     True
     """
-    n = unit_normals(normals, what="normal map")
     check_edges(edges)
     k = get_kernel(kernel)
+    step = progress or no_progress
+    n = unit_normals(normals, what="normal map")
+    step(0.1, "integrating")
     gx, gy = slopes_from_normals(n, strength)
+    step(0.2, "integrating")
     if edges == "wrap":
-        z = _frankot_chellappa(gx, -gy, k.smooth)
+        z = _frankot_chellappa(gx, -gy, k.smooth, within(step, 0.2, 0.95))
     else:
-        z = _poisson_neumann(gx, -gy)
+        z = _poisson_neumann(gx, -gy, within(step, 0.2, 0.95))
     z -= np.float32(z.mean(dtype=np.float64))
+    step(1.0, "integrating")
     return z
 
 
-def _frankot_chellappa(p: np.ndarray, q: np.ndarray, smooth: tuple[float, float, float]) -> np.ndarray:
+def _frankot_chellappa(p: np.ndarray, q: np.ndarray, smooth: tuple[float, float, float],
+                       progress: Progress = no_progress) -> np.ndarray:
     """Least-squares periodic integration; ``p`` = dz/dcolumn, ``q`` = dz/drow (rows downward).
 
     The kernel's responses are separable: ``Hx = j sin(wx) S(wr)``, ``Hr = j sin(wr) S(wx)`` with the smoothing
@@ -123,21 +133,24 @@ def _frankot_chellappa(p: np.ndarray, q: np.ndarray, smooth: tuple[float, float,
     P = fft.rfft2(np.asarray(p, np.float32), workers=-1)
     P *= ax
     P *= sr
+    progress(0.3, "integrating")
     Q = fft.rfft2(np.asarray(q, np.float32), workers=-1)
     Q *= ar
     Q *= sx
     P += Q
     del Q
+    progress(0.6, "integrating")
     P *= np.complex64(-1j)
     den = np.square(ax * sr) + np.square(ar * sx)  # |Hx|^2 + |Hr|^2
     ok = den > np.float32(1e-12)
     den[~ok] = 1.0
     P /= den
     P[~ok] = 0.0  # the mean and the frequencies the kernel cannot see
+    progress(0.7, "integrating")
     return fft.irfft2(P, s=(H, W), workers=-1).astype(np.float32)
 
 
-def _poisson_neumann(p: np.ndarray, q: np.ndarray) -> np.ndarray:
+def _poisson_neumann(p: np.ndarray, q: np.ndarray, progress: Progress = no_progress) -> np.ndarray:
     """Least-squares integration with reflecting borders (DCT-II); ``q`` = dz/drow (rows downward)."""
     from scipy import fft
 
@@ -153,13 +166,16 @@ def _poisson_neumann(p: np.ndarray, q: np.ndarray) -> np.ndarray:
     f[:-1] += er
     f[1:] -= er  # f = divergence of the edge slopes: f[c] = e[c] - e[c-1], the 5-point Laplacian of z
     del er
+    progress(0.2, "integrating")
     F = fft.dctn(f, type=2, norm="ortho", workers=-1, overwrite_x=True)
+    progress(0.55, "integrating")
     lx = 2 * np.cos(np.pi * np.arange(W) / W) - 2
     lr = 2 * np.cos(np.pi * np.arange(H) / H) - 2
     lam = lr[:, None] + lx[None, :]
     lam[0, 0] = 1.0
     F /= lam
     F[0, 0] = 0.0
+    progress(0.6, "integrating")
     return fft.idctn(F, type=2, norm="ortho", workers=-1, overwrite_x=True).astype(np.float32)
 
 

@@ -20,9 +20,11 @@ import numpy as np
 from bakery.errors import BakeryError
 from bakery.mips import downsample, level_count
 from bakery.normals.encode import normalize
+from bakery.progress import Progress
 
 
-def normal_mips(normals: np.ndarray, *, levels: int | None = None) -> list[tuple[np.ndarray, np.ndarray]]:
+def normal_mips(normals: np.ndarray, *, levels: int | None = None,
+                progress: Progress | None = None) -> list[tuple[np.ndarray, np.ndarray]]:
     """A mip chain of unit normals with the per-texel length of the averaged normal.
 
     Parameters
@@ -31,6 +33,9 @@ def normal_mips(normals: np.ndarray, *, levels: int | None = None) -> list[tuple
         Normals (level 0), renormalized first. Any Y convention; x and y are averaged alike.
     levels : int, optional
         Number of levels including level 0; default the full chain to 1x1 (:func:`mip_count`).
+    progress : callable, optional
+        ``progress(fraction, "level K")`` after each level, rising to 1 in proportion to the texels read
+        (level 0's renormalization reads as many as all the others together).
 
     Returns
     -------
@@ -59,9 +64,16 @@ def normal_mips(normals: np.ndarray, *, levels: int | None = None) -> list[tuple
     levels = level_count(w, h, levels)
     unit, length = normalize(n)
     chain = [(unit, np.where(length > 0, np.float32(1.0), np.float32(0.0)))]
+    total = n.size * (1 + 4 / 3) if levels > 1 else n.size  # texels read: level 0, then each level to halve
+    done = n.size
+    if progress is not None:
+        progress(min(done / total, 1.0), "level 0")
     avg = unit
-    for _ in range(1, levels):
+    for k in range(1, levels):
+        done += avg.size
         avg = downsample(avg)
         unit, length = normalize(avg)
         chain.append((unit, np.minimum(length, np.float32(1.0))))
+        if progress is not None:
+            progress(1.0 if k == levels - 1 else min(done / total, 1.0), f"level {k}")
     return chain

@@ -40,6 +40,7 @@ import numpy as np
 from bakery.edges import check_edges, pad
 from bakery.errors import BakeryError
 from bakery.normals.kernels import DEFAULT_KERNEL, get_kernel
+from bakery.progress import Progress, no_progress, within
 
 
 @dataclass(frozen=True)
@@ -81,22 +82,29 @@ def gaussian_derivative_kernels(sigma: float, truncate: float = 4.0
     return w0, w1, w2
 
 
-def _texel_derivatives(h: np.ndarray, scale: float, edges: str, kernel: str):
-    """h_x, h_y, h_xx, h_xy, h_yy in height units per texel (x right, y up)."""
+def _texel_derivatives(h: np.ndarray, scale: float, edges: str, kernel: str,
+                       progress: Progress = no_progress):
+    """h_x, h_y, h_xx, h_xy, h_yy in height units per texel (x right, y up); ``progress`` after each."""
     if scale > 0:
         w0, w1, w2 = gaussian_derivative_kernels(scale)
         r = len(w0) // 2
         # y runs up: each derivative along the rows changes sign once
         p = pad(h, r, edges)
-        return (_correlate(p, r, w0, w1), -_correlate(p, r, w1, w0), _correlate(p, r, w0, w2),
-                -_correlate(p, r, w1, w1), _correlate(p, r, w2, w0))
-    k = get_kernel(kernel)
-    s = np.asarray(k.smooth, np.float64)
-    d1 = np.array([-0.5, 0.0, 0.5])
-    d2 = np.array([1.0, -2.0, 1.0])
-    p = pad(h, 1, edges)
-    return (_correlate(p, 1, s, d1), -_correlate(p, 1, d1, s), _correlate(p, 1, s, d2),
-            -_correlate(p, 1, d1, d1), _correlate(p, 1, d2, s))
+        pairs = ((w0, w1, 1), (w1, w0, -1), (w0, w2, 1), (w1, w1, -1), (w2, w0, 1))
+    else:
+        k = get_kernel(kernel)
+        s = np.asarray(k.smooth, np.float64)
+        d1 = np.array([-0.5, 0.0, 0.5])
+        d2 = np.array([1.0, -2.0, 1.0])
+        r = 1
+        p = pad(h, 1, edges)
+        pairs = ((s, d1, 1), (d1, s, -1), (s, d2, 1), (d1, d1, -1), (d2, s, 1))
+    out = []
+    for i, (ky, kx, sign) in enumerate(pairs):
+        d = _correlate(p, r, ky, kx)
+        out.append(d if sign > 0 else -d)
+        progress((i + 1) / len(pairs), "curvature")
+    return tuple(out)
 
 
 def _correlate(p: np.ndarray, r: int, ky: np.ndarray, kx: np.ndarray) -> np.ndarray:
@@ -116,6 +124,7 @@ def mean_curvature(
     scale: float = 1.0,
     edges: str = "wrap",
     kernel: str = DEFAULT_KERNEL,
+    progress: Progress | None = None,
 ) -> np.ndarray:
     """Mean curvature H of a height map (do Carmo 1976, section 3-3); a dome has H < 0.
 
@@ -134,6 +143,8 @@ def mean_curvature(
     edges : {"wrap", "clamp", "mirror"}
     kernel : str
         Smoothing of the 3x3 differences when ``scale=0`` (:mod:`bakery.normals.kernels`).
+    progress : callable, optional
+        ``progress(fraction, "curvature")`` after each of the five derivatives and at the end, rising to 1.
 
     Returns
     -------
@@ -165,15 +176,28 @@ def mean_curvature(
     d = float(relief)
     if not (math.isfinite(d) and d > 0):
         raise BakeryError(f"relief must be a positive number; got {relief!r}")
-    hx, hy, hxx, hxy, hyy = _texel_derivatives(h, scale, edges, kernel)
-    # lengths in units of R: one texel is 1/s_x wide, 1/s_y tall
-    hx, hy = hx * sx, hy * sy
-    hxx, hxy, hyy = hxx * sx * sx, hxy * sx * sy, hyy * sy * sy
-    hx2, hy2 = hx * hx, hy * hy
-    num = (1 + hx2) * hyy - 2 * hx * hy * hxy + (1 + hy2) * hxx
-    t = 1 + hx2 + hy2
-    t *= np.sqrt(t)  # (1 + h_x^2 + h_y^2)^(3/2) without a general power
-    return (num / (2 * d * t)).astype(np.float32)
+    step = progress or no_progress
+    derivs = _texel_derivatives(h, scale, edges, kernel, within(step, 0.0, 0.6))
+    H = np.empty(h.shape, np.float32)
+    rows = max(1, BAND_TEXELS // max(1, h.shape[1]))
+    for r0 in range(0, h.shape[0], rows):  # texel by texel: bands of rows change no value
+        r1 = min(h.shape[0], r0 + rows)
+        hx, hy, hxx, hxy, hyy = (a[r0:r1] for a in derivs)
+        # lengths in units of R: one texel is 1/s_x wide, 1/s_y tall
+        hx, hy = hx * sx, hy * sy
+        hxx, hxy, hyy = hxx * sx * sx, hxy * sx * sy, hyy * sy * sy
+        hx2, hy2 = hx * hx, hy * hy
+        num = (1 + hx2) * hyy - 2 * hx * hy * hxy + (1 + hy2) * hxx
+        t = 1 + hx2 + hy2
+        t *= np.sqrt(t)  # (1 + h_x^2 + h_y^2)^(3/2) without a general power
+        H[r0:r1] = num / (2 * d * t)
+        step(0.6 + 0.4 * r1 / h.shape[0], "curvature")
+    return H
+
+
+#: Texels per band of rows in :func:`mean_curvature`'s texel-by-texel formula (its float64 temporaries stay
+#: a few MiB; common practice).
+BAND_TEXELS = 1 << 16
 
 
 def curvature_maps(
@@ -185,13 +209,14 @@ def curvature_maps(
     radius: float | None = None,
     edges: str = "wrap",
     kernel: str = DEFAULT_KERNEL,
+    progress: Progress | None = None,
 ) -> CurvatureMaps:
     """Mean curvature and its masks: convexity, concavity, cavity and the signed 0.5-centred encoding.
 
     Parameters
     ----------
-    height, strength, relief, scale, edges, kernel
-        As for :func:`mean_curvature`.
+    height, strength, relief, scale, edges, kernel, progress
+        As for :func:`mean_curvature` (``progress`` ends at 1 once the masks are made).
     radius : float, optional
         Radius of curvature that fills a mask (same unit as ``relief``): a surface bent this tightly or more
         gives 1. Default: 4 texels (``4 / max(s_x, s_y)`` height units, times ``relief``), a choice of ours.
@@ -212,12 +237,17 @@ def curvature_maps(
     (-1.0, True, 1.0)
     """
     sx, sy = _strengths(strength)
-    H = mean_curvature(height, strength=(sx, sy), relief=relief, scale=scale, edges=edges, kernel=kernel)
+    step = progress or no_progress
+    H = mean_curvature(height, strength=(sx, sy), relief=relief, scale=scale, edges=edges, kernel=kernel,
+                       progress=within(step, 0.0, 0.85))
     rho = 4.0 / max(abs(sx), abs(sy)) * float(relief) if radius is None else float(radius)
     if not (math.isfinite(rho) and rho > 0):
         raise BakeryError(f"radius must be a positive length; got {radius!r}")
     k = H * np.float32(rho)
     convex = np.clip(-k, 0.0, 1.0).astype(np.float32)
     concave = np.clip(k, 0.0, 1.0).astype(np.float32)
-    return CurvatureMaps(mean=H, convexity=convex, concavity=concave, cavity=(1.0 - concave).astype(np.float32),
+    step(0.92, "curvature")
+    maps = CurvatureMaps(mean=H, convexity=convex, concavity=concave, cavity=(1.0 - concave).astype(np.float32),
                          encoded=(0.5 - 0.5 * np.clip(k, -1.0, 1.0)).astype(np.float32))
+    step(1.0, "curvature")
+    return maps

@@ -157,3 +157,26 @@ def test_unknown_quality_is_refused():
 
     with pytest.raises(BakeryError, match="fast, balanced, best"):
         B.check_quality("ultra")
+
+
+def test_strips_report_progress_and_change_no_byte(monkeypatch):
+    """Encoding strip by strip of block rows reports each strip in order; the sRGB curve, applied in bands of
+    rows, and the callback change no byte (the reference: the curve of IEC 61966-2-1 applied to the whole
+    level, then one encoder call per level with no callback)."""
+    from bakery.color import linear_to_srgb
+    from bakery.io import ktx2 as K
+
+    monkeypatch.setattr(B, "STRIP_BLOCK_ROWS", 2)  # 8 texel rows a strip
+    monkeypatch.setattr(K, "SRGB_BAND_TEXELS", 29 * 5)  # 5 rows a band
+    rng = np.random.default_rng(9)
+    level = rng.random((37, 29, 4)).astype(np.float32)
+    fmt = K.get_format("bc7-srgb")
+    seen = []
+    data = K.encode_blocks(level, fmt, progress=lambda f, w: seen.append(f))
+    ref = level.copy()
+    ref[..., :3] = linear_to_srgb(ref[..., :3])
+    monkeypatch.setattr(B, "STRIP_BLOCK_ROWS", 1000)
+    expected, _ = B.encode_level(ref, B.CODECS["bc7"])
+    assert data == expected
+    assert seen == sorted(seen) and seen[-1] == 1.0
+    assert len(seen) >= 8 + 5  # 8 bands of the curve, the quantising, 5 strips of 40 padded rows

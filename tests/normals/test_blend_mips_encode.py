@@ -103,3 +103,24 @@ def test_two_channel_decode_rebuilds_z():
     assert np.abs(back - n).max() < 1e-5
     with pytest.raises(BakeryError, match="2 \\(XY\\) or 3"):
         encode_normals(n, channels=4)
+
+
+@pytest.mark.parametrize("method", ["reoriented", "whiteout", "derivative", "linear"])
+@pytest.mark.parametrize("strength", [1.0, 1.7])
+def test_blend_in_bands_changes_no_value_and_reports_each_band(method, strength, monkeypatch):
+    """Each texel's blend depends on its own two normals only, so bands of rows give the bytes of one pass."""
+    from bakery.normals import blend
+
+    rng = np.random.default_rng(5)
+    a = rng.normal(size=(37, 29, 3)).astype(np.float32)
+    b = rng.normal(size=(37, 29, 3)).astype(np.float32)
+    a[..., 2] = np.abs(a[..., 2]) + 0.3
+    b[..., 2] = np.abs(b[..., 2]) + 0.3
+    a /= np.linalg.norm(a, axis=-1, keepdims=True)
+    b /= np.linalg.norm(b, axis=-1, keepdims=True)
+    whole = blend_normals(a, b, method=method, detail_strength=strength)
+    monkeypatch.setattr(blend, "BLEND_BAND_TEXELS", 29 * 4)  # 4 rows a band: 10 bands
+    seen = []
+    banded = blend_normals(a, b, method=method, detail_strength=strength, progress=lambda f, w: seen.append(f))
+    assert banded.tobytes() == whole.tobytes()
+    assert len(seen) == 2 + 10 and seen == sorted(seen) and seen[-1] == 1.0  # the two unit checks, 10 bands

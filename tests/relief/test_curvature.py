@@ -80,3 +80,19 @@ def test_masks_signs_and_ranges():
 def test_bad_parameters_are_named(kwargs, word):
     with pytest.raises(BakeryError, match=word):
         curvature_maps(np.zeros((8, 8), np.float32), **kwargs)
+
+
+@pytest.mark.parametrize("scale", [0.0, 1.5])
+def test_bands_of_rows_change_no_value_and_report_each_band(scale, monkeypatch):
+    """H is formed texel by texel from the five derivatives, so bands of rows give the bytes of one pass; the
+    progress rises to 1 with a call per derivative and per band."""
+    import bakery.relief.curvature as C
+
+    rng = np.random.default_rng(3)
+    h = rng.random((40, 31)).astype(np.float32)
+    whole = C.mean_curvature(h, strength=3.0, scale=scale)
+    monkeypatch.setattr(C, "BAND_TEXELS", 31 * 8)  # 8 rows a band: 5 bands
+    seen = []
+    banded = C.mean_curvature(h, strength=3.0, scale=scale, progress=lambda f, w: seen.append(f))
+    assert banded.tobytes() == whole.tobytes()
+    assert len(seen) == 5 + 5 and seen == sorted(seen) and seen[-1] == 1.0

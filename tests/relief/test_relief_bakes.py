@@ -244,3 +244,21 @@ params = { coverage = true, alpha-cutoff = 0.75 }
     names = ["stone_ao.png", "stone_ao.bent.png", "stone_cavity.png", "leaf_mips.png", "leaf_mips.mip05.png"]
     for name in names:
         assert (tmp_path / "baked" / name).read_bytes() == (cli / name).read_bytes(), name
+
+
+def test_colour_levels_turn_linear_in_bands_with_the_same_values(monkeypatch):
+    """The sRGB decode (IEC 61966-2-1) before a KTX2 write runs in bands of rows; texel by texel, so the values
+    are those of one call over the level, and each band is reported."""
+    import numpy as np
+
+    import bakery.bakes.relief as R
+    from bakery.color import srgb_to_linear
+
+    monkeypatch.setattr(R, "LINEAR_BAND_TEXELS", 13 * 3)  # 3 rows a band
+    level = np.random.default_rng(4).random((20, 13, 4)).astype(np.float32)
+    seen = []
+    out = R._linear(level, "srgb", lambda f, w: seen.append(f))
+    expected = level.copy()
+    expected[:, :, :3] = srgb_to_linear(level[:, :, :3])
+    assert out.tobytes() == expected.tobytes()
+    assert len(seen) == 7 and seen == sorted(seen) and seen[-1] == 1.0
