@@ -476,7 +476,8 @@ def occlusion_from_height(
     threads : int, optional
         Worker threads (default: the number of CPUs, at most 8). The result does not depend on it.
     progress : callable(fraction, label), optional
-        Called after each azimuth with increasing fractions in (0, 1], the last one 1.0. The result does not
+        Called after each azimuth's horizon walk and after its integral, with increasing fractions in (0, 1],
+        the last one 1.0. The result does not
         depend on it.
 
     Returns
@@ -610,6 +611,8 @@ def occlusion_from_height(
                 per = max(1, len(p["tasks"]) // (4 * nthreads))
                 each(walk, [(t0, min(len(p["tasks"]), t0 + per)) for t0 in range(0, len(p["tasks"]), per)],
                      p, B, Tf, Tr, d2 is not None)
+                if progress is not None:  # the walk is most of an azimuth's (or a pair's) time
+                    progress((done + 0.5) / n, f"occlusion: azimuth {done + 1} of {n}")
                 each(gather_lines, rows, p, Tf, Tr, d2 is not None)
             else:  # the sweeps index [minor, major]: the map as is, or transposed
                 if tanT is None:
