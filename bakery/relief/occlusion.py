@@ -476,9 +476,8 @@ def occlusion_from_height(
     threads : int, optional
         Worker threads (default: the number of CPUs, at most 8). The result does not depend on it.
     progress : callable(fraction, label), optional
-        Called after each azimuth's horizon walk and after its integral, with increasing fractions in (0, 1],
-        the last one 1.0. The result does not
-        depend on it.
+        Called after the normals, after each azimuth's horizon walk and after its integral, with increasing
+        fractions in (0, 1], the last one 1.0. The result does not depend on it.
 
     Returns
     -------
@@ -595,6 +594,8 @@ def occlusion_from_height(
     done = 0
     try:
         each(lambda i0, i1: kern["split"](normals, nx, ny, nz, i0, i1), rows)
+        if progress is not None:
+            progress(0.25 / n, "occlusion: normals")
         for d, d2 in order:
             p = _plan(2.0 * math.pi * d / n, sx, sy, (H, W), edges, max_distance)
             if hT is None:  # the height indexed [major, minor] for the azimuths along u

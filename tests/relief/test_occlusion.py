@@ -106,8 +106,8 @@ def test_progress_and_threads_do_not_change_the_result():
                               progress=lambda f, label: calls.append((f, label)))
     np.testing.assert_array_equal(a, b)
     fractions = [f for f, _ in calls]
-    # 6 pairs of opposite azimuths: one call after each pair's walk, then one per azimuth
-    assert len(fractions) == 18 and bool(np.all(np.diff(fractions) > 0))
+    # the normals, then 6 pairs of opposite azimuths: one call after each pair's walk, then one per azimuth
+    assert len(fractions) == 19 and bool(np.all(np.diff(fractions) > 0))
     assert fractions[-1] == 1.0
     assert all(isinstance(label, str) and label for _, label in calls)
 
