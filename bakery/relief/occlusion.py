@@ -476,7 +476,7 @@ def occlusion_from_height(
     threads : int, optional
         Worker threads (default: the number of CPUs, at most 8). The result does not depend on it.
     progress : callable(fraction, label), optional
-        Called after the normals, after each azimuth's horizon walk and after its integral, with increasing
+        Called after the normals, as the lines of each horizon walk are done and after each azimuth, with increasing
         fractions in (0, 1], the last one 1.0. The result does not depend on it.
 
     Returns
@@ -577,13 +577,24 @@ def occlusion_from_height(
     rows = [(i0, min(H, i0 + 64)) for i0 in range(0, H, 64)]
     pool = ThreadPoolExecutor(max_workers=nthreads) if nthreads > 1 else None
 
-    def each(fn, ranges, *args):
+    def each(fn, ranges, *args, tick=None):
+        """``fn(a, b, *args)`` for every range, on the pool; ``tick(i, count)`` after the i-th has finished."""
         if pool is None:
-            for a, b in ranges:
+            for i, (a, b) in enumerate(ranges):
                 fn(a, b, *args)
+                if tick is not None:
+                    tick(i + 1, len(ranges))
         else:
-            for f in [pool.submit(fn, a, b, *args) for a, b in ranges]:
+            for i, f in enumerate([pool.submit(fn, a, b, *args) for a, b in ranges]):
                 f.result()
+                if tick is not None:
+                    tick(i + 1, len(ranges))
+
+    def ticks(done):
+        """Progress as the lines of a walk or sweep are done: most of an azimuth's (or a pair's) time."""
+        if progress is None:
+            return None
+        return lambda i, m: progress((done + 0.1 + 0.4 * i / m) / n, f"occlusion: azimuth {done + 1} of {n}")
 
     # Azimuths psi and psi + pi sweep the same lines in opposite orders: with wrap edges and no limit one
     # sheared copy serves both, walked forward and backward.
@@ -595,7 +606,7 @@ def occlusion_from_height(
     try:
         each(lambda i0, i1: kern["split"](normals, nx, ny, nz, i0, i1), rows)
         if progress is not None:
-            progress(0.25 / n, "occlusion: normals")
+            progress(0.1 / n, "occlusion: normals")
         for d, d2 in order:
             p = _plan(2.0 * math.pi * d / n, sx, sy, (H, W), edges, max_distance)
             if hT is None:  # the height indexed [major, minor] for the azimuths along u
@@ -611,16 +622,14 @@ def occlusion_from_height(
                 each(transpose, steps, BT, B)
                 per = max(1, len(p["tasks"]) // (4 * nthreads))
                 each(walk, [(t0, min(len(p["tasks"]), t0 + per)) for t0 in range(0, len(p["tasks"]), per)],
-                     p, B, Tf, Tr, d2 is not None)
-                if progress is not None:  # the walk is most of an azimuth's (or a pair's) time
-                    progress((done + 0.5) / n, f"occlusion: azimuth {done + 1} of {n}")
+                     p, B, Tf, Tr, d2 is not None, tick=ticks(done))
                 each(gather_lines, rows, p, Tf, Tr, d2 is not None)
             else:  # the sweeps index [minor, major]: the map as is, or transposed
                 if tanT is None:
                     tanT = np.empty((W, H), np.float32)
                 A, T = (hT, tanT) if p["transposed"] else (h, tan)
                 each(sweep, [(r0, min(p["r_hi"], r0 + LANES)) for r0 in range(p["r_lo"], p["r_hi"], LANES)],
-                     p, A, T)
+                     p, A, T, tick=ticks(done))
                 if T is tanT:
                     each(transpose, [(i0, min(W, i0 + 64)) for i0 in range(0, W, 64)], tanT, tan)
                 each(gather, rows, p)
