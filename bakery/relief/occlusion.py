@@ -229,6 +229,25 @@ def _split(normals, nx, ny, nz, i0, i1):
             nz[i, j] = normals[i, j, 2]
 
 
+def _unit_bent(bent, normals, i0, i1):
+    """Rows ``i0 <= i < i1`` of the summed bent vectors made unit length in place; a zero sum takes the
+    texel's normal."""
+    for i in range(i0, i1):
+        for j in range(bent.shape[1]):
+            x = bent[i, j, 0]
+            y = bent[i, j, 1]
+            z = bent[i, j, 2]
+            length = np.float32(math.sqrt((x * x + y * y) + z * z))
+            if length > 0:
+                bent[i, j, 0] = x / length
+                bent[i, j, 1] = y / length
+                bent[i, j, 2] = z / length
+            else:
+                bent[i, j, 0] = normals[i, j, 0]
+                bent[i, j, 1] = normals[i, j, 1]
+                bent[i, j, 2] = normals[i, j, 2]
+
+
 def _transpose(src, dst, i0, i1):
     """``dst[j, i] = src[i, j]`` for rows ``i0 <= i < i1`` of ``src``, in tiles of 64 x 64."""
     W = src.shape[1]
@@ -351,7 +370,7 @@ def _kernels() -> dict:
         g["_walk_line"] = jit(_walk_line)
         _KERNELS = {"sweep": jit(_sweep), "gather": jit(_gather, fastmath=fast),
                     "collect": jit(_collect), "shear": jit(_shear, fastmath=fast),
-                    "transpose": jit(_transpose), "split": jit(_split),
+                    "transpose": jit(_transpose), "split": jit(_split), "unit_bent": jit(_unit_bent),
                     "walk": jit(_walk)}
     return _KERNELS
 
@@ -639,13 +658,11 @@ def occlusion_from_height(
                 done += 1
                 if progress is not None:
                     progress(done / n, f"occlusion: azimuth {done} of {n}")
+        if bent_normals:
+            each(lambda i0, i1: kern["unit_bent"](bent, normals, i0, i1), rows)
     finally:
         if pool is not None:
             pool.shutdown()
     acc *= np.float32(2.0 / n)
     occ = np.clip(acc, np.float32(0.0), np.float32(1.0), out=acc)
-    if not bent_normals:
-        return occ
-    length = np.sqrt(np.sum(bent * bent, axis=2, keepdims=True))
-    bent = np.where(length > 0, bent / np.maximum(length, np.float32(1e-30)), normals).astype(np.float32)
-    return occ, bent
+    return (occ, bent) if bent_normals else occ
