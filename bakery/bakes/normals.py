@@ -38,6 +38,7 @@ from bakery.bakes.params import (
     zstd_param,
 )
 from bakery.errors import BakeryError, BakeryWarning
+from bakery.progress import maybe_within
 
 KernelName = Literal["scharr", "sobel", "prewitt", "central"]
 Effort = Literal["fast", "balanced", "best"]
@@ -177,7 +178,7 @@ def read_normals(path: Path, y: str, progress: Progress | None = None):
             px = px[..., :3]  # RGBA chains store XYZ with alpha 1
         img = Image(px, bits, "ktx2", Path(path))
     else:
-        img = read_image(path, progress=within(progress, 0.0, READ_NORMAL_STEPS["decode"]) if progress else None)
+        img = read_image(path, progress=maybe_within(progress, 0.0, READ_NORMAL_STEPS["decode"]))
     if img.channels == 1:
         raise BakeryError("has one channel: a normal map needs 2 (XY), 3 (RGB) or 4 (RGBA)", path)
     progress = progress or no_progress

@@ -69,7 +69,7 @@ import numpy as np
 from bakery.edges import check_edges, edge_index
 from bakery.errors import BakeryError, BakeryWarning
 from bakery.normals.kernels import DEFAULT_KERNEL
-from bakery.progress import within
+from bakery.progress import maybe_within
 
 
 def _atan(t):
@@ -543,7 +543,7 @@ def occlusion_from_height(
     if h.size and float(h.max()) == float(h.min()):
         warnings.warn("height map is constant: occlusion is 1 everywhere", BakeryWarning, stacklevel=2)
     normals = normal_from_height(h, strength=(sx, sy), kernel=kernel, edges=edges, threads=threads,
-                                 progress=None if progress is None else within(progress, 0.0, 0.05 / n))
+                                 progress=maybe_within(progress, 0.0, 0.05 / n))
     h = np.ascontiguousarray(h)
     nthreads = max(1, threads or min(8, os.cpu_count() or 1))
     kern = _kernels()
