@@ -32,28 +32,46 @@ def mip_size(width: int, height: int, level: int) -> tuple[int, int]:
     return max(1, width >> level), max(1, height >> level)
 
 
-def _halve_axis(a: np.ndarray, axis: int) -> np.ndarray:
-    """Area-weighted box reduction of one axis to ``max(1, n // 2)`` (float32 in, float32 out)."""
+def _halve_axis(a: np.ndarray, axis: int, j0: int = 0, j1: int | None = None) -> np.ndarray:
+    """Area-weighted box reduction of one axis to ``max(1, n // 2)`` (float32 in, float32 out); with ``j0``,
+    ``j1`` only those output positions along ``axis`` 0 (``a`` still the whole input)."""
     n = a.shape[axis]
     if n == 1:
-        return a
+        return a[j0:j1] if axis == 0 else a
     a = np.moveaxis(a, axis, 0)
+    m = n // 2
+    j1 = m if j1 is None else j1
     if n % 2 == 0:
-        out = (a[0::2] + a[1::2]) * np.float32(0.5)
+        out = (a[2 * j0:2 * j1:2] + a[2 * j0 + 1:2 * j1:2]) * np.float32(0.5)
     else:
-        m = n // 2
-        j = np.arange(m, dtype=np.float64)
-        shape = (m,) + (1,) * (a.ndim - 1)
+        j = np.arange(j0, j1, dtype=np.float64)
+        shape = (j1 - j0,) + (1,) * (a.ndim - 1)
         w0 = ((1.0 - j / m) / (2.0 + 1.0 / m)).astype(np.float32).reshape(shape)
         w1 = np.float32(1.0 / (2.0 + 1.0 / m))
         w2 = (((j + 1) / m) / (2.0 + 1.0 / m)).astype(np.float32).reshape(shape)
-        out = a[0:2 * m:2] * w0 + a[1:2 * m + 1:2] * w1 + a[2:2 * m + 1:2] * w2
+        out = a[2 * j0:2 * j1:2] * w0 + a[2 * j0 + 1:2 * j1 + 1:2] * w1 + a[2 * j0 + 2:2 * j1 + 1:2] * w2
     return np.moveaxis(out, 0, axis)
 
 
-def downsample(v: np.ndarray) -> np.ndarray:
-    """One mip step of (H, W, C) float32 data: area-weighted box on both axes (see the module notes)."""
-    return np.ascontiguousarray(_halve_axis(_halve_axis(np.asarray(v, np.float32), 0), 1))
+#: Output rows :func:`downsample` makes per block (common practice: a few MB of input per block, so large maps
+#: stay in the caches and report progress as they go).
+DOWNSAMPLE_BLOCK_TEXELS = 1 << 19
+
+
+def downsample(v: np.ndarray, progress: Progress | None = None) -> np.ndarray:
+    """One mip step of (H, W, C) float32 data: area-weighted box on both axes (see the module notes), in
+    blocks of output rows; ``progress(fraction, "reducing")`` after each block, rising to 1."""
+    v = np.asarray(v, np.float32)
+    h, w = v.shape[:2]
+    oh, ow = max(1, h // 2), max(1, w // 2)
+    out = np.empty((oh, ow) + v.shape[2:], np.float32)
+    step = max(1, DOWNSAMPLE_BLOCK_TEXELS // max(1, w))
+    for j0 in range(0, oh, step):
+        j1 = min(oh, j0 + step)
+        out[j0:j1] = _halve_axis(_halve_axis(v, 0, j0, j1), 1)
+        if progress is not None:
+            progress(j1 / oh, "reducing")
+    return out
 
 
 def level_count(width: int, height: int, levels: int | None) -> int:

@@ -45,6 +45,9 @@ _BC6H_PROFILE = {"fast": "fast", "balanced": "basic", "best": "slow"}
 #: Block rows per strip handed to one encoder call: small enough to spread a 1024-texel-high level over two
 #: threads, large enough that call overhead stays negligible (common practice).
 STRIP_BLOCK_ROWS = 16
+#: At most this many blocks per strip (fewer rows on wide levels): a strip of the slowest encoder (BC7, "best")
+#: then takes well under a second, so progress moves (common practice).
+STRIP_BLOCKS = 8192
 
 
 @dataclass(frozen=True)
@@ -140,7 +143,7 @@ def encode_surface(texels: np.ndarray, codec: Codec | str, *, quality: str = "fa
     if h % BLOCK or w % BLOCK:
         raise ValueError(f"surface {w}x{h} is not a multiple of the block size")
     settings = _settings(codec, quality, has_alpha=codec.name == "bc7" and bool((texels[..., 3] != 255).any()))
-    rows = STRIP_BLOCK_ROWS * BLOCK
+    rows = max(1, min(STRIP_BLOCK_ROWS, STRIP_BLOCKS // max(1, w // BLOCK))) * BLOCK
     strips = [texels[y:y + rows] for y in range(0, h, rows)]
     threads = (os.cpu_count() or 1) if threads is None else max(1, int(threads))
     out = []

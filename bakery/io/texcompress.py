@@ -65,12 +65,12 @@ def default_kind(fmt: K.Format) -> str:
     return "color" if fmt.srgb else "data"
 
 
-def _renormalize(stored: np.ndarray) -> np.ndarray:
+def _renormalize(stored: np.ndarray, progress: Progress | None = None) -> np.ndarray:
     """Stored normal values (2 or 3 channels) -> unit vectors -> stored values, 3 channels, float32."""
     from bakery.normals.encode import decode_normals, normalize
 
     n = decode_normals(stored[..., :3] if stored.shape[-1] >= 3 else stored)
-    unit, _ = normalize(n, out=n)
+    unit, _ = normalize(n, out=n, progress=progress)
     unit *= np.float32(0.5)
     unit += np.float32(0.5)
     return unit
@@ -98,7 +98,8 @@ def build_levels(source: np.ndarray | list[np.ndarray], *, kind: str, mips: bool
     if kind == "normal":
         done, total, out = 0, sum(lv.size for lv in levels), []
         for lv in levels:
-            out.append(np.stack([_renormalize(f) for f in lv]) if cubemap else _renormalize(lv))
+            step = maybe_within(progress, done / total, (done + lv.size) / total)
+            out.append(np.stack([_renormalize(f) for f in lv]) if cubemap else _renormalize(lv, step))
             done += lv.size
             if progress is not None:
                 progress(done / total, "encoding")

@@ -25,6 +25,7 @@ import warnings
 import numpy as np
 
 from bakery.errors import BakeryError, BakeryWarning
+from bakery.progress import Progress
 
 Y_CONVENTIONS = ("up", "down")
 
@@ -106,16 +107,41 @@ def decode_normals(pixels: np.ndarray, *, y: str = "up") -> np.ndarray:
     return n
 
 
-def normalize(v: np.ndarray, *, out: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """Unit vectors and lengths of (..., 3) vectors. Zero vectors become (0, 0, 1) with length 0."""
+#: Vectors :func:`normalize` takes per block (common practice: a few MB of float32, so the temporaries stay in
+#: the caches and a large map reports progress block by block).
+NORMALIZE_BLOCK = 1 << 18
+
+
+def normalize(v: np.ndarray, *, out: np.ndarray | None = None,
+              progress: Progress | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Unit vectors and lengths of (..., 3) vectors. Zero vectors become (0, 0, 1) with length 0.
+
+    ``out`` may be ``v`` itself (in place). Works in blocks along the first axis; ``progress(fraction,
+    "normalizing")`` after each block, rising to 1."""
     v = np.asarray(v, dtype=np.float32)
-    length = np.sqrt(np.einsum("...i,...i->...", v, v, dtype=np.float32))
+    if out is None:
+        out = np.empty_like(v)
+    length = np.empty(v.shape[:-1], np.float32)
+    if v.ndim < 2:
+        _normalize_block(v, out, length)
+        return out, length
+    n = v.shape[0]
+    step = max(1, NORMALIZE_BLOCK // max(1, v[0].size // v.shape[-1]))
+    for i0 in range(0, n, step):
+        i1 = min(n, i0 + step)
+        _normalize_block(v[i0:i1], out[i0:i1], length[i0:i1])
+        if progress is not None:
+            progress(i1 / n, "normalizing")
+    return out, length
+
+
+def _normalize_block(v: np.ndarray, out: np.ndarray, length: np.ndarray) -> None:
+    np.sqrt(np.einsum("...i,...i->...", v, v, dtype=np.float32), out=length)
     safe = np.where(length > 0, length, np.float32(1.0))
-    out = np.divide(v, safe[..., None], out=out)
+    np.divide(v, safe[..., None], out=out)
     zero = length == 0
     if zero.any():
         out[zero] = (0.0, 0.0, 1.0)
-    return out, length.astype(np.float32)
 
 
 def unit_normals(normals: np.ndarray, *, what: str = "normal map",

@@ -20,7 +20,7 @@ import numpy as np
 from bakery.errors import BakeryError
 from bakery.mips import downsample, level_count
 from bakery.normals.encode import normalize
-from bakery.progress import Progress
+from bakery.progress import Progress, maybe_within
 
 
 def normal_mips(normals: np.ndarray, *, levels: int | None = None,
@@ -34,8 +34,8 @@ def normal_mips(normals: np.ndarray, *, levels: int | None = None,
     levels : int, optional
         Number of levels including level 0; default the full chain to 1x1 (:func:`mip_count`).
     progress : callable, optional
-        ``progress(fraction, "level K")`` after each level, rising to 1 in proportion to the texels read
-        (level 0's renormalization reads as many as all the others together).
+        ``progress(fraction, label)`` rising to 1 in proportion to the texels read: level 0's renormalization
+        (which reads as many as all the others together) block by block, then ``"level K"`` after each level.
 
     Returns
     -------
@@ -62,16 +62,17 @@ def normal_mips(normals: np.ndarray, *, levels: int | None = None,
         raise BakeryError(f"normal_mips needs normals of shape (H, W, 3); got {n.shape}")
     h, w = n.shape[:2]
     levels = level_count(w, h, levels)
-    unit, length = normalize(n)
-    chain = [(unit, np.where(length > 0, np.float32(1.0), np.float32(0.0)))]
     total = n.size * (1 + 4 / 3) if levels > 1 else n.size  # texels read: level 0, then each level to halve
     done = n.size
+    unit, length = normalize(n, progress=maybe_within(progress, 0.0, done / total))
+    chain = [(unit, np.where(length > 0, np.float32(1.0), np.float32(0.0)))]
     if progress is not None:
         progress(min(done / total, 1.0), "level 0")
     avg = unit
     for k in range(1, levels):
-        done += avg.size
-        avg = downsample(avg)
+        read = avg.size
+        avg = downsample(avg, progress=maybe_within(progress, done / total, min((done + read) / total, 1.0)))
+        done += read
         unit, length = normalize(avg)
         chain.append((unit, np.minimum(length, np.float32(1.0))))
         if progress is not None:
