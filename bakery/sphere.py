@@ -247,6 +247,13 @@ def equirect_directions(width: int, height: int, *, dtype=np.float32) -> np.ndar
     return equirect_to_dir(u[None, :], v[:, None]).astype(dtype)
 
 
+def equirect_texel_directions(width: int, height: int, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+    """Directions (float64, ``rows.shape + (3,)``) of the centres of chosen texels of a ``width`` x ``height``
+    panorama: the values :func:`equirect_directions` has there, without the whole map."""
+    rows, cols = np.asarray(rows), np.asarray(cols)
+    return equirect_to_dir((cols + 0.5) / width, (rows + 0.5) / height)
+
+
 def equirect_row_solid_angles(width: int, height: int, *, dtype=np.float32) -> np.ndarray:
     """Solid angle of one texel in each row of a ``width`` x ``height`` panorama, ``(height,)``.
 

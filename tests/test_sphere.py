@@ -164,6 +164,17 @@ def test_equirect_orientation_and_texel_centres():
     np.testing.assert_allclose(v, np.broadcast_to(((np.arange(4) + 0.5) / 4)[:, None], (4, 8)), atol=1e-12)
 
 
+def test_chosen_texel_directions_are_the_texel_centres():
+    # the centre of texel (row, col) of a W x H panorama sits at u = (col + 1/2) / W, v = (row + 1/2) / H,
+    # longitude 2 pi (u - 1/2), latitude pi (1/2 - v) (the convention of DEVELOPERS.md)
+    rows, cols = np.array([0, 3, 1, 2]), np.array([7, 0, 4, 5])
+    d = S.equirect_texel_directions(8, 4, rows, cols)
+    lon, lat = 2 * np.pi * ((cols + 0.5) / 8 - 0.5), np.pi * (0.5 - (rows + 0.5) / 4)
+    expect = np.stack([np.sin(lon) * np.cos(lat), np.sin(lat), -np.cos(lon) * np.cos(lat)], axis=-1)
+    np.testing.assert_allclose(d, expect, atol=1e-15)
+    assert np.array_equal(d, S.equirect_directions(8, 4, dtype=np.float64)[rows, cols])
+
+
 def test_rotation_moves_front_to_the_right():
     r = S.rotation_y(90)
     np.testing.assert_allclose(np.array([0, 0, -1.0]) @ r.T, [1, 0, 0], atol=1e-12)

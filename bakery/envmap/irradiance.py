@@ -164,13 +164,9 @@ def irradiance_exact(env: np.ndarray, kind: str, normals: np.ndarray, *, source_
     if kind == "cube":
         n0 = env.shape[1]
         om_src = np.broadcast_to(sphere.cube_texel_solid_angles(n0, dtype=np.float64)[None], (6, n0, n0))
-        d_src = sphere.cube_directions(n0, dtype=np.float64)
     else:
         h, w = env.shape[:2]
         om_src = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)[:, None] * np.ones((1, w))
-        if progress is not None:
-            progress(0.02, "exact irradiance")
-        d_src = sphere.equirect_directions(w, h, dtype=np.float64)
     if progress is not None:
         progress(0.05, "exact irradiance")
     bright = brightest_texels(env, om_src, bright_factor, max_bright)
@@ -178,7 +174,10 @@ def irradiance_exact(env: np.ndarray, kind: str, normals: np.ndarray, *, source_
         progress(0.1, "exact irradiance")
     rest = np.array(env, dtype=np.float32)
     rest.reshape(-1, c)[bright] = 0.0
-    b_dirs = d_src.reshape(-1, 3)[bright]
+    if kind == "cube":
+        b_dirs = sphere.cube_directions(n0, dtype=np.float64).reshape(-1, 3)[bright]
+    else:  # the directions of the bright texels' centres only (a whole panorama's would be the slow part)
+        b_dirs = sphere.equirect_texel_directions(w, h, *np.divmod(np.asarray(bright), w)).reshape(-1, 3)
     b_lw = env.reshape(-1, c)[bright].astype(np.float64) * om_src.reshape(-1)[bright][:, None]
     src = rest if (kind == "cube" and env.shape[1] <= source_size) else resample(rest, kind, "cube",
                                                                                    source_size)

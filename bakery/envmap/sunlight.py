@@ -226,7 +226,10 @@ def find_lights(env: np.ndarray, *, max_lights: int = 4, contrast: float = 16.0,
     label = "finding lights"
     h, w, c = env.shape
     om_row = sphere.equirect_row_solid_angles(w, h, dtype=np.float64)
-    lum = env.astype(np.float64).mean(axis=2)
+    lum = env[..., 0].astype(np.float64)  # the channel mean, summed channel by channel (no float64 copy)
+    for k in range(1, c):
+        lum += env[..., k]
+    lum /= c
     step(0.05, label)
     total = float((lum * om_row[:, None]).sum())
     step(0.1, label)
@@ -241,7 +244,6 @@ def find_lights(env: np.ndarray, *, max_lights: int = 4, contrast: float = 16.0,
     if n == 0 or total <= 0:
         step(1.0, label)
         return [], rest
-    dirs = sphere.equirect_directions(w, h, dtype=np.float64)
     step(0.45, label)
     lat = math.pi * (0.5 - (np.arange(h) + 0.5) / h)
     energy = ndimage.sum_labels(lum * om_row[:, None], lab, np.arange(1, n + 1))
@@ -275,7 +277,7 @@ def find_lights(env: np.ndarray, *, max_lights: int = 4, contrast: float = 16.0,
         excess = crop[hr, hc] - fill  # (count, C)
         gr, gc = hr + r0, (hc + c0 - shift) % w  # texels in the unrolled panorama
         om = om_row[gr]
-        l = dirs[gr, gc]
+        l = sphere.equirect_texel_directions(w, h, gr, gc)
         e = excess.mean(axis=1) * om
         s = (e[:, None] * l).sum(axis=0)
         if not np.any(s):
