@@ -275,11 +275,11 @@ def _walk_line(B, T, nk, c0, q, nmin, j, k, count, skip, step, inv_len, stack_k,
         seg = min(nk - k if step > 0 else k + 1, count - done)
         out = done >= skip
         for s in range(seg):
-            kk = k + s * step
+            kk = np.uint64(k + s * step)  # unsigned indices: no test for negative ones on the hull's path
             y = np.float64(b[kk])
             while top >= 1:
-                k0 = stack_k[top - 1]
-                y0 = stack_y[top - 1]
+                k0 = stack_k[np.uint64(top - 1)]
+                y0 = stack_y[np.uint64(top - 1)]
                 if (y1 - y0) * (K - k0) <= (y - y0) * (k1 - k0):
                     top -= 1
                     y1 = y0
@@ -289,8 +289,8 @@ def _walk_line(B, T, nk, c0, q, nmin, j, k, count, skip, step, inv_len, stack_k,
             if out:
                 tb[kk] = (y1 - y) / (K - k1) * inv_len if top >= 0 else 0.0
             top += 1
-            stack_k[top] = K
-            stack_y[top] = y
+            stack_k[np.uint64(top)] = K
+            stack_y[np.uint64(top)] = y
             y1 = y
             k1 = K
             K += 1.0
