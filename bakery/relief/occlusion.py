@@ -135,18 +135,18 @@ def _collect(T, src, i0, i1, kmaj, rmaj, transposed):
     flat = src.reshape(-1)
     for i in range(i0, i1):
         row = T[i]
-        if transposed:
+        if transposed:  # unsigned indices: no test for negative ones
             k = kmaj[i]
             sh = rmaj[i]
             for j in range(sh):
-                row[j] = flat[(j - sh + nmin) * stride + k]
+                row[j] = flat[np.uint64((j - sh + nmin) * stride + k)]
             for j in range(sh, W):
-                row[j] = flat[(j - sh) * stride + k]
+                row[j] = flat[np.uint64((j - sh) * stride + k)]
         else:
             for j in range(W):
                 line = i - rmaj[j]
                 line = line + nmin if line < 0 else line
-                row[j] = flat[line * stride + kmaj[j]]
+                row[j] = flat[np.uint64(line * stride + kmaj[j])]
 
 
 def _sweep(A, T, r0, r1, nwarm, nout, colk, flk, fk, rowfold, rowbase, nmin, wrap, reach, inv_len,
