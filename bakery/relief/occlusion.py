@@ -212,12 +212,13 @@ def _shear(AT, BT, k0, k1, flm, fk, colk, nmin):
         sh = flm[k]
         f = fk[k]
         g = np.float32(1.0) - f
-        n1 = nmin - 1 - sh  # r < n1: both rows inside
+        n1 = np.uint64(nmin - 1 - sh)  # r < n1: both rows inside; unsigned: no test for negative indices
+        ush, un = np.uint64(sh), np.uint64(nmin)
         for r in range(n1):
-            b[r] = g * a[r + sh] + f * a[r + sh + 1]
+            b[r] = g * a[r + ush] + f * a[r + ush + np.uint64(1)]
         b[n1] = g * a[nmin - 1] + f * a[0]
-        for r in range(n1 + 1, nmin):
-            b[r] = g * a[r + sh - nmin] + f * a[r + sh + 1 - nmin]
+        for r in range(n1 + np.uint64(1), un):
+            b[r] = g * a[r + ush - un] + f * a[r + ush + np.uint64(1) - un]
 
 
 def _split(normals, nx, ny, nz, i0, i1):
@@ -253,8 +254,8 @@ def _transpose(src, dst, i0, i1):
     W = src.shape[1]
     for a in range(i0, i1, 64):
         for b in range(0, W, 64):
-            for j in range(b, min(W, b + 64)):
-                for i in range(a, min(i1, a + 64)):
+            for j in range(np.uint64(b), np.uint64(min(W, b + 64))):  # unsigned: no test for negative indices
+                for i in range(np.uint64(a), np.uint64(min(i1, a + 64))):
                     dst[j, i] = src[i, j]
 
 
