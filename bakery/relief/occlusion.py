@@ -135,18 +135,18 @@ def _collect(T, src, i0, i1, kmaj, rmaj, transposed):
     flat = src.reshape(-1)
     for i in range(i0, i1):
         row = T[i]
-        if transposed:
+        if transposed:  # unsigned indices: no test for negative ones
             k = kmaj[i]
             sh = rmaj[i]
             for j in range(sh):
-                row[j] = flat[(j - sh + nmin) * stride + k]
+                row[j] = flat[np.uint64((j - sh + nmin) * stride + k)]
             for j in range(sh, W):
-                row[j] = flat[(j - sh) * stride + k]
+                row[j] = flat[np.uint64((j - sh) * stride + k)]
         else:
             for j in range(W):
                 line = i - rmaj[j]
                 line = line + nmin if line < 0 else line
-                row[j] = flat[line * stride + kmaj[j]]
+                row[j] = flat[np.uint64(line * stride + kmaj[j])]
 
 
 def _sweep(A, T, r0, r1, nwarm, nout, colk, flk, fk, rowfold, rowbase, nmin, wrap, reach, inv_len,
@@ -212,12 +212,13 @@ def _shear(AT, BT, k0, k1, flm, fk, colk, nmin):
         sh = flm[k]
         f = fk[k]
         g = np.float32(1.0) - f
-        n1 = nmin - 1 - sh  # r < n1: both rows inside
+        n1 = np.uint64(nmin - 1 - sh)  # r < n1: both rows inside; unsigned: no test for negative indices
+        ush, un = np.uint64(sh), np.uint64(nmin)
         for r in range(n1):
-            b[r] = g * a[r + sh] + f * a[r + sh + 1]
+            b[r] = g * a[r + ush] + f * a[r + ush + np.uint64(1)]
         b[n1] = g * a[nmin - 1] + f * a[0]
-        for r in range(n1 + 1, nmin):
-            b[r] = g * a[r + sh - nmin] + f * a[r + sh + 1 - nmin]
+        for r in range(n1 + np.uint64(1), un):
+            b[r] = g * a[r + ush - un] + f * a[r + ush + np.uint64(1) - un]
 
 
 def _split(normals, nx, ny, nz, i0, i1):
@@ -253,8 +254,8 @@ def _transpose(src, dst, i0, i1):
     W = src.shape[1]
     for a in range(i0, i1, 64):
         for b in range(0, W, 64):
-            for j in range(b, min(W, b + 64)):
-                for i in range(a, min(i1, a + 64)):
+            for j in range(np.uint64(b), np.uint64(min(W, b + 64))):  # unsigned: no test for negative indices
+                for i in range(np.uint64(a), np.uint64(min(i1, a + 64))):
                     dst[j, i] = src[i, j]
 
 
@@ -275,11 +276,11 @@ def _walk_line(B, T, nk, c0, q, nmin, j, k, count, skip, step, inv_len, stack_k,
         seg = min(nk - k if step > 0 else k + 1, count - done)
         out = done >= skip
         for s in range(seg):
-            kk = k + s * step
+            kk = np.uint64(k + s * step)  # unsigned indices: no test for negative ones on the hull's path
             y = np.float64(b[kk])
             while top >= 1:
-                k0 = stack_k[top - 1]
-                y0 = stack_y[top - 1]
+                k0 = stack_k[np.uint64(top - 1)]
+                y0 = stack_y[np.uint64(top - 1)]
                 if (y1 - y0) * (K - k0) <= (y - y0) * (k1 - k0):
                     top -= 1
                     y1 = y0
@@ -289,8 +290,8 @@ def _walk_line(B, T, nk, c0, q, nmin, j, k, count, skip, step, inv_len, stack_k,
             if out:
                 tb[kk] = (y1 - y) / (K - k1) * inv_len if top >= 0 else 0.0
             top += 1
-            stack_k[top] = K
-            stack_y[top] = y
+            stack_k[np.uint64(top)] = K
+            stack_y[np.uint64(top)] = y
             y1 = y
             k1 = K
             K += 1.0
