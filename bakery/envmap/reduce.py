@@ -11,13 +11,15 @@ import numpy as np
 from bakery import sphere
 from bakery.envmap.sample import _check_cube, _cv2
 from bakery.errors import BakeryError
+from bakery.progress import Progress
 
 # ----------------------------------------------------------------------------------- exact reduction
 
 
-def reduce_cube(cube: np.ndarray, factor: int = 2) -> np.ndarray:
+def reduce_cube(cube: np.ndarray, factor: int = 2, progress: Progress | None = None) -> np.ndarray:
     """Shrink every face by an integer ``factor`` (N divisible by it): each output texel is the average
-    of its ``factor x factor`` texels weighted by their solid angles, so energy is kept exactly."""
+    of its ``factor x factor`` texels weighted by their solid angles, so energy is kept exactly. Face by face;
+    ``progress(fraction, "mips")`` after each."""
     _check_cube(cube)
     n = cube.shape[1]
     if n % factor:
@@ -25,9 +27,13 @@ def reduce_cube(cube: np.ndarray, factor: int = 2) -> np.ndarray:
     m = n // factor
     w = sphere.cube_texel_solid_angles(n, dtype=np.float64)
     wsum = w.reshape(m, factor, m, factor).sum(axis=(1, 3))
-    acc = (cube.astype(np.float64) * w[None, :, :, None]).reshape(6, m, factor, m, factor, -1)
-    acc = acc.sum(axis=(2, 4))
-    return (acc / wsum[None, :, :, None]).astype(np.float32)
+    out = np.empty((6, m, m, cube.shape[3]), np.float32)
+    for f in range(6):
+        acc = (cube[f].astype(np.float64) * w[:, :, None]).reshape(m, factor, m, factor, -1).sum(axis=(1, 3))
+        out[f] = acc / wsum[:, :, None]
+        if progress is not None:
+            progress((f + 1) / 6, "mips")
+    return out
 
 
 def reduce_equirect(img: np.ndarray, fy: int = 2, fx: int | None = None) -> np.ndarray:

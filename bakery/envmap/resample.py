@@ -30,7 +30,7 @@ from bakery.envmap.sample import (
     sample_equirect_uv,
 )
 from bakery.errors import BakeryError
-from bakery.progress import Progress
+from bakery.progress import Progress, maybe_within
 
 # ------------------------------------------------------------------------------------------ resampling
 
@@ -451,7 +451,8 @@ def cube_mip_chain(cube: np.ndarray, levels: int | None = None,
     while len(out) < total and out[-1].shape[1] > 1:
         cur = out[-1]
         n = cur.shape[1]
-        out.append(reduce_cube(cur) if n % 2 == 0 else area_resample(cur, "cube", "cube", n // 2))
+        step = maybe_within(progress, 1 - 4.0 ** -(len(out) - 1), min(1.0, 1 - 4.0 ** -len(out)))
+        out.append(reduce_cube(cur, progress=step) if n % 2 == 0 else area_resample(cur, "cube", "cube", n // 2))
         if progress is not None:
             progress(min(1.0, 1 - 4.0 ** -(len(out) - 1)), "mips")
     if progress is not None:
