@@ -40,7 +40,7 @@ def gaps(fn) -> tuple[float, float]:
     marks = [time.perf_counter()]
     fn(lambda f, w: marks.append(time.perf_counter()))
     marks.append(time.perf_counter())
-    return marks[-1] - marks[0], max(b - a for a, b in zip(marks, marks[1:]))
+    return marks[-1] - marks[0], max(b - a for a, b in zip(marks, marks[1:], strict=False))
 
 
 def main() -> None:
