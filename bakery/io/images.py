@@ -10,7 +10,9 @@ Backends (chosen per format, never by guessing from the extension inside a libra
 format    read                        write
 ========  ==========================  ============================================
 PNG       OpenCV (8/16-bit, 1/3/4 ch)  :mod:`bakery.io.png` (8/16-bit, 1/3/4 ch)
-TIFF      tifffile (+imagecodecs)      tifffile, deflate (8/16-bit, float32)
+          or :mod:`bakery.io.png`
+          (large, with progress)
+TIFF      tifffile (+imagecodecs)      tifffile, deflate strips (8/16-bit, float32)
 OpenEXR   ASWF ``OpenEXR``             ``OpenEXR``, ZIP, half or float
 HDR       OpenCV (float32)             OpenCV (RGBE, Ward 1991)
 JPEG      OpenCV (8-bit)               --
