@@ -349,6 +349,7 @@ def read_png(path: str | os.PathLike, *, progress: Callable[[float, str], None] 
         worker = threading.Thread(target=inflate, name="bakery-png-inflate", daemon=True)
         worker.start()
         try:
+            _unfilter_kernel()  # numba's import and cached code load while the first strip inflates
             shape = (height, width, channels) if channels > 1 else (height, width)
             pixels = np.empty(shape, np.uint8 if nbytes == 1 else np.uint16)
             flat = pixels.reshape(height, row_bytes // nbytes)
