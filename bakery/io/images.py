@@ -341,7 +341,8 @@ def _read_png(path: Path, progress: Callable[[float, str], None] | None = None) 
     """A PNG file's samples: with ``progress`` and at least :data:`PNG_STRIP_READ_BYTES` of samples through
     :func:`bakery.io.png.read_png` (strip by strip, reported; the same arrays, tests compare them), else, and
     for the files that reader leaves (interlaced, palette, under 8 bits, grey + alpha, tRNS), through OpenCV.
-    Small files skip the strip reader: its one-time numba import (~0.4 s) would cost more than the decode."""
+    Small files skip the strip reader: for rows filtered other than Sub it loads numba (~0.4 s), more than
+    the decode costs."""
     _check_png_complete(path)
     if progress is not None:
         width, height = _peek_size(path, "png")
