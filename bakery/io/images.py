@@ -10,7 +10,9 @@ Backends (chosen per format, never by guessing from the extension inside a libra
 format    read                        write
 ========  ==========================  ============================================
 PNG       OpenCV (8/16-bit, 1/3/4 ch)  :mod:`bakery.io.png` (8/16-bit, 1/3/4 ch)
-TIFF      tifffile (+imagecodecs)      tifffile, deflate (8/16-bit, float32)
+          or :mod:`bakery.io.png`
+          (large, with progress)
+TIFF      tifffile (+imagecodecs)      tifffile, deflate strips (8/16-bit, float32)
 OpenEXR   ASWF ``OpenEXR``             ``OpenEXR``, ZIP, half or float
 HDR       OpenCV (float32)             OpenCV (RGBE, Ward 1991)
 JPEG      OpenCV (8-bit)               --
@@ -132,7 +134,9 @@ def read_image(
         Float files holding NaN or Inf are refused unless this is true (``bakery info`` uses it to count them).
     progress : callable, optional
         ``progress(fraction, "reading")``, rising to 1: OpenEXR files report once per strip of scanlines,
-        other formats once decoded; the pixels never depend on it.
+        large PNG files once per strip of rows (:func:`bakery.io.png.read_png`), TIFF files per group of
+        strips or tiles, HDR and JPEG once decoded; then the conversion to float reports per band of rows.
+        The pixels never depend on it.
 
     Raises
     ------
@@ -155,8 +159,9 @@ def read_image(
     problem = None
     with quiet_decoders():
         try:
-            raw, bits = (_read_exr(path, progress=maybe_within(progress, 0.0, 0.9)) if fmt == "exr" else
-                         _READERS[fmt](path))
+            reader = _READERS[fmt]
+            step = maybe_within(progress, 0.0, 0.9)
+            raw, bits = reader(path, progress=step) if fmt in _STRIP_READERS else reader(path)
         except BakeryError:
             raise
         except Exception as exc:  # decoder libraries raise many types for corrupt data
@@ -166,20 +171,18 @@ def read_image(
             gc.collect()
     if problem is not None:
         raise BakeryError(problem, path)
-    pixels = _to_float(raw, bits)
-    if pixels.ndim == 2:
-        pixels = pixels[:, :, None]
-    if pixels.ndim != 3 or pixels.shape[2] not in (1, 2, 3, 4) or pixels.size == 0:
+    if raw.ndim == 2:
+        raw = raw[:, :, None]
+    if raw.ndim != 3 or raw.shape[2] not in (1, 2, 3, 4) or raw.size == 0:
         raise BakeryError(f"unsupported image shape {raw.shape}", path)
+    if color not in ("data", "srgb"):
+        raise BakeryError(f"color must be 'data' or 'srgb'; got {color!r}")
+    decode = (3 if raw.shape[2] >= 3 else 1) if color == "srgb" and bits in INTEGER_MAX else 0
+    pixels = _to_float(raw, bits, decode, maybe_within(progress, 0.9, 1.0))
     if bits in ("half", "float") and not allow_nonfinite:
         bad = int(np.count_nonzero(~np.isfinite(pixels)))
         if bad:
             raise BakeryError(f"{bad} sample(s) are NaN or Inf; repair the file before baking", path)
-    if color == "srgb" and bits in ("8", "16"):
-        nc = 3 if pixels.shape[2] >= 3 else 1
-        pixels[:, :, :nc] = srgb_to_linear(pixels[:, :, :nc])
-    elif color not in ("data", "srgb"):
-        raise BakeryError(f"color must be 'data' or 'srgb'; got {color!r}")
     if progress is not None:
         progress(1.0, "reading")
     return Image(np.ascontiguousarray(pixels), bits, fmt, path)
@@ -279,10 +282,32 @@ def _short(exc: BaseException) -> str:
     return text if len(text) < 160 else text[:157] + "..."
 
 
-def _to_float(raw: np.ndarray, bits: str) -> np.ndarray:
-    if bits in INTEGER_MAX:
-        return raw.astype(np.float32) * np.float32(1.0 / INTEGER_MAX[bits])
-    return np.array(raw, dtype=np.float32, copy=True)
+#: Samples converted to float per band of rows (about): the unit of the conversion's progress.
+FLOAT_BAND_SAMPLES = 1 << 22
+
+
+def _to_float(raw: np.ndarray, bits: str, srgb_channels: int = 0,
+              progress: Callable[[float, str], None] | None = None) -> np.ndarray:
+    """float32 pixels of ``raw`` (H, W, C): integers scaled to [0, 1] (``v / 255``, ``v / 65535``), the first
+    ``srgb_channels`` of them decoded from sRGB through a table of every code value (the numbers
+    :func:`srgb_to_linear` gives each sample: it is elementwise); float data copied. In bands of rows, each
+    reported; a band changes no value."""
+    if bits not in INTEGER_MAX:
+        return np.array(raw, dtype=np.float32, copy=True)
+    top = INTEGER_MAX[bits]
+    scale = np.float32(1.0 / top)
+    table = srgb_to_linear(np.arange(top + 1, dtype=np.float32) * scale) if srgb_channels else None
+    height = raw.shape[0]
+    out = np.empty(raw.shape, np.float32)
+    band = max(1, FLOAT_BAND_SAMPLES // max(1, raw[0].size))
+    for r0 in range(0, height, band):
+        r1 = min(height, r0 + band)
+        np.multiply(raw[r0:r1], scale, out=out[r0:r1], dtype=np.float32)
+        if table is not None:
+            np.take(table, raw[r0:r1, :, :srgb_channels], out=out[r0:r1, :, :srgb_channels])
+        if progress is not None:
+            progress(r1 / height, "reading")
+    return out
 
 
 def _bgr_to_rgb(a: np.ndarray) -> np.ndarray:
@@ -312,9 +337,27 @@ def _read_cv2(path: Path) -> tuple[np.ndarray, str]:
     return _bgr_to_rgb(a), bits
 
 
-def _read_png(path: Path) -> tuple[np.ndarray, str]:
+def _read_png(path: Path, progress: Callable[[float, str], None] | None = None) -> tuple[np.ndarray, str]:
+    """A PNG file's samples: with ``progress`` and at least :data:`PNG_STRIP_READ_BYTES` of samples through
+    :func:`bakery.io.png.read_png` (strip by strip, reported; the same arrays, tests compare them), else, and
+    for the files that reader leaves (interlaced, palette, under 8 bits, grey + alpha, tRNS), through OpenCV.
+    Small files skip the strip reader: for rows filtered other than Sub it loads numba (~0.4 s), more than
+    the decode costs."""
     _check_png_complete(path)
+    if progress is not None:
+        width, height = _peek_size(path, "png")
+        if width * height * 3 >= PNG_STRIP_READ_BYTES:  # about: the header's channels are not read here
+            from bakery.io.png import read_png
+
+            decoded = read_png(path, progress=progress)
+            if decoded is not None:
+                pixels, depth = decoded
+                return pixels, str(depth)
     return _read_cv2(path)
+
+
+#: Samples a PNG needs (about) before a read with progress goes strip by strip: ~0.1 s of decoding.
+PNG_STRIP_READ_BYTES = 1 << 24
 
 
 def _check_png_complete(path: Path) -> None:
@@ -328,16 +371,14 @@ def _check_png_complete(path: Path) -> None:
         raise BakeryError("PNG file is truncated (no end chunk)", path)
 
 
-def _read_tiff(path: Path) -> tuple[np.ndarray, str]:
+def _read_tiff(path: Path, progress: Callable[[float, str], None] | None = None) -> tuple[np.ndarray, str]:
     import tifffile
 
     with tifffile.TiffFile(path) as tif:
         page = tif.pages[0]
-        a = page.asarray()
-        extra = len(page.extrasamples) if hasattr(page, "extrasamples") else 0
+        a = _tiff_segments(page, progress) if progress is not None else page.asarray()
     if a.ndim == 3 and a.shape[0] in (1, 2, 3, 4) and a.shape[2] > 4:  # planar (C, H, W)
         a = np.moveaxis(a, 0, -1)
-    del extra
     dtype = a.dtype
     if dtype == np.uint8:
         return a, "8"
@@ -350,6 +391,35 @@ def _read_tiff(path: Path) -> tuple[np.ndarray, str]:
     if dtype == np.float64:
         return a.astype(np.float32), "float"
     raise BakeryError(f"unsupported TIFF sample type {dtype}; use 8/16-bit integer or float32", path)
+
+
+#: TIFF strips or tiles decoded between two progress calls (about 2 MiB of tifffile's default 256 KiB strips).
+TIFF_SEGMENTS_PER_CALL = 8
+
+
+def _tiff_segments(page, progress: Callable[[float, str], None]) -> np.ndarray:
+    """``page.asarray()`` (a test compares them) assembled from tifffile's decoded strips or tiles
+    (``TiffPage.segments``, in file order, decoded on its threads), reporting every
+    :data:`TIFF_SEGMENTS_PER_CALL` of them; an uncompressed page in one piece is read in one call."""
+    if page.is_contiguous or len(page.dataoffsets) < 2:
+        return page.asarray()
+    page.keyframe.init_decode()
+    out = np.empty(page.shaped, np.dtype(page.parent.byteorder + page.dtype.char))  # as asarray gives it
+    count = len(page.dataoffsets)
+    trim = (page.imagedepth, page.imagelength, page.imagewidth)
+
+    def place(result) -> None:
+        segment, (s, d, h, w, _), shape = result
+        box = out[s, d:d + shape[0], h:h + shape[1], w:w + shape[2]]
+        if segment is None:
+            box[...] = page.nodata
+        else:
+            box[...] = segment[:trim[0] - d, :trim[1] - h, :trim[2] - w]
+
+    for i, _ in enumerate(page.segments(func=place, sort=True), 1):
+        if i % TIFF_SEGMENTS_PER_CALL == 0 or i == count:
+            progress(i / count, "reading")
+    return out.reshape(page.shape)
 
 
 _EXR_ORDER = ("R", "G", "B", "A")
@@ -425,6 +495,7 @@ def _read_hdr(path: Path) -> tuple[np.ndarray, str]:
 
 
 _READERS = {"png": _read_png, "tiff": _read_tiff, "exr": _read_exr, "hdr": _read_hdr, "jpeg": _read_cv2}
+_STRIP_READERS = {"png", "tiff", "exr"}
 
 
 def _peek_size(path: Path, fmt: str) -> tuple[int, int]:
@@ -513,9 +584,10 @@ def write_image(
         ``"srgb"`` encodes colour channels with the IEC 61966-2-1 curve before quantising (never alpha).
     progress : callable, optional
         ``progress(fraction, "writing")`` as the file is written, fractions rising to 1 (PNG and OpenEXR report
-        once per strip of rows, TIFF and HDR once at the end). Default: silent. The bytes never depend on it.
+        once per strip of rows, TIFF per group of strips, HDR once at the end). Default: silent. The bytes never
+        depend on it.
     threads : int, optional
-        Threads a PNG write may compress on (default: the CPU count; bakes pass ``bakes.bake_threads()``).
+        Threads a PNG or TIFF write may compress on (default: the CPU count; bakes pass ``bakes.bake_threads()``).
         The bytes never depend on it.
 
     Returns
@@ -552,11 +624,11 @@ def write_image(
     if bits == "half":
         a = clamp_to_half(a, path)
     with atomic_output(path) as tmp:
-        if fmt in ("png", "exr"):
-            _WRITERS[fmt](tmp, a, bits, progress=progress, threads=threads)
-        else:
+        if fmt == "hdr":
             _WRITERS[fmt](tmp, a, bits)
-    if progress is not None and fmt not in ("png", "exr"):
+        else:
+            _WRITERS[fmt](tmp, a, bits, progress=progress, threads=threads)
+    if progress is not None and fmt == "hdr":
         progress(1.0, "writing")
     return path
 
@@ -580,16 +652,67 @@ def _write_png(tmp: Path, a: np.ndarray, bits: str, *, progress: Callable[[float
     write_png(tmp, quantize(a, bits), progress=progress, threads=threads)
 
 
-def _write_tiff(tmp: Path, a: np.ndarray, bits: str) -> None:
+#: TIFF strips compressed between two progress calls (about 2 MiB of samples).
+TIFF_STRIPS_PER_CALL = 8
+
+
+def _write_tiff(tmp: Path, a: np.ndarray, bits: str, *, progress: Callable[[float, str], None] | None = None,
+                threads: int | None = None) -> None:
+    """Deflate-compressed strips of about 256 KiB (tifffile's own choice), no predictor (TIFF 6.0, Adobe 1992:
+    strips, RowsPerStrip, StripOffsets/StripByteCounts; Compression 8, Adobe Deflate, of Adobe's TIFF
+    Technical Note 2 / the deflate supplement; from memory). The strips are compressed here, on up to
+    ``threads`` threads, and handed to tifffile already encoded, so that each group can be reported: the file
+    is byte for byte the one ``tifffile.imwrite`` writes from the whole array (a test compares them)."""
     import tifffile
 
-    data = quantize(a, bits) if bits in INTEGER_MAX else a.astype(np.float32)
+    data = np.ascontiguousarray(quantize(a, bits) if bits in INTEGER_MAX else a.astype(np.float32))
     if data.shape[2] == 1:
         data = data[:, :, 0]
     photometric = "minisblack" if data.ndim == 2 or data.shape[2] == 2 else "rgb"
     extrasamples = ["unassalpha"] if data.ndim == 3 and data.shape[2] in (2, 4) else None
-    tifffile.imwrite(tmp, np.ascontiguousarray(data), photometric=photometric, compression="zlib",
+    rows = max(1, min(data.shape[0], TIFF_STRIP_BYTES // (data[0].size * data.itemsize)))
+    tifffile.imwrite(tmp, _deflate_strips(data, rows, progress, threads), shape=data.shape, dtype=data.dtype,
+                     photometric=photometric, compression="zlib", rowsperstrip=rows,
                      extrasamples=extrasamples, metadata=None)
+    if progress is not None:
+        progress(1.0, "writing")
+
+
+#: Uncompressed bytes per TIFF strip: tifffile's default for compressed strips (262144 // row bytes rows).
+TIFF_STRIP_BYTES = 262144
+
+
+def _deflate_strips(data: np.ndarray, rows: int, progress: Callable[[float, str], None] | None,
+                    threads: int | None) -> Iterator[bytes]:
+    """Each strip of ``rows`` rows deflated with the codec and level tifffile uses (imagecodecs' deflate at
+    its default level), in order; ``progress(fraction, "writing")`` after every
+    :data:`TIFF_STRIPS_PER_CALL` strips are in the file (tifffile asks for no strip past the last, so the
+    caller reports the end)."""
+    from collections import deque
+    from concurrent.futures import ThreadPoolExecutor
+
+    import imagecodecs
+
+    height = data.shape[0]
+    starts = range(0, height, rows)
+    workers = max(1, min(threads or os.cpu_count() or 1, len(starts)))
+    queued = iter(starts)
+    with ThreadPoolExecutor(workers, thread_name_prefix="bakery-tiff") as pool:
+        pending: deque = deque()
+
+        def submit() -> None:
+            r0 = next(queued, None)
+            if r0 is not None:
+                pending.append((r0, pool.submit(imagecodecs.deflate_encode, data[r0:r0 + rows])))
+
+        for _ in range(2 * workers):  # keep memory to a few strips
+            submit()
+        while pending:
+            r0, fut = pending.popleft()
+            submit()
+            if progress is not None and r0 and (r0 // rows) % TIFF_STRIPS_PER_CALL == 0:
+                progress(r0 / height, "writing")  # the strips above are in the file
+            yield fut.result()
 
 
 #: Scanlines an OpenEXR write hands over per call when it reports progress: a multiple of the 16 lines one ZIP
