@@ -185,7 +185,7 @@ def read_normals(path: Path, y: str, progress: Progress | None = None):
     progress(READ_NORMAL_STEPS["decode"], "reading")
     n = decode_normals(img.pixels, y=y)
     progress(READ_NORMAL_STEPS["check"], "reading")
-    n = unit_normals(n, what=str(path))
+    n = unit_normals(n, what=str(path), progress=within(progress, READ_NORMAL_STEPS["check"], 0.98))
     progress(1.0, "reading")
     return n, img
 

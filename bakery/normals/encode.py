@@ -144,19 +144,20 @@ def _normalize_block(v: np.ndarray, out: np.ndarray, length: np.ndarray) -> None
         out[zero] = (0.0, 0.0, 1.0)
 
 
-def unit_normals(normals: np.ndarray, *, what: str = "normal map",
-                 tolerance: float = UNIT_TOLERANCE) -> np.ndarray:
+def unit_normals(normals: np.ndarray, *, what: str = "normal map", tolerance: float = UNIT_TOLERANCE,
+                 progress: Progress | None = None) -> np.ndarray:
     """Check that (H, W, 3) normals are unit length; if not, warn with the measured spread and renormalize.
 
     The warning (:class:`~bakery.BakeryWarning`) reads e.g. ``"normal map is not unit length: lengths 0.62 ..
-    1.00 (mean 0.93, 41% of texels off by more than 0.015); renormalized"``.
+    1.00 (mean 0.93, 41% of texels off by more than 0.015); renormalized"``. ``progress``: as
+    :func:`normalize`'s.
     """
     n = np.asarray(normals, dtype=np.float32)
     if n.ndim != 3 or n.shape[2] != 3:
         raise BakeryError(f"{what}: expected normals of shape (H, W, 3); got {n.shape}")
     if not np.isfinite(n).all():
         raise BakeryError(f"{what}: holds NaN or Inf values")
-    unit, length = normalize(n)
+    unit, length = normalize(n, progress=progress)
     off = np.abs(length - 1.0) > tolerance
     if off.any():
         warnings.warn(
