@@ -26,7 +26,7 @@ import numpy as np
 
 from bakery.errors import BakeryError
 from bakery.normals.encode import normalize, unit_normals
-from bakery.progress import Progress, no_progress
+from bakery.progress import Progress, no_progress, within
 
 BLEND_METHODS = ("reoriented", "whiteout", "derivative", "linear")
 
@@ -43,8 +43,8 @@ def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reorie
     detail_strength : float
         Multiplies the detail's x and y before blending (0 = no detail, 1 = as stored, 2 = twice as steep).
     progress : callable, optional
-        ``progress(fraction, "blending")`` after the unit checks and each band of rows, rising to 1. Every
-        texel depends on its own two normals only, so the bands change no value.
+        ``progress(fraction, label)`` rising to 1: the unit checks block by block, then each band of rows
+        ("blending"). Every texel depends on its own two normals only, so the bands change no value.
 
     Returns
     -------
@@ -66,9 +66,9 @@ def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reorie
     if not math.isfinite(detail_strength) or detail_strength < 0:
         raise BakeryError(f"detail strength must be zero or positive; got {detail_strength!r}")
     step = progress or no_progress
-    n1 = unit_normals(base, what="base normal map")
+    n1 = unit_normals(base, what="base normal map", progress=within(step, 0.0, 0.1))
     step(0.1, "blending")
-    n2 = unit_normals(detail, what="detail normal map")
+    n2 = unit_normals(detail, what="detail normal map", progress=within(step, 0.1, 0.2))
     if n1.shape != n2.shape:
         raise BakeryError(f"base and detail differ in size: {n1.shape[1]}x{n1.shape[0]} vs "
                           f"{n2.shape[1]}x{n2.shape[0]}; resize the detail first")

@@ -123,4 +123,5 @@ def test_blend_in_bands_changes_no_value_and_reports_each_band(method, strength,
     seen = []
     banded = blend_normals(a, b, method=method, detail_strength=strength, progress=lambda f, w: seen.append(f))
     assert banded.tobytes() == whole.tobytes()
-    assert len(seen) == 2 + 10 and seen == sorted(seen) and seen[-1] == 1.0  # the two unit checks, 10 bands
+    # the two unit checks (one block each at this size, then their end), 10 bands
+    assert len(seen) == 2 * 2 + 10 and seen == sorted(seen) and seen[-1] == 1.0
