@@ -99,7 +99,7 @@ def height_from_normal(
     check_edges(edges)
     k = get_kernel(kernel)
     step = progress or no_progress
-    n = unit_normals(normals, what="normal map")
+    n = unit_normals(normals, what="normal map", progress=within(step, 0.0, 0.1))
     step(0.1, "integrating")
     gx, gy = slopes_from_normals(n, strength)
     step(0.2, "integrating")
