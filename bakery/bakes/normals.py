@@ -304,45 +304,44 @@ def run_normal(inputs: dict[str, Path], output: Path, p: NormalParams, progress:
     bits = output_bits(output, p.bits, in_bits)
     if p.channels == 2 and output.suffix.lower() == ".png":
         raise BakeryError("PNG files cannot hold 2 channels; write the XY map as .tif or .exr", output)
-    if bits in INTEGER_MAX:  # encode strip by strip into the integer image: no full float copy
-        q = np.empty((rows, cols, p.channels), np.uint8 if bits == "8" else np.uint16)
-        scratch = {}
+    # encode strip by strip into the output image (integer samples quantised there): no second full-size copy
+    integer = bits in INTEGER_MAX
+    q = np.empty((rows, cols, p.channels), {"8": np.uint8, "16": np.uint16}.get(bits, np.float32))
+    scratch = {}
 
-        strips = rows_done(within(progress, NORMAL_STEPS["strips"], NORMAL_STEPS["writing"]), rows)
+    strips = rows_done(within(progress, NORMAL_STEPS["strips"], NORMAL_STEPS["writing"]), rows)
 
-        def finish(r0: int, r1: int, block: np.ndarray) -> None:
-            import threading
+    def finish(r0: int, r1: int, block: np.ndarray) -> None:
+        import threading
 
-            key = threading.get_ident()
-            buf = scratch.get(key)
-            if buf is None or buf.shape[0] < r1 - r0:
-                buf = scratch[key] = np.empty(block.shape[:2] + (p.channels,), np.float32)
-            e = encode_normals(block, y=p.y, channels=p.channels, out=buf[: r1 - r0])
-            q[r0:r1] = quantize(e, bits)
+        if not integer:
+            encode_normals(block, y=p.y, channels=p.channels, out=q[r0:r1])
             strips(r0, r1, block)
+            return
+        key = threading.get_ident()
+        buf = scratch.get(key)
+        if buf is None or buf.shape[0] < r1 - r0:
+            buf = scratch[key] = np.empty(block.shape[:2] + (p.channels,), np.float32)
+        e = encode_normals(block, y=p.y, channels=p.channels, out=buf[: r1 - r0])
+        q[r0:r1] = quantize(e, bits)
+        strips(r0, r1, block)
 
-        blocks: dict[int, np.ndarray] = {}
+    blocks: dict[int, np.ndarray] = {}
 
-        def target(r0: int, r1: int) -> np.ndarray:
-            import threading
+    def target(r0: int, r1: int) -> np.ndarray:
+        import threading
 
-            key = threading.get_ident()
-            b = blocks.get(key)
-            if b is None or b.shape[0] < r1 - r0:
-                b = blocks[key] = np.empty((r1 - r0, cols, 3), np.float32)
-            return b[: r1 - r0]
+        key = threading.get_ident()
+        b = blocks.get(key)
+        if b is None or b.shape[0] < r1 - r0:
+            b = blocks[key] = np.empty((r1 - r0, cols, 3), np.float32)
+        return b[: r1 - r0]
 
-        run_strips(h, target=target, finish=finish, threads=bake_threads(), **opts)
-        del h
-        progress(NORMAL_STEPS["writing"], "writing")
-        write_image(output, q, threads=bake_threads(),
-                    progress=within(progress, NORMAL_STEPS["writing"], NORMAL_STEPS["manifest"]))
-    else:
-        n = normal_from_height(h, threads=bake_threads(), progress=within(progress, NORMAL_STEPS["strips"], 0.5),
-                               **opts)
-        del h
-        write_image(output, encode_normals(n, y=p.y, channels=p.channels), bits=bits,
-                    progress=within(progress, 0.5, NORMAL_STEPS["manifest"]))
+    run_strips(h, target=target, finish=finish, threads=bake_threads(), **opts)
+    del h
+    progress(NORMAL_STEPS["writing"], "writing")
+    write_image(output, q, bits=None if integer else bits, threads=bake_threads(),
+                progress=within(progress, NORMAL_STEPS["writing"], NORMAL_STEPS["manifest"]))
     extra["sample_type"] = bits
     progress(NORMAL_STEPS["manifest"], "manifest")
     manifest = write_manifest(output, bake="normal", inputs={"height": src}, params=params_to_dict(p),
