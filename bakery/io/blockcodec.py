@@ -163,22 +163,43 @@ def encode_surface(texels: np.ndarray, codec: Codec | str, *, quality: str = "fa
     return b"".join(out)
 
 
-def quantize(values: np.ndarray, codec: Codec) -> tuple[np.ndarray, int]:
+#: Texels :func:`quantize` converts per band of rows (common practice: its temporaries stay a few MB, and a large
+#: level reports progress as it goes).
+QUANTIZE_BAND_TEXELS = 1 << 20
+
+
+def quantize(values: np.ndarray, codec: Codec, progress: Progress | None = None) -> tuple[np.ndarray, int]:
     """Block-padded encoder input from float32 ``(H, W, C)`` stored values, and the clamped sample count.
 
     LDR codecs: ``rint(clip(v, 0, 1) * 255)`` in uint8 (ties to even, as the uncompressed writers); BC1/BC3/BC7
     get RGBA (missing alpha = 255). BC6H: half floats clipped to [0, 65504] (it stores no negative values).
+    In bands of rows; ``progress(fraction, "encoding")`` after each.
     """
     v = np.asarray(values, dtype=np.float32)
-    c = v.shape[2]
+    h, w, c = v.shape
+    if codec.hdr:
+        out = np.empty((h, w, 4), np.float16)
+        out[:, :, 3] = 1.0
+    else:
+        out = np.empty((h, w, codec.surface_channels), np.uint8)
+    rows = max(1, QUANTIZE_BAND_TEXELS // max(1, w))
+    clamped = 0
+    for r0 in range(0, h, rows):
+        r1 = min(h, r0 + rows)
+        clamped += _quantize_rows(v[r0:r1], codec, out[r0:r1])
+        if progress is not None:
+            progress(r1 / h, "encoding")
+    return pad_to_blocks(out), clamped
+
+
+def _quantize_rows(v: np.ndarray, codec: Codec, out: np.ndarray) -> int:
+    """:func:`quantize` of a band of rows into ``out``; the clamped count."""
     if codec.hdr:
         clamped = int(np.count_nonzero((v < 0) | (v > 65504.0)))
-        rgba = np.empty(v.shape[:2] + (4,), np.float16)
-        np.clip(v[:, :, :3], 0.0, 65504.0, out=rgba[:, :, :3], casting="unsafe")
-        rgba[:, :, 3] = 1.0
-        return pad_to_blocks(rgba), clamped
+        np.clip(v[:, :, :3], 0.0, 65504.0, out=out[:, :, :3], casting="unsafe")
+        return clamped
     sc = codec.surface_channels
-    k = min(c, sc)
+    k = min(v.shape[2], sc)
     tmp = np.empty(v.shape[:2] + (k,), np.float32)
     np.copyto(tmp, v[:, :, :k])
     clamped = 0
@@ -187,11 +208,10 @@ def quantize(values: np.ndarray, codec: Codec) -> tuple[np.ndarray, int]:
         np.clip(tmp, 0.0, 1.0, out=tmp)
     tmp *= np.float32(255.0)
     np.rint(tmp, out=tmp)
-    out = np.empty(v.shape[:2] + (sc,), np.uint8)
     out[:, :, :k] = tmp
     if sc == 4 and k < 4:
         out[:, :, k:] = 255
-    return pad_to_blocks(out), clamped
+    return clamped
 
 
 def encode_level(values: np.ndarray, codec: Codec | str, *, quality: str = "fast",
@@ -200,9 +220,7 @@ def encode_level(values: np.ndarray, codec: Codec | str, *, quality: str = "fast
     """Blocks of one float32 ``(H, W, C)`` level of stored values, and the number of clamped samples
     (``progress``: as :func:`encode_surface`)."""
     codec = CODECS[codec] if isinstance(codec, str) else codec
-    surf, clamped = quantize(values, codec)
-    if progress is not None:
-        progress(0.1, "encoding")
+    surf, clamped = quantize(values, codec, progress=maybe_within(progress, 0.0, 0.1))
     return encode_surface(surf, codec, quality=quality, threads=threads,
                           progress=maybe_within(progress, 0.1, 1.0)), clamped
 
