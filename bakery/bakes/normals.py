@@ -391,7 +391,7 @@ def run_height(inputs: dict[str, Path], output: Path, p: HeightParams, progress:
                           "the largest inside), but --edges wrap integrates it as a tiling map, which bends the "
                           "relief near the borders; use --edges clamp for a map that does not tile",
                           BakeryWarning, stacklevel=2)
-    z = height_from_normal(n, strength=(sx, sy), kernel=p.kernel, edges=p.edges,
+    z = height_from_normal(n, strength=(sx, sy), kernel=p.kernel, edges=p.edges, checked=True,
                            progress=within(progress, 0.2, 0.65))
     h, offset, scale = fit_height(z, unit_range=bits in INTEGER_MAX)
     if scale != 1.0:
@@ -442,7 +442,7 @@ def run_blend(inputs: dict[str, Path], output: Path, p: BlendParams, progress: P
                           f"{base.shape[1]}x{base.shape[0]}; they must match", inputs["detail"])
     channels = p.channels or (2 if bimg.channels == 2 else 3)
     bits = output_bits(output, p.bits, bimg.bits)
-    r = blend_normals(base, detail, method=p.method, detail_strength=p.detail_strength,
+    r = blend_normals(base, detail, method=p.method, detail_strength=p.detail_strength, checked=True,
                       progress=within(progress, 0.3, 0.6))
     progress(0.6, "writing")
     write_normals(output, r, y=p.y, channels=channels, bits=bits, progress=within(progress, 0.6, 0.97))

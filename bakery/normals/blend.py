@@ -32,7 +32,8 @@ BLEND_METHODS = ("reoriented", "whiteout", "derivative", "linear")
 
 
 def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reoriented",
-                  detail_strength: float = 1.0, progress: Progress | None = None) -> np.ndarray:
+                  detail_strength: float = 1.0, checked: bool = False, progress: Progress | None = None
+                  ) -> np.ndarray:
     """Layer ``detail`` over ``base``; both unit normals (H, W, 3), +Y up.
 
     Parameters
@@ -42,6 +43,9 @@ def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reorie
     method : {"reoriented", "whiteout", "derivative", "linear"}
     detail_strength : float
         Multiplies the detail's x and y before blending (0 = no detail, 1 = as stored, 2 = twice as steep).
+    checked : bool
+        True when both maps are known to be unit length already (bakery's normal-map readers check them):
+        the unit checks, a full pass over each map, are skipped.
     progress : callable, optional
         ``progress(fraction, label)`` rising to 1: the unit checks block by block, then each band of rows
         ("blending"). Every texel depends on its own two normals only, so the bands change no value.
@@ -66,9 +70,12 @@ def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reorie
     if not math.isfinite(detail_strength) or detail_strength < 0:
         raise BakeryError(f"detail strength must be zero or positive; got {detail_strength!r}")
     step = progress or no_progress
-    n1 = unit_normals(base, what="base normal map", progress=within(step, 0.0, 0.1))
-    step(0.1, "blending")
-    n2 = unit_normals(detail, what="detail normal map", progress=within(step, 0.1, 0.2))
+    if checked:
+        n1, n2 = np.asarray(base, dtype=np.float32), np.asarray(detail, dtype=np.float32)
+    else:
+        n1 = unit_normals(base, what="base normal map", progress=within(step, 0.0, 0.1))
+        step(0.1, "blending")
+        n2 = unit_normals(detail, what="detail normal map", progress=within(step, 0.1, 0.2))
     if n1.shape != n2.shape:
         raise BakeryError(f"base and detail differ in size: {n1.shape[1]}x{n1.shape[0]} vs "
                           f"{n2.shape[1]}x{n2.shape[0]}; resize the detail first")

@@ -57,6 +57,7 @@ def height_from_normal(
     strength: float | tuple[float, float] = 1.0,
     kernel: str = DEFAULT_KERNEL,
     edges: str = "wrap",
+    checked: bool = False,
     progress: Progress | None = None,
 ) -> np.ndarray:
     """Integrate a normal map back to a height map (mean 0).
@@ -72,6 +73,9 @@ def height_from_normal(
         The derivative kernel whose response is inverted (tiling maps only).
     edges : {"wrap", "clamp", "mirror"}
         ``"wrap"``: Frankot-Chellappa (FFT); otherwise a Neumann Poisson solve (DCT).
+    checked : bool
+        True when the normals are known to be unit length already (bakery's normal-map readers check them):
+        the unit check, a full pass over the map, is skipped.
     progress : callable, optional
         ``progress(fraction, "integrating")`` between the steps (the check, the slopes, each transform),
         rising to 1; the result does not depend on it.
@@ -99,7 +103,10 @@ def height_from_normal(
     check_edges(edges)
     k = get_kernel(kernel)
     step = progress or no_progress
-    n = unit_normals(normals, what="normal map", progress=within(step, 0.0, 0.1))
+    if checked:
+        n = np.asarray(normals, dtype=np.float32)
+    else:
+        n = unit_normals(normals, what="normal map", progress=within(step, 0.0, 0.1))
     step(0.1, "integrating")
     gx, gy = slopes_from_normals(n, strength)
     step(0.2, "integrating")

@@ -125,3 +125,21 @@ def test_blend_in_bands_changes_no_value_and_reports_each_band(method, strength,
     assert banded.tobytes() == whole.tobytes()
     # the two unit checks (one block each at this size, then their end), 10 bands
     assert len(seen) == 2 * 2 + 10 and seen == sorted(seen) and seen[-1] == 1.0
+
+
+def test_checked_inputs_skip_the_unit_check():
+    """``checked=True``: the maps are taken as unit already (no warning, no second pass); on unit maps the
+    result is that of the checked call up to the rounding of one more renormalisation."""
+    rng = np.random.default_rng(11)
+    a = rng.normal(size=(16, 12, 3)).astype(np.float32)
+    a[..., 2] = np.abs(a[..., 2]) + 0.3
+    a /= np.linalg.norm(a, axis=-1, keepdims=True)
+    b = a[::-1].copy()
+    assert np.abs(blend_normals(a, b, checked=True) - blend_normals(a, b)).max() < 1e-6
+    with pytest.warns(BakeryWarning, match="not unit length"):
+        blend_normals(a * 0.5, b)
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        blend_normals(a * 0.5, b, checked=True)

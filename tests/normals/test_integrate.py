@@ -102,3 +102,15 @@ def test_fit_height_records_offset_and_scale():
     assert scale == pytest.approx(1 / 5.0) and h.max() == pytest.approx(1.0)
     h, offset, scale = fit_height(z * 10, unit_range=False)
     assert scale == 1.0 and h.max() == pytest.approx(5.0)
+
+
+def test_checked_normals_skip_the_unit_check():
+    """``checked=True``: taken as unit already (no warning, no second pass); the same heights on unit maps."""
+    import warnings
+
+    h = smooth_periodic(32, 32, seed=4)
+    n = normal_from_height(h, strength=3.0)
+    assert np.abs(height_from_normal(n, strength=3.0, checked=True) - height_from_normal(n, strength=3.0)).max() < 1e-6
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        height_from_normal(n * 0.5, strength=3.0, checked=True)

@@ -86,3 +86,22 @@ def test_other_normal_bakes_report_their_writes(bake, params, strips, height, tm
     assert all(x <= y for x, y in zip(fractions, fractions[1:], strict=False)) and fractions[-1] == 1.0
     assert seen[0] == (0.0, "reading")
     assert len([w for _, w in seen if w == "writing"]) == strips + 1  # the step's start, then each strip
+
+
+@pytest.mark.parametrize(("bake", "reads"), [("blend", 2), ("height", 1)])
+def test_bakes_check_each_normal_map_once(bake, reads, height, tmp_path, monkeypatch):
+    """The reader checks unit length; the blend and the integration do not check the same arrays again."""
+    from bakery.bakes import get_bake
+    from bakery.normals import encode
+
+    normal = run_bake("normal", {"height": height}, tmp_path / "n.png", NormalParams())[0]
+    inputs = {"base": normal, "detail": normal} if bake == "blend" else {"normal": normal}
+    calls = []
+    real = encode.unit_normals
+    monkeypatch.setattr(encode, "unit_normals", lambda n, **kw: calls.append(kw.get("what")) or real(n, **kw))
+    from bakery.normals import blend, integrate
+
+    monkeypatch.setattr(blend, "unit_normals", encode.unit_normals)
+    monkeypatch.setattr(integrate, "unit_normals", encode.unit_normals)
+    run_bake(bake, inputs, tmp_path / "out.png", get_bake(bake).params())
+    assert calls == [str(normal)] * reads
