@@ -19,7 +19,7 @@ from __future__ import annotations
 import numpy as np
 
 from bakery.errors import BakeryError
-from bakery.progress import Progress, no_progress
+from bakery.progress import Progress, no_progress, row_bands
 
 
 def mip_count(width: int, height: int) -> int:
@@ -65,9 +65,7 @@ def downsample(v: np.ndarray, progress: Progress | None = None) -> np.ndarray:
     h, w = v.shape[:2]
     oh, ow = max(1, h // 2), max(1, w // 2)
     out = np.empty((oh, ow) + v.shape[2:], np.float32)
-    step = max(1, DOWNSAMPLE_BLOCK_TEXELS // max(1, w))
-    for j0 in range(0, oh, step):
-        j1 = min(oh, j0 + step)
+    for j0, j1 in row_bands(oh, w, DOWNSAMPLE_BLOCK_TEXELS):
         out[j0:j1] = _halve_axis(_halve_axis(v, 0, j0, j1), 1)
         if progress is not None:
             progress(j1 / oh, "reducing")

@@ -40,6 +40,7 @@ from bakery.bakes.params import (
     y_param,
 )
 from bakery.errors import BakeryError
+from bakery.progress import row_bands
 
 IMAGE_FORMATS = ("png", "tiff", "exr")
 
@@ -410,9 +411,7 @@ def _linear(level, transfer: str, progress: Progress):
 
     out = level.copy()
     c = 1 if level.shape[2] in (1, 2) else 3
-    rows = max(1, LINEAR_BAND_TEXELS // max(1, level.shape[1]))
-    for r0 in range(0, level.shape[0], rows):
-        r1 = min(level.shape[0], r0 + rows)
+    for r0, r1 in row_bands(level.shape[0], level.shape[1], LINEAR_BAND_TEXELS):
         out[r0:r1, :, :c] = srgb_to_linear(level[r0:r1, :, :c])
         progress(r1 / level.shape[0], "writing")
     return out

@@ -35,7 +35,7 @@ import numpy as np
 
 from bakery.errors import BakeryError
 from bakery.io.ktx2_formats import encoder_version  # noqa: F401  (numpy-free: a batch plan reads it)
-from bakery.progress import Progress, maybe_within
+from bakery.progress import Progress, maybe_within, row_bands
 
 BLOCK = 4
 QUALITIES = ("fast", "balanced", "best")
@@ -182,10 +182,8 @@ def quantize(values: np.ndarray, codec: Codec, progress: Progress | None = None)
         out[:, :, 3] = 1.0
     else:
         out = np.empty((h, w, codec.surface_channels), np.uint8)
-    rows = max(1, QUANTIZE_BAND_TEXELS // max(1, w))
     clamped = 0
-    for r0 in range(0, h, rows):
-        r1 = min(h, r0 + rows)
+    for r0, r1 in row_bands(h, w, QUANTIZE_BAND_TEXELS):
         clamped += _quantize_rows(v[r0:r1], codec, out[r0:r1])
         if progress is not None:
             progress(r1 / h, "encoding")

@@ -41,7 +41,7 @@ import numpy as np
 from bakery.color import linear_to_srgb, srgb_to_linear
 from bakery.errors import BakeryError, BakeryWarning
 from bakery.io.atomic import atomic_output
-from bakery.progress import maybe_within
+from bakery.progress import maybe_within, row_bands
 from bakery.types import Bits
 
 Color = Literal["data", "srgb"]
@@ -299,9 +299,7 @@ def _to_float(raw: np.ndarray, bits: str, srgb_channels: int = 0,
     table = srgb_to_linear(np.arange(top + 1, dtype=np.float32) * scale) if srgb_channels else None
     height = raw.shape[0]
     out = np.empty(raw.shape, np.float32)
-    band = max(1, FLOAT_BAND_SAMPLES // max(1, raw[0].size))
-    for r0 in range(0, height, band):
-        r1 = min(height, r0 + band)
+    for r0, r1 in row_bands(height, raw[0].size, FLOAT_BAND_SAMPLES):
         np.multiply(raw[r0:r1], scale, out=out[r0:r1], dtype=np.float32)
         if table is not None:
             np.take(table, raw[r0:r1, :, :srgb_channels], out=out[r0:r1, :, :srgb_channels])

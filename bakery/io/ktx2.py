@@ -77,7 +77,7 @@ from bakery.io.ktx2_formats import (  # noqa: F401  (re-exported: the format tab
     Format,
     get_format,
 )
-from bakery.progress import Progress, maybe_within
+from bakery.progress import Progress, maybe_within, row_bands
 
 IDENTIFIER = bytes([0xAB, 0x4B, 0x54, 0x58, 0x20, 0x32, 0x30, 0xBB, 0x0D, 0x0A, 0x1A, 0x0A])
 HEADER_SIZE = 80
@@ -316,9 +316,7 @@ def encode_blocks(a: np.ndarray, fmt: Format, *, quality: str = "fast", threads:
         clamped = int(np.count_nonzero((a[..., :3] < 0) | (a[..., :3] > 1)))
         a = a.copy()
         rows = a.reshape(-1, a.shape[-2], a.shape[-1])  # faces one after another: bands of rows
-        band = max(1, SRGB_BAND_TEXELS // max(1, a.shape[-2]))
-        for r0 in range(0, rows.shape[0], band):  # texel by texel: bands change no value
-            r1 = min(rows.shape[0], r0 + band)
+        for r0, r1 in row_bands(rows.shape[0], a.shape[-2], SRGB_BAND_TEXELS):  # texel by texel: no value changes
             rows[r0:r1, :, :3] = linear_to_srgb(np.clip(rows[r0:r1, :, :3], 0.0, 1.0))
             if progress is not None:
                 progress(srgb_share * r1 / rows.shape[0], "encoding")

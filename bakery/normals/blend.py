@@ -26,7 +26,7 @@ import numpy as np
 
 from bakery.errors import BakeryError
 from bakery.normals.encode import normalize, unit_normals
-from bakery.progress import Progress, no_progress, within
+from bakery.progress import Progress, no_progress, row_bands, within
 
 BLEND_METHODS = ("reoriented", "whiteout", "derivative", "linear")
 
@@ -81,9 +81,7 @@ def blend_normals(base: np.ndarray, detail: np.ndarray, *, method: str = "reorie
                           f"{n2.shape[1]}x{n2.shape[0]}; resize the detail first")
     step(0.2, "blending")
     out = np.empty_like(n1)
-    rows = max(1, BLEND_BAND_TEXELS // max(1, n1.shape[1]))
-    for r0 in range(0, n1.shape[0], rows):
-        r1 = min(n1.shape[0], r0 + rows)
+    for r0, r1 in row_bands(n1.shape[0], n1.shape[1], BLEND_BAND_TEXELS):
         out[r0:r1] = _blend_rows(n1[r0:r1], n2[r0:r1], method, detail_strength)
         step(0.2 + 0.8 * r1 / n1.shape[0], "blending")
     return out

@@ -25,7 +25,7 @@ import warnings
 import numpy as np
 
 from bakery.errors import BakeryError, BakeryWarning
-from bakery.progress import Progress
+from bakery.progress import Progress, row_bands
 
 Y_CONVENTIONS = ("up", "down")
 
@@ -126,9 +126,7 @@ def normalize(v: np.ndarray, *, out: np.ndarray | None = None,
         _normalize_block(v, out, length)
         return out, length
     n = v.shape[0]
-    step = max(1, NORMALIZE_BLOCK // max(1, v[0].size // v.shape[-1]))
-    for i0 in range(0, n, step):
-        i1 = min(n, i0 + step)
+    for i0, i1 in row_bands(n, v[0].size // v.shape[-1], NORMALIZE_BLOCK):
         _normalize_block(v[i0:i1], out[i0:i1], length[i0:i1])
         if progress is not None:
             progress(i1 / n, "normalizing")

@@ -40,7 +40,7 @@ import numpy as np
 from bakery.edges import check_edges, pad
 from bakery.errors import BakeryError
 from bakery.normals.kernels import DEFAULT_KERNEL, get_kernel
-from bakery.progress import Progress, no_progress, within
+from bakery.progress import Progress, no_progress, row_bands, within
 
 
 @dataclass(frozen=True)
@@ -179,9 +179,7 @@ def mean_curvature(
     step = progress or no_progress
     derivs = _texel_derivatives(h, scale, edges, kernel, within(step, 0.0, 0.6))
     H = np.empty(h.shape, np.float32)
-    rows = max(1, BAND_TEXELS // max(1, h.shape[1]))
-    for r0 in range(0, h.shape[0], rows):  # texel by texel: bands of rows change no value
-        r1 = min(h.shape[0], r0 + rows)
+    for r0, r1 in row_bands(h.shape[0], h.shape[1], BAND_TEXELS):  # texel by texel: bands change no value
         hx, hy, hxx, hxy, hyy = (a[r0:r1] for a in derivs)
         # lengths in units of R: one texel is 1/s_x wide, 1/s_y tall
         hx, hy = hx * sx, hy * sy
