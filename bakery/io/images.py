@@ -374,9 +374,17 @@ def _read_tiff(path: Path, progress: Callable[[float, str], None] | None = None)
 
     with tifffile.TiffFile(path) as tif:
         page = tif.pages[0]
+        photometric = _tiff_photometric(page, path)
         a = _tiff_segments(page, progress) if progress is not None else page.asarray()
+        colormap = page.colormap if photometric == PALETTE else None
     if a.ndim == 3 and a.shape[0] in (1, 2, 3, 4) and a.shape[2] > 4:  # planar (C, H, W)
         a = np.moveaxis(a, 0, -1)
+    if photometric == MINISWHITE:
+        if a.dtype not in (np.uint8, np.uint16):
+            raise BakeryError(f"a white-is-zero TIFF must hold 8/16-bit integers; got {a.dtype}", path)
+        a = np.iinfo(a.dtype).max - a  # 0 is white (TIFF 6.0, PhotometricInterpretation 0)
+    elif photometric == PALETTE:
+        a = _tiff_palette(a, colormap, path)
     dtype = a.dtype
     if dtype == np.uint8:
         return a, "8"
@@ -389,6 +397,43 @@ def _read_tiff(path: Path, progress: Callable[[float, str], None] | None = None)
     if dtype == np.float64:
         return a.astype(np.float32), "float"
     raise BakeryError(f"unsupported TIFF sample type {dtype}; use 8/16-bit integer or float32", path)
+
+
+#: TIFF PhotometricInterpretation values (TIFF 6.0, Adobe 1992, section 3-5): 0 white is zero, 1 black is
+#: zero, 2 RGB, 3 palette colour, 6 YCbCr (read when JPEG-compressed: the decoder gives RGB).
+MINISWHITE, MINISBLACK, RGB, PALETTE, YCBCR = 0, 1, 2, 3, 6
+TIFF_JPEG = 7
+TIFF_COLOUR_NAMES = {4: "transparency mask", 5: "CMYK (separated)", 6: "YCbCr without JPEG compression",
+                     8: "CIE L*a*b*", 9: "ICC L*a*b*", 10: "ITU L*a*b*", 32844: "LogL", 32845: "LogLuv"}
+
+
+def _tiff_photometric(page, path: Path) -> int:
+    """The page's colour interpretation, refused (naming it) unless it is grey, RGB, palette or JPEG YCbCr:
+    CMYK, CIE L*a*b* and the rest would otherwise be taken for RGB(A) values."""
+    photometric = int(page.photometric)
+    if photometric in (MINISWHITE, MINISBLACK, RGB, PALETTE) or (
+            photometric == YCBCR and int(page.compression) == TIFF_JPEG):
+        return photometric
+    name = TIFF_COLOUR_NAMES.get(photometric) or getattr(page.photometric, "name", str(photometric))
+    raise BakeryError(f"TIFF colour interpretation {name} (PhotometricInterpretation {photometric}) is not "
+                      "read; save it as grey or RGB(A)", path)
+
+
+def _tiff_palette(index: np.ndarray, colormap, path: Path) -> np.ndarray:
+    """Palette-colour samples to RGB through the TIFF ColorMap (3 x 2^bits entries, 0..65535 each). A map of
+    8-bit colours (every entry a multiple of 256 or of 257, or all below 256 as some writers store them) gives
+    8-bit RGB, any other 16-bit RGB (common practice, as image libraries read them; not in TIFF 6.0)."""
+    if colormap is None or index.ndim != 2 or index.dtype not in (np.uint8, np.uint16):
+        raise BakeryError("palette TIFF without a usable colour map (one 8/16-bit index per texel)", path)
+    cmap = np.asarray(colormap, dtype=np.uint16)
+    if index.size and int(index.max()) >= cmap.shape[1]:
+        raise BakeryError(f"palette TIFF index {int(index.max())} beyond its {cmap.shape[1]}-entry colour map",
+                          path)
+    if int(cmap.max()) < 256:
+        cmap = cmap.astype(np.uint8)
+    elif not (cmap % 256).any() or not (cmap % 257).any():
+        cmap = (cmap >> 8).astype(np.uint8)
+    return np.ascontiguousarray(cmap.T[index])
 
 
 #: TIFF strips or tiles decoded between two progress calls (about 2 MiB of tifffile's default 256 KiB strips).

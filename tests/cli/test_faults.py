@@ -222,3 +222,16 @@ def test_preview_refuses_a_bad_sh_file_in_one_line(sh, tmp_path, capfd):
                         "-o", tmp_path / "p.png"], capfd)
     assert got == 2 and "d.json" in one_line(err)
     assert not (tmp_path / "p.png").exists()
+
+
+@pytest.mark.parametrize("command", [["info"], ["normal"], ["mips"]])
+def test_a_cmyk_tiff_is_refused_in_one_line(command, tmp_path, capfd):
+    """CMYK samples (TIFF 6.0 PhotometricInterpretation 5) are not read as RGB(A)."""
+    import tifffile
+
+    path = tmp_path / "print.tif"
+    tifffile.imwrite(path, np.full((8, 8, 4), 90, np.uint8), photometric="separated")
+    out = tmp_path / "out.png"
+    code, err = run_cli([*command, path] + ([] if command == ["info"] else ["-o", out]), capfd)
+    assert code == 2 and "CMYK" in one_line(err) and "print.tif" in err
+    assert not out.exists()

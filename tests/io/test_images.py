@@ -88,6 +88,59 @@ def test_tiff_round_trips_with_tifffile(tmp_path, bits, channels):
         np.testing.assert_array_equal(quantize(img.pixels, bits), data)
 
 
+@pytest.mark.parametrize("writer", ["tifffile", "pil"])
+def test_tiff_white_is_zero_and_palette_colour_as_pillow_reads_them(tmp_path, writer):
+    """TIFF 6.0 (Adobe 1992), PhotometricInterpretation 0 (white is zero) and 3 (palette colour, RGB through
+    the ColorMap); the expected values are Pillow's, an independent reader."""
+    from PIL import Image as PILImage
+
+    index = (np.arange(24 * 16).reshape(16, 24) * 7 % 256).astype(np.uint8)
+    white, palette = tmp_path / "white.tif", tmp_path / "palette.tif"
+    if writer == "tifffile":
+        tifffile.imwrite(white, index, photometric="miniswhite")
+        levels = np.arange(256)
+        cmap = np.stack([levels, 255 - levels, (levels * 3) % 256]) * 257  # 8-bit colours, 0..65535
+        tifffile.imwrite(palette, index, photometric="palette", colormap=cmap.astype(np.uint16))
+    else:
+        PILImage.fromarray(index).convert("P").save(palette)  # ColorMap entries as v * 256
+        tifffile.imwrite(white, index, photometric="miniswhite")
+    with PILImage.open(white) as im:
+        expect_white = np.asarray(im.convert("L"))
+    with PILImage.open(palette) as im:
+        expect_rgb = np.asarray(im.convert("RGB"))
+    img = read_image(white)
+    assert img.bits == "8" and img.pixels.shape == (16, 24, 1)
+    np.testing.assert_array_equal(quantize(img.pixels[..., 0], "8"), expect_white)
+    img = read_image(palette)
+    assert img.bits == "8" and img.pixels.shape == (16, 24, 3)
+    np.testing.assert_array_equal(quantize(img.pixels, "8"), expect_rgb)
+
+
+def test_tiff_sixteen_bit_white_is_zero_and_palette(tmp_path):
+    """16-bit white-is-zero stores 65535 - v (TIFF 6.0); a ColorMap of other than 8-bit colours gives 16-bit RGB."""
+    v = (np.arange(12 * 10).reshape(10, 12) * 541 % 65536).astype(np.uint16)
+    tifffile.imwrite(tmp_path / "w16.tif", v, photometric="miniswhite")
+    img = read_image(tmp_path / "w16.tif")
+    assert img.bits == "16"
+    np.testing.assert_array_equal(quantize(img.pixels[..., 0], "16"), 65535 - v)
+    cmap = (np.arange(3 * 256).reshape(3, 256) * 85 + 1).astype(np.uint16)
+    idx = (v % 256).astype(np.uint8)
+    tifffile.imwrite(tmp_path / "p16.tif", idx, photometric="palette", colormap=cmap)
+    img = read_image(tmp_path / "p16.tif")
+    assert img.bits == "16"
+    np.testing.assert_array_equal(quantize(img.pixels, "16"), np.moveaxis(cmap[:, idx], 0, -1))
+
+
+@pytest.mark.parametrize(("photometric", "said"), [("separated", "CMYK"), ("cielab", r"L\*a\*b\*")])
+def test_tiff_colour_spaces_that_are_not_rgb_are_refused(tmp_path, photometric, said):
+    path = tmp_path / f"{photometric}.tif"
+    data = np.full((8, 8, 4 if photometric == "separated" else 3), 90, np.uint8)
+    tifffile.imwrite(path, data, photometric=photometric)
+    with pytest.raises(BakeryError, match=f"{said}.*save it as grey or RGB") as err:
+        read_image(path)
+    assert str(path) in str(err.value)
+
+
 # ----------------------------------------------------------------------------------- OpenEXR
 
 
