@@ -1,10 +1,14 @@
-"""What kind of map an image holds, guessed from its channels, values and shape.
+"""What kind of map an image holds, guessed from its channels, values and shape (and, for single-channel
+maps, from words in the file's name).
 
-One module for ``bakery info`` and ``bakery inspect``. The guess is a hint for people and picks which checks
-``inspect`` runs; it never changes how a bake processes a file.
+One module for ``bakery info``, ``bakery inspect`` and the contact sheet. The guess is a hint for people and
+picks which checks ``inspect`` runs; it never changes how a bake processes a file.
 """
 
 from __future__ import annotations
+
+import re
+from pathlib import Path
 
 import numpy as np
 
@@ -33,9 +37,36 @@ HEIGHT_RANGE = 0.6
 HEIGHT_MIN_RANGE = 0.45
 SMOOTHNESS = 2.5
 
+#: Words of a file name that say what a single-channel map holds; they decide over the values, which can look
+#: alike (a shallow height map and a roughness map). Matched as the start of a word of the name (split at
+#: ``_ - . `` and spaces and at lower-to-upper case changes); common practice of texture naming, no standard.
+HEIGHT_WORDS = ("height", "disp", "bump", "elev", "heightmap")
+DATA_WORDS = ("rough", "gloss", "smooth", "metal", "mask", "occlusion", "ao", "cavity", "curv", "spec",
+              "opacity", "alpha")
 
-def map_kind(pixels: np.ndarray, *, is_float: bool) -> str:
-    """One of :data:`KINDS` for float32 ``(H, W, C)`` pixels as read by :func:`bakery.io.read_image`."""
+
+def kind_from_name(name: str | Path | None) -> str | None:
+    """``"height"`` or ``"roughness"`` (material data) when words of the file name say so, else None (no name,
+    no such word, or words of both).
+
+    >>> kind_from_name("rock_Height.png"), kind_from_name("oakRoughness.tif"), kind_from_name("rock.png")
+    ('height', 'roughness', None)
+    >>> kind_from_name("chaos_height.png"), kind_from_name("paving_ao.png")
+    ('height', 'roughness')
+    """
+    if not name:
+        return None
+    stem = Path(str(name)).name.split(".")[0]
+    words = [w.lower() for w in re.split(r"[_\-\s.]+|(?<=[a-z])(?=[A-Z])", stem) if w]
+    said = {kind for w in words for kind, vocab in (("height", HEIGHT_WORDS), ("roughness", DATA_WORDS))
+            if any(w.startswith(v) for v in vocab)}
+    return said.pop() if len(said) == 1 else None
+
+
+def map_kind(pixels: np.ndarray, *, is_float: bool, name: str | Path | None = None) -> str:
+    """One of :data:`KINDS` for float32 ``(H, W, C)`` pixels as read by :func:`bakery.io.read_image`; ``name``
+    (the file's) decides between a height map and material data for single-channel maps
+    (:func:`kind_from_name`)."""
     h, w, c = pixels.shape
     sample = pixels[:: max(1, h // 256), :: max(1, w // 256)]
     flat = sample.reshape(-1, c)
@@ -54,7 +85,7 @@ def map_kind(pixels: np.ndarray, *, is_float: bool) -> str:
     if gray:
         if is_float and vmax > 1.0:
             return "data"
-        return _height_or_roughness(np.nan_to_num(sample[..., 0]))
+        return kind_from_name(name) or _height_or_roughness(np.nan_to_num(sample[..., 0]))
     if c >= 3 and env_layout(w, h) == "equirectangular" and _looks_like_panorama(pixels[..., :3]):
         return "environment"
     if is_float and vmax > 1.0 and c >= 3:
@@ -100,9 +131,9 @@ def _looks_like_panorama(rgb: np.ndarray) -> bool:
     return poles <= POLE_SPREAD * spread and seam <= 1.5 * inner + 1e-6
 
 
-def guess_kind(pixels: np.ndarray, *, is_float: bool) -> str:
+def guess_kind(pixels: np.ndarray, *, is_float: bool, name: str | Path | None = None) -> str:
     """A short description of what the map looks like, e.g. ``"HDR environment (equirectangular)"``."""
-    kind = map_kind(pixels, is_float=is_float)
+    kind = map_kind(pixels, is_float=is_float, name=name)
     text = KINDS[kind]
     if kind == "environment":
         dynamic = "HDR" if is_float and float(np.nanmax(pixels)) > 1.0 else "LDR"

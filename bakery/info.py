@@ -35,7 +35,7 @@ def describe(path: Path, *, max_pixels: int | None = None) -> list[str]:
         else:
             lines.append(f"  range {names[ch]}:  no finite samples")
     lines.append(f"  NaN: {nan}  Inf: {inf}")
-    lines.append(f"  looks like: {guess_kind(px, is_float=img.is_float)}")
+    lines.append(f"  looks like: {guess_kind(px, is_float=img.is_float, name=path)}")
     return lines
 
 

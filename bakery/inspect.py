@@ -104,7 +104,8 @@ DEFAULT_Y = "up"
 
 
 def inspect_pixels(pixels: np.ndarray, *, bits: str, kind: str | None = None, facts: MapFacts | None = None,
-                   expect_y: str | None = None, srgb_format: bool = False) -> tuple[str, list[Finding]]:
+                   expect_y: str | None = None, srgb_format: bool = False, name: str | None = None
+                   ) -> tuple[str, list[Finding]]:
     """Run the checks for one map.
 
     Parameters
@@ -125,6 +126,9 @@ def inspect_pixels(pixels: np.ndarray, *, bits: str, kind: str | None = None, fa
     srgb_format : bool
         The container stores the texels in an sRGB texel format (a KTX2 ``*_SRGB`` format): the GPU decodes
         them through the sRGB curve.
+    name : str, optional
+        The file's name: its words decide between a height map and material data for a single-channel map
+        whose kind is guessed (:func:`bakery.classify.kind_from_name`).
 
     Returns
     -------
@@ -135,7 +139,7 @@ def inspect_pixels(pixels: np.ndarray, *, bits: str, kind: str | None = None, fa
     if expect_y not in (None, "up", "down"):
         raise ValueError(f"expect_y must be 'up', 'down' or None; got {expect_y!r}")
     is_float = bits in ("half", "float")
-    kind = kind or facts.kind or map_kind(pixels, is_float=is_float)
+    kind = kind or facts.kind or map_kind(pixels, is_float=is_float, name=name)
     findings: list[Finding] = []
     nonfinite = _check_finite(pixels, kind)
     findings += nonfinite

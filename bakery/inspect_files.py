@@ -177,7 +177,7 @@ def _inspect_one(path: Path, name: str, *, expect_y, kind, manifests, max_pixels
 
             img = read_image(path, max_pixels=max_pixels, allow_nonfinite=True)
             found_kind, findings = inspect_pixels(img.pixels, bits=img.bits, kind=kind, facts=facts,
-                                                  expect_y=expect_y)
+                                                  expect_y=expect_y, name=path.name)
             report = MapReport(name, found_kind, findings, facts)
     except BakeryError as exc:
         msg = str(exc).removeprefix(f"{path}: ")
@@ -209,7 +209,10 @@ def _inspect_ktx2(path: Path, name: str, facts: MapFacts, *, expect_y, kind, max
     is_float = bits in ("half", "float")
     lv0 = tex.levels[0]
     if kind is None and facts.kind is None:
-        kind = faces_kind(list(lv0), is_float=is_float) if tex.cubemap else map_kind(lv0, is_float=is_float)
+        if tex.cubemap:
+            kind = faces_kind(list(lv0), is_float=is_float)
+        else:
+            kind = map_kind(lv0, is_float=is_float, name=path.name)
     kind = kind or facts.kind
     faces = ("x+", "x-", "y+", "y-", "z+", "z-")
     merged: dict[str, tuple[Finding, str, int]] = {}

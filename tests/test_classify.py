@@ -284,3 +284,21 @@ def test_the_six_faces_of_an_ldr_cube_share_one_kind():
     alone = {map_kind(f, is_float=False) for f in faces}
     assert "color" in alone  # a single LDR face holds no clue of its own
     assert faces_kind(faces, is_float=False) == "environment"
+
+
+def test_a_file_name_decides_between_heights_and_material_data():
+    """Values alone mistake a shallow height map for roughness data (used range under HEIGHT_MIN_RANGE); the
+    name's words decide for single-channel maps, and only for them."""
+    rng = np.random.default_rng(4)
+    shallow = gaussian_filter(rng.random((128, 128)), 6, mode="wrap").astype(np.float32)
+    shallow = (0.45 + 0.2 * (shallow - shallow.min()) / np.ptp(shallow))[..., None]  # 0.45 .. 0.65
+    assert map_kind(shallow, is_float=False) == "roughness"
+    assert map_kind(shallow, is_float=False, name="brushed_height.png") == "height"
+    assert map_kind(shallow, is_float=False, name="metal/brushedHeight.tif") == "height"
+    steep = np.clip((shallow - 0.45) * 5, 0, 1).astype(np.float32)  # the same relief over the full range
+    assert map_kind(steep, is_float=False) == "height"
+    assert map_kind(steep, is_float=False, name="oak_roughness.png") == "roughness"
+    assert map_kind(steep, is_float=False, name="oak_gloss_height.png") == "height"  # both words: the values
+    assert map_kind(steep, is_float=False, name="chaos.png") == "height"
+    rgb = np.repeat(steep, 3, axis=2) * np.array([1.0, 0.5, 0.2], np.float32)
+    assert map_kind(rgb, is_float=False, name="oak_roughness.png") == "color"  # colour: the name is not asked
