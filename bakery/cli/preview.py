@@ -150,9 +150,10 @@ def preview(
                              roughness=rough, exponent=exponent, base_color=color, metallic=metal,
                              occlusion=occlusion, pack=pack, pack_layout=layout, max_pixels=limit)
     lighting = choose_lighting(env, specular=specular, diffuse=diffuse, lut=lut, lights=lights)
+    cut = material.alpha_test.cutoff if material.alpha_test is not None else None
     settings = {"size": size, "y": green, "yaw": yaw, "pitch": pitch, "rotation": rotation, "tiles": list(tiles),
                 "exposure": exposure, "white": white, "supersample": supersample, "strength": strength,
-                "pack_layout": pack_layout, **{name: value for name, value in (
+                "pack_layout": pack_layout, "alpha_cutoff": cut, **{name: value for name, value in (
                     ("roughness", rough), ("base_color", color), ("metallic", metal)) if not isinstance(value, Path)}}
     if anim:
         from bakery.io.animation import write_animation
@@ -175,7 +176,8 @@ def preview(
                               exposure=ev, white=white, views=views.value)
     write_image(output, img, bits="8")
     _record(output, used, settings | {"repeat": repeat, "tile_pitch": tile_pitch, "views": views.value}, roles)
-    echo(f"wrote {output} ({img.shape[1]}x{img.shape[0]}, exposure {used:+.2f} EV)")
+    cut_note = f", alpha-tested at {cut:g}" if cut is not None else ""
+    echo(f"wrote {output} ({img.shape[1]}x{img.shape[0]}, exposure {used:+.2f} EV{cut_note})")
 
 
 def _record(output: Path, used_ev: float, settings: dict, roles: dict[str, Path]) -> None:
