@@ -5,7 +5,8 @@
   coefficients of the environment's radiance per channel.
 - :class:`Material`: tangent-space unit normals ``(H, W, 3)`` (+X right = +u, +Y up = +v, +Z out of the surface:
   bakery's convention, glTF 2.0), perceptual roughness ``(H, W)`` or a number, linear base colour ``(H, W, 3)``
-  or an RGB triple, metalness (a number or an ``(H, W)`` map) and an optional ambient-occlusion map ``(H, W)``.
+  or an RGB triple, metalness (a number or an ``(H, W)`` map), an optional ambient-occlusion map ``(H, W)`` and
+  an optional :class:`AlphaTest` (an opacity map and its cutoff: cut-outs, drawn by the renderer).
 
 Shading (image-based lighting with the split-sum approximation, Karis 2013):
 

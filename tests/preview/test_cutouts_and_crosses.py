@@ -3,8 +3,9 @@ and cube maps stored as one cross image previewed like the same six faces.
 
 Sources: the "over" operator on unassociated (straight) alpha, Porter & Duff 1984, "Compositing Digital
 Images", SIGGRAPH (table 1, with the colour of B taken as opaque): C = a·A + (1 − a)·B, applied to linear
-values (W3C PNG specification, 2nd ed. 2003, section 12.4 "Alpha channel processing": PNG alpha is not
-premultiplied, and compositing is done on gamma-decoded samples; from memory); the sRGB curve of IEC
+values (W3C PNG specification, 2nd ed. 2003, section 13.16 "Alpha channel processing": PNG alpha is not
+premultiplied, and compositing is done on gamma-decoded samples; the section number from memory); the sRGB
+curve of IEC
 61966-2-1:1999 written out below; the cross layouts as ``bakery/io/layouts.py`` documents them (built here
 by hand, cell by cell); alpha testing as "a sample is drawn when its alpha is at least the cutoff" (common
 practice, the convention of ``bakery mips --alpha-cutoff``).
@@ -16,9 +17,10 @@ import numpy as np
 import pytest
 
 from bakery.io import read_image, write_image
+from bakery.preview.assets import knowledge
 from bakery.preview.render import render_ball, render_tile
 from bakery.preview.shading import AlphaTest, Lighting, Material
-from bakery.preview.sheet import CHECKER, lit_previews, make_entries, make_entry, thumbnail
+from bakery.preview.sheet import CHECKER, lit_previews, make_entries, make_entry, material_for, thumbnail
 from tests.preview import envtools
 
 
@@ -92,14 +94,15 @@ def test_cutouts_show_the_background_and_keep_the_rest(sky, render):
     kw = {"size": 48, "supersample": 1}
 
     def draw(**m):
-        return render(Material(**m), sky, **kw).radiance
+        return render(Material(**m), sky, **kw)
 
-    opaque = draw(base_color=color)
-    red = draw(base_color=np.broadcast_to(color[0, 0], color.shape).copy())
-    green = draw(base_color=np.broadcast_to(color[0, -1], color.shape).copy())
-    cut = draw(base_color=color, alpha_test=AlphaTest(alpha))
-    empty = draw(base_color=color, alpha_test=AlphaTest(np.zeros_like(alpha)))
-    cover = render(Material(base_color=color), sky, **kw).coverage > 0
+    plain = draw(base_color=color)
+    opaque, cover = plain.radiance, plain.coverage > 0
+    red = draw(base_color=np.broadcast_to(color[0, 0], color.shape).copy()).radiance
+    green = draw(base_color=np.broadcast_to(color[0, -1], color.shape).copy()).radiance
+    cut_view = draw(base_color=color, alpha_test=AlphaTest(alpha))
+    empty_view = draw(base_color=color, alpha_test=AlphaTest(np.zeros_like(alpha)))
+    cut, empty = cut_view.radiance, empty_view.radiance
 
     def same(a, b):
         return np.all(np.abs(a - b) <= 1e-6 + 1e-5 * np.abs(b), axis=-1)
@@ -107,6 +110,8 @@ def test_cutouts_show_the_background_and_keep_the_rest(sky, render):
     sees_opaque = cover & same(opaque, red) & ~same(opaque, green)
     sees_clear = cover & same(opaque, green) & ~same(opaque, red)
     assert sees_opaque.sum() > 0.25 * cover.sum() and sees_clear.sum() > 0.25 * cover.sum()
+    assert empty_view.coverage.max() == 0  # nothing drawn: every pixel is background
+    assert (cut_view.coverage[sees_opaque] == 1).all() and (cut_view.coverage[sees_clear] == 0).all()
     assert same(cut, opaque)[sees_opaque].all()
     assert same(cut, empty)[sees_clear].all()
     assert not same(cut, opaque)[sees_clear].any()  # the background there is not the ball's colour
@@ -156,7 +161,7 @@ def test_thumbnail_shows_a_checkerboard_under_transparent_texels():
                           ((np.indices((56, 32))[0] + 8) // 4 + np.indices((56, 32))[1] // 4) % 2 == 0)
     # under alpha 1 the stored colour, no checker
     np.testing.assert_allclose(solid, np.broadcast_to([0.9, 0.3, 0.1], solid.shape), atol=1e-5)
-    # alpha 0.5: the average of colour and checker in linear light (Porter & Duff 1984; PNG 2003, 12.4)
+    # alpha 0.5: the average of colour and checker in linear light (Porter & Duff 1984; PNG 2003, 13.16)
     rows, cols = np.indices((8, 32))
     bg = np.where(((rows // 4) + (cols + 32) // 4) % 2 == 0, CHECKER[0], CHECKER[1])
     want = srgb_encode(0.5 * srgb_decode([0.9, 0.3, 0.1]) + 0.5 * srgb_decode(bg)[..., None])
@@ -200,6 +205,8 @@ def test_sheet_balls_of_maps_with_alpha_are_alpha_tested(tmp_path, sky):
     plain = make_entry(src, tmp_path / "src", thumb=32, preview=fn)
     (made,) = make_entries([(p, out) for p in sorted(out.glob("*.png"))], thumb=32, preview=fn)  # one asset
     solid = make_entry(opaque, tmp_path / "src", thumb=32, preview=fn)
+    mat, _ = material_for(read_image(out / "card.png").pixels, "color", "8", "card.png", knowledge(out / "card.png"))
+    assert mat.alpha_test.cutoff == 0.75 and np.array_equal(mat.alpha_test.opacity, alpha)
     assert plain.preview_note == "lit: base colour, alpha-tested at 0.5"  # no manifest: common practice
     assert made.preview_note == "lit: base colour, alpha-tested at 0.75"  # the cutoff its manifest records
     assert solid.preview_note == "lit: base colour"  # alpha 1 everywhere: nothing to cut
