@@ -393,7 +393,7 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=
         return None, "a table: shown as its channels, not on a ball"
     if kind == "picture":
         if knowledge is not None and knowledge.kind in RADIANCE_KINDS:
-            return None, "a picture of an environment (8/16-bit, sRGB, clipped at 1): shown as it is, not on a ball"
+            return None, f"a picture of an environment, {bits}-bit sRGB clipped at 1: shown as it is"
         return None, "a picture: shown as it is, not on a ball"
     if kind == "irradiance":
         return None, "irradiance: shown as crosses, not on a ball"

@@ -308,6 +308,6 @@ def test_an_8bit_environment_picture_says_so(tmp_path, sky):
         run_bake("env-convert", {"environment": src}, out, ConvertParams(output_layout="cross-wide", face_size=8))
     e = make_entry(out, out.parent, thumb=32, preview=lit_previews(sky, size=32, supersample=1))
     assert e.kind == "picture" and e.preview is None
-    assert e.preview_note == "a picture of an environment (8/16-bit, sRGB, clipped at 1): shown as it is, not on a ball"
+    assert e.preview_note == "a picture of an environment, 8-bit sRGB clipped at 1: shown as it is"
     # 32 x 24 shown in a 32 box: the stored values themselves, not tone mapped as radiance
     np.testing.assert_allclose(e.thumbnail, read_image(out).pixels, atol=1e-6)
