@@ -72,9 +72,9 @@ def preview(
     pack_layout: Annotated[str | None, typer.Option("--pack-layout", help="Roles of the --pack channels in "
                                                     "r,g,b,a order, e.g. occlusion,roughness,metalness (- for "
                                                     "an unused channel).", show_default=False)] = None,
-    env: Annotated[Path | None, typer.Option(help="HDR environment panorama (equirectangular .hdr/.exr), baked "
-                                             "in memory; default: the built-in procedural sky.",
-                                             dir_okay=False)] = None,
+    env: Annotated[Path | None, typer.Option(help="HDR environment (.hdr/.exr): an equirectangular panorama or a "
+                                             "cube map as a cross, row or stack, baked in memory; default: the "
+                                             "built-in procedural sky.", dir_okay=False)] = None,
     specular: Annotated[Path | None, typer.Option(help="Baked lighting instead of --env: the prefiltered KTX2 "
                                                   "chain of `bakery env specular` (needs --diffuse).",
                                                   dir_okay=False)] = None,
@@ -210,8 +210,9 @@ def sheet(
     columns: Annotated[int, typer.Option(min=1, max=32, help="Cards per row of the PNG grid.")] = 4,
     lit: Annotated[bool, typer.Option("--lit/--no-lit", help="Render a lit preview for each map that has "
                                       "one (normal, colour and roughness maps).")] = True,
-    env: Annotated[Path | None, typer.Option(help="HDR panorama lighting the previews; default: the built-in "
-                                             "procedural sky.", dir_okay=False)] = None,
+    env: Annotated[Path | None, typer.Option(help="HDR environment lighting the previews (a panorama, or a cube "
+                                             "map as a cross, row or stack); default: the built-in procedural "
+                                             "sky.", dir_okay=False)] = None,
     title: Annotated[str | None, typer.Option(help="Title of the page.", show_default=False)] = None,
     compare: Annotated[bool, typer.Option("--compare", help="Compare two folders, old then new: assets paired "
                                           "by relative path, each shown old, new and as a difference, with "

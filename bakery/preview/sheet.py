@@ -404,33 +404,20 @@ def lit_previews(lighting, *, size: int = 160, supersample: int = 2) -> PreviewF
     """A :data:`PreviewFn` rendering the ball of :func:`material_for` under ``lighting``. An HDR environment
     (an equirect panorama, or a cube map turned into one: six faces, or one image holding them in a layout
     of :mod:`bakery.io.layouts`, a cross, row or stack recognised by its aspect ratio) is shown instead on a
-    polished metal ball (roughness 0.15) lit by itself, its lighting baked in memory at a small size (face 64²,
-    five levels), with automatic exposure."""
+    polished metal ball (roughness 0.15) lit by itself (:func:`bakery.preview.lighting.as_panorama`), its
+    lighting baked in memory at a small size (face 64², five levels), with automatic exposure."""
     from bakery.preview.render import preview_image
     from bakery.preview.shading import Material
 
     def fn(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=None):
         if kind == "environment":
-            from bakery.io.layouts import CUBE_IMAGE_LAYOUTS, detect_layout, split
-            from bakery.preview.lighting import lighting_from_panorama
+            from bakery.preview.lighting import as_panorama, lighting_from_panorama
 
-            if pixels.ndim == 3:  # a cube map in one image: its six faces
-                try:
-                    layout = detect_layout(pixels.shape[1], pixels.shape[0])
-                except BakeryError:
-                    layout = None
-                if layout in CUBE_IMAGE_LAYOUTS:
-                    pixels = split(pixels, layout)
-            if pixels.ndim == 4:
-                from bakery.envmap.resample import resample
-
-                n = pixels.shape[1]
-                pixels = resample(pixels[..., :3], "cube", "equirect", max(64, 4 * n))
-            h, w = pixels.shape[:2]
-            if w != 2 * h or h % 2 or pixels.shape[2] < 3:
+            pano = as_panorama(pixels)
+            if pano is None or pano.shape[0] % 2 or pano.shape[2] < 3:
                 return None, ("no lit preview: neither an equirectangular RGB panorama (2:1, even height) nor a "
                               "cube map (six faces, a cross, row or stack)")
-            own = lighting_from_panorama(pixels[..., :3], face=64, levels=5)
+            own = lighting_from_panorama(pano[..., :3], face=64, levels=5)
             ball = Material(roughness=0.15, metallic=1.0, base_color=(0.95, 0.95, 0.95))
             img, _ = preview_image(ball, own, size=size, views="ball", supersample=supersample, exposure=None)
             return img, "lit by itself: metal ball, roughness 0.15"

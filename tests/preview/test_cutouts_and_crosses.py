@@ -311,3 +311,26 @@ def test_an_8bit_environment_picture_says_so(tmp_path, sky):
     assert e.preview_note == "a picture of an environment, 8-bit sRGB clipped at 1: shown as it is"
     # 32 x 24 shown in a 32 box: the stored values themselves, not tone mapped as radiance
     np.testing.assert_allclose(e.thumbnail, read_image(out).pixels, atol=1e-6)
+
+
+def test_preview_env_takes_a_cross(tmp_path):
+    # `bakery preview --env` lights with a cross EXR as with the panorama of its six faces; a 3:2 image is
+    # neither and is refused in one line naming the file.
+    from typer.testing import CliRunner
+
+    from bakery.cli import app
+    from bakery.preview.lighting import as_panorama, lighting_from_file, lighting_from_panorama
+
+    faces = _faces()
+    path = write_image(tmp_path / "sky_cross.exr", _cross_tall(faces), bits="half")
+    got, want = lighting_from_file(path), lighting_from_panorama(as_panorama(faces))
+    assert len(got.levels) == len(want.levels)
+    for a, b in zip(got.levels, want.levels, strict=True):
+        np.testing.assert_allclose(a, b, rtol=1e-6, atol=1e-6)
+    np.testing.assert_allclose(got.sh, want.sh, rtol=1e-6, atol=1e-6)
+    out = tmp_path / "ball.png"
+    r = CliRunner().invoke(app, ["preview", "-o", str(out), "--env", str(path), "--size", "16", "--views", "ball"])
+    assert r.exit_code == 0 and out.is_file(), r.output
+    bad = write_image(tmp_path / "odd.exr", np.ones((16, 24, 3), np.float32) * 2, bits="half")
+    r = CliRunner().invoke(app, ["preview", "-o", str(tmp_path / "b.png"), "--env", str(bad), "--size", "16"])
+    assert r.exit_code == 2 and "odd.exr" in r.output and "cross" in r.output
