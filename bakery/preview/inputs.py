@@ -126,6 +126,18 @@ def alpha_cutoff_from_manifest(manifest: dict | None) -> float | None:
     return None
 
 
+def alpha_test_for(pixels: np.ndarray, cutoff: float | None = None):
+    """The :class:`~bakery.preview.shading.AlphaTest` of an RGBA colour map ``(H, W, 4)`` whose alpha is below 1
+    somewhere, at ``cutoff`` (the one its manifest records, :func:`alpha_cutoff_from_manifest`) or else at
+    the default 0.5 (common practice); None for maps without alpha or fully opaque ones."""
+    from bakery.preview.shading import AlphaTest
+
+    if pixels.shape[-1] != 4 or pixels[..., 3].min() >= 1:
+        return None
+    opacity = np.clip(pixels[..., 3], 0, 1)
+    return AlphaTest(opacity) if cutoff is None else AlphaTest(opacity, cutoff)
+
+
 def maps_from_pack(pixels: np.ndarray, layout: dict[str, str], *, bits: str) -> dict[str, np.ndarray]:
     """The material maps a packed texture holds, read through its channel ``layout``.
 
@@ -220,7 +232,7 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
     max_pixels : int, optional
         Passed to :func:`bakery.io.read_image`.
     """
-    from bakery.preview.shading import AlphaTest, Material
+    from bakery.preview.shading import Material
 
     normals = None
     cut = None
@@ -294,11 +306,10 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
         elif px.shape[2] == 2:
             raise BakeryError("a base colour map needs 1, 3 or 4 channels; this one has 2", path)
         color = np.clip(px[..., :3], 0, 1)
-        if px.shape[2] == 4 and px[..., 3].min() < 1:
+        if px.shape[2] == 4:
             from bakery.io.manifest import manifest_for
 
-            recorded = alpha_cutoff_from_manifest(manifest_for(path))
-            cut = AlphaTest(np.clip(px[..., 3], 0, 1), *([recorded] if recorded is not None else []))
+            cut = alpha_test_for(px, alpha_cutoff_from_manifest(manifest_for(path)))
     elif "base_color" in packed:
         color = packed["base_color"]
     else:

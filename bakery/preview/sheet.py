@@ -356,12 +356,9 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=
         rgb = px[..., :3]
         linear = bits in ("half", "float") or (known and knowledge.transfer == "linear")
         rgb = np.clip(rgb, 0, None) if linear else srgb_to_linear(rgb)
-        cut = None
-        if has_alpha(px, kind) and px[..., 3].min() < 1:
-            from bakery.preview.shading import AlphaTest
+        from bakery.preview.inputs import alpha_test_for
 
-            recorded = knowledge.alpha_cutoff if knowledge is not None else None
-            cut = AlphaTest(np.clip(px[..., 3], 0, 1), *([recorded] if recorded is not None else []))
+        cut = alpha_test_for(px, knowledge.alpha_cutoff if knowledge is not None else None)
         note = "lit: base colour" + (f", alpha-tested at {cut.cutoff:g}" if cut is not None else "")
         return Material(base_color=np.minimum(rgb, 1), roughness=0.5, alpha_test=cut), note
     g = px[..., 0]
