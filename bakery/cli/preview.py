@@ -72,9 +72,9 @@ def preview(
     pack_layout: Annotated[str | None, typer.Option("--pack-layout", help="Roles of the --pack channels in "
                                                     "r,g,b,a order, e.g. occlusion,roughness,metalness (- for "
                                                     "an unused channel).", show_default=False)] = None,
-    env: Annotated[Path | None, typer.Option(help="HDR environment panorama (equirectangular .hdr/.exr), baked "
-                                             "in memory; default: the built-in procedural sky.",
-                                             dir_okay=False)] = None,
+    env: Annotated[Path | None, typer.Option(help="HDR environment (.hdr/.exr): an equirectangular panorama or a "
+                                             "cube map as a cross, row or stack, baked in memory; default: the "
+                                             "built-in procedural sky.", dir_okay=False)] = None,
     specular: Annotated[Path | None, typer.Option(help="Baked lighting instead of --env: the prefiltered KTX2 "
                                                   "chain of `bakery env specular` (needs --diffuse).",
                                                   dir_okay=False)] = None,
@@ -150,9 +150,10 @@ def preview(
                              roughness=rough, exponent=exponent, base_color=color, metallic=metal,
                              occlusion=occlusion, pack=pack, pack_layout=layout, max_pixels=limit)
     lighting = choose_lighting(env, specular=specular, diffuse=diffuse, lut=lut, lights=lights)
+    cut = material.alpha_test.cutoff if material.alpha_test is not None else None
     settings = {"size": size, "y": green, "yaw": yaw, "pitch": pitch, "rotation": rotation, "tiles": list(tiles),
                 "exposure": exposure, "white": white, "supersample": supersample, "strength": strength,
-                "pack_layout": pack_layout, **{name: value for name, value in (
+                "pack_layout": pack_layout, "alpha_cutoff": cut, **{name: value for name, value in (
                     ("roughness", rough), ("base_color", color), ("metallic", metal)) if not isinstance(value, Path)}}
     if anim:
         from bakery.io.animation import write_animation
@@ -175,7 +176,8 @@ def preview(
                               exposure=ev, white=white, views=views.value)
     write_image(output, img, bits="8")
     _record(output, used, settings | {"repeat": repeat, "tile_pitch": tile_pitch, "views": views.value}, roles)
-    echo(f"wrote {output} ({img.shape[1]}x{img.shape[0]}, exposure {used:+.2f} EV)")
+    cut_note = f", alpha-tested at {cut:g}" if cut is not None else ""
+    echo(f"wrote {output} ({img.shape[1]}x{img.shape[0]}, exposure {used:+.2f} EV{cut_note})")
 
 
 def _record(output: Path, used_ev: float, settings: dict, roles: dict[str, Path]) -> None:
@@ -208,8 +210,9 @@ def sheet(
     columns: Annotated[int, typer.Option(min=1, max=32, help="Cards per row of the PNG grid.")] = 4,
     lit: Annotated[bool, typer.Option("--lit/--no-lit", help="Render a lit preview for each map that has "
                                       "one (normal, colour and roughness maps).")] = True,
-    env: Annotated[Path | None, typer.Option(help="HDR panorama lighting the previews; default: the built-in "
-                                             "procedural sky.", dir_okay=False)] = None,
+    env: Annotated[Path | None, typer.Option(help="HDR environment lighting the previews (a panorama, or a cube "
+                                             "map as a cross, row or stack); default: the built-in procedural "
+                                             "sky.", dir_okay=False)] = None,
     title: Annotated[str | None, typer.Option(help="Title of the page.", show_default=False)] = None,
     compare: Annotated[bool, typer.Option("--compare", help="Compare two folders, old then new: assets paired "
                                           "by relative path, each shown old, new and as a difference, with "

@@ -162,6 +162,9 @@ class Knowledge:
         ``{"r": ROLE, ...}`` of a packed texture.
     table : dict or None
         The ``layout`` entry of a split-sum table (its channels, rows and columns).
+    alpha_cutoff : float or None
+        The alpha test's cutoff a colour map's manifest records
+        (:func:`bakery.preview.inputs.alpha_cutoff_from_manifest`).
     """
 
     bake: str | None = None
@@ -172,6 +175,7 @@ class Knowledge:
     level_roughness: list[float] | None = None
     layout: dict[str, str] | None = None
     table: dict | None = None
+    alpha_cutoff: float | None = None
 
     @property
     def note(self) -> str:
@@ -190,7 +194,7 @@ class Knowledge:
 def knowledge(path: str | os.PathLike) -> Knowledge:
     """The :class:`Knowledge` of the manifest that still describes ``path`` (stale manifests are ignored)."""
     from bakery.io.manifest import manifest_for
-    from bakery.preview.inputs import pack_layout_from_manifest
+    from bakery.preview.inputs import alpha_cutoff_from_manifest, pack_layout_from_manifest
 
     path = Path(path)
     m = manifest_for(path)
@@ -211,6 +215,7 @@ def knowledge(path: str | os.PathLike) -> Knowledge:
     if kind == "color":
         t = m.get("transfer") if isinstance(m.get("transfer"), str) else _param(m, "transfer")
         k.transfer = t if t in ("srgb", "linear") else None
+        k.alpha_cutoff = alpha_cutoff_from_manifest(m)
     rough = m.get("roughness_per_level")
     if isinstance(rough, dict):
         rough = rough.get("roughness")

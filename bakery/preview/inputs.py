@@ -108,6 +108,36 @@ def pack_layout_from_manifest(manifest: dict | None) -> dict[str, str] | None:
     return layout or None
 
 
+def alpha_cutoff_from_manifest(manifest: dict | None) -> float | None:
+    """The alpha test's cutoff a colour map's manifest records (the ``mips`` bake's ``coverage`` entry: the
+    ``alpha-cutoff`` that ``--coverage`` keeps coverage at and each level's coverage is reported at), or None.
+
+    Examples
+    --------
+    >>> alpha_cutoff_from_manifest({"bake": "mips", "coverage": {"kept": True, "alpha_cutoff": 0.75}})
+    0.75
+    >>> alpha_cutoff_from_manifest({"bake": "mips", "coverage": None}) is None
+    True
+    """
+    entry = manifest.get("coverage") if isinstance(manifest, dict) else None
+    cut = entry.get("alpha_cutoff") if isinstance(entry, dict) else None
+    if isinstance(cut, int | float) and not isinstance(cut, bool) and 0 < cut <= 1:
+        return float(cut)
+    return None
+
+
+def alpha_test_for(pixels: np.ndarray, cutoff: float | None = None):
+    """The :class:`~bakery.preview.shading.AlphaTest` of an RGBA colour map ``(H, W, 4)`` whose alpha is below 1
+    somewhere, at ``cutoff`` (the one its manifest records, :func:`alpha_cutoff_from_manifest`) or else at
+    the default 0.5 (common practice); None for maps without alpha or fully opaque ones."""
+    from bakery.preview.shading import AlphaTest
+
+    if pixels.shape[-1] != 4 or pixels[..., 3].min() >= 1:
+        return None
+    opacity = np.clip(pixels[..., 3], 0, 1)
+    return AlphaTest(opacity) if cutoff is None else AlphaTest(opacity, cutoff)
+
+
 def maps_from_pack(pixels: np.ndarray, layout: dict[str, str], *, bits: str) -> dict[str, np.ndarray]:
     """The material maps a packed texture holds, read through its channel ``layout``.
 
@@ -186,7 +216,9 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
         :func:`bakery.roughness.roughness_from_exponent` (its defaults: the peak rule of Walter et al. 2007).
     base_color : float, (r, g, b) or path
         Linear values in [0, 1], or a colour map (8/16-bit files decoded from sRGB, IEC 61966-2-1; float files
-        taken as linear).
+        taken as linear). A map with alpha below 1 somewhere is alpha-tested
+        (:class:`~bakery.preview.shading.AlphaTest`) at the cutoff its manifest records
+        (:func:`alpha_cutoff_from_manifest`), else at 0.5 (common practice).
     metallic : float or path
         Metalness in [0, 1], or a single-channel map of it.
     occlusion : path, optional
@@ -203,6 +235,7 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
     from bakery.preview.shading import Material
 
     normals = None
+    cut = None
     if normal is not None and height is not None:
         raise BakeryError("give a normal map or a height map, not both")
     if exponent is not None and isinstance(roughness, str | os.PathLike):
@@ -273,6 +306,10 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
         elif px.shape[2] == 2:
             raise BakeryError("a base colour map needs 1, 3 or 4 channels; this one has 2", path)
         color = np.clip(px[..., :3], 0, 1)
+        if px.shape[2] == 4:
+            from bakery.io.manifest import manifest_for
+
+            cut = alpha_test_for(px, alpha_cutoff_from_manifest(manifest_for(path)))
     elif "base_color" in packed:
         color = packed["base_color"]
     else:
@@ -289,7 +326,8 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
         if not 0 <= metal <= 1:
             raise BakeryError(f"--metallic must lie in [0, 1]; got {metallic}")
     ao = _unit_map(Path(occlusion), "occlusion", max_pixels) if occlusion is not None else packed.get("occlusion")
-    return Material(normals=normals, roughness=rough, base_color=color, metallic=metal, occlusion=ao)
+    return Material(normals=normals, roughness=rough, base_color=color, metallic=metal, occlusion=ao,
+                    alpha_test=cut)
 
 
 def _read_pack(path: Path, layout: dict[str, str] | None, max_pixels: int | None) -> dict[str, np.ndarray]:

@@ -64,6 +64,33 @@ def lighting_from_panorama(panorama: np.ndarray, *, face: int = PREVIEW_FACE, le
                     project_sh(pano, "equirect", threads=bake_threads()))
 
 
+def as_panorama(pixels: np.ndarray) -> np.ndarray | None:
+    """An environment's pixels as an equirect panorama for :func:`lighting_from_panorama`, or None when they
+    are neither a panorama nor a cube map.
+
+    A panorama ``(H, 2H, C)`` stays as it is; a cube map, as six faces ``(6, N, N, C)`` or as one image holding
+    them in a layout of :mod:`bakery.io.layouts` (a horizontal or vertical cross, a row or a stack, told by
+    the aspect ratio as the ``env`` commands tell it, :func:`bakery.io.layouts.detect_layout`), is resampled to
+    a panorama 4N wide, at least 64 (:func:`bakery.envmap.resample.resample`).
+    """
+    from bakery.io.layouts import CUBE_IMAGE_LAYOUTS, detect_layout, split
+
+    px = np.asarray(pixels, dtype=np.float32)
+    if px.ndim == 3:
+        try:
+            layout = detect_layout(px.shape[1], px.shape[0])
+        except BakeryError:
+            return None
+        if layout not in CUBE_IMAGE_LAYOUTS:
+            return px
+        px = split(px, layout)
+    if px.ndim != 4 or px.shape[0] != 6 or px.shape[3] < 3:
+        return None
+    from bakery.envmap.resample import resample
+
+    return resample(px[..., :3], "cube", "equirect", max(64, 4 * px.shape[1]))
+
+
 @functools.lru_cache(maxsize=2)
 def _table(size: int) -> np.ndarray:
     """The split-sum table does not depend on the environment: made once per process."""
@@ -73,15 +100,18 @@ def _table(size: int) -> np.ndarray:
 
 
 def lighting_from_file(path: str | os.PathLike, *, max_pixels: int | None = None):
-    """Read an equirect HDR panorama (.hdr, .exr, or any readable image) and bake its preview lighting."""
+    """Read an HDR environment image (.hdr, .exr, or any readable image): an equirect panorama, or a cube map
+    as a cross, row or stack (:func:`as_panorama`), and bake its preview lighting."""
     from bakery.io.images import read_image
 
     path = Path(path)
     img = read_image(path, max_pixels=max_pixels)
     h, w = img.pixels.shape[:2]
-    if w != 2 * h or img.channels < 3:
-        raise BakeryError(f"the environment must be an RGB equirectangular panorama, width = 2 x height; this "
-                          f"one is {w}x{h} with {img.channels} channel(s)", path)
+    pano = as_panorama(img.pixels) if img.channels >= 3 else None
+    if pano is None:
+        raise BakeryError(f"the environment must be an RGB equirectangular panorama (width = 2 x height) or a cube "
+                          f"map as a cross, row or stack (4:3, 3:4, 6:1, 1:6); this one is {w}x{h} with "
+                          f"{img.channels} channel(s)", path)
     if not img.is_float:
         import warnings
 
@@ -90,7 +120,7 @@ def lighting_from_file(path: str | os.PathLike, *, max_pixels: int | None = None
         warnings.warn(f"{path}: the environment is a low-dynamic-range image; highlights will be weak",
                       BakeryWarning, stacklevel=2)
     try:
-        return lighting_from_panorama(img.pixels)
+        return lighting_from_panorama(pano)
     except BakeryError as exc:
         raise BakeryError(str(exc), path) from None
 

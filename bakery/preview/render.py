@@ -16,6 +16,10 @@ perspective camera orbiting the object (``yaw``, ``pitch`` in degrees) and lit b
 
 Anti-aliasing: ``supersample`` x ``supersample`` samples per pixel, box-filtered in linear radiance.
 
+Cut-outs: a material with an alpha test (:class:`~bakery.preview.shading.AlphaTest`) is drawn only at the
+samples whose opacity passes it; elsewhere the ray goes on to the background, as a miss does. Both objects are
+single-sided: the inside of the ball is not drawn through a cut-out (common practice for a material preview).
+
 References
 ----------
 .. [1] Karis, B. (2013). SIGGRAPH course notes, "Physically Based Shading in Theory and
@@ -97,14 +101,34 @@ def _surface_values(material: Material, u: np.ndarray, v: np.ndarray, lod_fn):
     else:
         tex = _texture(material, "base_color")
         base = tex.sample(u, v, lod_fn(tex))
+        if base.shape[1] == 4:  # weighted by the opacity: colour / opacity
+            base = base[:, :3] / np.maximum(base[:, 3:], np.float32(1e-6))
     return n_t, scalar("roughness"), base, scalar("metallic"), scalar("occlusion")
 
 
+def _opacity_passes(material: Material, u: np.ndarray, v: np.ndarray, lod_fn) -> np.ndarray | None:
+    """The alpha test at the samples (u, v): True where the surface is drawn; None without cut-outs."""
+    if material.alpha_test is None:
+        return None
+    tex = _texture(material, "opacity")
+    return tex.sample(u, v, lod_fn(tex))[:, 0] >= np.float32(material.alpha_test.cutoff)
+
+
 def _texture(material: Material, name: str) -> _Texture:
-    """Mip pyramids are built once per material map (kept while the material lives)."""
+    """Mip pyramids are built once per material map (kept while the material lives). ``opacity`` is the alpha
+    test's map; a base colour map of the same size under an alpha test is filtered premultiplied
+    (colour x opacity, with the opacity as a fourth channel; Porter & Duff 1984)."""
     cache = material.__dict__.setdefault("_pyramids", {})
     if name not in cache:
-        cache[name] = _Texture(getattr(material, name))
+        cut = material.alpha_test
+        if name == "opacity":
+            img = cut.opacity
+        elif name == "base_color" and cut is not None and cut.opacity.shape == material.base_color.shape[:2]:
+            a = cut.opacity[..., None]
+            img = np.concatenate([material.base_color * a, a], axis=2)
+        else:
+            img = getattr(material, name)
+        cache[name] = _Texture(img)
     return cache[name]
 
 
@@ -178,6 +202,7 @@ def render_ball(material: Material, lighting: Lighting, *, size: int = 512, yaw:
     u = np.float32(tu) * (phi * np.float32(1 / (2 * np.pi)) + np.float32(0.5))
     v = np.float32(tv) * (lat * np.float32(1 / np.pi) + np.float32(0.5))
     lod_fn = _lod_memo(u, v, hit)
+    keep = _opacity_passes(material, u[hit], v[hit], lod_fn)
     n_t, *values = _surface_values(material, u[hit], v[hit], lod_fn)
     # T = dP/du and B = dP/dv normalised, from P = (cos lat sin phi, sin lat, cos lat cos phi)
     normal = p_obj[hit]
@@ -188,7 +213,7 @@ def render_ball(material: Material, lighting: Lighting, *, size: int = 512, yaw:
     world = (n_t[:, :1] * tangent + n_t[:, 1:2] * bitangent + n_t[:, 2:] * normal) @ spin_m.T
     world = (world / np.linalg.norm(world, axis=1, keepdims=True)).astype(np.float32)
     return _shade_view(world, d, hit, values, lighting, env_rotation=env_rotation,
-                       background_roughness=background_roughness, n=n, supersample=supersample)
+                       background_roughness=background_roughness, n=n, supersample=supersample, keep=keep)
 
 
 def render_tile(material: Material, lighting: Lighting, *, size: int = 512, yaw: float = 0.0,
@@ -220,16 +245,25 @@ def render_tile(material: Material, lighting: Lighting, *, size: int = 512, yaw:
     v = np.float32(repeat / 2) * (1 - pz)
 
     lod_fn = _lod_memo(u, v, hit)
+    keep = _opacity_passes(material, u[hit], v[hit], lod_fn)
     n_t, *values = _surface_values(material, u[hit], v[hit], lod_fn)
     # tangent +X (u), bitangent -Z (v), normal +Y
     world = np.stack([n_t[:, 0], n_t[:, 2], -n_t[:, 1]], axis=-1).astype(np.float32)
     return _shade_view(world, d, hit, values, lighting, env_rotation=env_rotation,
-                       background_roughness=background_roughness, n=n, supersample=supersample)
+                       background_roughness=background_roughness, n=n, supersample=supersample, keep=keep)
 
 
-def _shade_view(world, d, hit, values, lighting, *, env_rotation, background_roughness, n, supersample):
-    """Shade the hit pixels of an n x n view (``values``: roughness, base colour, metalness and occlusion
-    there), fill the rest with the background, and finish the image."""
+def _shade_view(world, d, hit, values, lighting, *, env_rotation, background_roughness, n, supersample,
+                keep=None):
+    """Shade the hit samples of an n x n view (``values``: roughness, base colour, metalness and occlusion
+    there), fill the rest with the background, and finish the image. ``keep`` (per hit sample, from the alpha
+    test) drops the samples that fail it: they show the background, as misses do."""
+    if keep is not None:
+        p = len(keep)
+        hit = hit.copy()
+        hit[hit] = keep
+        world = world[keep]
+        values = [x[keep] if isinstance(x, np.ndarray) and x.ndim >= 1 and len(x) == p else x for x in values]
     rough, base, metal, occlusion = values
     radiance = np.empty((n, n, 3), np.float32)
     rad, nv = shade(world, (-d[hit]).astype(np.float32), rough, base, metal, lighting,

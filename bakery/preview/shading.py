@@ -5,7 +5,8 @@
   coefficients of the environment's radiance per channel.
 - :class:`Material`: tangent-space unit normals ``(H, W, 3)`` (+X right = +u, +Y up = +v, +Z out of the surface:
   bakery's convention, glTF 2.0), perceptual roughness ``(H, W)`` or a number, linear base colour ``(H, W, 3)``
-  or an RGB triple, metalness (a number or an ``(H, W)`` map) and an optional ambient-occlusion map ``(H, W)``.
+  or an RGB triple, metalness (a number or an ``(H, W)`` map), an optional ambient-occlusion map ``(H, W)`` and
+  an optional :class:`AlphaTest` (an opacity map and its cutoff: cut-outs, drawn by the renderer).
 
 Shading (image-based lighting with the split-sum approximation, Karis 2013):
 
@@ -199,6 +200,35 @@ def irradiance_sh(sh: np.ndarray, normals: np.ndarray) -> np.ndarray:
 
 
 @dataclass(frozen=True, eq=False)
+class AlphaTest:
+    """Cut-outs (alpha testing, as foliage and fences are drawn): a sample whose ``opacity`` is below ``cutoff``
+    is not drawn, so what lies behind the surface shows through; ``opacity >= cutoff`` passes (the test whose
+    coverage ``bakery mips --coverage`` keeps).
+
+    Attributes
+    ----------
+    opacity : ndarray (H, W)
+        Opacity (a colour map's alpha) in [0, 1], sampled like the other maps (trilinear, from its box-filtered
+        mip pyramid) and tested per sample.
+    cutoff : float
+        The threshold, in (0, 1].
+    """
+
+    opacity: np.ndarray
+    cutoff: float = 0.5
+
+    def __post_init__(self) -> None:
+        a = _unit_map(self.opacity, "opacity")
+        if a.ndim != 2:
+            raise BakeryError("opacity must be an (H, W) map in [0, 1]")
+        cut = float(self.cutoff)
+        if not 0 < cut <= 1:
+            raise BakeryError(f"the alpha cutoff must lie in (0, 1]; got {self.cutoff}")
+        object.__setattr__(self, "opacity", a)
+        object.__setattr__(self, "cutoff", cut)
+
+
+@dataclass(frozen=True, eq=False)
 class Material:
     """What is being previewed; every map is optional.
 
@@ -214,6 +244,10 @@ class Material:
         Metalness in [0, 1]: 0 = dielectric (F0 = 0.04), 1 = metal (F0 = base colour).
     occlusion : ndarray (H, W), optional
         Ambient occlusion in [0, 1], multiplying the environment's light (not the directional lights).
+    alpha_test : AlphaTest, optional
+        Cut-outs: samples whose opacity fails the test are not drawn. A base colour map of the opacity's size
+        is then filtered weighted by the opacity (premultiplied, Porter & Duff 1984), so the colour of
+        transparent texels does not bleed into the edges.
     """
 
     normals: np.ndarray | None = None
@@ -221,6 +255,7 @@ class Material:
     base_color: np.ndarray | tuple[float, float, float] = (0.5, 0.5, 0.5)
     metallic: np.ndarray | float = 0.0
     occlusion: np.ndarray | None = None
+    alpha_test: AlphaTest | None = None
 
     def __post_init__(self) -> None:
         if self.normals is not None:
@@ -248,6 +283,8 @@ class Material:
             if ao.ndim != 2:
                 raise BakeryError("occlusion must be an (H, W) map in [0, 1]")
             object.__setattr__(self, "occlusion", ao)
+        if self.alpha_test is not None and not isinstance(self.alpha_test, AlphaTest):
+            raise BakeryError("alpha_test must be an AlphaTest")
 
 
 def _unit_map(value, what: str) -> np.ndarray:

@@ -146,9 +146,11 @@ def _under(p: Path, root: Path) -> bool:
 # ------------------------------------------------------------------------------------------ images
 
 
-def _fit(img: np.ndarray, size: int, *, enlarge: bool = True) -> np.ndarray:
+def _fit(img: np.ndarray, size: int, *, enlarge: bool = True, alpha: bool = False) -> np.ndarray:
     """Shrink (area average) or enlarge (nearest, so texels stay visible) to fit a size x size box; with
-    ``enlarge=False`` smaller images stay as they are."""
+    ``enlarge=False`` smaller images stay as they are. ``alpha=True``: the last channel is an opacity that
+    weights the average of the others (premultiplied, Porter & Duff 1984), so the colour of transparent texels
+    does not darken the edges."""
     import cv2
 
     h, w = img.shape[:2]
@@ -157,8 +159,40 @@ def _fit(img: np.ndarray, size: int, *, enlarge: bool = True) -> np.ndarray:
         return np.asarray(img, dtype=np.float32).reshape(h, w, -1)
     nh, nw = max(1, round(h * scale)), max(1, round(w * scale))
     interp = cv2.INTER_AREA if scale < 1 else cv2.INTER_NEAREST
-    out = cv2.resize(np.ascontiguousarray(img, dtype=np.float32), (nw, nh), interpolation=interp)
-    return out.reshape(nh, nw, -1)
+    src = np.asarray(img, dtype=np.float32)
+    weighted = alpha and interp == cv2.INTER_AREA
+    if weighted:
+        src = np.concatenate([src[..., :-1] * src[..., -1:], src[..., -1:]], axis=-1)
+    out = cv2.resize(np.ascontiguousarray(src), (nw, nh), interpolation=interp).reshape(nh, nw, -1)
+    if weighted:
+        a = out[..., -1:]
+        out[..., :-1] = np.where(a > 0, out[..., :-1] / np.maximum(a, np.float32(1e-12)), 0)
+    return out
+
+
+#: Display values of the light and dark squares that show through transparent texels (neutral greys; a
+#: checkerboard behind transparency is common practice in image editors).
+CHECKER = (0.6, 0.4)
+
+
+def over_checkerboard(rgb: np.ndarray, alpha: np.ndarray) -> np.ndarray:
+    """Display values ``rgb`` (H, W, 3, sRGB-encoded) over a checkerboard of :data:`CHECKER` greys, 16 squares
+    across the longer side (at least 2 pixels each), with opacity ``alpha`` (H, W): the "over" operator of
+    Porter & Duff 1984 on straight (unassociated) alpha, in linear light (IEC 61966-2-1 decode, mix, encode)."""
+    from bakery.color import linear_to_srgb, srgb_to_linear
+
+    h, w = alpha.shape
+    cell = max(2, round(max(h, w) / 16))
+    rows, cols = np.indices((h, w))
+    bg = np.where((rows // cell + cols // cell) % 2 == 0, CHECKER[0], CHECKER[1]).astype(np.float32)
+    a = np.clip(alpha, 0, 1)[..., None].astype(np.float32)
+    mixed = srgb_to_linear(np.clip(rgb, 0, 1)) * a + srgb_to_linear(bg)[..., None] * (1 - a)
+    return np.clip(linear_to_srgb(mixed), 0, 1).astype(np.float32)
+
+
+def has_alpha(pixels: np.ndarray, kind: str) -> bool:
+    """A colour map with an alpha channel (2 or 4 channels): shown over a checkerboard, lit alpha-tested."""
+    return kind == "color" and pixels.shape[-1] in (2, 4)
 
 
 #: Sheet kinds shown as grey levels.
@@ -191,13 +225,17 @@ def display_values(pixels: np.ndarray, kind: str, *, bits: str, scale=None, tran
                    ) -> np.ndarray:
     """Display values (sRGB-encoded, [0, 1], float32, RGB) of a 2D map ``(H, W, C)``, scaled as ``scale``
     (from :func:`display_range`) says. ``transfer="linear"`` marks an integer colour map holding linear
-    values (encoded for display)."""
+    values (encoded for display). A colour map with alpha is shown over a checkerboard
+    (:func:`over_checkerboard`)."""
     from bakery.color import linear_to_srgb
     from bakery.preview.tonemap import display
 
     px = np.nan_to_num(np.asarray(pixels, dtype=np.float32), nan=0.0, posinf=0.0, neginf=0.0)
     c = px.shape[2]
     is_float = bits in ("half", "float")
+    if has_alpha(px, kind):  # the colour over a checkerboard where it is transparent
+        shown = display_values(px[..., :-1], kind, bits=bits, scale=scale, transfer=transfer)
+        return over_checkerboard(shown, px[..., -1])
     if kind in RADIANCE_KINDS or (kind == "color" and isinstance(scale, float)):
         rgb = px[..., :3] if c >= 3 else np.repeat(px[..., :1], 3, axis=2)
         return display(rgb, exposure=scale if isinstance(scale, float) else 0.0)
@@ -247,7 +285,7 @@ def thumbnail(pixels: np.ndarray, kind: str, *, bits: str, size: int = 160, scal
         px = cross(px)
     if scale is None:
         scale = display_range(px, kind, bits=bits)
-    small = _fit(np.nan_to_num(px, nan=0.0, posinf=0.0, neginf=0.0), size)
+    small = _fit(np.nan_to_num(px, nan=0.0, posinf=0.0, neginf=0.0), size, alpha=has_alpha(px, kind))
     return display_values(small, kind, bits=bits, scale=scale, transfer=transfer)
 
 
@@ -276,7 +314,9 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=
     - normal maps: decoded with the green-channel convention their manifest records (``knowledge.y``); without
       one, read as Y-up (bakery's and glTF's convention), so a Y-down map shows its inverted relief;
     - colour maps: the base colour (8/16-bit files decoded from sRGB, IEC 61966-2-1, unless the manifest says
-      the values are linear);
+      the values are linear); with alpha below 1 somewhere, alpha-tested (:class:`~bakery.preview.shading.
+      AlphaTest`) at the cutoff the map's ``bakery mips`` manifest records (``knowledge.alpha_cutoff``), else
+      at 0.5 (common practice);
     - roughness and occlusion maps (by manifest): a roughness map on a dark base colour, an occlusion map on a
       light grey one;
     - packed textures: through their channel layout (:func:`bakery.preview.inputs.maps_from_pack`);
@@ -316,7 +356,11 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=
         rgb = px[..., :3]
         linear = bits in ("half", "float") or (known and knowledge.transfer == "linear")
         rgb = np.clip(rgb, 0, None) if linear else srgb_to_linear(rgb)
-        return Material(base_color=np.minimum(rgb, 1), roughness=0.5), "lit: base colour"
+        from bakery.preview.inputs import alpha_test_for
+
+        cut = alpha_test_for(px, knowledge.alpha_cutoff if knowledge is not None else None)
+        note = "lit: base colour" + (f", alpha-tested at {cut.cutoff:g}" if cut is not None else "")
+        return Material(base_color=np.minimum(rgb, 1), roughness=0.5, alpha_test=cut), note
     g = px[..., 0]
     in_unit = bool(g.min() >= 0 and g.max() <= 1)
     if (kind == "roughness" or (not known and any(w in stem for w in ROUGHNESS_WORDS))) and in_unit:
@@ -345,6 +389,8 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=
     if kind == "table":
         return None, "a table: shown as its channels, not on a ball"
     if kind == "picture":
+        if knowledge is not None and knowledge.kind in RADIANCE_KINDS:
+            return None, f"a picture of an environment, {bits}-bit sRGB clipped at 1: shown as it is"
         return None, "a picture: shown as it is, not on a ball"
     if kind == "irradiance":
         return None, "irradiance: shown as crosses, not on a ball"
@@ -353,25 +399,22 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=
 
 def lit_previews(lighting, *, size: int = 160, supersample: int = 2) -> PreviewFn:
     """A :data:`PreviewFn` rendering the ball of :func:`material_for` under ``lighting``. An HDR environment
-    (an equirect panorama, or a cube map turned into one) is shown instead on a polished metal ball (roughness
-    0.15) lit by itself, its lighting baked in memory at a small size (face 64², five levels), with automatic
-    exposure."""
+    (an equirect panorama, or a cube map turned into one: six faces, or one image holding them in a layout
+    of :mod:`bakery.io.layouts`, a cross, row or stack recognised by its aspect ratio) is shown instead on a
+    polished metal ball (roughness 0.15) lit by itself (:func:`bakery.preview.lighting.as_panorama`), its
+    lighting baked in memory at a small size (face 64², five levels), with automatic exposure."""
     from bakery.preview.render import preview_image
     from bakery.preview.shading import Material
 
     def fn(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=None):
         if kind == "environment":
-            from bakery.preview.lighting import lighting_from_panorama
+            from bakery.preview.lighting import as_panorama, lighting_from_panorama
 
-            if pixels.ndim == 4:
-                from bakery.envmap.resample import resample
-
-                n = pixels.shape[1]
-                pixels = resample(pixels[..., :3], "cube", "equirect", max(64, 4 * n))
-            h, w = pixels.shape[:2]
-            if w != 2 * h or h % 2 or pixels.shape[2] < 3:
-                return None, "no lit preview: not an equirectangular RGB panorama (2:1, even height)"
-            own = lighting_from_panorama(pixels[..., :3], face=64, levels=5)
+            pano = as_panorama(pixels)
+            if pano is None or pano.shape[0] % 2 or pano.shape[2] < 3:
+                return None, ("no lit preview: neither an equirectangular RGB panorama (2:1, even height) nor a "
+                              "cube map (six faces, a cross, row or stack)")
+            own = lighting_from_panorama(pano[..., :3], face=64, levels=5)
             ball = Material(roughness=0.15, metallic=1.0, base_color=(0.95, 0.95, 0.95))
             img, _ = preview_image(ball, own, size=size, views="ball", supersample=supersample, exposure=None)
             return img, "lit by itself: metal ball, roughness 0.15"
@@ -429,7 +472,7 @@ def strips_for(forms, kind: str, knowledge, *, size: int = STRIP) -> list:
                 continue
             img = cross(lv) if form.cube else lv
             shown = _fit(np.nan_to_num(img, nan=0.0, posinf=0.0, neginf=0.0), size * (2 if form.cube else 1),
-                         enlarge=False)
+                         enlarge=False, alpha=has_alpha(img, fk))
             pic = display_values(shown, fk, bits=form.bits, scale=scale,
                                  transfer=knowledge.transfer if knowledge is not None else None)
             strip.pictures.append((pic, _level_caption(k, lv, rough), width * (2 if form.cube else 1)))
@@ -490,6 +533,10 @@ def make_asset_entry(asset, *, thumb: int = 160, preview: PreviewFn | None = Non
             guessed, found = inspect_pixels(px, bits=bits, kind=INSPECT_KINDS.get(know.kind or "",
                                                                                    "data" if know.kind else None))
             kind = know.kind or guessed
+            if kind in RADIANCE_KINDS and know.kind and bits in ("8", "16"):
+                # an environment bake's 8/16-bit image: sRGB display values clipped at 1 (bakery.io.envfiles),
+                # a picture to look at rather than radiance to light with
+                kind = "picture"
             # the findings of `bakery inspect`: judged with the map's manifest when one still matches it
             from bakery.inspect_files import inspect_paths
 
