@@ -140,7 +140,7 @@ def compare_entries(old_files: Sequence[tuple[Path, Path]], new_files: Sequence[
                 pics.append(None)
                 continue
             kind = know.kind or ("environment" if lv0.ndim == 4 else
-                                 map_kind(lv0, is_float=form.bits in ("half", "float")))
+                                 map_kind(lv0, is_float=form.bits in ("half", "float"), name=Path(a.main).name))
             pics.append((kind, lv0))
         if sides[0] is None or sides[1] is None:
             e.numbers = [("only in", "the old set" if sides[1] is None else "the new set")]

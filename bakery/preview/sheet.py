@@ -531,7 +531,8 @@ def make_asset_entry(asset, *, thumb: int = 160, preview: PreviewFn | None = Non
             kind = "table"  # a lookup table, not a texture: no tiling or terracing checks
         else:
             guessed, found = inspect_pixels(px, bits=bits, kind=INSPECT_KINDS.get(know.kind or "",
-                                                                                   "data" if know.kind else None))
+                                                                                   "data" if know.kind else None),
+                                            name=Path(main).name)
             kind = know.kind or guessed
             if kind in RADIANCE_KINDS and know.kind and bits in ("8", "16"):
                 # an environment bake's 8/16-bit image: sRGB display values clipped at 1 (bakery.io.envfiles),

@@ -143,6 +143,21 @@ def test_single_channel_maps_are_previewed_by_name():
     assert mat is None and "rough, height or exponent" in note
 
 
+def test_a_shallow_height_map_is_a_height_map_by_its_name(tmp_path, lighting):
+    """Its values (a used range of 0.2) look like roughness data; the card follows the name's word."""
+    from scipy.ndimage import gaussian_filter
+
+    g = gaussian_filter(np.random.default_rng(2).random((64, 64)), 4, mode="wrap")
+    g = (0.45 + 0.2 * (g - g.min()) / np.ptp(g)).astype(np.float32)
+    fn = lit_previews(lighting, size=32)
+    for name, kind in (("plate_height.png", "height"), ("plate.png", "roughness")):
+        path = write_image(tmp_path / name, g, bits="16")
+        e = make_entry(path, tmp_path, thumb=32, preview=fn)
+        assert e.kind == kind, (name, e.kind)
+    assert "baked from the heights" in make_entry(tmp_path / "plate_height.png", tmp_path, thumb=32,
+                                                  preview=fn).preview_note
+
+
 def test_page_escapes_names_and_links(maps, lighting):
     entries = [make_entry(p, maps, thumb=32) for p in find_maps(maps)]
     page = sheet_html(entries, title="<b>sheet</b>", links=[{"map": "t/a b&c.png"}] * len(entries), grids=[])
