@@ -1,7 +1,8 @@
 """Rebuild the pictures of docs/preview.md: ``python docs/images/make_preview_images.py``.
 
 Uses the procedural demo scene (bakery.samples): paving-stone heights baked to normals in memory
-(bakery.normals), exponents converted to roughness (bakery.roughness), the built-in sky. The contact-sheet
+(bakery.normals), exponents converted to roughness (bakery.roughness), the built-in sky, and the demo's
+procedural leaf card (bakery.relief.examples) for the cut-out picture. The contact-sheet
 picture is a screenshot, in headless Chromium (Debian's ``chromium`` package), of ``bakery sheet`` over the
 sample library baked by its recipe (``bakery batch``): one card per asset, KTX2 levels as strips.
 """
@@ -19,6 +20,7 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parents[1]))
 
+from bakery.color import srgb_to_linear  # noqa: E402
 from bakery.io import write_image  # noqa: E402
 from bakery.normals import normal_from_height  # noqa: E402
 from bakery.preview.lighting import default_lighting  # noqa: E402
@@ -60,6 +62,17 @@ def main() -> None:
     write_image(HERE / "preview_y_conventions.png",
                 np.concatenate([label(a, "Y-up map read as Y-up"), label(b, "Y-down map read as Y-up")], 1),
                 bits="8")
+
+    from bakery.preview.inputs import alpha_test_for
+    from bakery.relief.examples import leaf_card
+
+    card = leaf_card(256)  # sRGB colour, linear alpha
+    leaf = Material(base_color=srgb_to_linear(card[..., :3]), roughness=0.5, alpha_test=alpha_test_for(card))
+    opaque = Material(base_color=srgb_to_linear(card[..., :3]), roughness=0.5)
+    a, _ = preview_image(opaque, light, size=256)
+    b, _ = preview_image(leaf, light, size=256)
+    write_image(HERE / "preview_cutout.png", np.concatenate([label(a, "alpha ignored"),
+                                                            label(b, "alpha-tested at 0.5")], 0), bits="8")
 
     frames, _ = turntable_frames(mat, light, 16, size=192)
     strip = [label(frames[i], f"spin {22.5 * i:g} deg") for i in (0, 1, 2, 3)]
