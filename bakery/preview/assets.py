@@ -165,6 +165,8 @@ class Knowledge:
     alpha_cutoff : float or None
         The alpha test's cutoff a colour map's manifest records
         (:func:`bakery.preview.inputs.alpha_cutoff_from_manifest`).
+    mask : str or None
+        Which map a ``curvature`` bake wrote (``mean``, ``convexity``, ``concavity``, ``cavity``).
     """
 
     bake: str | None = None
@@ -176,6 +178,7 @@ class Knowledge:
     layout: dict[str, str] | None = None
     table: dict | None = None
     alpha_cutoff: float | None = None
+    mask: str | None = None
 
     @property
     def note(self) -> str:
@@ -223,6 +226,8 @@ def knowledge(path: str | os.PathLike) -> Knowledge:
         k.level_roughness = [float(v) for v in rough]
     if kind == "table" and isinstance(m.get("layout"), dict):
         k.table = m["layout"]
+    if bake == "curvature" and isinstance(m.get("map"), str):
+        k.mask = m["map"]
     return k
 
 

@@ -317,8 +317,8 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=
       the values are linear); with alpha below 1 somewhere, alpha-tested (:class:`~bakery.preview.shading.
       AlphaTest`) at the cutoff the map's ``bakery mips`` manifest records (``knowledge.alpha_cutoff``), else
       at 0.5 (common practice);
-    - roughness and occlusion maps (by manifest): a roughness map on a dark base colour, an occlusion map on a
-      light grey one;
+    - roughness and occlusion maps (by manifest): a roughness map on a dark base colour, an occlusion map (and
+      the cavity mask of ``curvature``, 1 open, darker in crevices) on a light grey one;
     - packed textures: through their channel layout (:func:`bakery.preview.inputs.maps_from_pack`);
     - single-channel maps without a manifest say what they hold by name only: ``rough`` -> roughness;
       ``height``, ``disp``, ``bump`` -> normals baked in memory (:func:`bakery.normals.normal_from_height`,
@@ -369,6 +369,9 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=
     if (kind == "occlusion" or (not known and any(w in stem for w in OCCLUSION_WORDS))) and in_unit:
         return (Material(occlusion=g, roughness=0.6, base_color=(0.8, 0.8, 0.8)),
                 "lit: occlusion map (darkens the environment's light)")
+    if kind == "mask" and knowledge is not None and knowledge.mask == "cavity" and in_unit:
+        return (Material(occlusion=g, roughness=0.6, base_color=(0.8, 0.8, 0.8)),
+                "lit: cavity mask as an occlusion map (darkens the crevices' light)")
     if kind in ("height", "data") and not known:
         if any(w in stem for w in HEIGHT_WORDS) or kind == "height" and knowledge is not None and knowledge.bake:
             from bakery.normals.from_height import DEFAULT_RELIEF_RATIO, normal_from_height, strength_from_size

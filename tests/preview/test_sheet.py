@@ -158,6 +158,32 @@ def test_a_shallow_height_map_is_a_height_map_by_its_name(tmp_path, lighting):
                                                   preview=fn).preview_note
 
 
+def test_a_cavity_mask_is_previewed_as_occlusion_and_other_masks_are_not(tmp_path, lighting):
+    """The cavity mask (1 open, darker in crevices) multiplies the environment's light as an occlusion map
+    does: its ball is the one of an occlusion map holding the same values."""
+    from bakery.bakes import get_bake, run_bake
+    from bakery.preview.shading import Material
+
+    r, c = np.mgrid[0:64, 0:64].astype(np.float32)
+    h = write_image(tmp_path / "h.png", 0.5 + 0.3 * np.sin(c / 5) * np.cos(r / 7), bits="16")
+    fn = lit_previews(lighting, size=32, supersample=1)
+    for m in ("cavity", "convexity"):
+        out = run_bake("curvature", {"height": h}, tmp_path / f"{m}.png", get_bake("curvature").params(map=m))[0]
+        e = make_entry(out, tmp_path, thumb=32, preview=fn)
+        assert e.kind == "mask"
+        if m == "convexity":
+            assert e.preview is None
+            continue
+        assert "cavity mask as an occlusion map" in e.preview_note
+        from bakery.io import read_image
+        from bakery.preview.render import preview_image
+
+        g = read_image(out).pixels[..., 0]
+        ref, _ = preview_image(Material(occlusion=g, roughness=0.6, base_color=(0.8, 0.8, 0.8)), lighting,
+                               size=32, views="ball", supersample=1)
+        np.testing.assert_allclose(e.preview, ref, atol=1e-6)
+
+
 def test_page_escapes_names_and_links(maps, lighting):
     entries = [make_entry(p, maps, thumb=32) for p in find_maps(maps)]
     page = sheet_html(entries, title="<b>sheet</b>", links=[{"map": "t/a b&c.png"}] * len(entries), grids=[])
