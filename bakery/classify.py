@@ -15,8 +15,8 @@ import numpy as np
 #: Map kinds and how they are described.
 KINDS = {
     "normal": "normal map (tangent space)",
-    "height": "height map (single channel)",
-    "roughness": "single-channel material data (roughness, gloss or a mask)",
+    "height": "height map",
+    "roughness": "material data: roughness, gloss or a mask",
     "data": "single-channel float data (specular exponents or heights)",
     "environment": "environment",
     "color": "colour image",
@@ -142,6 +142,9 @@ def guess_kind(pixels: np.ndarray, *, is_float: bool, name: str | Path | None = 
         text = f"{dynamic} {text} ({layout or face})"
     if kind == "normal" and pixels.shape[2] == 2:
         text = "normal map (two-channel XY)"
+    if kind in ("height", "roughness"):
+        c = pixels.shape[2]
+        text += (" (single channel)" if c == 1 else " (grey, R = G = B" + (", with alpha)" if c == 4 else ")"))
     return text
 
 

@@ -302,3 +302,16 @@ def test_a_file_name_decides_between_heights_and_material_data():
     assert map_kind(steep, is_float=False, name="chaos.png") == "height"
     rgb = np.repeat(steep, 3, axis=2) * np.array([1.0, 0.5, 0.2], np.float32)
     assert map_kind(rgb, is_float=False, name="oak_roughness.png") == "color"  # colour: the name is not asked
+
+
+def test_info_says_how_a_grey_map_is_stored():
+    from bakery.classify import guess_kind
+
+    g = gaussian_filter(np.random.default_rng(6).random((64, 64)), 3, mode="wrap").astype(np.float32)[..., None]
+    g = (g - g.min()) / np.ptp(g)
+    assert guess_kind(g, is_float=False) == "height map (single channel)"
+    assert guess_kind(np.repeat(g, 3, 2), is_float=False) == "height map (grey, R = G = B)"
+    rgba = np.concatenate([np.repeat(g, 3, 2), np.ones_like(g)], 2)
+    assert guess_kind(rgba, is_float=False) == "height map (grey, R = G = B, with alpha)"
+    said = guess_kind(g, is_float=False, name="x_gloss.png")
+    assert said == "material data: roughness, gloss or a mask (single channel)"
