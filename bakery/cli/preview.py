@@ -62,6 +62,10 @@ def preview(
                                                   dir_okay=False)] = None,
     base_color: Annotated[str, typer.Option("--base-color", help="Base colour: a grey level, R,G,B (linear, "
                                             "0-1) or a colour map (8/16-bit files are sRGB).")] = "0.5",
+    alpha_cutoff: Annotated[float | None, typer.Option(
+        "--alpha-cutoff",
+        help="Alpha test of a --base-color map with alpha: texels with alpha below it are not drawn. "
+             "Default: the cutoff its manifest records (bakery mips), else 0.5.", show_default=False)] = None,
     metallic: Annotated[str, typer.Option(help="Metalness: a number in [0, 1] (0 = dielectric, 1 = metal) or "
                                           "a metalness map.")] = "0",
     occlusion: Annotated[Path | None, typer.Option(help="Ambient-occlusion map (e.g. of `bakery occlusion`): "
@@ -146,9 +150,12 @@ def preview(
 
         target_y = load_profile(profile).y
     green = y.value if y is not None else _normal_y(normal, target_y)
+    if alpha_cutoff is not None and not 0 < alpha_cutoff <= 1:
+        raise BakeryError(f"--alpha-cutoff must lie in (0, 1]; got {alpha_cutoff:g}")
     material = load_material(normal=normal, green=green, height=height, strength=strength,
                              roughness=rough, exponent=exponent, base_color=color, metallic=metal,
-                             occlusion=occlusion, pack=pack, pack_layout=layout, max_pixels=limit)
+                             occlusion=occlusion, pack=pack, pack_layout=layout, alpha_cutoff=alpha_cutoff,
+                             max_pixels=limit)
     lighting = choose_lighting(env, specular=specular, diffuse=diffuse, lut=lut, lights=lights)
     cut = material.alpha_test.cutoff if material.alpha_test is not None else None
     settings = {"size": size, "y": green, "yaw": yaw, "pitch": pitch, "rotation": rotation, "tiles": list(tiles),

@@ -194,7 +194,7 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
                   base_color: float | tuple[float, float, float] | str | os.PathLike = 0.5,
                   metallic: float | str | os.PathLike = 0.0, occlusion: str | os.PathLike | None = None,
                   pack: str | os.PathLike | None = None, pack_layout: dict[str, str] | None = None,
-                  max_pixels: int | None = None):
+                  alpha_cutoff: float | None = None, max_pixels: int | None = None):
     """Build a :class:`~bakery.preview.shading.Material` from files and values.
 
     Parameters
@@ -218,7 +218,7 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
         Linear values in [0, 1], or a colour map (8/16-bit files decoded from sRGB, IEC 61966-2-1; float files
         taken as linear). A map with alpha below 1 somewhere is alpha-tested
         (:class:`~bakery.preview.shading.AlphaTest`) at the cutoff its manifest records
-        (:func:`alpha_cutoff_from_manifest`), else at 0.5 (common practice).
+        (:func:`alpha_cutoff_from_manifest`), else at 0.5 (common practice), unless ``alpha_cutoff`` is given.
     metallic : float or path
         Metalness in [0, 1], or a single-channel map of it.
     occlusion : path, optional
@@ -309,7 +309,8 @@ def load_material(*, normal: str | os.PathLike | None = None, green: str = "up",
         if px.shape[2] == 4:
             from bakery.io.manifest import manifest_for
 
-            cut = alpha_test_for(px, alpha_cutoff_from_manifest(manifest_for(path)))
+            cut = alpha_test_for(px, alpha_cutoff if alpha_cutoff is not None else
+                                 alpha_cutoff_from_manifest(manifest_for(path)))
     elif "base_color" in packed:
         color = packed["base_color"]
     else:

@@ -270,6 +270,32 @@ def _cross_tall(faces):
     return img
 
 
+def test_preview_alpha_cutoff_option_overrides_the_default_and_is_checked(tmp_path, capfd):
+    from bakery.cli import run
+    from bakery.io.manifest import manifest_for
+
+    color, _ = _halves()
+    a = np.full((32, 32), 0.6, np.float32)  # drawn at cutoffs up to 0.6 (alpha >= cutoff passes), gone above
+    card = write_image(tmp_path / "card.png", np.concatenate([color, a[..., None]], axis=2), bits="8")
+    pics = {}
+    for cut in ("0.5", "0.7"):
+        pics[cut] = tmp_path / f"p{cut}.png"
+        assert run(["preview", "-o", str(pics[cut]), "--base-color", str(card), "--size", "32", "--supersample",
+                    "1", "--alpha-cutoff", cut]) == 0
+        assert manifest_for(pics[cut])["params"]["alpha_cutoff"] == float(cut)
+    empty = write_image(tmp_path / "empty.png", np.concatenate([color, 0 * a[..., None]], axis=2), bits="8")
+    gone = tmp_path / "gone.png"
+    assert run(["preview", "-o", str(gone), "--base-color", str(empty), "--size", "32", "--supersample", "1"]) == 0
+    np.testing.assert_array_equal(read_image(pics["0.7"]).pixels, read_image(gone).pixels)  # nothing drawn
+    assert not np.array_equal(read_image(pics["0.5"]).pixels, read_image(gone).pixels)
+    for bad in ("0", "1.5", "nan"):
+        capfd.readouterr()
+        out = tmp_path / "bad.png"
+        assert run(["preview", "-o", str(out), "--base-color", str(card), "--alpha-cutoff", bad]) == 2
+        err = [line for line in capfd.readouterr().err.splitlines() if line.strip()]
+        assert len(err) == 1 and err[0].startswith("error: --alpha-cutoff") and not out.exists()
+
+
 @pytest.mark.parametrize("make", [_cross_wide, _cross_tall])
 def test_a_cross_exr_is_previewed_as_its_six_faces(tmp_path, sky, make):
     from bakery.io.ktx2 import write_ktx2
