@@ -40,7 +40,7 @@ SMOOTHNESS = 2.5
 #: Words of a file name that say what a single-channel map holds; they decide over the values, which can look
 #: alike (a shallow height map and a roughness map). Matched as the start of a word of the name (split at
 #: ``_ - . `` and spaces and at lower-to-upper case changes); common practice of texture naming, no standard.
-HEIGHT_WORDS = ("height", "disp", "bump", "elev", "heightmap")
+HEIGHT_WORDS = ("height", "disp", "bump", "elev")
 DATA_WORDS = ("rough", "gloss", "smooth", "metal", "mask", "occlusion", "ao", "cavity", "curv", "spec",
               "opacity", "alpha")
 

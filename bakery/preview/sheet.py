@@ -366,12 +366,11 @@ def material_for(pixels: np.ndarray, kind: str, bits: str, name: str, knowledge=
     if (kind == "roughness" or (not known and any(w in stem for w in ROUGHNESS_WORDS))) and in_unit:
         # a dark base colour so the specular reflection, where roughness shows, dominates
         return Material(roughness=g, base_color=(0.04, 0.04, 0.04)), "lit: roughness map (dark base)"
-    if (kind == "occlusion" or (not known and any(w in stem for w in OCCLUSION_WORDS))) and in_unit:
+    cavity = kind == "mask" and knowledge is not None and knowledge.mask == "cavity"
+    if (kind == "occlusion" or cavity or (not known and any(w in stem for w in OCCLUSION_WORDS))) and in_unit:
         return (Material(occlusion=g, roughness=0.6, base_color=(0.8, 0.8, 0.8)),
+                "lit: cavity mask as an occlusion map (darkens the crevices' light)" if cavity else
                 "lit: occlusion map (darkens the environment's light)")
-    if kind == "mask" and knowledge is not None and knowledge.mask == "cavity" and in_unit:
-        return (Material(occlusion=g, roughness=0.6, base_color=(0.8, 0.8, 0.8)),
-                "lit: cavity mask as an occlusion map (darkens the crevices' light)")
     if kind in ("height", "data") and not known:
         if any(w in stem for w in HEIGHT_WORDS) or kind == "height" and knowledge is not None and knowledge.bake:
             from bakery.normals.from_height import DEFAULT_RELIEF_RATIO, normal_from_height, strength_from_size
